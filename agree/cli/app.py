@@ -1,0 +1,82 @@
+"""The Typer application and what every command shares: error handling and output."""
+
+from __future__ import annotations
+
+import json
+import sys
+from typing import Any
+
+import typer
+from rich.console import Console
+
+from agree.model import AgreeError
+
+app = typer.Typer(
+    name="agree",
+    help="Measure, diagnose, reconcile and report agreement between coders of qualitative data.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
+
+stdout = Console(soft_wrap=True)
+stderr = Console(stderr=True, soft_wrap=True)
+
+STATE = {"debug": False, "quiet": False}
+
+
+@app.callback()
+def _global(
+    debug: bool = typer.Option(False, "--debug", help="Show the full traceback on errors."),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="Print no progress or notes on stderr."),
+):
+    STATE["debug"] = debug
+    STATE["quiet"] = quiet
+
+
+def note(message: str) -> None:
+    """A note for the user on stderr (what was detected, what was left out)."""
+    if not STATE["quiet"]:
+        stderr.print(message, highlight=False, markup=False)
+
+
+def print_json(obj: Any) -> None:
+    sys.stdout.write(json.dumps(obj, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
+
+
+def fail(message: str, code: int = 2) -> None:
+    stderr.print(f"error: {message}", highlight=False, markup=False)
+    raise typer.Exit(code)
+
+
+def main() -> None:
+    """Console entry point: library errors become one line on stderr and exit code 2."""
+    from agree.cli import commands  # noqa: F401  (registers the commands)
+
+    try:
+        app(standalone_mode=False)
+    except AgreeError as exc:
+        if STATE["debug"]:
+            raise
+        stderr.print(f"error: {exc.one_line()}", highlight=False, markup=False)
+        for extra in exc.problems[1:]:
+            stderr.print(f"error: {extra.one_line()}", highlight=False, markup=False)
+        sys.exit(2)
+    except typer.Exit as exc:
+        sys.exit(exc.exit_code)
+    except typer.Abort:
+        stderr.print("aborted")
+        sys.exit(1)
+    except Exception as exc:  # click usage errors and the unexpected
+        import click
+
+        if isinstance(exc, click.exceptions.ClickException):
+            exc.show()
+            sys.exit(2)
+        if isinstance(exc, click.exceptions.Exit):
+            sys.exit(exc.exit_code)
+        if STATE["debug"]:
+            raise
+        stderr.print(f"error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",
+                     highlight=False, markup=False)
+        sys.exit(1)

@@ -1,0 +1,130 @@
+"""Result types. One frozen type for every coefficient; nothing here prints or rounds."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+
+@dataclass(frozen=True)
+class Note:
+    """A machine-readable warning: a stable `code` and one plain sentence."""
+
+    code: str
+    message: str
+
+    def to_dict(self) -> dict[str, str]:
+        return {"code": self.code, "message": self.message}
+
+
+@dataclass(frozen=True)
+class BootstrapInfo:
+    """How an interval was resampled, recorded so it can be reported and repeated."""
+
+    replicates: int
+    seed: int | None
+    method: str              # "bca" or "percentile"
+    unit: str = "unit"       # "unit", or "cluster:<column>" when whole groups were resampled
+    n_undefined: int = 0     # replicates where the coefficient was undefined (left out)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"replicates": self.replicates, "seed": self.seed, "method": self.method,
+                "unit": self.unit, "n_undefined": self.n_undefined}
+
+
+def _clean(x: Any) -> Any:
+    """JSON-safe: NaN and inf become None, numpy scalars become Python numbers."""
+    if x is None:
+        return None
+    if hasattr(x, "item") and not isinstance(x, (list, dict, str)):
+        try:
+            x = x.item()
+        except (ValueError, AttributeError):
+            pass
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    if isinstance(x, dict):
+        return {str(k): _clean(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_clean(v) for v in x]
+    return x
+
+
+@dataclass(frozen=True)
+class AgreementResult:
+    """The result of every agreement coefficient.
+
+    `estimate` is NaN (with a warning saying why) when the coefficient is undefined.
+    `se` is the analytic standard error where a published estimator exists (`se_method`
+    names it), otherwise the bootstrap standard deviation, otherwise None.
+    `ci_low`/`ci_high` is a two-sided interval at `confidence_level`, made by `ci_method`.
+    `lower_bound` is the one-sided lower confidence bound at the same level (bootstrap).
+    `p_below_min` is the share of bootstrap replicates below `minimum`.
+    Kappa-type results carry `z`, `p_value` (two-sided) and `p_value_one_sided` for
+    H0: no agreement beyond chance.
+    """
+
+    name: str
+    estimate: float
+    se: float | None = None
+    ci_low: float | None = None
+    ci_high: float | None = None
+    confidence_level: float = 0.95
+    ci_method: str | None = None
+    se_method: str | None = None
+    n_units: int = 0
+    n_coders: int = 0
+    n_values: int = 0
+    n_categories: int = 0
+    level: str | None = None
+    weights: str | None = None
+    z: float | None = None
+    p_value: float | None = None
+    p_value_one_sided: float | None = None
+    minimum: float | None = None
+    p_below_min: float | None = None
+    lower_bound: float | None = None
+    bootstrap: BootstrapInfo | None = None
+    details: Mapping[str, Any] = field(default_factory=dict)
+    warnings: tuple[Note, ...] = ()
+
+    @property
+    def defined(self) -> bool:
+        return math.isfinite(self.estimate)
+
+    def to_dict(self) -> dict[str, Any]:
+        return _clean({
+            "name": self.name,
+            "estimate": self.estimate,
+            "se": self.se,
+            "se_method": self.se_method,
+            "ci_low": self.ci_low,
+            "ci_high": self.ci_high,
+            "confidence_level": self.confidence_level,
+            "ci_method": self.ci_method,
+            "n_units": self.n_units,
+            "n_coders": self.n_coders,
+            "n_values": self.n_values,
+            "n_categories": self.n_categories,
+            "level": self.level,
+            "weights": self.weights,
+            "z": self.z,
+            "p_value": self.p_value,
+            "p_value_one_sided": self.p_value_one_sided,
+            "minimum": self.minimum,
+            "p_below_min": self.p_below_min,
+            "lower_bound": self.lower_bound,
+            "bootstrap": None if self.bootstrap is None else self.bootstrap.to_dict(),
+            "details": dict(self.details),
+            "warnings": [w.to_dict() for w in self.warnings],
+        })
+
+    def _repr_html_(self) -> str:
+        def f(x):
+            return "–" if x is None or (isinstance(x, float) and not math.isfinite(x)) else f"{x:.3f}"
+        ci = f"[{f(self.ci_low)}, {f(self.ci_high)}]" if self.ci_low is not None else "–"
+        warn = "".join(f"<li>{w.message}</li>" for w in self.warnings)
+        return (f"<div><b>{self.name}</b> = {f(self.estimate)} &nbsp; SE {f(self.se)} &nbsp; "
+                f"{self.confidence_level:.0%} CI {ci} &nbsp; ({self.n_units} units, "
+                f"{self.n_coders} coders)" + (f"<ul>{warn}</ul>" if warn else "") + "</div>")
