@@ -1,0 +1,21 @@
+"""agree: measure, diagnose, reconcile and report agreement between coders of qualitative data.
+
+The layers, ground floor first: the data model (`agree.model`) -> readers and codebooks ->
+value patterns and coefficients -> resampling and planning -> diagnostics and rounds ->
+reconciliation and reports -> the command line (`agree.cli`).
+"""
+
+from agree.coefficients import (brennan_prediger, cohen_kappa, coincidence_matrix, conger_kappa,
+                                fleiss_kappa, gwet_ac1, krippendorff_alpha, pabak, percent_agreement,
+                                scott_pi)
+from agree.model import AgreeError, CodingData, from_table
+from agree.results import AgreementResult, BootstrapInfo, Note
+from agree.scoring import ScoreResult, score
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "AgreeError", "AgreementResult", "BootstrapInfo", "CodingData", "Note", "ScoreResult",
+    "brennan_prediger", "cohen_kappa", "coincidence_matrix", "conger_kappa", "fleiss_kappa",
+    "from_table", "gwet_ac1", "krippendorff_alpha", "pabak", "percent_agreement", "scott_pi", "score",
+]

@@ -1,0 +1,81 @@
+"""Value patterns: compress units with the same values into one row with a count.
+
+A coefficient that does not care which coder gave which value (alpha, Fleiss, AC1, ...)
+depends on the data only through the counts of distinct unordered patterns (the multiset
+of a unit's values). One that does (Cohen, Conger) needs ordered patterns (the tuple
+coder -> value). A unit bootstrap replicate is then one multinomial draw over the pattern
+counts (METHODS 7.5), at a cost independent of the number of units.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Patterns:
+    """Distinct rows of a codes table.
+
+    codes : (P, m) int32, -1 for missing (sorted within each row when unordered).
+    counts : (P,) int64, how many units have each pattern.
+    inverse : (N,) int64 or None, the pattern of each unit (kept for cluster resampling).
+    n_values : V, the number of distinct values codes refer to.
+    """
+
+    codes: np.ndarray
+    counts: np.ndarray
+    inverse: np.ndarray | None
+    n_values: int
+
+    @property
+    def n_units(self) -> int:
+        return int(self.counts.sum())
+
+    def value_counts(self) -> np.ndarray:
+        """(P, V) counts r_pv: how many coders gave value v in pattern p."""
+        V = self.n_values
+        onehot = self.codes[:, :, None] == np.arange(V)[None, None, :]
+        return onehot.sum(axis=1).astype(float)
+
+    def coder_onehot(self) -> np.ndarray:
+        """(P, m, V) indicator x_pik: coder i gave value k in pattern p."""
+        V = self.n_values
+        return (self.codes[:, :, None] == np.arange(V)[None, None, :]).astype(float)
+
+
+def compress(codes: np.ndarray, n_values: int, *, ordered: bool, keep_inverse: bool = False) -> Patterns:
+    """Group the units of a (N, m) codes table into distinct patterns.
+
+    Each row is encoded as one integer in base V + 1 (missing = 0) when that fits in
+    63 bits; otherwise rows are grouped with ``np.unique(axis=0)``.
+    """
+    codes = np.asarray(codes)
+    N, m = codes.shape
+    if N == 0:
+        return Patterns(np.zeros((0, m), np.int32), np.zeros(0, np.int64),
+                        np.zeros(0, np.int64) if keep_inverse else None, n_values)
+    rows = codes if ordered else np.sort(codes, axis=1)
+    base = n_values + 1
+    if m * np.log2(base) < 62:
+        shifted = rows.astype(np.int64) + 1
+        powers = base ** np.arange(m, dtype=np.int64)
+        key = shifted @ powers
+        space = base ** m
+        if space <= max(4 * N, 1 << 16) and not keep_inverse:
+            counts_all = np.bincount(key, minlength=space)
+            keys = np.flatnonzero(counts_all)
+            counts = counts_all[keys]
+            inverse = None
+        else:
+            keys, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
+            if not keep_inverse:
+                inverse = None
+        digits = (keys[:, None] // powers[None, :]) % base
+        pattern_codes = (digits - 1).astype(np.int32)
+    else:
+        pattern_codes, inverse, counts = np.unique(rows, axis=0, return_inverse=True, return_counts=True)
+        pattern_codes = pattern_codes.astype(np.int32)
+        inverse = inverse.ravel() if keep_inverse else None
+    return Patterns(pattern_codes, counts.astype(np.int64), inverse, n_values)

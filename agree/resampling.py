@@ -1,0 +1,149 @@
+"""Unit (or cluster) bootstrap and jackknife on sufficient sums.
+
+Every coefficient in `agree` is a function of sums over units of per-unit feature vectors
+(the coincidence matrix, the coders' margins, the within-unit agreement, ...). Units with
+the same pattern of values have the same features, so a statistic is ``finish(counts @ F)``
+where F holds one row of features per pattern (or per cluster) and `counts` how often each
+occurs. A bootstrap replicate draws new counts from a multinomial over the patterns
+(exactly the unit bootstrap, METHODS 7.5); a jackknife value removes one unit (or cluster).
+
+References
+----------
+Efron, B. (1987). Better bootstrap confidence intervals. JASA, 82(397), 171-185.
+Efron, B., & Tibshirani, R. J. (1993). An Introduction to the Bootstrap. Chapman & Hall.
+DiCiccio, T. J., & Efron, B. (1996). Bootstrap confidence intervals. Statistical Science, 11(3).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+from scipy import stats
+
+from agree.results import Note
+
+Finish = Callable[[np.ndarray], np.ndarray]
+
+# Largest number of (replicate x item) weights held in memory at once.
+_CHUNK_CELLS = 4_000_000
+
+
+def make_rng(seed: int | np.random.Generator | None) -> tuple[np.random.Generator, int | None]:
+    """A generator and the seed to record. With seed=None a fresh seed is drawn and recorded,
+    so every interval can be repeated."""
+    if isinstance(seed, np.random.Generator):
+        return seed, None
+    if seed is None:
+        seed = int(np.random.SeedSequence().generate_state(1)[0])
+    return np.random.default_rng(int(seed)), int(seed)
+
+
+def bootstrap_replicates(features: np.ndarray, counts: np.ndarray, finish: Finish,
+                         n_resamples: int, rng: np.random.Generator) -> np.ndarray:
+    """θ* for `n_resamples` replicates: each draws sum(counts) items with replacement.
+
+    `features` is (I, K): one row per distinct item (pattern or cluster); `counts` (I,) how
+    often each item occurs. Returns (B,) replicate values (NaN where undefined).
+    """
+    counts = np.asarray(counts, dtype=np.int64)
+    total = int(counts.sum())
+    probs = counts / total
+    n_items = len(counts)
+    chunk = max(1, min(n_resamples, _CHUNK_CELLS // max(n_items, 1)))
+    out = np.empty(n_resamples)
+    done = 0
+    while done < n_resamples:
+        b = min(chunk, n_resamples - done)
+        weights = rng.multinomial(total, probs, size=b).astype(float)
+        out[done:done + b] = finish(weights @ features)
+        done += b
+    return out
+
+
+def jackknife_values(features: np.ndarray, counts: np.ndarray, finish: Finish) -> np.ndarray:
+    """θ with one item removed, for each distinct item (weight them by `counts`)."""
+    total = np.asarray(counts, float) @ features
+    return finish(total[None, :] - features)
+
+
+@dataclass(frozen=True)
+class Interval:
+    low: float
+    high: float
+    lower_bound: float       # one-sided lower bound at the same confidence level
+    method: str
+    se: float
+    p_below_min: float | None
+    n_undefined: int
+    notes: tuple[Note, ...]
+
+
+def bootstrap_interval(estimate: float, replicates: np.ndarray, *, confidence_level: float,
+                       method: str, jack: np.ndarray | None = None, jack_weights: np.ndarray | None = None,
+                       minimum: float | None = None) -> Interval:
+    """Percentile or BCa interval from bootstrap replicates (METHODS 7.2).
+
+    Undefined replicates are left out and counted. For BCa the bias correction counts ties
+    with the estimate as one half, and the acceleration comes from the jackknife values.
+    Falls back to the percentile interval, with a note, when BCa cannot be formed.
+    """
+    notes: list[Note] = []
+    defined = replicates[np.isfinite(replicates)]
+    n_undefined = int(len(replicates) - len(defined))
+    if n_undefined > 0.01 * len(replicates):
+        notes.append(Note("undefined-replicates",
+                          f"{n_undefined} of {len(replicates)} bootstrap replicates were undefined and "
+                          "left out; the interval is conditional on a defined coefficient and may be unstable."))
+    if len(defined) < 2 or not np.isfinite(estimate):
+        nan = float("nan")
+        return Interval(nan, nan, nan, method, nan, None, n_undefined, tuple(notes))
+    eps = 1.0 - confidence_level
+    probs = np.array([eps / 2, 1 - eps / 2, eps])
+    used = method
+    if method == "bca":
+        below = np.mean(defined < estimate) + 0.5 * np.mean(defined == estimate)
+        z0 = stats.norm.ppf(below)
+        accel = _acceleration(jack, jack_weights)
+        if not np.isfinite(z0) or accel is None:
+            used = "percentile"
+            if np.ptp(defined) > 0:
+                notes.append(Note("bca-fallback", "The BCa interval could not be formed (bias correction "
+                                  "or acceleration undefined); the percentile interval is shown instead."))
+        else:
+            zq = stats.norm.ppf(probs)
+            probs = stats.norm.cdf(z0 + (z0 + zq) / (1 - accel * (z0 + zq)))
+    elif method != "percentile":
+        raise ValueError(f"unknown interval method {method!r}")
+    low, high, lower = np.quantile(defined, probs)
+    if np.ptp(defined) == 0 and defined[0] == 1.0:
+        notes.append(Note("no-disagreement", "Every replicate equals 1: there is no disagreement in these "
+                          "units, so the interval is not informative about the coders' reliability."))
+    p_below = None if minimum is None else float(np.mean(defined < minimum))
+    return Interval(float(low), float(high), float(lower), used, float(np.std(defined, ddof=1)),
+                    p_below, n_undefined, tuple(notes))
+
+
+def _acceleration(jack: np.ndarray | None, weights: np.ndarray | None) -> float | None:
+    if jack is None:
+        return None
+    ok = np.isfinite(jack)
+    if not ok.any():
+        return None
+    values = jack[ok]
+    w = np.ones_like(values) if weights is None else np.asarray(weights, float)[ok]
+    mean = np.sum(w * values) / np.sum(w)
+    d = mean - values
+    denom = np.sum(w * d ** 2)
+    if denom <= 0:
+        return None
+    return float(np.sum(w * d ** 3) / (6.0 * denom ** 1.5))
+
+
+def cluster_features(unit_features: np.ndarray, clusters: np.ndarray) -> tuple[np.ndarray, int]:
+    """Sum per-unit features within clusters: (G, K) and the number of clusters G."""
+    labels, idx = np.unique(np.asarray(clusters).astype(str), return_inverse=True)
+    out = np.zeros((len(labels), unit_features.shape[1]))
+    np.add.at(out, idx, unit_features)
+    return out, len(labels)
