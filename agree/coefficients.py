@@ -627,11 +627,8 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
 def _with_alpha_details(res: AgreementResult, d: CodingData, delta) -> AgreementResult:
     from dataclasses import replace as _replace
 
-    o = coincidence_matrix(d).to_numpy()
-    n = o.sum()
     details = dict(res.details)
-    details["observed_agreement"] = float(np.trace(o) / n) if n else None
-    details["pairable_values"] = float(n)
+    details["pairable_values"] = float(res.n_values)
     return _replace(res, details=details)
 
 

@@ -49,33 +49,48 @@ def compress(codes: np.ndarray, n_values: int, *, ordered: bool, keep_inverse: b
     """Group the units of a (N, m) codes table into distinct patterns.
 
     Each row is encoded as one integer in base V + 1 (missing = 0) when that fits in
-    63 bits; otherwise rows are grouped with ``np.unique(axis=0)``.
+    63 bits, and counted with `bincount` when the key space is small; otherwise rows are
+    grouped with ``np.unique``. Unordered patterns are made from the ordered ones (sorting
+    the few distinct rows instead of every unit's row).
     """
     codes = np.asarray(codes)
     N, m = codes.shape
     if N == 0:
         return Patterns(np.zeros((0, m), np.int32), np.zeros(0, np.int64),
                         np.zeros(0, np.int64) if keep_inverse else None, n_values)
-    rows = codes if ordered else np.sort(codes, axis=1)
+    exact = _group_rows(codes, n_values, keep_inverse)
+    if ordered:
+        return exact
+    rows = np.sort(exact.codes, axis=1)
+    merged = _group_rows(rows, n_values, True, weights=exact.counts)
+    inverse = None if exact.inverse is None else merged.inverse[exact.inverse]
+    return Patterns(merged.codes, merged.counts, inverse, n_values)
+
+
+def _group_rows(rows: np.ndarray, n_values: int, keep_inverse: bool,
+                weights: np.ndarray | None = None) -> Patterns:
+    """Distinct rows with their (weighted) counts."""
+    N, m = rows.shape
     base = n_values + 1
     if m * np.log2(base) < 62:
-        shifted = rows.astype(np.int64) + 1
         powers = base ** np.arange(m, dtype=np.int64)
-        key = shifted @ powers
-        space = base ** m
+        key = np.zeros(N, dtype=np.int64)
+        for i in range(m):  # a loop over coders, not units
+            key += (rows[:, i].astype(np.int64) + 1) * powers[i]
+        space = int(base ** m)
         if space <= max(4 * N, 1 << 16) and not keep_inverse:
-            counts_all = np.bincount(key, minlength=space)
+            counts_all = np.bincount(key, weights=weights, minlength=space)
             keys = np.flatnonzero(counts_all)
             counts = counts_all[keys]
             inverse = None
         else:
-            keys, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
-            if not keep_inverse:
-                inverse = None
+            keys, inverse = np.unique(key, return_inverse=True)
+            counts = np.bincount(inverse, weights=weights, minlength=len(keys))
         digits = (keys[:, None] // powers[None, :]) % base
         pattern_codes = (digits - 1).astype(np.int32)
     else:
-        pattern_codes, inverse, counts = np.unique(rows, axis=0, return_inverse=True, return_counts=True)
+        pattern_codes, inverse = np.unique(rows, axis=0, return_inverse=True)
+        inverse = inverse.ravel()
+        counts = np.bincount(inverse, weights=weights, minlength=len(pattern_codes))
         pattern_codes = pattern_codes.astype(np.int32)
-        inverse = inverse.ravel() if keep_inverse else None
-    return Patterns(pattern_codes, counts.astype(np.int64), inverse, n_values)
+    return Patterns(pattern_codes, np.rint(counts).astype(np.int64), inverse if keep_inverse else None, n_values)

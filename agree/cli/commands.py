@@ -1,3 +1,3 @@
 """Import every command module so that each registers itself on the app."""
 
-from agree.cli import score  # noqa: F401
+from agree.cli import demo, diagnose, plan, reconcile, report, score  # noqa: F401

@@ -1,0 +1,3 @@
+"""`agree report` command(s)."""
+
+from agree.cli.app import app  # noqa: F401
