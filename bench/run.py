@@ -1,0 +1,206 @@
+"""Speed and memory benchmark for `agree` (run: `make bench` or `.venv/bin/python bench/run.py`).
+
+Generates its own synthetic data under bench/data/ (not committed) and reports medians and
+ratios measured in one run on the same data:
+
+1. Krippendorff's alpha point estimate, `agree` against the `krippendorff` package, on
+   1e6 units x 3 coders x 5 categories, nominal and interval (target: at least 5x faster).
+2. Peak memory of alpha on 1e6 units x 5 coders x 20 categories, in a fresh process
+   (target: under 1 GB). `--reference-memory` also measures the reference package there
+   (it needs about 9 GB and a few minutes).
+3. A 10,000-replicate bootstrap interval for alpha on 1e6 x 3 against the point estimate
+   (target: the bootstrap costs at most twice the point estimate).
+4. `agree score` on a long CSV of 3e6 rows (1e6 units x 3 coders) against reading that file
+   with pandas' pyarrow engine, each in a fresh process (target: within 3x; memory under 2 GB).
+
+Options: --quick (smaller sizes, for a smoke run), --repeat N, --out FILE (JSON).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+DATA = HERE / "data"
+PY = sys.executable
+
+
+def _timed(fn, repeat):
+    times = []
+    value = None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        value = fn()
+        times.append(time.perf_counter() - t)
+    return statistics.median(times), value
+
+
+def _child(args: list[str]) -> tuple[float, float, int]:
+    """Run a command in a fresh process: (wall seconds, peak RSS MB, exit code)."""
+    t = time.perf_counter()
+    proc = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    wall = time.perf_counter() - t
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+    if proc.returncode != 0:
+        print(f"  child failed ({proc.returncode}): {' '.join(args)}\n{err}", file=sys.stderr)
+    return wall, usage.ru_maxrss / 1024, proc.returncode
+
+
+def _codes(n_units, n_coders, n_cat, seed, agree_share=0.7):
+    rng = np.random.default_rng(seed)
+    truth = rng.integers(0, n_cat, n_units)
+    x = np.where(rng.random((n_units, n_coders)) < agree_share, truth[:, None],
+                 rng.integers(0, n_cat, (n_units, n_coders)))
+    return x.astype(np.int32)
+
+
+def _coding_data(x):
+    from agree.model import CodingData
+
+    n, m = x.shape
+    return CodingData(codes=x, values=tuple(range(int(x.max()) + 1)),
+                      unit_ids=np.arange(n).astype(str).astype(object),
+                      coders=tuple(f"c{i + 1}" for i in range(m)))
+
+
+def bench_alpha(n_units, repeat):
+    import krippendorff
+
+    import agree
+
+    x = _codes(n_units, 3, 5, seed=1)
+    d = _coding_data(x)
+    ref_data = x.T.astype(float)
+    rows = []
+    for level in ("nominal", "interval"):
+        agree.krippendorff_alpha(d, level=level, n_resamples=0)  # warm-up
+        t_agree, a = _timed(lambda: agree.krippendorff_alpha(d, level=level, n_resamples=0).estimate, repeat)
+        t_ref, b = _timed(lambda: krippendorff.alpha(reliability_data=ref_data, level_of_measurement=level,
+                                                     value_domain=list(range(5))), max(1, repeat // 2))
+        rows.append({"level": level, "agree_s": t_agree, "reference_s": t_ref, "speedup": t_ref / t_agree,
+                     "same_value": bool(abs(a - b) < 1e-9)})
+    return rows
+
+
+def bench_bootstrap(n_units, repeat):
+    import agree
+
+    d = _coding_data(_codes(n_units, 3, 5, seed=2))
+    agree.krippendorff_alpha(d, n_resamples=0)
+    t_point, _ = _timed(lambda: agree.krippendorff_alpha(d, n_resamples=0), repeat)
+    t_boot, res = _timed(lambda: agree.krippendorff_alpha(d, n_resamples=10_000, seed=1), repeat)
+    return {"point_s": t_point, "with_bootstrap_s": t_boot, "bootstrap_extra_s": t_boot - t_point,
+            "extra_over_point": (t_boot - t_point) / t_point, "total_over_point": t_boot / t_point,
+            "ci": [res.ci_low, res.ci_high]}
+
+
+_MEMORY_SCRIPT = """
+import sys, numpy as np
+sys.path.insert(0, {root!r})
+from bench.run import _codes, _coding_data
+x = _codes({n}, 5, 20, seed=3)
+if {reference}:
+    import krippendorff
+    krippendorff.alpha(reliability_data=x.T.astype(float), level_of_measurement='nominal',
+                       value_domain=list(range(20)))
+else:
+    import agree
+    agree.krippendorff_alpha(_coding_data(x), n_resamples=0)
+"""
+
+
+def bench_memory(n_units, reference):
+    root = str(HERE.parent)
+    out = {}
+    base_wall, base_mb, _ = _child([PY, "-c", "import sys, numpy as np; sys.path.insert(0, %r); "
+                                    "from bench.run import _codes; _codes(%d, 5, 20, 3)" % (root, n_units)])
+    out["data_only_mb"] = base_mb
+    wall, mb, _ = _child([PY, "-c", _MEMORY_SCRIPT.format(root=root, n=n_units, reference=False)])
+    out["agree_mb"] = mb
+    out["agree_s"] = wall
+    if reference:
+        wall, mb, _ = _child([PY, "-c", _MEMORY_SCRIPT.format(root=root, n=n_units, reference=True)])
+        out["reference_mb"] = mb
+        out["reference_s"] = wall
+    return out
+
+
+def make_long_csv(n_units, path: Path):
+    if path.exists():
+        return
+    path.parent.mkdir(parents=True, exist_ok=True)
+    import pandas as pd
+
+    x = _codes(n_units, 3, 5, seed=4)
+    labels = np.array(["belonging", "skills", "time", "burnout", "conflict"])
+    frame = pd.DataFrame({
+        "unit": np.repeat(np.char.add("u", np.arange(n_units).astype(str)), 3),
+        "coder": np.tile(["amara", "bastien", "chen"], n_units),
+        "code": labels[x.ravel()],
+    })
+    frame.to_csv(path, index=False)
+
+
+def bench_score(n_units, repeat):
+    path = DATA / f"long_{n_units}.csv"
+    make_long_csv(n_units, path)
+    agree_bin = str(Path(PY).with_name("agree"))
+    read = [PY, "-c", f"import pandas as pd; pd.read_csv({str(path)!r}, engine='pyarrow')"]
+    score = [agree_bin, "--quiet", "score", str(path), "--format", "json", "--seed", "1"]
+    reads = [_child(read) for _ in range(repeat)]
+    scores = [_child(score) for _ in range(repeat)]
+    t_read = statistics.median(r[0] for r in reads)
+    t_score = statistics.median(s[0] for s in scores)
+    return {"rows": 3 * n_units, "pandas_pyarrow_read_s": t_read, "agree_score_s": t_score,
+            "ratio": t_score / t_read, "agree_score_peak_mb": max(s[1] for s in scores),
+            "exit_codes": sorted({s[2] for s in scores})}
+
+
+def main(argv=None):
+    p = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("--quick", action="store_true", help="smaller sizes, for a smoke run")
+    p.add_argument("--repeat", type=int, default=3)
+    p.add_argument("--reference-memory", action="store_true",
+                   help="also measure the reference package's memory on 1e6 x 5 x 20 (about 9 GB)")
+    p.add_argument("--out", type=Path, default=HERE / "results" / "latest.json")
+    a = p.parse_args(argv)
+    n = 100_000 if a.quick else 1_000_000
+    result = {"machine": {"python": platform.python_version(), "cpus": os.cpu_count(),
+                          "platform": platform.platform()},
+              "units": n}
+    print(f"alpha point estimate, {n} units x 3 coders x 5 categories ...", flush=True)
+    result["alpha"] = bench_alpha(n, a.repeat)
+    for row in result["alpha"]:
+        print(f"  {row['level']:9s} agree {row['agree_s']:.3f}s  reference {row['reference_s']:.3f}s  "
+              f"speed-up {row['speedup']:.1f}x  same value: {row['same_value']}")
+    print(f"bootstrap, 10,000 replicates, {n} x 3 ...", flush=True)
+    b = result["bootstrap"] = bench_bootstrap(n, a.repeat)
+    print(f"  point {b['point_s']:.3f}s  with bootstrap {b['with_bootstrap_s']:.3f}s  "
+          f"extra/point {b['extra_over_point']:.2f}  total/point {b['total_over_point']:.2f}")
+    print(f"memory, alpha on {n} x 5 coders x 20 categories (fresh process) ...", flush=True)
+    m = result["memory"] = bench_memory(n, a.reference_memory)
+    print(f"  peak RSS agree {m['agree_mb']:.0f} MB (data alone {m['data_only_mb']:.0f} MB)"
+          + (f", reference {m['reference_mb']:.0f} MB" if "reference_mb" in m else ""))
+    print(f"agree score on a long CSV of {3 * n} rows (fresh processes) ...", flush=True)
+    s = result["score"] = bench_score(n, a.repeat)
+    print(f"  pandas pyarrow read {s['pandas_pyarrow_read_s']:.2f}s  agree score {s['agree_score_s']:.2f}s  "
+          f"ratio {s['ratio']:.2f}  peak {s['agree_score_peak_mb']:.0f} MB  exit {s['exit_codes']}")
+    a.out.parent.mkdir(parents=True, exist_ok=True)
+    a.out.write_text(json.dumps(result, indent=2))
+    print(f"written {a.out}")
+
+
+if __name__ == "__main__":
+    main()
