@@ -1,0 +1,60 @@
+"""Number formatting shared by the CLI and every report format, so numbers never disagree."""
+
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+import numpy as np
+
+
+def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
+    """Format one number for display, the same way everywhere.
+
+    kind
+        "coefficient": bounded by 1, no leading zero (APA), ``digits`` decimals: ``.84``, ``−.12``.
+        "probability": no leading zero, 3 decimals, ``< .001`` below that.
+        "threshold": no leading zero, 3 decimals (``.800``, ``.667``).
+        "se" / "number": leading zero, ``digits`` decimals.
+        "count": integer with thousands separators; "amount": the same, one decimal if fractional.
+        "percent": a share (0..1) as a percentage with one decimal.
+    Missing, None and NaN give an en dash. Negative numbers use the minus sign (U+2212).
+    """
+    if x is None or isinstance(x, str) and not x:
+        return "–"
+    if isinstance(x, str):
+        return x
+    if isinstance(x, (bool, np.bool_)):
+        return "yes" if x else "no"
+    v = float(x)
+    if not math.isfinite(v):
+        return "–"
+    if kind == "count":
+        return f"{int(round(v)):,}"
+    if kind == "amount":
+        return f"{int(v):,}" if v.is_integer() else f"{v:,.1f}"
+    if kind == "percent":
+        return f"{100 * v:.1f}%"
+    if kind == "probability":
+        if 0 < v < 0.001:
+            return "< .001"
+        text = f"{v:.3f}"
+    elif kind == "threshold":
+        text = f"{v:.3f}"
+    elif kind in ("se", "number", "coefficient"):
+        text = f"{v:.{digits}f}"
+    else:
+        raise ValueError(f"unknown kind {kind!r}")
+    if text.startswith("-") and float(text) == 0:
+        text = text[1:]
+    if kind in ("coefficient", "probability", "threshold"):
+        text = re.sub(r"^(-?)0\.", r"\1.", text)
+    return text.replace("-", "\u2212")
+
+
+def format_interval(low: Any, high: Any, digits: int = 2) -> str:
+    """``[.79, .88]``; an en dash when there is no interval."""
+    if low is None or high is None or not (math.isfinite(float(low)) and math.isfinite(float(high))):
+        return "–"
+    return f"[{format_value(low, 'coefficient', digits)}, {format_value(high, 'coefficient', digits)}]"
