@@ -8,14 +8,22 @@ reconciliation and reports -> the command line (`agree.cli`).
 from agree.coefficients import (brennan_prediger, cohen_kappa, coincidence_matrix, conger_kappa,
                                 fleiss_kappa, gwet_ac1, krippendorff_alpha, pabak, percent_agreement,
                                 scott_pi)
+from agree.codebook import Codebook, read_codebook
+from agree.diagnostics import (CodeDiagnostics, CoderDiagnostics, confusion_table, diagnose_codes,
+                               diagnose_coders)
 from agree.model import AgreeError, CodingData, from_table
+from agree.readers import read
+from agree.reconcile import Consensus, ReviewSummary, reconcile, review_table, write_consensus, write_review
 from agree.results import AgreementResult, BootstrapInfo, Note
 from agree.scoring import ScoreResult, score
 
 __version__ = "0.1.0"
 
 __all__ = [
-    "AgreeError", "AgreementResult", "BootstrapInfo", "CodingData", "Note", "ScoreResult",
+    "AgreeError", "AgreementResult", "BootstrapInfo", "CodeDiagnostics", "CoderDiagnostics", "Codebook",
+    "CodingData", "Consensus", "Note", "ReviewSummary", "ScoreResult",
+    "confusion_table", "diagnose_codes", "diagnose_coders", "read", "read_codebook", "reconcile",
+    "review_table", "write_consensus", "write_review",
     "brennan_prediger", "cohen_kappa", "coincidence_matrix", "conger_kappa", "fleiss_kappa",
     "from_table", "gwet_ac1", "krippendorff_alpha", "pabak", "percent_agreement", "scott_pi", "score",
 ]

@@ -83,6 +83,13 @@ def agreement_weights(data: CodingData, weights: Any) -> tuple[np.ndarray, str |
     return w, "custom"
 
 
+def _weight_notes(w: np.ndarray) -> list[Note]:
+    if np.allclose(w, w.T):
+        return []
+    return [Note("asymmetric-weights", "The weight matrix is not symmetric: disagreeing as (k, l) is "
+                 "weighted differently from (l, k). Check that this is intended and report the matrix.")]
+
+
 def _jaccard(a: frozenset, b: frozenset) -> float:
     if not a and not b:
         return 0.0
@@ -117,11 +124,7 @@ def distance_matrix(data: CodingData, level: Any, distance: str | None = None) -
     V = len(values)
     if data.set_valued:
         name = distance or "masi"
-        if name not in SET_DISTANCES:
-            raise AgreeError(f"distance for sets of codes must be 'jaccard' or 'masi'; got '{name}'",
-                             code="level")
-        f = SET_DISTANCES[name]
-        return np.array([[f(a, b) for b in values] for a in values], dtype=float).reshape(V, V), name
+        return set_delta(name, values), name
     if callable(level):
         d = np.array([[float(level(a, b)) for b in values] for a in values], dtype=float).reshape(V, V)
         if (d < 0).any() or not np.allclose(np.diag(d), 0):
@@ -130,23 +133,39 @@ def distance_matrix(data: CodingData, level: Any, distance: str | None = None) -
         return d, getattr(level, "__name__", "custom")
     if level not in LEVELS:
         raise AgreeError(f"level must be one of {', '.join(LEVELS)} or a function; got '{level}'", code="level")
-    if level == "nominal":
-        return 1.0 - np.eye(V), "nominal"
     if level == "ordinal":
         return None, "ordinal"
-    if not data.is_numeric:
+    if level != "nominal" and not data.is_numeric:
         bad = next((v for v in values if not _is_number(v)), None)
         raise AgreeError(f"{level} level needs numeric codes, but the data contain the text '{bad}'",
                          hint="use --level nominal or ordinal for text codes", code="text-at-interval")
-    s = np.array([float(v) for v in values])
+    scores = data.scores if level != "nominal" else np.zeros(V)
+    return level_delta(level, scores), level
+
+
+def level_delta(level: str, scores: np.ndarray) -> np.ndarray:
+    """δ (V x V) for the nominal, interval or ratio metric on values with these scores."""
+    s = np.asarray(scores, dtype=float)
+    if level == "nominal":
+        return 1.0 - np.eye(len(s))
     if level == "interval":
-        return (s[:, None] - s[None, :]) ** 2, "interval"
-    if (s < 0).any():
-        raise AgreeError("ratio level needs values of zero or more", code="level")
-    total = s[:, None] + s[None, :]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        d = np.where(total == 0, 0.0, ((s[:, None] - s[None, :]) / np.where(total == 0, 1, total)) ** 2)
-    return d, "ratio"
+        return (s[:, None] - s[None, :]) ** 2
+    if level == "ratio":
+        if (s < 0).any():
+            raise AgreeError("ratio level needs values of zero or more", code="level")
+        total = s[:, None] + s[None, :]
+        safe = np.where(total == 0, 1.0, total)
+        return np.where(total == 0, 0.0, ((s[:, None] - s[None, :]) / safe) ** 2)
+    raise AgreeError(f"no fixed metric for level '{level}'", code="level")
+
+
+def set_delta(name: str, values: Sequence[frozenset]) -> np.ndarray:
+    """δ (V x V) between sets of codes: Jaccard or MASI distance."""
+    if name not in SET_DISTANCES:
+        raise AgreeError(f"distance for sets of codes must be 'jaccard' or 'masi'; got '{name}'", code="level")
+    f = SET_DISTANCES[name]
+    V = len(values)
+    return np.array([[f(a, b) for b in values] for a in values], dtype=float).reshape(V, V)
 
 
 def _is_number(v: Any) -> bool:
@@ -157,15 +176,27 @@ def _is_number(v: Any) -> bool:
         return False
 
 
-def _ordinal_delta(margins: np.ndarray) -> np.ndarray:
-    """(B, V, V) Krippendorff's ordinal metric from (B, V) coincidence margins n_g:
+def ordinal_delta(margins: np.ndarray) -> np.ndarray:
+    """Krippendorff's ordinal metric from coincidence margins n_g, shape (..., V) -> (..., V, V):
     δ_ck = (sum_{g=c..k} n_g - (n_c + n_k)/2)^2."""
-    cum = np.cumsum(margins, axis=1)
-    V = margins.shape[1]
+    cum = np.cumsum(margins, axis=-1)
+    V = margins.shape[-1]
     lo = np.minimum.outer(np.arange(V), np.arange(V))
     hi = np.maximum.outer(np.arange(V), np.arange(V))
-    span = cum[:, hi] - cum[:, lo] + margins[:, lo]
-    return (span - (margins[:, :, None] + margins[:, None, :]) / 2.0) ** 2
+    span = cum[..., hi] - cum[..., lo] + margins[..., lo]
+    return (span - (margins[..., :, None] + margins[..., None, :]) / 2.0) ** 2
+
+
+def alpha_from_coincidence(o: np.ndarray, delta: np.ndarray | None) -> np.ndarray:
+    """α = 1 - (n - 1) Σ o_ck δ_ck / Σ n_c n_k δ_ck for coincidence matrices o of shape
+    (..., V, V); `delta` is (V, V), or None for the ordinal metric (made from the margins of
+    each o). NaN where undefined (no pairable values or no expected disagreement)."""
+    margins = o.sum(axis=-1)
+    n = margins.sum(axis=-1)
+    d = ordinal_delta(margins) if delta is None else delta
+    observed = (o * d).sum(axis=(-2, -1))
+    expected = (margins[..., :, None] * margins[..., None, :] * d).sum(axis=(-2, -1))
+    return np.where((expected > 0) & (n > 1), 1.0 - (n - 1.0) * _nan_div(observed, expected), np.nan)
 
 
 # ----------------------------------------------------------------------------------------
@@ -226,15 +257,10 @@ class _Alpha(_Statistic):
     def finish(self, S):
         V = self.V
         if self.delta is None:
-            o = S.reshape(-1, V, V)
-            margins = o.sum(axis=2)
-            delta = _ordinal_delta(margins)
-            do = np.einsum("bck,bck->b", o, delta)
-            de = np.einsum("bc,bck,bk->b", margins, delta, margins)
-        else:
-            margins = S[:, :V]
-            do = S[:, V]
-            de = np.einsum("bc,ck,bk->b", margins, self.delta, margins)
+            return alpha_from_coincidence(S.reshape(-1, V, V), None)
+        margins = S[:, :V]
+        do = S[:, V]
+        de = np.einsum("bc,ck,bk->b", margins, self.delta, margins)
         n = margins.sum(axis=1)
         return 1.0 - _nan_div((n - 1.0) * do, de)
 
@@ -695,7 +721,7 @@ def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | N
     stat = _Cohen(name="cohen_kappa" if label is None else f"weighted_kappa_{label}", ordered=True,
                   w=w, V=len(d.values),
                   undefined_reason="no unit coded by both coders, or no expected disagreement (p_e = 1)")
-    notes = []
+    notes = _weight_notes(w)
     both = (d.codes >= 0).all(axis=1)
     dropped = int((~both & ((d.codes >= 0).sum(axis=1) >= 1)).sum())
     if dropped:
@@ -709,7 +735,7 @@ def _pi_type(d: CodingData, name: str, kind: str, weights: Any, opts: dict, doc_
     w, label = agreement_weights(d, weights)
     stat = _ChanceCorrected(name=name, kind=kind, w=w,
                             undefined_reason="no pairable unit, or no expected disagreement (chance agreement is 1)")
-    return _run(stat, d, level=None, weights=label, notes=list(doc_notes), **opts)
+    return _run(stat, d, level=None, weights=label, notes=list(doc_notes) + _weight_notes(w), **opts)
 
 
 def scott_pi(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,

@@ -46,7 +46,7 @@ Stuart, A. (1955). A test for homogeneity of the marginal distributions in a two
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
 import numpy as np
@@ -55,7 +55,9 @@ from scipy import stats
 from scipy.sparse.csgraph import connected_components
 
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
-from agree.resampling import bootstrap_interval, jackknife_values, make_rng
+from agree.patterns import compress
+from agree.coefficients import alpha_from_coincidence, level_delta, set_delta
+from agree.resampling import bootstrap_interval, bootstrap_replicates, jackknife_values, make_rng
 from agree.results import BootstrapInfo, Note, _clean
 
 __all__ = ["CodeDiagnostics", "CoderDiagnostics", "confusion_table", "diagnose_codes",
@@ -67,6 +69,8 @@ STATUSES = ("below minimum", "too rare", "undefined", "ok")
 _SIGNIFICANCE = 0.05          # Holm-adjusted p below this flags unequal use
 _EXACT_BELOW = 25             # McNemar: exact binomial test when b + c < 25 (METHODS 6.5)
 _CONFUSION_REASON = 0.25      # name the main confusion in a reason from this share upward
+_PARADOX_PREVALENCE = 0.5     # |PI| from which prevalence explains high p_o with low kappa
+_PARADOX_BIAS = 0.1           # |BI| from which bias is named as a cause
 _CHUNK_CELLS = 4_000_000
 
 
@@ -298,50 +302,22 @@ def _coincidence(r: np.ndarray) -> np.ndarray:
     return scaled.T @ r[ok] - np.diag(scaled.sum(axis=0))
 
 
-def _jaccard_delta(values: Sequence[frozenset]) -> np.ndarray:
-    V = len(values)
-    out = np.zeros((V, V))
-    for a, b in itertools.combinations(range(V), 2):
-        union = values[a] | values[b]
-        d = 1.0 - len(values[a] & values[b]) / len(union) if union else 0.0
-        out[a, b] = out[b, a] = d
-    return out
-
-
-def _delta(kind: str, n_c: np.ndarray, scores: np.ndarray | None = None,
-           values: Sequence | None = None) -> np.ndarray:
-    """δ (V, V), or (B, V, V) for ordinal with batched margins n_c (B, V)."""
-    V = n_c.shape[-1]
-    if kind == "nominal":
-        return 1.0 - np.eye(V)
+def _delta(kind: str, scores: np.ndarray | None = None, values: Sequence | None = None) -> np.ndarray | None:
+    """δ (V, V) for a level, or None for ordinal (built from the margins of each o)."""
     if kind == "ordinal":
-        cum = np.cumsum(n_c, axis=-1)
-        lo = np.minimum.outer(np.arange(V), np.arange(V))
-        hi = np.maximum.outer(np.arange(V), np.arange(V))
-        between = cum[..., hi] - cum[..., lo] + n_c[..., lo]
-        return (between - (n_c[..., :, None] + n_c[..., None, :]) / 2.0) ** 2
-    if kind == "interval":
-        return np.subtract.outer(scores, scores) ** 2
-    if kind == "ratio":
-        total = np.add.outer(scores, scores)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            d = (np.subtract.outer(scores, scores) / total) ** 2
-        return np.where(total == 0, 0.0, d)
+        return None
     if kind == "jaccard":
-        return _jaccard_delta(values)
-    raise AgreeError(f"unknown level '{kind}'", code="level")
+        return set_delta("jaccard", values)
+    return level_delta(kind, scores)
 
 
 def _alpha_from_o(o: np.ndarray, kind: str, scores=None, values=None) -> np.ndarray:
-    """Alpha = 1 - (n-1) Σ o δ / Σ n_c n_k δ for o (V, V) or (B, V, V); NaN if undefined."""
-    n_c = o.sum(axis=-1)
-    n = n_c.sum(axis=-1)
-    delta = _delta(kind, n_c, scores, values)
-    observed = (o * delta).sum(axis=(-2, -1))
-    expected = (n_c[..., :, None] * n_c[..., None, :] * delta).sum(axis=(-2, -1))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        alpha = 1.0 - (n - 1.0) * observed / expected
-    return np.where((expected > 0) & (n > 1), alpha, np.nan)
+    """Alpha for o (V, V) or (B, V, V); NaN if undefined (see coefficients.alpha_from_coincidence)."""
+    if kind == "nominal":
+        delta = 1.0 - np.eye(o.shape[-1])
+    else:
+        delta = _delta(kind, scores, values)
+    return alpha_from_coincidence(o, delta)
 
 
 def _holm(p: np.ndarray) -> np.ndarray:
@@ -453,38 +429,25 @@ def stuart_maxwell(table: np.ndarray, categories: Sequence | None = None) -> dic
     return result
 
 
-def _multi_replicates(features: np.ndarray, counts: np.ndarray, finish, n_resamples: int,
-                      rng: np.random.Generator, width: int) -> np.ndarray:
-    """Like resampling.bootstrap_replicates, but `finish` returns several statistics per
-    replicate (B, width), so every code is computed from the same unit resamples."""
-    counts = np.asarray(counts, dtype=np.int64)
-    total = int(counts.sum())
-    probs = counts / total
-    chunk = max(1, min(n_resamples, _CHUNK_CELLS // max(len(counts), features.shape[1], 1)))
-    out = np.empty((n_resamples, width))
-    done = 0
-    while done < n_resamples:
-        b = min(chunk, n_resamples - done)
-        weights = rng.multinomial(total, probs, size=b).astype(float)
-        out[done:done + b] = finish(weights @ features)
-        done += b
-    return out
-
-
 def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resamples: int, seed,
-               confidence_level: float, ci_method: str, minimum: float | None = None):
+               confidence_level: float, ci_method: str, minimum: float | None = None,
+               counts: np.ndarray | None = None):
     """Bootstrap intervals for several statistics from the same unit resamples.
 
-    Items are the distinct rows of `features` (units with the same features resample alike).
-    Returns (low, high, p_below_min, BootstrapInfo, notes) with arrays of len(estimates).
+    Items are the distinct rows of `features` (units with the same features resample alike),
+    or, with `counts`, the rows of `features` are already distinct patterns occurring
+    `counts` times. Returns (low, high, p_below_min, BootstrapInfo, notes).
     """
     k = len(estimates)
     nan = np.full(k, np.nan)
     if n_resamples <= 0 or features.shape[0] == 0:
         return nan, nan.copy(), nan.copy(), None, []
     rng, used_seed = make_rng(seed)
-    items, counts = np.unique(features, axis=0, return_counts=True)
-    boot = _multi_replicates(items, counts, finish, n_resamples, rng, k)
+    if counts is None:
+        items, counts = np.unique(features, axis=0, return_counts=True)
+    else:
+        items = features
+    boot = bootstrap_replicates(items, counts, finish, n_resamples, rng).reshape(n_resamples, k)
     informative = np.any(items != 0, axis=1)
     jack = jackknife_values(items[informative], counts[informative], finish) if informative.any() else None
     weights = counts[informative]
@@ -716,9 +679,10 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
       Bias index: with two coders Byrt et al.'s BI = (b - c)/N (positive: the first coder
       uses k more); with more coders the mean over pairs of coders of |b - c|/N, each pair
       on the units both coded (so it is never negative).
-    - kappa paradox: flagged when the present/absent percent agreement reaches the minimum
-      but alpha (or kappa) does not; the explanation says whether prevalence (|PI| >= 0.5)
-      or bias (|BI| >= 0.1) is the likely cause (Feinstein & Cicchetti 1990).
+    - kappa paradox: flagged when the present/absent percent agreement reaches the minimum,
+      alpha or kappa does not, and prevalence (|PI| >= 0.5) or bias (|BI| >= 0.1) explains
+      the gap; the explanation names the cause (Feinstein & Cicchetti 1990). These two
+      cut-offs are our own choice for wording, not published thresholds.
     - unequal use: with two coders the per-code McNemar test (exact binomial when
       b + c < 25, else chi-square without continuity correction), Holm over the codes; a
       significant test flags the coder who uses k more and the one who uses it less. With
@@ -945,7 +909,8 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray)
         conf = _set_confusion(x, m_u)
         values = list(data.values)
         rv = _value_counts(data.codes, len(values))
-        overall = float(_alpha_from_o(_coincidence(rv), "jaccard", values=values))
+        o_values = _coincidence(rv)
+        overall = float(_alpha_from_o(o_values, "jaccard", values=values))
         ok = m_u >= 2
         both = np.einsum("uic,uik->uck", x[ok], x[ok])
         n_only = (r[ok][:, :, None] - both).sum(axis=0)     # values with c and not k
@@ -956,6 +921,7 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray)
     else:
         o = _coincidence(_value_counts(data.codes, len(data.values)))
         conf = o
+        o_values = None
         overall = float(_alpha_from_o(o, "nominal"))
         n_c = o.sum(axis=1)
         n = float(n_c.sum())
@@ -967,7 +933,7 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray)
     rows = []
     for c, k in zip(*np.nonzero(np.triu(conf, 1) > 0)):
         e = expected(c, k)
-        merged = _merged_alpha(data, conf if not data.set_valued else None, c, k)
+        merged = _merged_alpha(data, conf if not data.set_valued else None, c, k, o_values)
         units = int(((x[pairable][:, :, c] * (1 - x[pairable][:, :, k])).sum(1) > 0).__and__(
             (x[pairable][:, :, k] * (1 - x[pairable][:, :, c])).sum(1) > 0).sum())
         rows.append({"code_a": cats[c], "code_b": cats[k], "count": conf[c, k], "units": units,
@@ -985,8 +951,13 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray)
     return pairs, overall, conf
 
 
-def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int) -> float:
-    """Alpha after merging categories c and k (k becomes c)."""
+def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int,
+                  o_values: np.ndarray | None = None) -> float:
+    """Alpha after merging categories c and k (k becomes c).
+
+    The coincidences after relabelling are Pᵀ o P, with P the 0/1 map from old values to new
+    ones, so nothing is recounted per unit. For set-valued data the values are the sets and
+    k is replaced by c in each before the Jaccard alpha is recomputed."""
     if o is not None:
         keep = [j for j in range(o.shape[0]) if j != k]
         merged = o.copy()
@@ -997,11 +968,9 @@ def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int) -> flo
     relabel = {cats[k]: cats[c]}
     new_values = [frozenset(relabel.get(v, v) for v in s) for s in data.values]
     distinct = list(dict.fromkeys(new_values))
-    index = np.array([distinct.index(v) for v in new_values])
-    rv = _value_counts(data.codes, len(data.values))
-    r_new = np.zeros((rv.shape[0], len(distinct)))
-    np.add.at(r_new.T, index, rv.T)
-    return float(_alpha_from_o(_coincidence(r_new), "jaccard", values=distinct))
+    P = np.zeros((len(new_values), len(distinct)))
+    P[np.arange(len(new_values)), [distinct.index(v) for v in new_values]] = 1.0
+    return float(_alpha_from_o(P.T @ o_values @ P, "jaccard", values=distinct))
 
 
 def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, flags, ratio, share,
@@ -1044,23 +1013,23 @@ def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, fla
                 against = "the others" if len(coders) > 2 else coders[1 - i]
                 if flags[i] == "more" or len(coders) > 2:
                     parts.append(f"used by {coders[i]} {_ratio_text(ratio[i])} as often as {against}")
-    if has_top and top_share >= _CONFUSION_REASON and status != "ok":
+    if has_top and top_share >= _CONFUSION_REASON and status != "ok" and (set_valued or len(cats) > 2):
         parts.append(f"confused with {cats[top]} in {_fmt_pct(top_share)} of its disagreements")
     if set_valued and np.isfinite(omission) and omission >= 0.5 and status != "ok":
         parts.append(f"{_fmt_pct(omission)} of its disagreements are omissions (applied by one "
                      "coder, no alternative by the other)")
     chance = np.nanmin([alpha, kappa]) if np.isfinite(alpha) or np.isfinite(kappa) else np.nan
+    causes = []
+    if np.isfinite(prevalence) and abs(prevalence) >= _PARADOX_PREVALENCE:
+        side = "absence" if prevalence < 0 else "presence"
+        causes.append(f"the coders mostly agree on the code's {side} (prevalence index "
+                      f"{prevalence:+.2f}), so high agreement is expected by chance alone")
+    if np.isfinite(bias) and abs(bias) >= _PARADOX_BIAS:
+        causes.append(f"the coders apply it at different rates (bias index {bias:+.2f})")
     if (minimum is not None and np.isfinite(percent) and np.isfinite(chance)
-            and percent >= minimum and chance < minimum):
+            and percent >= minimum and chance < minimum and causes):
         paradox = True
-        causes = []
-        if np.isfinite(prevalence) and abs(prevalence) >= 0.5:
-            side = "absence" if prevalence < 0 else "presence"
-            causes.append(f"the coders mostly agree on the code's {side} (prevalence index "
-                          f"{prevalence:+.2f}), so high agreement is expected by chance alone")
-        if np.isfinite(bias) and abs(bias) >= 0.1:
-            causes.append(f"the coders apply it at different rates (bias index {bias:+.2f})")
-        cause = "; ".join(causes) if causes else "chance agreement is high for this code"
+        cause = "; ".join(causes)
         explanation = (f"Percent agreement is {_fmt_pct(percent)} but chance-corrected agreement is "
                        f"{chance:.2f}: {cause}. When one coder applied the code, another applied it "
                        f"too in {_fmt_pct(ps) if np.isfinite(ps) else 'no'} of the pairs (specific "
@@ -1166,8 +1135,10 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
 
     # leave one coder out, with a paired bootstrap of the change
     subsets = [everyone] + [[j for j in everyone if j != i] for i in everyone]
-    blocks = [_value_counts(codes[:, cols], V) for cols in subsets]
     if m >= 3:
+        # Leave-one-out needs coder identity: resample ordered patterns (METHODS 7.5).
+        pat = compress(codes, V, ordered=True)
+        blocks = [_value_counts(pat.codes[:, cols], V) for cols in subsets]
         without = np.array([alpha_of(cols) for cols in subsets[1:]])
         pairable_without = [int((codes[:, cols] >= 0).sum(1).__ge__(2).sum()) for cols in subsets[1:]]
 
@@ -1187,7 +1158,7 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
 
         low, high, _, boot_info, boot_notes = _intervals(
             without - alpha, features, finish, n_resamples=n_resamples, seed=seed,
-            confidence_level=confidence_level, ci_method=ci_method)
+            confidence_level=confidence_level, ci_method=ci_method, counts=pat.counts)
         notes.extend(boot_notes)
     else:
         without = np.full(m, np.nan)

@@ -206,7 +206,7 @@ class CodingData:
         """The codes as a units x coders DataFrame of values (None for missing)."""
         lookup = np.array(list(self.values) + [None], dtype=object)
         return pd.DataFrame(lookup[self.codes], index=pd.Index(self.unit_ids, name="unit"),
-                            columns=list(self.coders))
+                            columns=list(self.coders), dtype=object)
 
     def subset(self, units: np.ndarray | slice | None = None,
                coders: Sequence[int] | None = None) -> "CodingData":

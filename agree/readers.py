@@ -86,7 +86,7 @@ _DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
 
 
 # -- tables: what a file holds, before any layout is applied ------------------------------
-@dataclass
+@dataclass(eq=False)
 class _Table:
     """One header + rows block: a CSV/Parquet file or one worksheet."""
 
@@ -95,10 +95,7 @@ class _Table:
     frame: pd.DataFrame  # columns are the (stripped) header names, values raw
     rows: np.ndarray  # spreadsheet row number of each frame row
     letters: bool = False  # spreadsheet column letters exist (workbooks)
-
-    @property
-    def name(self) -> str:
-        return self.sheet if self.sheet is not None else Path(self.file).stem
+    name: str = ""  # the coder's name when the table holds one coder's coding
 
     def where(self, row: int | None = None, column: str | None = None) -> str:
         return cell_location(self.file, self.sheet, row, column)
@@ -248,7 +245,7 @@ def _load_text(path: Path, *, delimiter: str | None, name: str) -> _Loaded:
     checksum = hashlib.sha256(raw).hexdigest()
     data, note = _decode(raw, name)
     del raw
-    if not data.strip():
+    if not data[: 1 << 16].strip() and not data.strip():
         raise AgreeError("the file is empty", where=name, hint="check that the file was saved",
                          code="empty-file")
     head = data[: 1 << 16].decode("utf-8", errors="ignore")
@@ -263,7 +260,8 @@ def _load_text(path: Path, *, delimiter: str | None, name: str) -> _Loaded:
         table = pacsv.read_csv(
             io.BytesIO(data),
             read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
-            parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=True),
+            # quoted cells may hold line breaks (multi-line excerpts); without quotes they cannot
+            parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=b'"' in data),
             convert_options=pacsv.ConvertOptions(column_types={c: pa.string() for c in names},
                                                  strings_can_be_null=True, null_values=[""],
                                                  quoted_strings_can_be_null=True),
@@ -279,7 +277,7 @@ def _load_text(path: Path, *, delimiter: str | None, name: str) -> _Loaded:
     del data
     frame = table.to_pandas()
     del table
-    header = [None if v is None else str(v) for v in frame.iloc[0].tolist()] if len(frame) else []
+    header = [None if pd.isna(v) else str(v) for v in frame.iloc[0].tolist()] if len(frame) else []
     frame = frame.iloc[1:].reset_index(drop=True)
     rows = np.arange(2, len(frame) + 2, dtype=np.int64)
     t = _finish_table(frame, header, rows, file=name, sheet=None, letters=False)
@@ -481,9 +479,10 @@ class _Stats:
         return out
 
 
-def _factorize(col: pd.Series) -> tuple[np.ndarray, list]:
+def _factorize(col: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Codes (-1 for missing) and the distinct values as an object array."""
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
-    return np.asarray(codes, dtype=np.int64), list(uniques)
+    return np.asarray(codes, dtype=np.int64), np.asarray(uniques, dtype=object)
 
 
 def _atom(v: Any, *, trim: bool, casefold: bool) -> Any:
@@ -507,7 +506,7 @@ def _encode_column(col: pd.Series, label: str, stats: _Stats, vocab: dict, *, tr
                    casefold: bool) -> np.ndarray:
     """Index of each cell's canonical value in `vocab` (grown in place); -1 for empty."""
     fcodes, uniques = _factorize(col)
-    if not uniques:
+    if not len(uniques):
         return np.full(len(col), MISSING, dtype=np.int64)
     counts = np.bincount(fcodes[fcodes >= 0], minlength=len(uniques))
     local = np.empty(len(uniques), dtype=np.int64)
@@ -530,35 +529,41 @@ def _encode_column(col: pd.Series, label: str, stats: _Stats, vocab: dict, *, tr
 def _encode_ids(col: pd.Series, label: str, stats: _Stats, *, trim: bool) -> tuple[np.ndarray, np.ndarray]:
     """Unit ids (or coder names) as text: (index per cell, -1 for empty; unique ids)."""
     fcodes, uniques = _factorize(col)
-    if not uniques:
+    if not len(uniques):
         return np.full(len(col), MISSING, dtype=np.int64), np.array([], dtype=object)
-    u = pd.Series(uniques, dtype=object)
-    if pd.api.types.is_string_dtype(col.dtype) and not col.dtype == object:
-        text = u.astype(str)
+    converted = not isinstance(col.dtype, pd.StringDtype)
+    if not converted:
+        text = pd.Series(uniques, dtype="str")
     else:
-        text = u.map(lambda v: None if normalise_value(v) is None else str(normalise_value(v)))
+        text = pd.Series([None if normalise_value(v) is None else str(normalise_value(v)) for v in uniques],
+                         dtype="str")
     stripped = text.str.strip()
+    blank = (stripped.fillna("") == "").to_numpy()
+    changed = (stripped != text).to_numpy() & ~blank
+    if trim and changed.any():
+        counts = np.bincount(fcodes[fcodes >= 0], minlength=len(uniques))
+        stats.add("trim", label, int(counts[changed].sum()))
     if trim:
-        changed = (stripped != text).to_numpy() & (stripped != "").to_numpy()
-        if changed.any():
-            counts = np.bincount(fcodes[fcodes >= 0], minlength=len(uniques))
-            stats.add("trim", label, int(counts[changed].sum()))
         text = stripped
-    text = text.where(stripped.fillna("") != "", None)
-    codes2, ids = pd.factorize(text.to_numpy(dtype=object), use_na_sentinel=True)
+    if not converted and not blank.any() and not (trim and changed.any()):
+        # distinct already: no second pass over the ids
+        return fcodes, text.to_numpy(dtype=object)
+    text = text.where(~blank, None)
+    codes2, ids = pd.factorize(text, use_na_sentinel=True)
     local = np.append(np.asarray(codes2, dtype=np.int64), MISSING)
     return local[fcodes], np.asarray(ids, dtype=object)
 
 
 def _is_free_text(col: pd.Series) -> bool:
-    sample = col.dropna()
-    sample = sample.iloc[:500]
+    """Long, mostly distinct sentences: unit text rather than codes."""
+    sample = col.dropna().iloc[:500]
     if len(sample) == 0:
         return False
-    s = sample.map(lambda v: v if isinstance(v, str) else "")
+    s = sample.map(lambda v: v if isinstance(v, str) else "").astype(object)
     lengths = s.str.len()
     spaced = s.str.strip().str.contains(" ", regex=False)
-    return bool(spaced.mean() >= 0.5 and lengths.mean() >= 25)
+    distinct = s.nunique() / len(s)
+    return bool(spaced.mean() >= 0.5 and lengths.mean() >= 25 and (len(s) < 4 or distinct >= 0.8))
 
 
 def _is_binary(col: pd.Series) -> bool:
@@ -727,7 +732,6 @@ class _Piece:
     """Values from one source column: one coder (or a coder column), rows of one table."""
 
     table: _Table
-    units: np.ndarray  # index into the table's unit ids
     coder: np.ndarray  # global coder index per cell
     value: np.ndarray  # vocab index, or (presence) set index; -1 missing
     source: int  # index into the provenance sources
@@ -804,6 +808,9 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
         loaded.left_out += part.left_out
         loaded.checksums.update(part.checksums)
     tables = loaded.tables
+    one_file = len(files) == 1
+    for t in tables:
+        t.name = t.sheet if one_file and t.sheet is not None else Path(t.file).stem
 
     layout_kind = _choose_layout(tables, layout, coder=coder, code=code, unit=unit)
     builder = _Builder(tables, layout_kind, unit=unit, coder=coder, code=code, text=text, keep=keep,
@@ -833,6 +840,8 @@ def _choose_layout(tables: list[_Table], layout: str | None, *, coder, code, uni
         return _find(list(t.frame.columns), CODER_NAMES, {unit_col}) is not None
 
     several = len(tables) > 1
+    if layout is None and code is not None and not isinstance(code, str):
+        layout = "presence"
     if layout == "wide":
         if several:
             raise AgreeError(f"the wide layout reads one table; got {len(tables)}", code="bad-layout",
@@ -875,15 +884,14 @@ class _Builder:
     # ---- per layout ----------------------------------------------------------------------
     def build(self, *, book, level) -> CodingData:
         single = len(self.tables) == 1
-        roles = [_roles(t, self.layout if self.layout != "per-coder" else "per-coder", single_table=single,
-                        **self.opts) for t in self.tables]
-        if self.layout == "per-coder":
+        roles = [_roles(t, self.layout, single_table=single, **self.opts) for t in self.tables]
+        if self.layout in ("per-coder", "long"):
             kinds = {bool(r.presence) for r in roles}
             if len(kinds) > 1:
                 raise AgreeError("some files have one code column and others 0/1 code columns",
                                  code="bad-layout", hint="give files of one kind")
             if roles[0].presence:
-                self.layout = "presence-per-coder"
+                self.layout = "presence-" + self.layout
         for t, r in zip(self.tables, roles):
             self._add_table(t, r)
         if self.layout in ("per-coder", "presence-per-coder"):
@@ -918,7 +926,7 @@ class _Builder:
             coder_idx = g[cidx]
             values = self._values(frame[r.code], r.code)
             self._check_blank_coder(t, r, coder_idx, values, unit_idx)
-            self._piece(t, ti, coder_idx, values, r.code, blank)
+            self._piece(t, ti, coder_idx, values, r.code, blank & (coder_idx < 0))
         elif self.layout == "per-coder":
             self._piece(t, ti, np.full(len(frame), self._coder_index(t.name), dtype=np.int64),
                         self._values(frame[r.code], r.code), r.code, blank)
@@ -932,6 +940,7 @@ class _Builder:
             values = self._presence_values(t, r)
             if self.layout == "presence-long":
                 self._check_blank_coder(t, r, coder_idx, values, unit_idx)
+                blank = blank & (coder_idx < 0)
             self._piece(t, ti, coder_idx, values, None, blank)
 
     def _coder_index(self, name: str) -> int:
@@ -978,7 +987,7 @@ class _Builder:
                 look[k] = -1 if b is None else b
             mat[:, j] = look[fcodes]
         _raise_all(problems, "cells are not 0 or 1")
-        category = [self._presence_category(c) for c in cols]
+        category = [_atom(c, trim=True, casefold=self.casefold) for c in cols]
         coded = (mat >= 0).any(axis=1)
         bits = (mat == 1)
         uniq, inverse = np.unique(bits, axis=0, return_inverse=True)
@@ -995,14 +1004,10 @@ class _Builder:
                 self.presence_columns.append((t, cat, c))
         return out
 
-    def _presence_category(self, header: str):
-        v = _atom(header, trim=True, casefold=self.casefold)
-        return v
-
     def _piece(self, t: _Table, ti: int, coder_idx, values, column, blank):
         self.sources.append((t.file, t.sheet, column))
         keep_mask = ~(blank & (values < 0))
-        self.pieces.append(_Piece(table=t, units=np.asarray(ti, dtype=np.int64), coder=coder_idx,
+        self.pieces.append(_Piece(table=t, coder=coder_idx,
                                   value=values, source=len(self.sources) - 1, keep_mask=keep_mask))
 
     # ---- description ---------------------------------------------------------------------
@@ -1073,16 +1078,18 @@ class _Builder:
         rows = np.concatenate(parts_row)
         source = np.concatenate(parts_source)
         del parts_unit, parts_coder, parts_value, parts_row, parts_source
-        self._check_duplicates(units, coders, rows, source, unit_ids, n, m)
+        key = units * m + coders  # flat cell index
+        del coders
+        self._check_duplicates(key, units, rows, source, unit_ids, n, m)
 
         values, categories, remap, set_valued, data_level = self._values_and_categories(
-            book, level, value, units, coders, rows, source)
+            book, level, value, rows, source)
         codes = np.full((n, m), MISSING, dtype=np.int32)
         row = np.full((n, m), -1, dtype=np.int32)
         src = np.full((n, m), -1, dtype=np.int32)
-        codes[units, coders] = remap[value]
-        row[units, coders] = rows
-        src[units, coders] = source
+        codes.reshape(-1)[key] = remap[value]
+        row.reshape(-1)[key] = rows
+        src.reshape(-1)[key] = source
         # a cell a coder left empty still has a known location
         text, columns = self._extras(unit_ids, table_maps)
         codebook_map = None
@@ -1115,8 +1122,7 @@ class _Builder:
                 uniq.append(p)
         _raise_all(uniq, "tables have rows without a unit id")
 
-    def _check_duplicates(self, units, coders, rows, source, unit_ids, n, m):
-        key = units * m + coders
+    def _check_duplicates(self, key, units, rows, source, unit_ids, n, m):
         counts = np.bincount(key, minlength=n * m) if key.size else np.zeros(0, dtype=np.int64)
         dup_keys = np.flatnonzero(counts > 1)
         if not dup_keys.size:
@@ -1155,7 +1161,7 @@ class _Builder:
         raise AgreeError(f"{total} {what}; first: {first.message}", hint=first.hint, where=first.where,
                          code=first.code, problems=problems)
 
-    def _values_and_categories(self, book, level, value, units, coders, rows, source):
+    def _values_and_categories(self, book, level, value, rows, source):
         """Final values, categories, vocab->value remap, set_valued, level."""
         presence = self.layout.startswith("presence")
         if presence:
@@ -1167,7 +1173,7 @@ class _Builder:
             set_valued = self.sep is not None and any(isinstance(a, str) and self.sep in a for a in atoms)
             if set_valued:
                 atoms_sets = [self._split(a) for a in atoms]
-        cell_of = _CellFinder(value, rows, source, self.sources, units, coders)
+        cell_of = _CellFinder(value, rows, source, self.sources)
         if set_valued:
             parts = list(dict.fromkeys(x for s in atoms_sets for x in s))
             if level in ("interval", "ratio", "ordinal"):
@@ -1186,6 +1192,8 @@ class _Builder:
                 categories = [cat for _, cat, _ in self.presence_columns]
             else:
                 categories = sorted(parts, key=_sort_key)
+            if not presence:
+                self.notes.append(f"several codes in one cell: read as sets of codes (split on '{self.sep}')")
             values = sorted(set(atoms_sets), key=_sort_key)
             pos = {v: i for i, v in enumerate(values)}
             remap = np.array([pos[s] for s in atoms_sets] + [MISSING], dtype=np.int32)
@@ -1266,9 +1274,8 @@ class _Builder:
             first = problems[0]
             n = len(problems)
             src = f" ({book.source})" if getattr(book, "source", None) else ""
-            raise AgreeError(f"{n} code{'s are' if n != 1 else ' is'} not in the codebook{src}; "
-                             f"first: {first.message}", where=first.where, hint=first.hint,
-                             code="unknown-code", problems=problems)
+            summary = first.message if n == 1 else f"{n} codes are not in the codebook{src}; first: {first.message}"
+            raise AgreeError(summary, where=first.where, hint=first.hint, code="unknown-code", problems=problems)
         return mapping
 
     def _presence_codebook_check(self, book) -> dict:
@@ -1330,7 +1337,7 @@ class _Builder:
             series = col[ok].reset_index(drop=True)
             present = series.notna().to_numpy()
             if series.dtype == object:
-                present &= series.map(lambda v: normalise_value(v) is not None).to_numpy()
+                present = present & series.map(lambda v: normalise_value(v) is not None).to_numpy()
             g, vals = g[present], series[present].to_numpy(dtype=object)
             first_g, first_pos = np.unique(g, return_index=True)
             new = ~filled[first_g]
@@ -1359,7 +1366,7 @@ def _rows_text(rows: np.ndarray, limit: int = 10) -> str:
 class _CellFinder:
     """Find the cells holding a given vocab entry (for error messages), vectorised."""
 
-    def __init__(self, value, rows, source, sources, units, coders):
+    def __init__(self, value, rows, source, sources):
         self.value, self.rows, self.source, self.sources = value, rows, source, sources
 
     def _where(self, pos: int) -> str:
@@ -1375,5 +1382,5 @@ class _CellFinder:
         if not hit.size:
             return "", 0
         # earliest by source then row, as a reader would look for it
-        order = np.lexsort((self.rows[hit], self.source[hit]))
+        order = np.lexsort((self.source[hit], self.rows[hit]))
         return self._where(int(hit[order[0]])), int(hit.size)

@@ -317,48 +317,34 @@ def _definitions(codebook: Mapping[Any, str], involved: Sequence[Any],
 
 # -- confused pairs ------------------------------------------------------------------------
 def _confused_pairs(data: CodingData) -> pd.DataFrame:
-    """How often each pair of values was given to the same unit by two coders.
+    """The pairs of codes the coders confused, most often first.
 
-    Counts coder pairs (i < j) that coded a unit and disagreed; ``units`` counts the units
-    where the pair occurs at least once. With exactly two coders the directed counts are
-    added (first coder says code 1 and second says code 2, and the reverse).
-
-    Kept small and private until the diagnostics module's confusion ranking can be used.
+    ``times confused`` is the off-diagonal coincidence o_ck (Krippendorff 2011), from
+    `agree.diagnostics.confusion_table`: with two coders, the number of units where one
+    gave c and the other k; with more coders each unit's disagreeing pairs weigh
+    1 / (m_u - 1). With exactly two coders the directed counts are added. Set-valued data
+    are compared code by code.
     """
-    codes = data.codes
-    units, first, second = [], [], []
-    for i in range(data.n_coders):
-        for j in range(i + 1, data.n_coders):
-            ok = (codes[:, i] >= 0) & (codes[:, j] >= 0) & (codes[:, i] != codes[:, j])
-            units.append(np.nonzero(ok)[0])
-            first.append(codes[ok, i])
-            second.append(codes[ok, j])
-    labels = _value_labels(data)
-    two = data.n_coders == 2
-    header = ["code 1", "code 2", "times confused", "units"]
-    if two:
+    from agree.diagnostics import confusion_table
+
+    order = _category_order(data)
+    o = confusion_table(data)
+    labels = [_label(c, order) for c in o.index]
+    k, l = np.triu_indices(len(labels), 1)
+    times = o.to_numpy()[k, l]
+    keep = times > 0
+    k, l, times = k[keep], l[keep], times[keep]
+    rank = np.lexsort((l, k, -times))
+    k, l, times = k[rank], l[rank], times[rank]
+    names = np.array(labels, dtype=object)
+    frame = pd.DataFrame({"code 1": names[k].tolist(), "code 2": names[l].tolist(),
+                          "times confused": times.tolist()})
+    if data.n_coders == 2:
         a, b = data.coders
-        header += [f"{a} says code 1, {b} says code 2", f"{a} says code 2, {b} says code 1"]
-    if not units or not sum(len(u) for u in units):
-        return pd.DataFrame(columns=header)
-    u = np.concatenate(units)
-    x = np.concatenate(first)
-    y = np.concatenate(second)
-    lo, hi = np.minimum(x, y), np.maximum(x, y)
-    pairs, inverse, times = np.unique(np.stack([lo, hi], axis=1), axis=0, return_inverse=True,
-                                      return_counts=True)
-    inverse = np.asarray(inverse).reshape(-1)
-    per_unit = np.unique(np.stack([inverse, u], axis=1), axis=0)
-    n_units = np.bincount(per_unit[:, 0], minlength=len(pairs))
-    table = {"code 1": labels[pairs[:, 0]].tolist(), "code 2": labels[pairs[:, 1]].tolist(),
-             "times confused": times.astype(int).tolist(), "units": n_units.astype(int).tolist()}
-    if two:
-        forward = np.bincount(inverse[x == lo], minlength=len(pairs))
-        table[header[4]] = forward.astype(int).tolist()
-        table[header[5]] = (times - forward).astype(int).tolist()
-    frame = pd.DataFrame(table)
-    order = np.lexsort((pairs[:, 1], pairs[:, 0], -times))
-    return frame.iloc[order].reset_index(drop=True)
+        directed = confusion_table(data, directed=True).to_numpy()
+        frame[f"{a} says code 1, {b} says code 2"] = directed[k, l].tolist()
+        frame[f"{a} says code 2, {b} says code 1"] = directed[l, k].tolist()
+    return frame
 
 
 # -- writing files -------------------------------------------------------------------------
@@ -538,8 +524,11 @@ def _about_rows(data: CodingData, summary: ReviewSummary,
         ("rows in the review sheet", summary.rows_written),
     ]
     for key, value in (options or {}).items():
-        rows.append((f"option {key}", value if isinstance(value, (int, float, str)) or value is None
-                     else json.dumps(value, default=str, ensure_ascii=False)))
+        if isinstance(value, os.PathLike):
+            value = os.fspath(value)
+        elif not (value is None or isinstance(value, (int, float, str))):
+            value = json.dumps(value, default=str, ensure_ascii=False)
+        rows.append((f"option {key}", value))
     rows.append(("", ""))
     rows.append(("input file", "sha256"))
     rows.extend(summary.checksums.items())
@@ -547,6 +536,12 @@ def _about_rows(data: CodingData, summary: ReviewSummary,
         rows.append(("", ""))
         rows.append(("left-out unit", "why"))
         rows.extend(summary.left_out)
+    report = data.report
+    if report is not None and (report.left_out or report.notes):
+        rows.append(("", ""))
+        rows.append(("while reading", ""))
+        rows.extend(("left out", line) for line in report.left_out)
+        rows.extend(("note", line) for line in report.notes)
     return rows
 
 

@@ -45,21 +45,22 @@ def bootstrap_replicates(features: np.ndarray, counts: np.ndarray, finish: Finis
     """θ* for `n_resamples` replicates: each draws sum(counts) items with replacement.
 
     `features` is (I, K): one row per distinct item (pattern or cluster); `counts` (I,) how
-    often each item occurs. Returns (B,) replicate values (NaN where undefined).
+    often each item occurs. `finish` maps (b, K) sums to (b,) values, or to (b, k) when it
+    computes several statistics from the same resamples. Returns (B,) or (B, k) replicate
+    values (NaN where undefined).
     """
     counts = np.asarray(counts, dtype=np.int64)
     total = int(counts.sum())
     probs = counts / total
-    n_items = len(counts)
-    chunk = max(1, min(n_resamples, _CHUNK_CELLS // max(n_items, 1)))
-    out = np.empty(n_resamples)
+    chunk = max(1, min(n_resamples, _CHUNK_CELLS // max(len(counts), features.shape[1], 1)))
+    parts = []
     done = 0
     while done < n_resamples:
         b = min(chunk, n_resamples - done)
         weights = rng.multinomial(total, probs, size=b).astype(float)
-        out[done:done + b] = finish(weights @ features)
+        parts.append(finish(weights @ features))
         done += b
-    return out
+    return np.concatenate(parts, axis=0)
 
 
 def jackknife_values(features: np.ndarray, counts: np.ndarray, finish: Finish) -> np.ndarray:

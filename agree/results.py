@@ -60,7 +60,8 @@ class AgreementResult:
     names it), otherwise the bootstrap standard deviation, otherwise None.
     `ci_low`/`ci_high` is a two-sided interval at `confidence_level`, made by `ci_method`.
     `lower_bound` is the one-sided lower confidence bound at the same level (bootstrap).
-    `p_below_min` is the share of bootstrap replicates below `minimum`.
+    `p_below_min` is the share of bootstrap replicates below `minimum`; without a bootstrap,
+    where an analytic SE exists, it is the normal (or t) approximation P(θ < minimum).
     Kappa-type results carry `z`, `p_value` (two-sided) and `p_value_one_sided` for
     H0: no agreement beyond chance.
     """

@@ -150,16 +150,22 @@ def _brute_force(f, x, n_boot, seed, **kw):
     return out[np.isfinite(out)]
 
 
-@pytest.mark.parametrize("f,coders", [(agree.krippendorff_alpha, 3), (agree.gwet_ac1, 3),
-                                      (agree.cohen_kappa, 2)])
-def test_pattern_bootstrap_matches_brute_force_unit_bootstrap(f, coders):
+@pytest.mark.parametrize("f,coders,kw", [
+    (agree.krippendorff_alpha, 3, {}),
+    # the ordinal metric depends on the margins: it must be recomputed in every replicate
+    (agree.krippendorff_alpha, 3, {"level": "ordinal"}),
+    (agree.gwet_ac1, 3, {}),
+    (agree.cohen_kappa, 2, {}),
+])
+def test_pattern_bootstrap_matches_brute_force_unit_bootstrap(f, coders, kw):
     """The pattern-compressed bootstrap (multinomial over pattern counts, METHODS 7.5) has
     the distribution of resampling units: compare the replicates' SD and percentile interval
     with a plain unit-resampling loop (loose tolerances: Monte Carlo error)."""
     rng = np.random.default_rng(33)
-    x = as_float(simulate_codes(rng, 80, coders, 3, alpha=0.5, missing=0.1, coder_bias=0.3))
-    brute = _brute_force(f, x, 400, seed=2)
-    ours = f(x, n_resamples=4000, seed=2, ci_method="percentile")
+    x = as_float(simulate_codes(rng, 80, coders, 4, alpha=0.5, missing=0.1, coder_bias=0.3,
+                                prevalence=[0.1, 0.2, 0.3, 0.4]))
+    brute = _brute_force(f, x, 400, seed=2, **kw)
+    ours = f(x, n_resamples=4000, seed=2, ci_method="percentile", **kw)
     assert ours.se == pytest.approx(brute.std(ddof=1), rel=0.12)
     lo, hi = np.quantile(brute, [0.025, 0.975])
     sd = brute.std(ddof=1)
@@ -218,6 +224,19 @@ def test_cluster_bootstrap_widens_interval_for_homogeneous_clusters():
     assert clusters.se > 2.0 * units.se
     assert clusters.ci_high - clusters.ci_low > 2.0 * (units.ci_high - units.ci_low)
     assert clusters.bootstrap.unit.startswith("cluster")
+
+
+def test_cluster_bca_interval():
+    codes, labels = _clustered(seed=6)
+    result = agree.krippendorff_alpha(as_float(codes), n_resamples=1500, seed=8, cluster=labels)
+    assert result.ci_method == "bca"  # the jackknife over clusters gives the acceleration
+    assert result.ci_low < result.estimate < result.ci_high
+
+
+def test_few_clusters_are_flagged():
+    codes, labels = _clustered(seed=6, n_clusters=8, copies=5)
+    result = agree.krippendorff_alpha(as_float(codes), n_resamples=300, seed=8, cluster=labels)
+    assert result.warnings, "an interval from 8 clusters deserves a caution"
 
 
 def test_cluster_by_column_name_equals_cluster_by_labels():

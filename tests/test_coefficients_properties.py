@@ -3,6 +3,7 @@ from METHODS.md sections 0, 2-5 and 12."""
 
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
@@ -11,7 +12,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import agree
-from conftest import as_float, as_labels, simulate_codes, warning_codes
+from agree.model import from_table
+from conftest import as_float, as_labels, simulate_codes
 
 PROPERTY = settings(max_examples=50, deadline=None,
                     suppress_health_check=[HealthCheck.too_slow])
@@ -57,11 +59,10 @@ def _same(a: float, b: float, tol: float = TOL) -> bool:
     return abs(a - b) <= tol * max(1.0, abs(a))
 
 
-def _estimates(x, table, **kw):
-    out = {}
-    for name, (f, extra) in table.items():
-        out[name] = f(x, n_resamples=0, **extra, **kw).estimate
-    return out
+def _estimates(x, table, categories=None):
+    """Every coefficient of `table` on one data set (read once, like a user's file)."""
+    data = from_table(x, categories=categories)
+    return {name: f(data, n_resamples=0, **extra).estimate for name, (f, extra) in table.items()}
 
 
 def _registry(codes):
@@ -263,3 +264,46 @@ def test_bootstrap_repeats_with_seed(coding, seed):
     assert one.bootstrap is not None and one.bootstrap.seed == seed
     if one.defined and one.ci_high is not None and one.ci_high - one.ci_low > 1e-9:
         assert (one.ci_low, one.ci_high, one.se) != (other.ci_low, other.ci_high, other.se)
+
+
+@settings(max_examples=20, deadline=None)
+@given(codings(units=(5, 30)))
+def test_results_serialise_to_strict_json(coding):
+    """to_dict() is JSON-safe (NaN -> None) for every coefficient, with or without bootstrap."""
+    codes, q, _ = coding
+    data = from_table(as_float(codes), categories=list(range(q + 1)))  # one unused category
+    for name, (f, extra) in _registry(codes).items():
+        for n_resamples in (0, 30):
+            result = f(data, n_resamples=n_resamples, seed=1, minimum=0.5, **extra)
+            text = json.dumps(result.to_dict(), allow_nan=False)
+            assert json.loads(text)["name"] == result.name, name
+
+
+# --------------------------------------------------------------------------------------------
+# Refusals: AgreeError with a stable code, never a silent number
+# --------------------------------------------------------------------------------------------
+
+TEXT = np.array([["a", "b"], ["b", "b"], ["a", "c"]], dtype=object)
+BAD_CALLS = {
+    "one coder": (agree.krippendorff_alpha, np.array([[1.0], [2.0]]), {}),
+    "interval on text": (agree.krippendorff_alpha, TEXT, {"level": "interval"}),
+    "unknown level": (agree.krippendorff_alpha, TEXT, {"level": "circular-ish"}),
+    "ratio with negative values": (agree.krippendorff_alpha, np.array([[-1.0, 2.0], [3.0, 3.0]]),
+                                   {"level": "ratio"}),
+    "pabak on three categories": (agree.pabak, TEXT, {}),
+    "weights of wrong shape": (agree.cohen_kappa, TEXT, {"weights": np.eye(2)}),
+    "weights off the diagonal": (agree.cohen_kappa, TEXT, {"weights": 2 * np.eye(3)}),
+    "unknown weights": (agree.cohen_kappa, TEXT, {"weights": "cubic"}),
+    "value outside categories": (agree.fleiss_kappa, TEXT, {"categories": ["a", "b"]}),
+    "confidence level above 1": (agree.fleiss_kappa, TEXT, {"confidence_level": 95}),
+    "single category": (agree.gwet_ac1, np.array([["a", "a"], ["a", "a"]], dtype=object), {}),
+}
+
+
+@pytest.mark.parametrize("case", list(BAD_CALLS))
+def test_bad_requests_raise_agree_error_with_code(case):
+    f, data, kw = BAD_CALLS[case]
+    with pytest.raises(agree.AgreeError) as info:
+        f(data, n_resamples=0, **kw)
+    assert info.value.code and info.value.code != "bad-input", case
+    assert info.value.message

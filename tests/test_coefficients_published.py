@@ -11,7 +11,7 @@ import math
 import krippendorff
 import numpy as np
 import pytest
-from statsmodels.stats.inter_rater import aggregate_raters, cohens_kappa, fleiss_kappa
+from statsmodels.stats.inter_rater import cohens_kappa, fleiss_kappa
 
 import agree
 from agree.model import from_table
@@ -250,7 +250,7 @@ def test_category_alpha_is_alpha_on_presence_recoding(seed, m, q, n, rate):
 
 
 @pytest.mark.parametrize("seed,m,q,n,rate", TWO)
-def test_conger_and_light_equal_cohen_with_two_coders(seed, m, q, n, rate):
+def test_conger_equals_cohen_with_two_coders(seed, m, q, n, rate):
     x = as_float(_codes(seed, 2, q, n, rate, coder_bias=0.6))
     cohen = agree.cohen_kappa(x, n_resamples=0).estimate
     assert agree.conger_kappa(x, n_resamples=0).estimate == pytest.approx(cohen, abs=TOL)

@@ -437,3 +437,160 @@ def test_pabak_and_indices(seed, m, q, n, rate):
     _close(result.estimate, 2 * (a + d) / total - 1)
     _close(abs(result.details["prevalence_index"]), abs(a - d) / total)
     _close(abs(result.details["bias_index"]), abs(b - c) / total)
+
+
+@pytest.mark.parametrize("kind", ("linear", "quadratic"))
+@pytest.mark.parametrize("seed,m,q,n,rate", (COMPLETE + WITH_MISSING)[::3])
+def test_weighted_percent_agreement_and_pi_formula(seed, m, q, n, rate, kind):
+    """Weighted a_u with r*_uk = sum_l w_kl r_ul (METHODS 1); weighted pi-type chance term
+    p_e = sum_kl w_kl pi_k pi_l (METHODS 5.1)."""
+    codes = _data(seed, m, q, n, rate)
+    w = _weights(q, kind)
+    r = counts_matrix(codes, q).astype(float)
+    ru = r.sum(axis=1)
+    a, _ = _unit_agreement(r, w)
+    pi = (r[ru >= 1] / ru[ru >= 1, None]).mean(axis=0)
+    pe = pi @ w @ pi
+    x = as_float(codes)
+    cats = list(range(q))
+    pa = agree.percent_agreement(x, weights=kind, categories=cats, n_resamples=0)
+    _close(pa.estimate, a.mean())
+    pi_w = agree.scott_pi(x, weights=kind, categories=cats, n_resamples=0)
+    _close(pi_w.estimate, (a.mean() - pe) / (1 - pe))
+
+
+@pytest.mark.parametrize("seed,m,q,n,rate", TWO_CODERS[:5])
+def test_percent_agreement_wilson_interval(seed, m, q, n, rate):
+    """Two coders, no bootstrap: Wilson (1927) interval, as statsmodels computes it."""
+    from statsmodels.stats.proportion import proportion_confint
+
+    codes = _data(seed, 2, q, n, rate)
+    agreeing = int((codes[:, 0] == codes[:, 1]).sum())
+    result = agree.percent_agreement(as_float(codes), n_resamples=0, confidence_level=0.9)
+    low, high = proportion_confint(agreeing, n, alpha=0.1, method="wilson")
+    _close(result.ci_low, low)
+    _close(result.ci_high, high)
+
+
+@pytest.mark.parametrize("seed,m,q,n,rate", (COMPLETE + WITH_MISSING)[::4])
+def test_ac1_interval_uses_t_with_n_minus_one_df(seed, m, q, n, rate):
+    """Gwet: gamma +- t_{n-1, 1-eps/2} SE, n the units with at least one value (METHODS 5.2)."""
+    codes = _data(seed, m, q, n, rate)
+    gamma, se, _, _ = gwet_reference(codes, q)
+    n1 = int(((codes >= 0).sum(axis=1) >= 1).sum())
+    crit = stats.t.ppf(0.975, n1 - 1)
+    result = agree.gwet_ac1(as_float(codes), categories=list(range(q)), n_resamples=0)
+    _close(result.ci_low, gamma - crit * se)
+    _close(result.ci_high, gamma + crit * se)
+
+
+def _jackknife_se(f, codes, **kw):
+    """SE_J² = ((n-1)/n) sum (theta_(i) - mean)², leaving out one unit at a time (METHODS 7.4)."""
+    from agree.model import from_table
+
+    data = from_table(as_float(codes), categories=list(range(codes.max() + 1)))
+    n = data.n_units
+    keep = np.ones(n, dtype=bool)
+    values = []
+    for i in range(n):
+        keep[i] = False
+        values.append(f(data.subset(keep), n_resamples=0, **kw).estimate)
+        keep[i] = True
+    values = np.array(values)
+    return math.sqrt((n - 1) / n * ((values - values.mean()) ** 2).sum())
+
+
+@pytest.mark.parametrize("f", [agree.fleiss_kappa, agree.conger_kappa, agree.brennan_prediger,
+                               agree.gwet_ac1, agree.percent_agreement])
+@pytest.mark.parametrize("rate", (0.0, 0.15))
+def test_linearised_se_close_to_jackknife(f, rate):
+    """The linearisation SEs (Gwet 2008; 2014) agree with the leave-one-unit-out jackknife
+    within a few percent (METHODS 7.4); allow 10%."""
+    rng = np.random.default_rng(77)
+    codes = simulate_codes(rng, 150, 4, 3, alpha=0.5, missing=rate, prevalence=[0.5, 0.3, 0.2],
+                           coder_bias=0.4)
+    if rate:
+        codes[:8] = np.array([0, 1, 2, 0])  # keep a few complete units whatever the draw
+    result = f(as_float(codes), n_resamples=0)
+    assert result.se_method
+    assert result.se == pytest.approx(_jackknife_se(f, codes), rel=0.10)
+
+
+@pytest.mark.parametrize("weights", (None, "linear", "quadratic"))
+@pytest.mark.parametrize("seed,m,q,n,rate", TWO_CODERS[:6])
+def test_kappa_max_bounds(seed, m, q, n, rate, weights):
+    """kappa <= kappa_max <= 1, and kappa_max = 1 when both coders have the same margins
+    (Cohen 1960; the weighted form by linear programming, METHODS 2.3)."""
+    codes = _data(seed, 2, q, n, rate, coder_bias=0.5)
+    cats = list(range(q))
+    result = agree.cohen_kappa(as_float(codes), weights=weights, categories=cats, n_resamples=0)
+    assert result.estimate <= result.details["kappa_max"] + 1e-9 <= 1 + 2e-9
+    same_margins = np.column_stack([codes[:, 0], np.roll(codes[:, 0], 3)])
+    mirrored = agree.cohen_kappa(as_float(same_margins), weights=weights, categories=cats,
+                                 n_resamples=0)
+    _close(mirrored.details["kappa_max"], 1.0, tol=1e-7)
+
+
+CUSTOM_WEIGHT_CASES = [c for c in TWO_CODERS if c.values[2] >= 3][:4]
+
+
+def _custom_weights(seed, q):
+    rng = np.random.default_rng(seed)
+    w = np.clip(_weights(q, "linear") + rng.uniform(-0.2, 0.2, (q, q)), 0, 1)
+    np.fill_diagonal(w, 1.0)
+    return w
+
+
+@pytest.mark.parametrize("seed,m,q,n,rate", CUSTOM_WEIGHT_CASES)
+def test_cohen_kappa_custom_weight_matrix_matches_statsmodels(seed, m, q, n, rate):
+    """A custom (here asymmetric) agreement matrix W; statsmodels takes the disagreement
+    weights 1 - W."""
+    codes = _data(seed, 2, q, n, rate, coder_bias=0.5)
+    w = _custom_weights(seed, q)
+    ref = cohens_kappa(cross_table(codes[:, 0], codes[:, 1], q), weights=1 - w)
+    result = agree.cohen_kappa(as_float(codes), weights=w, categories=list(range(q)),
+                               n_resamples=0)
+    _close(result.estimate, ref.kappa)
+    _close(result.se, ref.std_kappa)
+    _close(result.details["se0"], ref.std_kappa0)
+    assert result.weights == "custom"
+
+
+@pytest.mark.parametrize("seed,m,q,n,rate", CUSTOM_WEIGHT_CASES[:1])
+def test_asymmetric_custom_weights_are_flagged(seed, m, q, n, rate):
+    codes = _data(seed, 2, q, n, rate, coder_bias=0.5)
+    w = _custom_weights(seed, q)
+    result = agree.cohen_kappa(as_float(codes), weights=w, categories=list(range(q)),
+                               n_resamples=0)
+    symmetric = agree.cohen_kappa(as_float(codes), weights=(w + w.T) / 2,
+                                  categories=list(range(q)), n_resamples=0)
+    assert not symmetric.warnings
+    assert result.warnings, "asymmetric weights should come with a warning"
+
+
+@pytest.mark.parametrize("m,q,n", [(25, 8, 120), (40, 3, 80), (3, 40, 300)])
+def test_wide_designs_match_krippendorff_package(m, q, n):
+    """Many coders or many values (patterns no longer fit one integer key)."""
+    rng = np.random.default_rng(m * 100 + q)
+    codes = simulate_codes(rng, n, m, q, alpha=0.5, missing=0.3)
+    x = as_float(codes)
+    for level in ("nominal", "ordinal", "interval"):
+        expected = krippendorff.alpha(reliability_data=x.T, level_of_measurement=level)
+        _close(agree.krippendorff_alpha(x, level=level, n_resamples=0).estimate, float(expected))
+    r = counts_matrix(codes, q)
+    a, _ = _unit_agreement(r)
+    _close(agree.percent_agreement(x, n_resamples=0).estimate, a.mean())
+
+
+def test_dataframe_input_with_none_equals_array_input():
+    import pandas as pd
+
+    rng = np.random.default_rng(8)
+    codes = simulate_codes(rng, 60, 3, 3, alpha=0.5, missing=0.2)
+    labels = ["low", "mid", "high"]
+    frame = pd.DataFrame(as_labels(codes, labels), columns=["ana", "ben", "cleo"])
+    from_frame = agree.krippendorff_alpha(frame, level="ordinal", categories=labels, n_resamples=0)
+    expected = krippendorff.alpha(reliability_data=as_float(codes).T, level_of_measurement="ordinal",
+                                  value_domain=[0.0, 1.0, 2.0])
+    _close(from_frame.estimate, float(expected))
+    assert from_frame.n_coders == 3

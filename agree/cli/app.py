@@ -50,11 +50,15 @@ def fail(message: str, code: int = 2) -> None:
 
 
 def main() -> None:
-    """Console entry point: library errors become one line on stderr and exit code 2."""
+    """Console entry point: library errors become one line on stderr and exit code 2.
+
+    Usage errors (unknown options, missing arguments) are reported by Typer itself, also
+    with exit code 2.
+    """
     from agree.cli import commands  # noqa: F401  (registers the commands)
 
     try:
-        app(standalone_mode=False)
+        app(standalone_mode=True)
     except AgreeError as exc:
         if STATE["debug"]:
             raise
@@ -62,19 +66,9 @@ def main() -> None:
         for extra in exc.problems[1:]:
             stderr.print(f"error: {extra.one_line()}", highlight=False, markup=False)
         sys.exit(2)
-    except typer.Exit as exc:
-        sys.exit(exc.exit_code)
-    except typer.Abort:
-        stderr.print("aborted")
-        sys.exit(1)
-    except Exception as exc:  # click usage errors and the unexpected
-        import click
-
-        if isinstance(exc, click.exceptions.ClickException):
-            exc.show()
-            sys.exit(2)
-        if isinstance(exc, click.exceptions.Exit):
-            sys.exit(exc.exit_code)
+    except (KeyboardInterrupt, BrokenPipeError):
+        sys.exit(130)
+    except Exception as exc:  # the unexpected: one line, the traceback with --debug
         if STATE["debug"]:
             raise
         stderr.print(f"error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",

@@ -1,0 +1,112 @@
+"""Reading options shared by every command, and `load_data` that applies them.
+
+A command declares the options it needs with the Annotated types below, e.g.::
+
+    @app.command()
+    def score(files: Files, layout: LayoutOption = None, unit_col: UnitOption = None, ...):
+        data = load_data(files, layout=layout, unit=unit_col, ...)
+"""
+
+from __future__ import annotations
+
+from enum import Enum
+from pathlib import Path
+from typing import Annotated, Any, Optional, Sequence
+
+import typer
+
+from agree.cli.app import note
+from agree.model import CodingData
+from agree.readers import read
+
+
+class Layout(str, Enum):
+    wide = "wide"
+    long = "long"
+    per_coder = "per-coder"
+    presence = "presence"
+
+
+class Level(str, Enum):
+    nominal = "nominal"
+    ordinal = "ordinal"
+    interval = "interval"
+    ratio = "ratio"
+
+
+Files = Annotated[list[Path], typer.Argument(
+    help="Coding files (.csv, .tsv, .xlsx, .parquet). Several files: one per coder.",
+    show_default=False)]
+LayoutOption = Annotated[Optional[Layout], typer.Option(
+    "--layout", help="How the coding is laid out (detected when not given): wide = one column per "
+                     "coder; long = unit, coder, code columns; per-coder = one file or sheet per coder; "
+                     "presence = one 0/1 column per code.")]
+UnitOption = Annotated[Optional[str], typer.Option("--unit-col", help="Column with the unit ids.")]
+CoderOption = Annotated[Optional[list[str]], typer.Option(
+    "--coder-col", help="Long layout: the column with coder names. Wide layout: a coder column "
+                        "(repeat the option for each coder).")]
+CodeOption = Annotated[Optional[list[str]], typer.Option(
+    "--code-col", help="Column with the codes (presence layout: repeat for each 0/1 code column).")]
+TextOption = Annotated[Optional[str], typer.Option("--text-col", help="Column with the unit's text.")]
+SheetOption = Annotated[Optional[list[str]], typer.Option(
+    "--sheet", help="Worksheet to read (repeat for one sheet per coder). Default: every sheet with data.")]
+SepOption = Annotated[str, typer.Option(
+    "--sep", help="Separator between several codes in one cell; '' never splits.")]
+CodebookOption = Annotated[Optional[Path], typer.Option(
+    "--codebook", help="Codebook file (CSV/XLSX: code, optional order, optional description). "
+                       "Fixes the category order and keeps unused codes; unknown codes are errors.")]
+TrimOption = Annotated[bool, typer.Option("--trim", help="Strip spaces around codes and unit ids.")]
+CasefoldOption = Annotated[bool, typer.Option("--casefold", help="Compare codes ignoring upper/lower case.")]
+LevelOption = Annotated[Optional[Level], typer.Option(
+    "--level", help="Level of measurement. Default: ordinal if the codebook has an order, else nominal.")]
+KeepOption = Annotated[Optional[list[str]], typer.Option(
+    "--keep", help="Other per-unit column to keep (e.g. a round or document column); repeatable.")]
+ClusterOption = Annotated[Optional[str], typer.Option(
+    "--cluster", help="Column grouping the units (e.g. document); resampling keeps each group whole.")]
+
+
+def _value(x: Any) -> Any:
+    return x.value if isinstance(x, Enum) else x
+
+
+def _one_or_many(x: Sequence[str] | str | None) -> Any:
+    if x is None or isinstance(x, str):
+        return x
+    x = list(x)
+    if not x:
+        return None
+    return x[0] if len(x) == 1 else x
+
+
+def load_data(files: Sequence[Path], *, layout: Layout | str | None = None, unit: str | None = None,
+              coder: Sequence[str] | str | None = None, code: Sequence[str] | str | None = None,
+              text: str | None = None, sheet: Sequence[str] | str | None = None, sep: str = ";",
+              codebook: Path | None = None, trim: bool = False, casefold: bool = False,
+              level: Level | str | None = None, keep: Sequence[str] | None = (),
+              cluster: str | None = None) -> CodingData:
+    """Read the files with `agree.read` and tell the user (stderr) what was detected.
+
+    `cluster`, when given, is kept as a per-unit column like those in `keep`.
+    """
+    keep_cols = list(keep or ())
+    if cluster and cluster not in keep_cols:
+        keep_cols.append(cluster)
+    data = read(list(files), layout=_value(layout), unit=unit, coder=_one_or_many(coder),
+                code=_one_or_many(code),
+                text=text, sheet=_one_or_many(sheet), sep=sep or None, codebook=codebook, trim=trim,
+                casefold=casefold, level=_value(level), keep=tuple(keep_cols))
+    report_reading(data)
+    return data
+
+
+def report_reading(data: CodingData) -> None:
+    """The one-line detection report, the reading notes and what was left out, on stderr."""
+    report = data.report
+    if report is None:
+        return
+    note(f"read {report.units_read} units, {len(data.coders)} coders, {report.values_read} values "
+         f"({report.values_missing} missing): {report.detected}")
+    for line in report.notes:
+        note(f"note: {line}")
+    for line in report.left_out:
+        note(f"left out: {line}")
