@@ -12,16 +12,19 @@ from agree.codebook import Codebook, read_codebook
 from agree.diagnostics import (CodeDiagnostics, CoderDiagnostics, confusion_table, diagnose_codes,
                                diagnose_coders)
 from agree.model import AgreeError, CodingData, from_table
+from agree.planning import Plan, decision_sentence, plan_sample
 from agree.readers import read
 from agree.reconcile import Consensus, ReviewSummary, reconcile, review_table, write_consensus, write_review
 from agree.results import AgreementResult, BootstrapInfo, Note
+from agree.sampling import draw_sample, write_coding_sheets
 from agree.scoring import ScoreResult, score
 
 __version__ = "0.1.0"
 
 __all__ = [
     "AgreeError", "AgreementResult", "BootstrapInfo", "CodeDiagnostics", "CoderDiagnostics", "Codebook",
-    "CodingData", "Consensus", "Note", "ReviewSummary", "ScoreResult",
+    "CodingData", "Consensus", "Note", "Plan", "ReviewSummary", "ScoreResult",
+    "decision_sentence", "draw_sample", "plan_sample", "write_coding_sheets",
     "confusion_table", "diagnose_codes", "diagnose_coders", "read", "read_codebook", "reconcile",
     "review_table", "write_consensus", "write_review",
     "brennan_prediger", "cohen_kappa", "coincidence_matrix", "conger_kappa", "fleiss_kappa",

@@ -187,16 +187,38 @@ def ordinal_delta(margins: np.ndarray) -> np.ndarray:
     return (span - (margins[..., :, None] + margins[..., None, :]) / 2.0) ** 2
 
 
+def alpha_from_sums(observed: np.ndarray, margins: np.ndarray, delta: np.ndarray) -> np.ndarray:
+    """α from the observed-disagreement sum Σ o_ck δ_ck (...) and the coincidence margins
+    n_c (..., V) for a fixed δ (V, V): α = 1 - (n - 1) Σ o δ / Σ n_c n_k δ. NaN where
+    undefined (no pairable values, or no expected disagreement)."""
+    n = margins.sum(axis=-1)
+    expected = ((margins @ delta) * margins).sum(axis=-1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        alpha = 1.0 - (n - 1.0) * observed / expected
+    return np.where((expected > 0) & (n > 1), alpha, np.nan)
+
+
 def alpha_from_coincidence(o: np.ndarray, delta: np.ndarray | None) -> np.ndarray:
-    """α = 1 - (n - 1) Σ o_ck δ_ck / Σ n_c n_k δ_ck for coincidence matrices o of shape
-    (..., V, V); `delta` is (V, V), or None for the ordinal metric (made from the margins of
-    each o). NaN where undefined (no pairable values or no expected disagreement)."""
+    """α for coincidence matrices o of shape (..., V, V); `delta` is (V, V), or None for the
+    ordinal metric, which depends on the margins of each o.
+
+    Notes
+    -----
+    With mid-rank scores u_c = Σ_{g<c} n_g + n_c / 2 the ordinal δ_ck equals (u_c - u_k)²
+    (`ordinal_delta`), so ordinal α is interval α on u and needs no V x V metric:
+    Σ o δ = 2 Σ_c n_c u_c² - 2 uᵀ o u and Σ n_c n_k δ = 2 n Σ_c n_c u_c² - 2 (Σ_c n_c u_c)².
+    """
+    if delta is not None:
+        return alpha_from_sums((o * delta).sum(axis=(-2, -1)), o.sum(axis=-1), delta)
     margins = o.sum(axis=-1)
     n = margins.sum(axis=-1)
-    d = ordinal_delta(margins) if delta is None else delta
-    observed = (o * d).sum(axis=(-2, -1))
-    expected = (margins[..., :, None] * margins[..., None, :] * d).sum(axis=(-2, -1))
-    return np.where((expected > 0) & (n > 1), 1.0 - (n - 1.0) * _nan_div(observed, expected), np.nan)
+    u = np.cumsum(margins, axis=-1) - margins / 2.0
+    square = (margins * u * u).sum(axis=-1)
+    observed = 2.0 * square - 2.0 * (np.matmul(o, u[..., None])[..., 0] * u).sum(axis=-1)
+    expected = 2.0 * n * square - 2.0 * (margins * u).sum(axis=-1) ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        alpha = 1.0 - (n - 1.0) * observed / expected
+    return np.where((expected > 1e-9 * np.maximum(n, 1) ** 4) & (n > 1), alpha, np.nan)
 
 
 # ----------------------------------------------------------------------------------------
@@ -258,11 +280,7 @@ class _Alpha(_Statistic):
         V = self.V
         if self.delta is None:
             return alpha_from_coincidence(S.reshape(-1, V, V), None)
-        margins = S[:, :V]
-        do = S[:, V]
-        de = np.einsum("bc,ck,bk->b", margins, self.delta, margins)
-        n = margins.sum(axis=1)
-        return 1.0 - _nan_div((n - 1.0) * do, de)
+        return alpha_from_sums(S[:, V], S[:, :V], self.delta)
 
 
 @dataclass

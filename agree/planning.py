@@ -30,19 +30,23 @@ from __future__ import annotations
 import math
 import os
 import tempfile
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import numpy as np
 from scipy import optimize, stats
 
+from agree.coefficients import alpha_from_coincidence, alpha_from_sums, level_delta, ordinal_delta
 from agree.model import AgreeError
 from agree.results import AgreementResult, Note, _clean
 
 PLAN_LEVELS = ("nominal", "ordinal", "interval")
 
 # Largest number of (replicate x data set x pattern) cells drawn at once.
-_CHUNK_CELLS = 3_000_000
+_CHUNK_CELLS = 2_000_000
+# Independent random streams (and thread jobs) the simulated data sets are split into.
+_BLOCKS = 4
 
 
 # ---------------------------------------------------------------------------------------
@@ -208,79 +212,49 @@ def _pattern_coincidences(r: np.ndarray) -> np.ndarray:
     return outer * scale[:, None, None]
 
 
-def _nominal_delta(q: int) -> np.ndarray:
-    """δ_ck = 0 if c = k else 1."""
-    return 1.0 - np.eye(q)
+def _level_delta(level: str, q: int) -> np.ndarray | None:
+    """The fixed δ of a level (interval: scores 1..q); None for ordinal (it needs margins)."""
+    if level == "ordinal":
+        return None
+    if level in ("nominal", "interval"):
+        return level_delta(level, np.arange(1, q + 1))
+    raise ValueError(f"unsupported level {level!r}")
 
 
-def _interval_delta(scores: np.ndarray) -> np.ndarray:
-    """δ_ck = (s_c - s_k)² for category scores s."""
-    s = np.asarray(scores, dtype=float)
-    return (s[:, None] - s[None, :]) ** 2
-
-
-def _ordinal_delta(n_c: np.ndarray) -> np.ndarray:
-    """Ordinal δ from coincidence margins n_c (..., q), returned as (..., q, q).
-
-    Notes
-    -----
-    δ_ck = ( sum_{g=c..k} n_g - (n_c + n_k)/2 )² (Krippendorff; METHODS 4.3). With cumulative
-    sums C_k = sum_{g<=k} n_g this is (C_k - C_c + (n_c - n_k)/2)² for every c, k (the square
-    makes the order of c and k irrelevant).
-    """
-    n_c = np.asarray(n_c, dtype=float)
-    cum = np.cumsum(n_c, axis=-1)
-    inner = (cum[..., None, :] - cum[..., :, None]
-             + (n_c[..., :, None] - n_c[..., None, :]) / 2.0)
-    return inner ** 2
-
-
-def _alpha_from_coincidence(o: np.ndarray, delta: np.ndarray) -> np.ndarray:
-    """Krippendorff's alpha from coincidence matrices.
-
-    Parameters
-    ----------
-    o : (..., q, q) coincidence matrices.
-    delta : (q, q) or (..., q, q) distances δ_ck.
-
-    Returns
-    -------
-    (...) alpha, NaN where undefined (no pairable values, or no expected disagreement).
-
-    Notes
-    -----
-    n_c = sum_k o_ck, n = sum_c n_c and (METHODS 4.2)
-
-        α = 1 - (n - 1) sum_ck o_ck δ_ck / sum_ck n_c n_k δ_ck
-    """
-    n_c = o.sum(axis=-1)
-    n = n_c.sum(axis=-1)
-    observed = np.einsum("...ck,...ck->...", o, delta)
-    expected = np.einsum("...c,...k,...ck->...", n_c, n_c, delta)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        alpha = 1.0 - (n - 1.0) * observed / expected
-    return np.where((expected > 0) & (n > 1), alpha, np.nan)
-
-
-def _alpha_from_counts(counts: np.ndarray, coincidences: np.ndarray, level: str,
-                       scores: np.ndarray | None = None) -> np.ndarray:
+def _alpha_from_counts(counts: np.ndarray, coincidences: np.ndarray, level: str) -> np.ndarray:
     """Alpha for many data sets at once from their pattern counts.
 
     counts : (..., P) pattern counts; coincidences : (P, q, q) from `_pattern_coincidences`.
-    The ordinal metric is recomputed from each data set's own margins (METHODS 4.3, 7.2).
+
+    Notes
+    -----
+    o = counts @ O (linear in the counts). With a fixed δ (nominal, interval) only
+    sum o δ and the margins n_c are needed, so each pattern is reduced to q + 1 numbers
+    first. The ordinal δ is recomputed from each data set's own margins (METHODS 4.3, 7.2).
     """
     P, q, _ = coincidences.shape
-    o = (np.asarray(counts, dtype=float) @ coincidences.reshape(P, q * q)).reshape(
-        counts.shape[:-1] + (q, q))
-    if level == "nominal":
-        delta = _nominal_delta(q)
-    elif level == "interval":
-        delta = _interval_delta(np.arange(1, q + 1) if scores is None else scores)
-    elif level == "ordinal":
-        delta = _ordinal_delta(o.sum(axis=-1))
-    else:
-        raise ValueError(f"unsupported level {level!r}")
-    return _alpha_from_coincidence(o, delta)
+    counts = np.asarray(counts, dtype=float)
+    delta = _level_delta(level, q)
+    if delta is None:
+        o = (counts @ coincidences.reshape(P, q * q)).reshape(counts.shape[:-1] + (q, q))
+        return alpha_from_coincidence(o, None)
+    reduced = np.column_stack([(coincidences * delta).sum(axis=(1, 2)), coincidences.sum(axis=2)])
+    sums = counts @ reduced
+    return alpha_from_sums(sums[..., 0], sums[..., 1:], delta)
+
+
+def _lower_quantile(values: np.ndarray, prob: float) -> np.ndarray:
+    """Quantile along axis 0 of the non-NaN values (linear interpolation, as np.quantile);
+    NaN for columns with no defined value. Vectorised, unlike np.nanquantile."""
+    ordered = np.sort(values, axis=0)                       # NaN sorts last
+    defined = np.sum(~np.isnan(values), axis=0)
+    h = prob * np.maximum(defined - 1, 0)
+    lo = np.floor(h).astype(np.int64)
+    hi = np.minimum(lo + 1, np.maximum(defined - 1, 0))
+    v_lo = np.take_along_axis(ordered, lo[None, :], axis=0)[0]
+    v_hi = np.take_along_axis(ordered, hi[None, :], axis=0)[0]
+    out = v_lo + (h - lo) * (v_hi - v_lo)
+    return np.where(defined > 0, out, np.nan)
 
 
 def _pattern_counts(ids: np.ndarray, n_units: int, n_patterns: int) -> np.ndarray:
@@ -291,36 +265,71 @@ def _pattern_counts(ids: np.ndarray, n_units: int, n_patterns: int) -> np.ndarra
     return flat.reshape(R, n_patterns)
 
 
-def _bootstrap_lower_bounds(rng: np.random.Generator, counts: np.ndarray,
-                            coincidences: np.ndarray, level: str, n_resamples: int,
+def _bootstrap_lower_bounds(seed: int, ids: np.ndarray, n_units: int, coincidences: np.ndarray,
+                            level: str, n_resamples: int,
                             confidence_level: float) -> tuple[np.ndarray, np.ndarray, float]:
-    """Alpha and its one-sided percentile lower bound for each of R data sets.
+    """Alpha and its one-sided percentile lower bound for each of R simulated data sets.
 
+    Parameters
+    ----------
+    seed : the bootstrap stream; the same seed at every size gives common random numbers.
+    ids : (R, >= n_units) pattern of each unit; a data set is the first `n_units` units.
+
+    Notes
+    -----
     A unit-bootstrap replicate of a data set with pattern counts c and N units is
-    c* ~ Multinomial(N; c / N) (METHODS 7.5). The lower bound is the (1 - confidence_level)
-    quantile of the defined replicates; undefined replicates are left out (METHODS 7.2).
+    c* ~ Multinomial(N; c / N) (METHODS 7.5). When N is small compared with the number of
+    patterns it is cheaper to draw the N unit indices directly and count their patterns:
+    the same distribution. The lower bound is the (1 - confidence_level) quantile of the
+    defined replicates; undefined replicates are left out (METHODS 7.2). The data sets are
+    split into a fixed number of blocks, each with its own random stream, so the result does
+    not depend on how many threads run them.
 
     Returns (estimates (R,), lower bounds (R,) NaN when no replicate is defined, share of
     undefined replicates).
     """
-    R, P = counts.shape
-    n_units = int(counts[0].sum())
+    R = ids.shape[0]
+    P = len(coincidences)
+    counts = _pattern_counts(ids, n_units, P)
     estimates = _alpha_from_counts(counts, coincidences, level)
     active = np.flatnonzero(counts.any(axis=0))       # patterns seen at this size
-    probs = counts[:, active] / n_units
+    A = len(active)
     coinc = coincidences[active]
-    lower = np.empty(R)
-    undefined = 0
-    chunk = max(1, _CHUNK_CELLS // max(1, n_resamples * len(active)))
-    for start in range(0, R, chunk):
-        stop = min(R, start + chunk)
-        draws = rng.multinomial(n_units, probs[start:stop], size=(n_resamples, stop - start))
-        alphas = _alpha_from_counts(draws, coinc, level)
-        undefined += int(np.isnan(alphas).sum())
-        all_nan = np.isnan(alphas).all(axis=0)
-        safe = np.where(all_nan[None, :], 0.0, alphas)
-        bound = np.nanquantile(safe, 1.0 - confidence_level, axis=0)
-        lower[start:stop] = np.where(all_nan, np.nan, bound)
+    remap = np.zeros(P, dtype=np.int64)
+    remap[active] = np.arange(A)
+    by_index = n_units < 5 * A
+    cells = n_resamples * (n_units if by_index else A)
+    chunk = max(1, _CHUNK_CELLS // max(1, cells))
+
+    def run_block(block: int, start: int, stop: int) -> tuple[np.ndarray, int]:
+        rng = np.random.default_rng([seed, block])
+        lower = np.empty(stop - start)
+        undefined = 0
+        for s0 in range(start, stop, chunk):
+            s1 = min(stop, s0 + chunk)
+            r = s1 - s0
+            if by_index:
+                units = remap[ids[s0:s1, :n_units]].ravel()                     # (r * N,)
+                pick = rng.integers(0, n_units, size=(n_resamples, r, n_units))
+                pick += (np.arange(r, dtype=np.int64) * n_units)[None, :, None]
+                key = units[pick] + (np.arange(n_resamples * r, dtype=np.int64) * A).reshape(
+                    n_resamples, r, 1)
+                draws = np.bincount(key.ravel(), minlength=n_resamples * r * A).reshape(
+                    n_resamples, r, A)
+            else:
+                draws = rng.multinomial(n_units, counts[s0:s1][:, active] / n_units,
+                                        size=(n_resamples, r))
+            alphas = _alpha_from_counts(draws, coinc, level)
+            undefined += int(np.isnan(alphas).sum())
+            lower[s0 - start:s1 - start] = _lower_quantile(alphas, 1.0 - confidence_level)
+        return lower, undefined
+
+    edges = np.linspace(0, R, _BLOCKS + 1).astype(int)
+    jobs = [(i, int(edges[i]), int(edges[i + 1])) for i in range(_BLOCKS) if edges[i + 1] > edges[i]]
+    with ThreadPoolExecutor(max_workers=min(len(jobs), os.cpu_count() or 1)) as pool:
+        parts = list(pool.map(lambda job: run_block(*job), jobs))
+    lower = np.concatenate([p[0] for p in parts])
+    undefined = sum(p[1] for p in parts)
     return estimates, lower, undefined / (R * n_resamples)
 
 
@@ -394,13 +403,9 @@ def _population_alpha(pair_probs: np.ndarray, level: str) -> float:
     α = 1 - sum P_ck δ_ck / sum π_c π_k δ_ck with π the margins (n → ∞ in METHODS 4.2).
     """
     margins = pair_probs.sum(axis=1)
-    q = len(margins)
-    if level == "nominal":
-        delta = _nominal_delta(q)
-    elif level == "interval":
-        delta = _interval_delta(np.arange(1, q + 1))
-    else:
-        delta = _ordinal_delta(margins)
+    delta = _level_delta(level, len(margins))
+    if delta is None:
+        delta = ordinal_delta(margins)
     return float(1.0 - (pair_probs * delta).sum() / (np.outer(margins, margins) * delta).sum())
 
 
@@ -673,7 +678,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
                 confidence_level: float = 0.95, assurance: float = 0.80, missing: float = 0.0,
                 seed: int | None = None, replicates: int = 500, n_resamples: int = 500,
                 min_units: int = 20, max_units: int = 2000, corpus_size: int | None = None,
-                refine_steps: int = 4) -> Plan:
+                refine_steps: int = 3) -> Plan:
     """How many units must be coded by every coder so that alpha's lower bound clears a minimum.
 
     Parameters
@@ -735,16 +740,21 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
 
     def evaluate(n_units: int) -> float:
         if n_units not in results:
-            counts = _pattern_counts(ids, n_units, P)
-            boot_rng = np.random.default_rng([seed, 1])          # common random numbers
-            _, lower, undefined = _bootstrap_lower_bounds(boot_rng, counts, coincidences, level,
-                                                          n_resamples, confidence_level)
+            _, lower, undefined = _bootstrap_lower_bounds(seed + 1, ids, n_units, coincidences,
+                                                          level, n_resamples, confidence_level)
             hits = int(np.sum(lower > minimum))
             results[n_units] = (hits, undefined)
         return results[n_units][0] / replicates
 
+    # Larger sizes are not simulated once one size is clearly past the target.
     grid = np.unique(np.round(np.geomspace(min_units, max_units, 9)).astype(int))
-    raw = np.array([evaluate(int(n)) for n in grid])
+    raw_list = []
+    for n in grid:
+        raw_list.append(evaluate(int(n)))
+        if raw_list[-1] >= max(0.99, assurance):
+            break
+    grid = grid[:len(raw_list)]
+    raw = np.array(raw_list)
     mono = _isotonic(raw)
     above = np.flatnonzero(mono >= assurance)
     if len(above) and above[0] > 0:
@@ -764,7 +774,8 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
     p_raw = hits / replicates
     fit = _probit_fit(units, hits, replicates)
     smoothing = ("binomial probit fit of the assurance against sqrt(units), "
-                 "Φ(a + b·sqrt(N)), over all simulated sample sizes")
+                 "Φ(a + b·sqrt(N)), over all simulated sample sizes (sizes beyond the first "
+                 "with assurance of .99 or more were not simulated)")
     smoothed = None
     if fit is not None:
         smoothed = stats.norm.cdf(fit[0] + fit[1] * np.sqrt(units))
@@ -788,7 +799,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
         crossing = _first_crossing(units, smoothed, assurance)
 
     units_needed: int | None
-    if crossing is None or p_raw[-1] < assurance and crossing >= units[-1]:
+    if crossing is None or (p_raw[-1] < assurance and crossing >= units[-1]):
         units_needed = None
         notes.append(Note("plan-beyond-range",
                           f"Even {max_units} units do not reach the wanted assurance "
@@ -900,6 +911,13 @@ def save_assurance_plot(plan: Plan, path: str | os.PathLike) -> None:
         ax.annotate(f"{plan.units_needed} units", (plan.units_needed, 0.02), rotation=90,
                     ha="right", va="bottom", fontsize=8)
     ax.set_xscale("log")
+    from matplotlib.ticker import FixedLocator, NullFormatter, ScalarFormatter
+
+    nice = [t for t in (10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10000, 20000, 50000, 100000)
+            if units.min() * 0.9 <= t <= units.max() * 1.1]
+    ax.xaxis.set_major_locator(FixedLocator(nice or list(units)))
+    ax.xaxis.set_major_formatter(ScalarFormatter())
+    ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_ylim(-0.02, 1.02)
     ax.set_xlabel("units coded by every coder")
     ax.set_ylabel(f"P(lower bound > {plan.inputs['minimum']:.3f})")

@@ -132,7 +132,7 @@ def forest_plot(labels: Sequence[Any], estimates: Sequence[float | None],
     if minimum > TENTATIVE:
         ax.axvline(TENTATIVE, color="0.4", linestyle=":", linewidth=1)
     ax.axvline(0, color="0.75", linewidth=0.8)
-    ax.set_xlim(lo, hi)
+    ax.set_xlim(lo, hi + 0.04)  # headroom so a marker at 1 is not clipped
     ax.set_ylim(-0.7, n - 0.3)
     ax.set_yticks(ys, [_short(x) for x in labels])
     ax.set_xlabel(f"{symbol} with {confidence_level:.0%} confidence interval "
@@ -217,7 +217,7 @@ def rounds_trend(rounds: Sequence[str], series: Mapping[str, Sequence[tuple[floa
         if minimum > TENTATIVE:
             ax.axhline(TENTATIVE, color="0.4", linestyle=":", linewidth=0.8)
         ax.set_title(_short(name, 32), fontsize=9, fontweight="bold" if k == 0 else "normal")
-        ax.set_ylim(lo, hi)
+        ax.set_ylim(lo, hi + 0.04)  # headroom so a marker at 1 is not clipped
         ax.set_xlim(-0.5, len(rounds) - 0.5)
         ax.set_xticks(x, [_short(r, 10) for r in rounds])
         ax.grid(axis="y", color="0.9", linewidth=0.6)

@@ -75,7 +75,9 @@ TEXT_NAMES = ("text", "excerpt", "segment", "quote", "content", "unit_text", "ex
               "segment_text")
 # Per-unit columns that are never coders in a wide table: kept in `CodingData.columns`.
 KEEP_NAMES = ("round", "cluster", "document", "document_id", "doc", "doc_id", "group", "notes",
-              "note", "comment", "comments", "memo")
+              "note", "comment", "comments", "memo", "interview", "interview_id", "participant",
+              "participant_id", "respondent", "respondent_id", "speaker", "thread", "thread_id",
+              "wave", "session", "site", "source", "file")
 MISSING_LOOKALIKES = {"na", "n/a", "nan", "null", "none", "-", "missing"}
 
 _MAGIC_ZIP = b"PK\x03\x04"
@@ -363,6 +365,12 @@ def _load_workbook(path: Path, *, sheet: Any, name: str) -> _Loaded:
         sheets = [ws for ws in wb.worksheets if hasattr(ws, "iter_rows")]
         titles = [ws.title for ws in sheets]
         wanted = _select_sheets(sheet, titles, name)
+        hidden = [ws.title for ws in sheets if ws.sheet_state != "visible"]
+        if sheet is None and hidden and len(hidden) < len(sheets):
+            # hidden sheets hold lists for drop-downs and the like, not a coder's work
+            wanted = [t for t in wanted if t not in hidden]
+            loaded.left_out.append(f"{name}: hidden sheet(s) not read: {', '.join(repr(h) for h in hidden)} "
+                                   "(name them with --sheet to read them)")
         empty = []
         for ws in sheets:
             if ws.title not in wanted:
@@ -686,6 +694,7 @@ def _roles(table: _Table, layout: str, *, unit, coder, code, text, keep, single_
             r.unused = [c for c in rest if c not in r.coders]
         else:
             auto_keep = [c for c in rest if _key(c) in KEEP_NAMES]
+            auto_keep += _foreign_columns(table, [c for c in rest if c not in auto_keep])
             r.keep = kept + auto_keep
             r.coders = [c for c in rest if c not in auto_keep]
         r.keep = r.keep or kept
@@ -718,6 +727,21 @@ def _roles(table: _Table, layout: str, *, unit, coder, code, text, keep, single_
         raise AgreeError("no 0/1 code columns found for the presence layout", where=table.where(1),
                          code="no-column", hint="each code needs its own 0/1 column")
     return r
+
+
+def _foreign_columns(table: _Table, candidates: list) -> list:
+    """Wide layout: candidate coder columns whose values share none with the other candidates'
+    (e.g. an interview or participant column) are per-unit columns, not coders. Needs at least
+    three candidates, so that two coders who never agree are still read as coders."""
+    if len(candidates) < 3:
+        return []
+    values = {c: set(pd.unique(table.frame[c].dropna().astype(str).str.strip())) - {""} for c in candidates}
+    foreign = []
+    for c in candidates:
+        others = set().union(*(values[o] for o in candidates if o != c and o not in foreign))
+        if values[c] and others and not (values[c] & others):
+            foreign.append(c)
+    return foreign if len(candidates) - len(foreign) >= 2 else []
 
 
 def _as_list(x) -> list:

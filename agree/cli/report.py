@@ -1,3 +1,307 @@
-"""`agree report` command(s)."""
+"""`agree report` and `agree rounds`: write an agreement report; compare coding rounds."""
 
-from agree.cli.app import app  # noqa: F401
+from __future__ import annotations
+
+import contextlib
+from enum import Enum
+from pathlib import Path
+from typing import Annotated, Any, Iterator, Optional
+
+import typer
+from rich.table import Table
+
+from agree.cli.app import STATE, app, note, print_json, stderr, stdout
+from agree.cli.reading import (CasefoldOption, CodebookOption, CodeOption, CoderOption, Files, KeepOption,
+                               LayoutOption, LevelOption, SepOption, SheetOption, TextOption, TrimOption,
+                               UnitOption, load_data)
+from agree.model import AgreeError
+
+
+class OutputFormat(str, Enum):
+    table = "table"
+    json = "json"
+
+
+MinimumOption = Annotated[float, typer.Option("--minimum", help="Minimum acceptable agreement (Krippendorff's "
+                                                                 ".800 by default).")]
+ResamplesOption = Annotated[int, typer.Option("--n-resamples", help="Bootstrap replicates (units resampled).")]
+SeedOption = Annotated[Optional[int], typer.Option("--seed", help="Seed of the bootstrap (drawn and reported "
+                                                                  "when not given).")]
+ConfidenceOption = Annotated[float, typer.Option("--confidence-level", help="Level of the intervals.")]
+FormatOption = Annotated[OutputFormat, typer.Option("--format", help="table: human-readable; json: the "
+                                                                     "result's to_dict().")]
+RoundColumnOption = Annotated[Optional[str], typer.Option(
+    "--round-column", help="Per-unit column naming the round (default: 'round' when the data have one).")]
+RoundFilesOption = Annotated[bool, typer.Option(
+    "--round-files", help="Each file is one round, named by the file's stem, in the order given.")]
+CodebooksOption = Annotated[Optional[str], typer.Option(
+    "--codebooks", help="Codebook version per round, e.g. 'r1=cb1.csv,r2=cb2.csv': codes whose "
+                        "definition changed since they were last measured are flagged.")]
+DriftOption = Annotated[Optional[str], typer.Option(
+    "--drift-round", help="The round in which only a share of units is still double-coded: compared "
+                          "with the last full round (drift check).")]
+
+
+@contextlib.contextmanager
+def progress_bar(description: str) -> Iterator[Any]:
+    """A rich progress bar on stderr; silent when stderr is not a terminal or with --quiet.
+
+    Yields a callback(step, fraction) for the library's `progress=` argument."""
+    if STATE["quiet"] or not stderr.is_terminal:
+        yield lambda step, done: None
+        return
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    with Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.fields[step]}"),
+                  TimeElapsedColumn(), console=stderr, transient=True) as bar:
+        task = bar.add_task(description, total=1.0, step="")
+
+        def update(step: str, done: float) -> None:
+            bar.update(task, completed=min(max(done, 0.0), 1.0), step=step)
+
+        yield update
+
+
+def _scaled(tick: Any, low: float, high: float) -> Any:
+    """A progress callback mapping 0..1 onto low..high of the bar."""
+    return lambda step, done: tick(step, low + (high - low) * done)
+
+
+def parse_codebooks(spec: str | None) -> dict[str, Path] | None:
+    """'r1=cb1.csv,r2=cb2.csv' -> {'r1': Path('cb1.csv'), 'r2': Path('cb2.csv')}."""
+    if not spec:
+        return None
+    out = {}
+    for part in spec.split(","):
+        if not part.strip():
+            continue
+        name, sep, file = part.partition("=")
+        if not sep or not name.strip() or not file.strip():
+            raise AgreeError(f"--codebooks: '{part}' is not ROUND=FILE", hint="e.g. --codebooks r1=cb1.csv,r2=cb2.csv",
+                             code="bad-option")
+        out[name.strip()] = Path(file.strip())
+    return out
+
+
+def _check_output(output: Path, inputs: list[Path]) -> None:
+    target = output.resolve()
+    for p in inputs:
+        if p is not None and Path(p).exists() and Path(p).resolve() == target:
+            raise AgreeError(f"the output {output} is one of the input files; it would be overwritten",
+                             hint="choose another output name", code="output-is-input")
+
+
+def _read_rounds(files: list[Path], *, round_files: bool, round_column: str | None, reading: dict,
+                 required: bool) -> tuple[Any, dict[str, Any] | None, str | None]:
+    """The data and, when there are rounds, {round: data} (for --round-files) or the column name."""
+    keep = list(reading.pop("keep") or ())
+    if round_files:
+        if len(files) < 2:
+            raise AgreeError("--round-files needs one file per round (at least two)", code="bad-option")
+        stems = [f.stem for f in files]
+        if len(set(stems)) != len(stems):
+            raise AgreeError("--round-files: two files have the same name; rounds are named by file name",
+                             code="bad-option")
+        parts = {}
+        for f in files:
+            note(f"round {f.stem}:")
+            parts[f.stem] = load_data([f], keep=keep, **reading)
+        return None, parts, None
+    column = round_column or "round"
+    if round_column or required:
+        data = load_data(files, keep=keep + [column], **reading)
+        return data, None, column
+    try:
+        data = load_data(files, keep=keep + [column], **reading)
+        return data, None, column
+    except AgreeError as exc:
+        if exc.code != "no-column" or f"'{column}'" not in exc.message:
+            raise
+    return load_data(files, keep=keep, **reading), None, None
+
+
+@app.command()
+def report(
+    files: Files,
+    output: Annotated[Path, typer.Option("--output", "-o", help="Report file: .html, .md, .docx or .tex "
+                                                                "(the format follows the suffix).")],
+    minimum: MinimumOption = 0.8,
+    n_resamples: ResamplesOption = 2000,
+    seed: SeedOption = None,
+    confidence_level: ConfidenceOption = 0.95,
+    corpus_size: Annotated[Optional[int], typer.Option(
+        "--corpus-size", help="Units in the whole corpus, to state the share that was double-coded.")] = None,
+    consensus: Annotated[Optional[Path], typer.Option(
+        "--consensus", help="Consensus file from `agree reconcile` (columns: unit id, final code, source): "
+                            "how disagreements were resolved.")] = None,
+    round_column: RoundColumnOption = None,
+    round_files: RoundFilesOption = False,
+    codebooks: CodebooksOption = None,
+    drift_round: DriftOption = None,
+    title: Annotated[str, typer.Option("--title", help="Title of the report.")] = "Intercoder agreement",
+    digits: Annotated[int, typer.Option("--digits", help="Decimals shown for coefficients.")] = 2,
+    output_format: FormatOption = OutputFormat.table,
+    layout: LayoutOption = None, unit_col: UnitOption = None, coder_col: CoderOption = None,
+    code_col: CodeOption = None, text_col: TextOption = None, sheet: SheetOption = None, sep: SepOption = ";",
+    codebook: CodebookOption = None, trim: TrimOption = False, casefold: CasefoldOption = False,
+    level: LevelOption = None, keep: KeepOption = None,
+):
+    """Write an agreement report: methods paragraph, tables, interpretation and plots.
+
+    Example: agree report samples/round2.csv --codebook samples/codebook.csv --corpus-size 600 -o report.html
+    """
+    from agree.report import build_report, write_report
+    from agree.rounds import compare_rounds
+
+    if output.suffix.lower() not in (".html", ".htm", ".md", ".markdown", ".docx", ".tex"):
+        raise AgreeError(f"cannot tell the report format from '{output.name}'",
+                         hint="end the file name in .html, .md, .docx or .tex", code="report-format")
+    inputs = list(files) + [p for p in (consensus, codebook) if p is not None]
+    books = parse_codebooks(codebooks)
+    inputs += list((books or {}).values())
+    _check_output(output, inputs)
+    reading = dict(layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col, sheet=sheet,
+                   sep=sep, codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep)
+    data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
+                                       reading=reading, required=False)
+    level_name = level.value if level is not None else None
+    options = dict(level=level_name, minimum=minimum, n_resamples=n_resamples, seed=seed,
+                   confidence_level=confidence_level)
+    with progress_bar("report") as tick:
+        building = _scaled(tick, 0.0, 0.6)      # writing (with the plots) takes the rest
+        if parts is not None:
+            rounds = compare_rounds(parts, codebooks=books, drift_round=drift_round,
+                                    progress=_scaled(tick, 0.0, 0.2), **options)
+            data = parts[rounds.final_round]
+            result = build_report(data, corpus_size=corpus_size, consensus=consensus, rounds=rounds,
+                                  analysed_round=rounds.final_round, title=title, digits=digits,
+                                  progress=_scaled(tick, 0.2, 0.6), **options)
+        else:
+            if (books or drift_round) and column is None:
+                raise AgreeError("--codebooks and --drift-round need rounds",
+                                 hint="give a round column (--round-column) or one file per round (--round-files)",
+                                 code="bad-option")
+            result = build_report(data, corpus_size=corpus_size, consensus=consensus,
+                                  rounds=column if column else False, codebooks=books, drift_round=drift_round,
+                                  title=title, digits=digits, progress=building, **options)
+        tick("writing", 0.6)
+        written = write_report(result, output)
+        tick("done", 1.0)
+    for path in written:
+        note(f"wrote {path}")
+    if output_format is OutputFormat.json:
+        print_json(result.to_dict())
+    else:
+        _print_coefficients(result)
+
+
+def _print_coefficients(result: Any) -> None:
+    from agree.format import format_interval, format_value
+    from agree.report import plain, result_label
+
+    table = Table(title=result.title, title_justify="left")
+    for header in ("Coefficient", "Estimate", "SE", f"{result.confidence_level:.0%} CI",
+                   f"P(below {format_value(result.minimum, 'threshold')})", "n units"):
+        table.add_column(header, justify="left" if header == "Coefficient" else "right")
+    dg = result.digits
+    for r in result.coefficients:
+        table.add_row(result_label(r, result.level), format_value(r.estimate, "coefficient", dg),
+                      format_value(r.se, "se", dg), format_interval(r.ci_low, r.ci_high, dg),
+                      format_value(r.p_below_min, "probability"), format_value(r.n_units, "count"))
+    stdout.print(table)
+    for paragraph in result.interpretation[1:]:
+        stdout.print(plain(paragraph), highlight=False, markup=False)
+
+
+@app.command()
+def rounds(
+    files: Files,
+    round_column: RoundColumnOption = None,
+    round_files: RoundFilesOption = False,
+    codebooks: CodebooksOption = None,
+    drift_round: DriftOption = None,
+    minimum: MinimumOption = 0.8,
+    n_resamples: ResamplesOption = 2000,
+    seed: SeedOption = None,
+    confidence_level: ConfidenceOption = 0.95,
+    plot: Annotated[Optional[Path], typer.Option(
+        "--plot", help="Write the trend plot (per code, with the minimum line) to this .png, .svg or .pdf.")] = None,
+    output_format: FormatOption = OutputFormat.table,
+    layout: LayoutOption = None, unit_col: UnitOption = None, coder_col: CoderOption = None,
+    code_col: CodeOption = None, text_col: TextOption = None, sheet: SheetOption = None, sep: SepOption = ";",
+    codebook: CodebookOption = None, trim: TrimOption = False, casefold: CasefoldOption = False,
+    level: LevelOption = None, keep: KeepOption = None,
+):
+    """Compare agreement across coding rounds: per round, per code, changes, drift.
+
+    Example: agree rounds samples/round1.csv samples/round2.csv --round-files --keep interview
+    """
+    from agree.rounds import compare_rounds
+
+    books = parse_codebooks(codebooks)
+    if plot is not None:
+        if plot.suffix.lower() not in (".png", ".svg", ".pdf"):
+            raise AgreeError(f"cannot tell the plot format from '{plot.name}'", hint="use .png, .svg or .pdf",
+                             code="plot-format")
+        _check_output(plot, list(files) + list((books or {}).values()))
+    reading = dict(layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col, sheet=sheet,
+                   sep=sep, codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep)
+    data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
+                                       reading=reading, required=True)
+    options = dict(level=level.value if level is not None else None, minimum=minimum, n_resamples=n_resamples,
+                   seed=seed, confidence_level=confidence_level, codebooks=books, drift_round=drift_round)
+    with progress_bar("rounds") as tick:
+        if parts is not None:
+            result = compare_rounds(parts, progress=tick, **options)
+        else:
+            result = compare_rounds(data, round_column=column, progress=tick, **options)
+    if plot is not None:
+        _write_plot(result, plot)
+        note(f"wrote {plot}")
+    if output_format is OutputFormat.json:
+        print_json(result.to_dict())
+        return
+    _print_rounds(result)
+
+
+def _write_plot(result: Any, path: Path) -> None:
+    import io
+
+    from agree.report import _atomic_write
+
+    buffer = io.BytesIO()
+    result.trend_figure().savefig(buffer, format=path.suffix.lower().lstrip("."), dpi=150, bbox_inches="tight",
+                                  facecolor="white")
+    _atomic_write(path, buffer.getvalue())
+
+
+def _print_rounds(result: Any) -> None:
+    from agree.format import format_interval, format_value
+
+    minimum = format_value(result.minimum, "threshold")
+    table = Table(title=f"Agreement per round (Krippendorff's α, {result.level})", title_justify="left")
+    for header in ("Round", "Units", "α", f"{result.confidence_level:.0%} CI", f"P(below {minimum})",
+                   f"Codes below {minimum}"):
+        table.add_column(header, justify="left" if header in ("Round", f"Codes below {minimum}") else "right")
+    for r in result.rounds:
+        below = [c for c, res in r.per_code.items() if res.defined and res.estimate < result.minimum]
+        table.add_row(r.round + (" (drift)" if r.drift else ""), format_value(r.n_units, "count"),
+                      format_value(r.overall.estimate), format_interval(r.overall.ci_low, r.overall.ci_high),
+                      format_value(r.overall.p_below_min, "probability"), ", ".join(below) or "none")
+    stdout.print(table)
+    codes = Table(title="Per code (presence/absence α)", title_justify="left")
+    codes.add_column("Code")
+    for r in result.rounds:
+        codes.add_column(r.round, justify="right")
+    for code in result.codes:
+        cells = []
+        for r in result.rounds:
+            res = r.per_code.get(code)
+            cells.append("–" if res is None else f"{format_value(res.estimate)} {format_interval(res.ci_low, res.ci_high)}"
+                         + (" *" if code in r.changed_codes else ""))
+        codes.add_row(code, *cells)
+    stdout.print(codes)
+    if result.definition_changes:
+        stdout.print("* definition changed since the code was last measured", highlight=False, markup=False)
+    for line in result.summary:
+        stdout.print(line, highlight=False, markup=False)

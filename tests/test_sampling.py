@@ -1,0 +1,281 @@
+"""Drawing the reliability sample and writing coding workbooks (agree.sampling).
+
+All corpora here are synthetic: invented unit ids, invented answers and invented groups.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import krippendorff
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from typer.testing import CliRunner
+
+from agree.model import AgreeError
+from agree.sampling import (draw_sample, largest_remainder_allocation, load_codebook_categories,
+                            read_corpus, write_coding_sheets)
+
+CODES = ["praise", "complaint", "question"]
+
+
+def make_corpus(n=240, seed=0) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    return pd.DataFrame({
+        "unit_id": [f"u{i:04d}" for i in range(n)],
+        "text": [f"synthetic answer number {i} about the invented service" for i in range(n)],
+        "participant": rng.choice(["p1", "p2", "p3", "p4", "p5"], size=n, p=[0.4, 0.25, 0.2, 0.1, 0.05]),
+    })
+
+
+# -- allocation and draws ------------------------------------------------------------------------
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.integers(1, 60), min_size=1, max_size=12), st.data())
+def test_largest_remainder_is_within_one_unit(sizes, data):
+    total = sum(sizes)
+    n = data.draw(st.integers(1, total))
+    alloc = largest_remainder_allocation(sizes, n)
+    quota = n * np.array(sizes) / total
+    assert alloc.sum() == n
+    assert np.all(np.abs(alloc - quota) < 1)
+    assert np.all(alloc <= np.array(sizes))
+
+
+def test_stratified_draw_keeps_every_share_within_one_unit():
+    corpus = make_corpus()
+    sample = draw_sample(corpus, 50, stratify="participant", seed=3)
+    sizes = corpus["participant"].value_counts()
+    drawn = sample["participant"].value_counts()
+    for group, size in sizes.items():
+        assert abs(drawn.get(group, 0) - 50 * size / len(corpus)) < 1
+    assert sample.attrs["allocation"] == {g: int(drawn.get(g, 0)) for g in sample.attrs["allocation"]}
+
+
+def test_draw_is_reproducible_without_duplicates():
+    corpus = make_corpus()
+    a = draw_sample(corpus, 60, seed=11)
+    b = draw_sample(corpus, 60, seed=11)
+    c = draw_sample(corpus, 60, seed=12)
+    pd.testing.assert_frame_equal(a, b)
+    assert a["unit_id"].is_unique and len(a) == 60
+    assert list(a["unit_id"]) != list(c["unit_id"])
+    assert list(a["draw_order"]) == list(range(1, 61))
+    # corpus_row points back at the row of the sheet (header = row 1)
+    for uid, row in zip(a["unit_id"], a["corpus_row"]):
+        assert corpus["unit_id"].iloc[row - 2] == uid
+    assert a.attrs["seed"] == 11 and a.attrs["corpus_size"] == len(corpus)
+
+
+def test_whole_corpus_can_be_drawn():
+    corpus = make_corpus(30)
+    sample = draw_sample(corpus, 30, stratify="participant", seed=1)
+    assert set(sample["unit_id"]) == set(corpus["unit_id"])
+
+
+def test_seed_is_recorded_when_not_given():
+    corpus = make_corpus()
+    a = draw_sample(corpus, 20)
+    b = draw_sample(corpus, 20, seed=a.attrs["seed"])
+    assert list(a["unit_id"]) == list(b["unit_id"])
+
+
+def test_duplicate_and_blank_ids_are_errors_with_rows():
+    corpus = make_corpus(10)
+    corpus.loc[4, "unit_id"] = "u0001"
+    corpus.loc[7, "unit_id"] = "u0002"
+    corpus.loc[8, "unit_id"] = ""
+    with pytest.raises(AgreeError) as err:
+        draw_sample(corpus, 3, seed=1)
+    codes = [p.code for p in err.value.problems]
+    assert codes.count("duplicate-unit-id") == 2 and "blank-unit-id" in codes
+    assert "row 6" in err.value.problems[0].where          # 0-based 4 -> spreadsheet row 6
+
+
+def test_numeric_ids_one_and_one_point_zero_are_the_same():
+    corpus = pd.DataFrame({"id": [1, 2, 1.0], "text": ["a", "b", "c"]})
+    with pytest.raises(AgreeError) as err:
+        draw_sample(corpus, 1, seed=1)
+    assert err.value.code == "duplicate-unit-id"
+
+
+@pytest.mark.parametrize("kwargs,code", [
+    (dict(n=500), "sample-too-large"),
+    (dict(n=0), "sample-size"),
+    (dict(n=5, stratify="nope"), "no-stratify-column"),
+    (dict(n=5, id_col="nope"), "no-id-column"),
+])
+def test_bad_draws(kwargs, code):
+    with pytest.raises(AgreeError) as err:
+        draw_sample(make_corpus(), **kwargs)
+    assert err.value.code == code
+
+
+def test_id_column_must_be_found():
+    with pytest.raises(AgreeError) as err:
+        draw_sample(pd.DataFrame({"x": [1, 2]}), 1)
+    assert err.value.code == "no-id-column"
+
+
+# -- the workbooks --------------------------------------------------------------------------------
+
+def _read_sheet(path):
+    wb = openpyxl.load_workbook(path)
+    assert wb.sheetnames == ["coding"]
+    ws = wb["coding"]
+    rows = list(ws.iter_rows(values_only=True))
+    return ws, rows
+
+
+def test_workbooks_and_manifest(tmp_path):
+    corpus_file = tmp_path / "units.csv"
+    make_corpus().to_csv(corpus_file, index=False)
+    corpus = read_corpus(corpus_file)
+    sample = draw_sample(corpus, 25, stratify="participant", seed=5)
+    out = tmp_path / "sheets"
+    written = write_coding_sheets(sample, out, coders=["ana", "ben"], codebook=CODES)
+    assert sorted(p.name for p in out.iterdir()) == ["ana.xlsx", "ben.xlsx", "manifest.csv", "manifest.json"]
+    ws, rows = _read_sheet(out / "ana.xlsx")
+    assert rows[0] == ("unit_id", "text", "code", "notes")
+    assert len(rows) == 26 and all(r[2] is None and r[3] is None for r in rows[1:])
+    # not shuffled: corpus order, the same for every coder
+    _, rows_b = _read_sheet(out / "ben.xlsx")
+    assert [r[0] for r in rows[1:]] == [r[0] for r in rows_b[1:]] == sorted(r[0] for r in rows[1:])
+    dvs = ws.data_validations.dataValidation
+    assert len(dvs) == 1 and dvs[0].type == "list"
+    assert dvs[0].formula1 == '"praise,complaint,question"'
+    assert str(dvs[0].sqref) == "C2:C26"
+    assert written.drop_down == "inline list"
+
+    manifest = pd.read_csv(out / "manifest.csv", dtype=str)
+    assert list(manifest.columns) == ["unit_id", "stratum", "draw_order", "corpus_row"]
+    assert list(manifest["draw_order"].astype(int)) == list(range(1, 26))
+    assert set(manifest["unit_id"]) == set(sample["unit_id"])
+    meta = json.loads((out / "manifest.json").read_text())
+    assert meta["seed"] == 5 and meta["n"] == 25 and meta["stratify"] == "participant"
+    assert meta["corpus_checksum"] == hashlib.sha256(corpus_file.read_bytes()).hexdigest()
+    assert meta["date"] and meta["coders"] == ["ana", "ben"]
+
+
+def test_shuffle_gives_each_coder_an_order(tmp_path):
+    sample = draw_sample(make_corpus(), 40, seed=2)
+    write_coding_sheets(sample, tmp_path / "s", coders=["ana", "ben", "cai"], shuffle=True)
+    orders = [[r[0] for r in _read_sheet(tmp_path / "s" / f"{c}.xlsx")[1][1:]] for c in ("ana", "ben", "cai")]
+    assert all(sorted(o) == sorted(orders[0]) for o in orders)
+    assert orders[0] != orders[1] != orders[2]
+    write_coding_sheets(sample, tmp_path / "t", coders=["ana", "ben", "cai"], shuffle=True)
+    again = [r[0] for r in _read_sheet(tmp_path / "t" / "ana.xlsx")[1][1:]]
+    assert again == orders[0]                                  # reproducible from the seed
+
+
+def test_refuses_non_empty_folder_unless_forced(tmp_path):
+    sample = draw_sample(make_corpus(), 10, seed=2)
+    (tmp_path / "keep.txt").write_text("someone's notes")
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path, coders=["ana", "ben"])
+    assert err.value.code == "output-exists"
+    write_coding_sheets(sample, tmp_path, coders=["ana", "ben"], force=True)
+    assert (tmp_path / "keep.txt").read_text() == "someone's notes"
+    assert (tmp_path / "ana.xlsx").exists()
+
+
+def test_never_overwrites_the_corpus(tmp_path):
+    corpus_file = tmp_path / "ana.xlsx"
+    make_corpus(20).to_excel(corpus_file, index=False)
+    before = corpus_file.read_bytes()
+    sample = draw_sample(read_corpus(corpus_file), 5, seed=1)
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path, coders=["ana", "ben"], force=True)
+    assert err.value.code == "would-overwrite-corpus"
+    assert corpus_file.read_bytes() == before
+
+
+@pytest.mark.parametrize("coders,code", [(["ana"], "too-few-coders"), (["ana", "ANA"], "duplicate-coder"),
+                                         (["ana", "b/c"], "bad-coder-name"), (["ana", "manifest"], "bad-coder-name")])
+def test_bad_coder_names(tmp_path, coders, code):
+    sample = draw_sample(make_corpus(), 5, seed=1)
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path / "x", coders=coders)
+    assert code in {err.value.code} | {p.code for p in err.value.problems}
+
+
+def test_long_codebook_leaves_the_column_free(tmp_path):
+    sample = draw_sample(make_corpus(), 5, seed=1)
+    codebook = [f"category number {i} with a long name" for i in range(20)]
+    written = write_coding_sheets(sample, tmp_path / "x", coders=["ana", "ben"], codebook=codebook)
+    assert written.drop_down is None
+    ws, _ = _read_sheet(tmp_path / "x" / "ana.xlsx")
+    assert not ws.data_validations.dataValidation
+
+
+def test_codebook_files(tmp_path):
+    (tmp_path / "c.txt").write_text("praise\n\ncomplaint\n")
+    assert list(load_codebook_categories(tmp_path / "c.txt")) == ["praise", "complaint"]
+    pd.DataFrame({"Code": ["a", "b"], "Description": ["first", "second"]}).to_csv(tmp_path / "c.csv", index=False)
+    assert load_codebook_categories(tmp_path / "c.csv") == {"a": "first", "b": "second"}
+
+
+# -- round trip: sample -> fill in -> read -> alpha ---------------------------------------------------
+
+def test_sample_to_score_round_trip(tmp_path):
+    import agree
+    from agree.readers import read as readers_read
+
+    read = getattr(agree, "read", readers_read)     # agree.read once agree/__init__.py exports it
+    sample = draw_sample(make_corpus(), 30, seed=8)
+    out = tmp_path / "sheets"
+    write_coding_sheets(sample, out, coders=["ana", "ben", "cai"], codebook=CODES, shuffle=True)
+    rng = np.random.default_rng(8)
+    truth = {uid: CODES[rng.integers(3)] for uid in sample["unit_id"]}
+    filled = {}
+    for coder in ("ana", "ben", "cai"):
+        wb = openpyxl.load_workbook(out / f"{coder}.xlsx")
+        ws = wb["coding"]
+        filled[coder] = {}
+        for row in ws.iter_rows(min_row=2):
+            uid = row[0].value
+            code = truth[uid] if rng.random() < 0.8 else CODES[rng.integers(3)]
+            if coder == "cai" and rng.random() < 0.1:
+                code = None                                      # cai skipped a few units
+            row[2].value = code
+            filled[coder][uid] = code
+        wb.save(out / f"{coder}.xlsx")
+
+    data = read([out / "ana.xlsx", out / "ben.xlsx", out / "cai.xlsx"])
+    assert sorted(data.coders) == ["ana", "ben", "cai"]
+    assert data.n_units == 30
+    result = agree.krippendorff_alpha(data, n_resamples=0)
+    units = sorted(truth)
+    table = np.array([[np.nan if filled[c][u] is None else CODES.index(filled[c][u]) for u in units]
+                      for c in ("ana", "ben", "cai")], dtype=float)
+    want = krippendorff.alpha(reliability_data=table, level_of_measurement="nominal")
+    assert result.estimate == pytest.approx(want, abs=1e-12)
+
+
+# -- CLI ---------------------------------------------------------------------------------------------
+
+def test_cli_sample(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.xlsx"
+    make_corpus(60).to_excel(corpus_file, index=False)
+    before = corpus_file.read_bytes()
+    (tmp_path / "codes.txt").write_text("\n".join(CODES))
+    args = ["sample", str(corpus_file), "-n", "12", "--stratify", "participant", "--coders", "ana,ben",
+            "--codebook", str(tmp_path / "codes.txt"), "-o", str(tmp_path / "sheets"), "--seed", "4",
+            "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["n"] == 12 and got["seed"] == 4 and len(got["files"]) == 2
+    assert got["drop_down"] == "inline list"
+    assert corpus_file.read_bytes() == before
+    again = CliRunner().invoke(app, args)
+    assert again.exit_code != 0                               # folder not empty
+    assert isinstance(again.exception, AgreeError) and again.exception.code == "output-exists"
