@@ -14,6 +14,8 @@ from agree.diagnostics import (CodeDiagnostics, CoderDiagnostics, confusion_tabl
 from agree.model import AgreeError, CodingData, from_table
 from agree.planning import Plan, decision_sentence, plan_sample
 from agree.readers import read
+from agree.report import Report, build_report, write_report
+from agree.rounds import RoundsResult, compare_rounds
 from agree.reconcile import Consensus, ReviewSummary, reconcile, review_table, write_consensus, write_review
 from agree.results import AgreementResult, BootstrapInfo, Note
 from agree.sampling import draw_sample, write_coding_sheets
@@ -23,7 +25,8 @@ __version__ = "0.1.0"
 
 __all__ = [
     "AgreeError", "AgreementResult", "BootstrapInfo", "CodeDiagnostics", "CoderDiagnostics", "Codebook",
-    "CodingData", "Consensus", "Note", "Plan", "ReviewSummary", "ScoreResult",
+    "CodingData", "Consensus", "Note", "Plan", "Report", "ReviewSummary", "RoundsResult", "ScoreResult",
+    "build_report", "compare_rounds", "write_report",
     "decision_sentence", "draw_sample", "plan_sample", "write_coding_sheets",
     "confusion_table", "diagnose_codes", "diagnose_coders", "read", "read_codebook", "reconcile",
     "review_table", "write_consensus", "write_review",

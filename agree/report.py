@@ -632,8 +632,9 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
     p: list[str] = []
     coders = _count_words(s.n_coders, "coder")
     coded = s.units_read if s.units_double_coded is None else s.units_double_coded
-    p.append(f"{coders} ([[who the coders were and how they were trained]]) independently coded "
-             f"*N* = {format_value(coded, 'count')} units ([[describe the coding unit]])")
+    p.append(f"{coders} ([[who the coders were and how they were trained]]) coded "
+             f"*N* = {format_value(coded, 'count')} units ([[describe the coding unit]]) "
+             "[[independently of each other: confirm]]")
     if s.corpus_size:
         p[-1] += (f", {format_value(s.share_of_corpus, 'percent')} of the "
                   f"{format_value(s.corpus_size, 'count')} units in the corpus, selected "
@@ -700,13 +701,14 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
              "redefined]].")
     if report.consensus is not None:
         c = report.consensus
-        parts = [f"{format_value(n, 'count')} {_SOURCE_TEXT.get(k, 'marked ' + repr(lit(k)))}"
+        parts = [f"{format_value(n, 'count')} {_SOURCE_TEXT.get(k, f'had the source ‘{lit(k)}’')}"
                  for k, n in c.by_source.items()]
-        p.append(f"Disagreements were then resolved by [[the procedure, e.g. discussion or a third coder]]: "
+        p.append("Agreement was computed on each coder's own codes, before resolution. Disagreements were "
+                 "then resolved by [[the procedure, e.g. discussion or a third coder]]: "
                  f"of the {_units(c.n_units)} in the final data, " + _join(parts) + ".")
     else:
         p.append("Disagreements were resolved by [[how disagreements were resolved]]; agreement was computed "
-                 "on the independent codes, before resolution.")
+                 "on each coder's own codes, before resolution.")
     p.append("The codebook and the reliability data are available at [[where]].")
     return " ".join(p)
 

@@ -19,8 +19,8 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
 )
 
-stdout = Console(soft_wrap=True)
-stderr = Console(stderr=True, soft_wrap=True)
+stdout = Console(soft_wrap=True, markup=False)  # user text (codes, [placeholders]) is never markup
+stderr = Console(stderr=True, soft_wrap=True, markup=False)
 
 STATE = {"debug": False, "quiet": False}
 

@@ -1,3 +1,118 @@
-"""`agree demo` command(s)."""
+"""`agree demo`: the whole loop on the bundled synthetic samples.
 
-from agree.cli.app import app  # noqa: F401
+Score two coding rounds, find what drives disagreement, write the review workbook, compare the
+rounds, write the report, plan the next reliability sample and draw it. Every output goes to one
+folder, named at the end.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+from rich.rule import Rule
+
+from agree.cli.app import app, note, stdout
+from agree.cli.diagnose import _codes_table
+from agree.cli.plan import print_plan
+from agree.cli.reading import report_reading
+from agree.cli.score import print_score
+from agree.model import AgreeError
+
+
+def _samples_folder(given: Path | None) -> Path:
+    if given is not None:
+        folder = given
+    else:
+        folder = Path(__file__).resolve().parents[2] / "samples"
+    needed = ["round1.csv", "round2.csv", "rounds_long.csv", "codebook.csv", "corpus.csv"]
+    missing = [n for n in needed if not (folder / n).exists()]
+    if missing:
+        raise AgreeError(f"the sample files are not in {folder} (missing: {', '.join(missing)})",
+                         hint="run from a checkout of agree, or pass --samples DIR", code="no-samples")
+    return folder
+
+
+def _section(title: str) -> None:
+    stdout.print(Rule(title, align="left"))
+
+
+@app.command()
+def demo(
+    out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the demo's outputs.")] = Path("agree-demo"),
+    samples: Annotated[Optional[Path], typer.Option("--samples", help="Folder with the sample files.")] = None,
+    boot: Annotated[int, typer.Option("--boot", help="Bootstrap replicates.")] = 2000,
+    seed: Annotated[int, typer.Option("--seed", help="Seed for every random step.")] = 1,
+):
+    """Run the whole loop on the bundled synthetic samples and write the outputs to a folder.
+
+    Example: agree demo --out agree-demo
+    """
+    import agree
+    from agree.report import build_report, plain, write_report
+    from agree.sampling import load_codebook_categories
+    from agree.rounds import compare_rounds
+
+    folder = _samples_folder(samples)
+    out.mkdir(parents=True, exist_ok=True)
+    codebook = folder / "codebook.csv"
+    stdout.print("agree demo: synthetic interviews with volunteers of a neighbourhood repair café; "
+                 "8-code codebook, three coders (amara, bastien, chen), two coding rounds. See samples/README.md.")
+
+    rounds = {}
+    for name in ("round1", "round2"):
+        _section(f"1. Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8)")
+        data = agree.read(folder / f"{name}.csv", codebook=codebook)
+        report_reading(data)
+        rounds[name] = data
+        print_score(agree.score(data, minimum=0.8, n_resamples=boot, seed=seed, cluster="interview"))
+
+    _section("2. Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
+    codes = agree.diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
+    _codes_table(codes, top=8)
+
+    _section("3. Review workbook for the round-1 disagreements (agree disagreements ... -o review-round1.xlsx)")
+    review_path = out / "review-round1.xlsx"
+    summary = agree.write_review(rounds["round1"], review_path, format="xlsx",
+                                 inputs=[folder / "round1.csv", codebook], options={"source": "agree demo"},
+                                 force=True)
+    stdout.print(f"{summary.needing_review} units to reconcile, worst first: {review_path}", highlight=False)
+
+    _section("4. Did round 2 beat round 1? (agree rounds samples/rounds_long.csv --codebook ...)")
+    long = agree.read(folder / "rounds_long.csv", codebook=codebook, keep=["round"])
+    report_reading(long)
+    compared = compare_rounds(long, minimum=0.8, n_resamples=boot, seed=seed)
+    for line in compared.summary_markup():
+        stdout.print(plain(line), highlight=False)
+
+    _section("5. Report for the methods section (agree report ... -o report.html)")
+    report = build_report(long, minimum=0.8, n_resamples=boot, seed=seed, corpus_size=600)
+    written = []
+    for suffix in (".html", ".md", ".docx", ".tex"):
+        written += write_report(report, out / f"report{suffix}")
+    stdout.print("Methods paragraph (edit the bracketed parts):", highlight=False)
+    stdout.print(plain(report.methods), highlight=False)
+    stdout.print("Written: " + ", ".join(str(p) for p in written if p.suffix != ".png"), highlight=False)
+
+    _section("6. How many units to double-code next time (agree plan --coders 3 --shares ... --expected 0.85)")
+    plan = agree.plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
+                             expected=0.85, minimum=0.8, seed=seed)
+    print_plan(plan)
+
+    _section("7. Draw the next reliability sample and write coding sheets (agree sample samples/corpus.csv ...)")
+    import pandas as pd
+
+    corpus = pd.read_csv(folder / "corpus.csv")
+    n = int(plan.units_needed or 100)
+    drawn = agree.draw_sample(corpus, min(n, len(corpus)), stratify="interview", seed=seed)
+    sheets = agree.write_coding_sheets(drawn, out / "sheets", coders=["amara", "bastien", "chen"],
+                                       codebook=load_codebook_categories(codebook), shuffle=True, seed=seed,
+                                       force=True)
+    stdout.print(f"{len(drawn)} units drawn (stratified by interview), one workbook per coder in {sheets.folder}",
+                 highlight=False)
+
+    _section("Done")
+    stdout.print(f"All outputs are in {out.resolve()}: review-round1.xlsx, report.html (open it in a browser), "
+                 "report.md, report.docx, report.tex, sheets/.", highlight=False)
+    note("The sample data are synthetic (samples/make_samples.py).")

@@ -1,0 +1,374 @@
+"""Reports: the numbers, the wording, the formats and the plots.
+
+External checks: the primary coefficient against the `krippendorff` package (reference
+library); APA 7 number style (Publication Manual, 7th ed., sections 6.36 and 6.44: no leading
+zero for values that cannot exceed 1, p < .001; from memory); Krippendorff's (2004) .800/.667
+and Landis & Koch's (1977) bands (METHODS 10.1); hypothesis properties for the markup and
+LaTeX escaping.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import krippendorff
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from typer.testing import CliRunner
+
+from agree.format import format_interval, format_value
+from agree.model import AgreeError, from_table
+from agree.readers import read
+from agree.report import (build_report, krippendorff_band, landis_koch, latex_escape, lit, plain,
+                          render_html, render_latex, render_markdown, report_tables, spans,
+                          summarise_consensus, write_report)
+
+from conftest import as_labels, simulate_codes
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+SEED = 20240611
+
+
+def _sample_round2():
+    return read(SAMPLES / "round2.csv", codebook=SAMPLES / "codebook.csv", keep=["interview"])
+
+
+@pytest.fixture(scope="module")
+def sample_report():
+    return build_report(_sample_round2(), n_resamples=400, seed=SEED, corpus_size=600)
+
+
+def _missing_data(seed=7, n=80):
+    rng = np.random.default_rng(seed)
+    codes = simulate_codes(rng, n, 3, 4, alpha=0.7, missing=0.3)
+    labels = as_labels(codes, ["apple", "pear & plum", "50% fig", "kiwi_x"])
+    return from_table(labels, coders=["a", "b", "c"]), codes
+
+
+# -- the formatting function (APA 7 style; Publication Manual 6.36, 6.44, from memory) --------
+
+@pytest.mark.parametrize("value,kind,expected", [
+    (0.8432, "coefficient", ".84"),
+    (-0.1234, "coefficient", "\u2212.12"),
+    (1.0, "coefficient", "1.00"),
+    (-0.001, "coefficient", ".00"),          # no negative zero
+    (0.0004, "probability", "< .001"),
+    (0.25, "probability", ".250"),
+    (0.8, "threshold", ".800"),
+    (2 / 3, "threshold", ".667"),
+    (0.034, "se", "0.03"),                   # SE keeps its leading zero
+    (12345, "count", "12,345"),
+    (0.25, "percent", "25.0%"),
+    (None, "coefficient", "–"),
+    (float("nan"), "coefficient", "–"),
+])
+def test_format_value_apa(value, kind, expected):
+    assert format_value(value, kind) == expected
+
+
+def test_format_interval():
+    assert format_interval(0.79, 0.884) == "[.79, .88]"
+    assert format_interval(None, 0.5) == "–"
+
+
+# -- markup and escaping -------------------------------------------------------------------
+
+def test_markup_spans():
+    assert spans("*N* = 5 [[fill]] x") == [("italic", "N"), ("text", " = 5 "), ("placeholder", "[fill]"),
+                                            ("text", " x")]
+
+
+@given(st.text(max_size=40))
+def test_literal_text_survives_markup(text):
+    # user text (code names, file names) is never read as markup
+    assert plain(lit(text)) == text
+    assert all(kind == "text" for kind, _ in spans(lit(text)))
+
+
+@settings(max_examples=200)
+@given(st.text(alphabet="ab&%$#_{}~^\\ ", max_size=30))
+def test_latex_escape_leaves_no_special_character_bare(text):
+    out = latex_escape(text)
+    i = 0
+    while i < len(out):
+        ch = out[i]
+        if ch == "\\":
+            # a control word or an escaped character
+            j = i + 1
+            while j < len(out) and out[j].isalpha():
+                j += 1
+            i = max(j, i + 2) if j == i + 1 else j
+            if out.startswith("{}", i):
+                i += 2
+            continue
+        assert ch not in "&%$#_{}~^", (text, out)
+        i += 1
+
+
+# -- conventions ---------------------------------------------------------------------------
+
+@pytest.mark.parametrize("value,label", [(-0.1, "poor"), (0.0, "slight"), (0.2, "slight"), (0.21, "fair"),
+                                         (0.5, "moderate"), (0.7, "substantial"), (0.81, "almost perfect")])
+def test_landis_koch_bands(value, label):
+    # Landis & Koch (1977), Biometrics 33(1), p. 165 (bands as in METHODS 10.1)
+    assert landis_koch(value) == label
+
+
+@pytest.mark.parametrize("est,low,band", [(0.85, 0.81, "reliable"), (0.85, 0.75, "estimate-only"),
+                                          (0.7, 0.6, "tentative"), (0.6, 0.5, "below"),
+                                          (float("nan"), None, "undefined")])
+def test_krippendorff_band(est, low, band):
+    # Krippendorff (2004): rely at >= .800, tentative from .667; judge by the interval
+    assert krippendorff_band(est, low, 0.8) == band
+
+
+# -- building ------------------------------------------------------------------------------
+
+def test_primary_coefficient_matches_reference_library(sample_report):
+    data = _sample_round2()
+    matrix = np.where(data.codes.T >= 0, data.codes.T, np.nan).astype(float)
+    reference = krippendorff.alpha(reliability_data=matrix, level_of_measurement="nominal")
+    out = sample_report.to_dict()
+    assert out["primary"] == "krippendorff_alpha"
+    assert out["coefficients"][0]["name"] == "krippendorff_alpha"
+    assert out["coefficients"][0]["estimate"] == pytest.approx(reference, abs=1e-12)
+
+
+def test_to_dict_is_json_safe(sample_report):
+    text = json.dumps(sample_report.to_dict(), allow_nan=False)
+    assert "methods" in json.loads(text)
+
+
+def test_methods_paragraph_states_facts_and_leaves_placeholders(sample_report):
+    text = sample_report.to_dict()["methods"]
+    prim = sample_report.primary_result
+    assert "Three coders" in text
+    assert "N = 150 units" in text
+    assert "25.0% of the 600 units" in text
+    assert f"random seed {SEED}" in text
+    assert "400 resamples of units" in text
+    assert "bias-corrected and accelerated" in text
+    assert f"α = {format_value(prim.estimate)}, 95% CI {format_interval(prim.ci_low, prim.ci_high)}" in text
+    for placeholder in ("[who the coders were and how they were trained]", "[describe the coding unit]",
+                        "[how the sample was selected", "[how disagreements were resolved]"):
+        assert placeholder in text
+    # italic Latin symbols, upright Greek (APA 7)
+    assert ("italic", "N") in spans(sample_report.methods)
+    assert not any(kind == "italic" and "α" in t for kind, t in spans(sample_report.methods))
+
+
+def test_missing_values_are_counted_not_hidden():
+    data, codes = _missing_data()
+    per_unit = (codes >= 0).sum(axis=1)
+    report = build_report(data, n_resamples=0, seed=1)
+    s = report.to_dict()["sample"]
+    assert s["units_left_out"] == int((per_unit < 2).sum()) > 0
+    assert s["units_used"] == int((per_unit >= 2).sum())
+    assert s["units_partial"] == int(((per_unit >= 2) & (per_unit < 3)).sum())
+    text = report.to_dict()["methods"]
+    assert f"left out (n = {s['units_left_out']})" in text
+    assert f"n = {s['units_used']} units entered the analysis" in text
+    assert "share of the corpus" in text          # no corpus size: a placeholder, not a number
+
+
+def test_interpretation_names_conventions_and_cautions(sample_report):
+    out = sample_report.to_dict()
+    joined = " ".join(out["interpretation"])
+    assert "Krippendorff (2004)" in joined and "Landis and Koch (1977)" in joined
+    assert ".800" in joined and ".667" in joined
+    cautions = " ".join(out["cautions"])
+    assert "Conventions are not laws" in cautions
+    assert "skewed prevalence" in cautions
+    assert "Percent agreement alone overstates reliability" in cautions
+
+
+def test_consensus_counts_by_source():
+    data, _ = _missing_data()
+    ids = list(map(str, data.unit_ids))
+    sources = ["agreed"] * 50 + ["decided"] * 20 + ["majority"] * 7 + ["unresolved"] * 3
+    frame = pd.DataFrame({"unit": ids, "final code": "apple", "source": sources})
+    report = build_report(data, n_resamples=0, seed=1, consensus=frame)
+    c = report.to_dict()["consensus"]
+    assert c["by_source"] == {"agreed": 50, "decided": 20, "majority": 7, "unresolved": 3}
+    assert c["units_not_in_data"] == 0 and c["data_units_missing"] == 0
+    text = report.to_dict()["methods"]
+    assert "of the 80 units in the final data, 50 were coded alike" in text
+    assert "3 remained unresolved" in text
+    tables = {t.key: t for t in report_tables(report)}
+    assert [r[1].text for r in tables["consensus"].rows] == ["50", "20", "7", "3"]
+
+
+def test_consensus_needs_a_source_column(tmp_path):
+    bad = tmp_path / "consensus.csv"
+    bad.write_text("unit,final code\n1,a\n")
+    with pytest.raises(AgreeError) as err:
+        summarise_consensus(bad)
+    assert err.value.code == "consensus"
+    with pytest.raises(AgreeError):
+        summarise_consensus(tmp_path / "nope.csv")
+
+
+def test_bad_settings_raise():
+    data, _ = _missing_data()
+    with pytest.raises(AgreeError):
+        build_report(data, minimum=1.5, n_resamples=0)
+    with pytest.raises(AgreeError):
+        build_report(data, corpus_size=0, n_resamples=0)
+    with pytest.raises(AgreeError):
+        build_report(data, rounds="round", n_resamples=0)   # no such column
+
+
+# -- formats -------------------------------------------------------------------------------
+
+def test_every_format_shows_the_same_numbers(sample_report, tmp_path):
+    prim = sample_report.coefficients[0]
+    est = format_value(prim.estimate)
+    ci = format_interval(prim.ci_low, prim.ci_high)
+    md = render_markdown(sample_report)
+    tex = render_latex(sample_report)
+    html_text = render_html(sample_report, figures=False)
+    for text in (md, html_text):
+        assert est in text and ci in text
+    assert latex_escape(est) in tex and latex_escape(ci) in tex
+
+
+def test_latex_is_booktabs_and_escaped():
+    data, _ = _missing_data()
+    report = build_report(data, n_resamples=0, seed=1)
+    tex = render_latex(report)
+    for rule in ("\\toprule", "\\midrule", "\\bottomrule", "\\begin{tabular}"):
+        assert rule in tex
+    assert "pear \\& plum" in tex and "50\\% fig" in tex and "kiwi\\_x" in tex
+    assert "pear & plum" not in tex
+    assert "$\\alpha$" in tex
+
+
+def test_write_report_formats(sample_report, tmp_path):
+    for suffix in (".html", ".md", ".docx", ".tex"):
+        written = write_report(sample_report, tmp_path / f"report{suffix}")
+        assert written[0].exists() and written[0].stat().st_size > 0
+    assert sorted(p.name for p in (tmp_path / "report-figures").iterdir()) == \
+        ["code_use.png", "confusion.png", "forest.png"]
+    md = (tmp_path / "report.md").read_text()
+    assert "](report-figures/forest.png)" in md
+    assert not [p for p in tmp_path.iterdir() if p.name.endswith(".tmp")]     # atomic: no leftovers
+    with pytest.raises(AgreeError) as err:
+        write_report(sample_report, tmp_path / "report.pdf")
+    assert err.value.code == "report-format"
+
+
+def test_html_is_self_contained(sample_report):
+    from html.parser import HTMLParser
+
+    class Refs(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.refs, self.scripts, self.imgs = [], 0, 0
+
+        def handle_starttag(self, tag, attrs):
+            a = dict(attrs)
+            if tag == "script":
+                self.scripts += 1
+            if tag == "img":
+                self.imgs += 1
+            for key in ("src", "href"):
+                if key in a:
+                    self.refs.append(a[key])
+
+    p = Refs()
+    p.feed(render_html(sample_report))
+    assert p.scripts == 0
+    assert p.imgs == 3
+    assert all(r.startswith("data:image/png;base64,") for r in p.refs)
+    assert "@media print" in render_html(sample_report, figures=False)
+
+
+def test_repr_html(sample_report):
+    text = sample_report._repr_html_()
+    assert text.startswith('<div class="agree-report">') and "<table" in text
+
+
+# -- plots: fixed axes, bars from 0, colour-blind-safe palette, not colour alone ------------------
+
+def test_plots_follow_the_rules():
+    from agree import plots
+
+    fig = plots.forest_plot(["a", "b"], [0.5, 0.9], [0.3, 0.8], [0.7, 0.95], minimum=0.8, symbol="α",
+                            title="t")
+    ax = fig.axes[0]
+    assert ax.get_xlim()[0] == pytest.approx(-0.2)              # fixed, not fitted to the data
+    assert "axis fixed at -0.2 to 1" in ax.get_xlabel()
+    assert any(line.get_xdata()[0] == 0.8 for line in ax.get_lines() if line.get_linestyle() == "--")
+    assert {line.get_marker() for line in ax.get_lines() if line.get_marker() not in ("None", None, "")} == \
+        {"^", "o"}                                                # shape carries the status
+    wide = plots.forest_plot(["a"], [-0.5], [-0.7], [-0.3], minimum=0.8, symbol="α", title="t")
+    assert wide.axes[0].get_xlim()[0] == pytest.approx(-1.0)
+
+    bars = plots.code_use_bars(["x", "y"], ["c1", "c2"], [[3, 5], [4, 1]], title="t")
+    bax = bars.axes[0]
+    assert bax.get_xlim()[0] == 0
+    hatches = {p.get_hatch() for p in bax.patches}
+    assert len(hatches) == 2                                      # coders differ by hatching too
+    assert {p.get_facecolor()[:3] for p in bax.patches} <= {tuple(int(h[i:i + 2], 16) / 255 for i in (1, 3, 5))
+                                                            for h in plots.OKABE_ITO}
+
+    heat = plots.confusion_heatmap([[5, 1], [2, 7]], ["a", "b"], ["a", "b"], row_title="r", col_title="c",
+                                   title="t")
+    image = heat.axes[0].images[0]
+    assert image.get_cmap().name == "cividis" and image.norm.vmin == 0
+    assert sorted(t.get_text() for t in heat.axes[0].texts) == ["1", "2", "5", "7"]   # counts printed
+
+
+# -- CLI -----------------------------------------------------------------------------------
+
+def _cli():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    return app
+
+
+def test_cli_report_json_equals_library(tmp_path):
+    out = tmp_path / "r.md"
+    args = ["report", str(SAMPLES / "round2.csv"), "--codebook", str(SAMPLES / "codebook.csv"), "--keep",
+            "interview", "-o", str(out), "--n-resamples", "200", "--seed", "5", "--corpus-size", "600",
+            "--format", "json"]
+    result = CliRunner().invoke(_cli(), args)
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    expected = build_report(_sample_round2(), n_resamples=200, seed=5, corpus_size=600).to_dict()
+    printed["sample"].pop("files"), expected["sample"].pop("files")
+    printed["sample"].pop("checksums"), expected["sample"].pop("checksums")
+    assert printed == expected
+    assert out.exists()
+
+
+def test_cli_report_refuses_to_overwrite_input(tmp_path):
+    src = tmp_path / "data.csv"
+    src.write_text("unit,a,b\n1,x,y\n2,x,x\n3,y,y\n")
+    result = CliRunner().invoke(_cli(), ["report", str(src), "-o", str(src), "--n-resamples", "0"])
+    assert result.exit_code != 0
+    assert isinstance(result.exception, AgreeError) and result.exception.code == "report-format"
+    html_in = tmp_path / "data.html"
+    html_in.write_text("unit,a,b\n")
+    result = CliRunner().invoke(_cli(), ["report", str(html_in), "-o", str(html_in)])
+    assert isinstance(result.exception, AgreeError) and result.exception.code == "output-is-input"
+    assert html_in.read_text() == "unit,a,b\n"
+
+
+def test_cli_report_exit_code_and_one_line_error(tmp_path):
+    import subprocess
+    import sys
+
+    exe = Path(sys.executable).parent / "agree"
+    src = tmp_path / "data.csv"
+    src.write_text("unit,a,b\n1,x,y\n2,x,x\n3,y,y\n")
+    proc = subprocess.run([str(exe), "report", str(src), "-o", str(tmp_path / "r.pdf")], capture_output=True,
+                          text=True)
+    assert proc.returncode == 2
+    assert proc.stderr.strip().startswith("error: cannot tell the report format")
+    assert "Traceback" not in proc.stderr

@@ -1,0 +1,241 @@
+"""Coding rounds: per-round agreement, differences between rounds, definitions, drift.
+
+External checks: per-round and per-code α against the `krippendorff` package (reference
+library); the difference interval against a direct computation from the engine's own
+replicates (the definition in METHODS 7.1/7.2 applied to two independent samples, Efron &
+Tibshirani 1993, ch. 8); properties (identical rounds give a zero difference whose interval
+covers 0; a much better round is detected).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import krippendorff
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from agree import krippendorff_alpha
+from agree.model import AgreeError, from_table
+from agree.readers import read
+from agree.report import build_report
+from agree.rounds import alpha_replicates, compare_rounds, difference_interval, split_rounds
+
+from conftest import as_labels, simulate_codes
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+CODES = ["Belonging", "Skills learning", "Time pressure", "Burnout"]
+
+
+def _round(rng, n, alpha, missing=0.0):
+    codes = simulate_codes(rng, n, 3, len(CODES), alpha=alpha, missing=missing)
+    return from_table(as_labels(codes, CODES), coders=["a", "b", "c"], categories=CODES)
+
+
+def _reference_alpha(data):
+    matrix = np.where(data.codes.T >= 0, data.codes.T, np.nan).astype(float)
+    return krippendorff.alpha(reliability_data=matrix, level_of_measurement="nominal")
+
+
+@pytest.fixture(scope="module")
+def sample_rounds():
+    data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
+    return data, compare_rounds(data, n_resamples=500, seed=11)
+
+
+def test_replicates_are_those_behind_the_engine_interval():
+    rng = np.random.default_rng(3)
+    data = _round(rng, 90, 0.6, missing=0.1)
+    res = krippendorff_alpha(data, n_resamples=800, seed=42, ci_method="percentile")
+    reps = alpha_replicates(data, n_resamples=800, seed=42)
+    low, high = np.quantile(reps[np.isfinite(reps)], [0.025, 0.975])
+    assert (low, high) == pytest.approx((res.ci_low, res.ci_high), abs=1e-12)
+
+
+def test_per_round_alpha_matches_reference_library(sample_rounds):
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    assert [r.round for r in result.rounds] == ["1", "2"]
+    assert [r.n_units for r in result.rounds] == [120, 150]
+    for r in result.rounds:
+        d = parts[r.round]
+        assert r.overall.estimate == pytest.approx(_reference_alpha(d), abs=1e-12)
+        for code, res in r.per_code.items():
+            binary = d.presence(code)
+            if res.defined:
+                assert res.estimate == pytest.approx(_reference_alpha(binary), abs=1e-12)
+
+
+def test_round_files_give_the_same_result_as_a_round_column(sample_rounds):
+    _, from_column = sample_rounds
+    files = {name: read(SAMPLES / f"round{name}.csv", codebook=SAMPLES / "codebook.csv", keep=["interview"])
+             for name in ("1", "2")}
+    from_files = compare_rounds(files, n_resamples=500, seed=11)
+    assert [r.overall.estimate for r in from_files.rounds] == \
+        pytest.approx([r.overall.estimate for r in from_column.rounds], abs=1e-12)
+
+
+def test_difference_interval_from_independent_replicates(sample_rounds):
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    overall = [c for c in result.changes if c.code is None][0]
+    # the seeds are derived per round (round index, code index 0 = overall)
+    from agree.rounds import _child_seed
+
+    r1 = alpha_replicates(parts["1"], n_resamples=500, seed=_child_seed(11, 0, 0))
+    r2 = alpha_replicates(parts["2"], n_resamples=500, seed=_child_seed(11, 1, 0))
+    diff = r2 - r1
+    low, high = np.quantile(diff[np.isfinite(diff)], [0.025, 0.975])
+    assert (overall.ci_low, overall.ci_high) == pytest.approx((low, high), abs=1e-12)
+    assert overall.difference == pytest.approx(result.rounds[1].overall.estimate - result.rounds[0].overall.estimate)
+    # in the synthetic scenario round 2 used a sharper codebook: the rise is beyond noise
+    assert overall.beyond_noise and overall.ci_low > 0
+
+
+def test_identical_rounds_show_no_change():
+    rng = np.random.default_rng(5)
+    data = _round(rng, 120, 0.6)
+    result = compare_rounds({"r1": data, "r2": data}, n_resamples=1000, seed=2)
+    overall = [c for c in result.changes if c.code is None][0]
+    assert overall.difference == 0
+    assert overall.ci_low < 0 < overall.ci_high
+    assert not overall.beyond_noise
+    assert "within sampling noise" in " ".join(result.summary)
+
+
+def test_difference_interval_edge_cases():
+    assert difference_interval(np.array([np.nan, np.nan]), np.array([0.5, 0.6]), estimate=0.1,
+                               confidence_level=0.95) == (None, None, None)
+
+
+def test_codebook_changes_are_flagged():
+    rng = np.random.default_rng(8)
+    r1, r2, r3 = (_round(rng, 60, 0.7) for _ in range(3))
+    book1 = {c: f"definition of {c}" for c in CODES}
+    book2 = dict(book1, Burnout="exhaustion only, not time")
+    book3 = dict(book2, Belonging="definition   of Belonging")      # whitespace only: not a change
+    result = compare_rounds({"1": r1, "2": r2, "3": r3}, n_resamples=0, seed=1,
+                            codebooks={"1": book1, "2": book2, "3": book3})
+    changes = [(d.code, d.round, d.since_round, d.kind) for d in result.definition_changes]
+    assert changes == [("Burnout", "2", "1", "definition changed")]
+    assert result.round("2").changed_codes == ("Burnout",)
+    assert result.round("3").changed_codes == ()
+    assert any("‘Burnout’: definition changed in round 2 since round 1" in s for s in result.summary)
+
+
+def test_codebook_files(tmp_path):
+    rng = np.random.default_rng(9)
+    r1, r2 = _round(rng, 50, 0.7), _round(rng, 50, 0.7)
+    (tmp_path / "cb1.csv").write_text("code,description\n" + "".join(f"{c},old {c}\n" for c in CODES))
+    (tmp_path / "cb2.csv").write_text("code,description\n" + "".join(
+        f"{c},{'new' if c == 'Time pressure' else 'old'} {c}\n" for c in CODES))
+    result = compare_rounds({"1": r1, "2": r2}, n_resamples=0, seed=1,
+                            codebooks={"1": tmp_path / "cb1.csv", "2": tmp_path / "cb2.csv"})
+    assert [d.code for d in result.definition_changes] == ["Time pressure"]
+
+
+def test_drift_check_detects_a_drop():
+    rng = np.random.default_rng(10)
+    full1, full2 = _round(rng, 150, 0.85), _round(rng, 150, 0.9)
+    drift = _round(rng, 60, 0.3)
+    result = compare_rounds({"pilot": full1, "main": full2, "after split": drift}, n_resamples=1000, seed=4,
+                            drift_round="after split", minimum=0.8)
+    dr = result.drift
+    assert dr.reference == "main"
+    assert dr.drifted and dr.below_minimum and dr.change.ci_high < 0
+    assert result.final_round == "main"
+    # the drift round is checked, not compared as a round of its own
+    assert {(c.from_round, c.to_round) for c in result.changes} == {("pilot", "main")}
+    assert "dropped beyond sampling noise" in dr.verdict
+    assert any(s.startswith("Drift check: round after split") for s in result.summary)
+
+
+def test_summary_names_codes_still_below(sample_rounds):
+    _, result = sample_rounds
+    text = " ".join(result.summary)
+    assert "Round 2 reached α" in text
+    assert "still below .800" in text
+    for r in result.rounds:
+        assert f"α {r.overall.estimate:.2f}".replace("0.", ".") in text
+
+
+def test_errors():
+    rng = np.random.default_rng(1)
+    a, b = _round(rng, 30, 0.7), _round(rng, 30, 0.7)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds({"1": a, "2": b}, drift_round="3", n_resamples=0)
+    assert err.value.code == "drift-round"
+    with pytest.raises(AgreeError):
+        compare_rounds({"1": a, "2": b}, drift_round="1", n_resamples=0)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds({"1": a, "2": b}, codebooks={"9": {}}, n_resamples=0)
+    assert err.value.code == "codebook-round"
+    with pytest.raises(AgreeError) as err:
+        compare_rounds(a, n_resamples=0)
+    assert err.value.code == "round-column"
+
+
+def test_same_seed_same_result():
+    rng = np.random.default_rng(12)
+    parts = {"1": _round(rng, 40, 0.6), "2": _round(rng, 40, 0.7)}
+    one = compare_rounds(parts, n_resamples=300, seed=9).to_dict()
+    two = compare_rounds(parts, n_resamples=300, seed=9).to_dict()
+    assert one == two
+    json.dumps(one, allow_nan=False)
+
+
+def test_report_includes_rounds_when_the_data_have_them(sample_rounds):
+    data, _ = sample_rounds
+    report = build_report(data, n_resamples=300, seed=3, corpus_size=600)
+    out = report.to_dict()
+    assert out["analysed_round"] == "2"
+    assert out["sample"]["units_read"] == 150
+    assert out["sample"]["units_double_coded"] == 270
+    assert "45.0% of the 600 units" in out["methods"]
+    assert "describe round 2 (n = 150 units)" in out["methods"]
+    assert out["rounds"]["final_round"] == "2"
+    from agree.report import report_tables
+    assert {"rounds", "round_changes"} <= {t.key for t in report_tables(report)}
+    assert "<table" in report.rounds._repr_html_()
+
+
+def test_trend_plot_fixed_axis(sample_rounds):
+    _, result = sample_rounds
+    fig = result.trend_figure()
+    visible = [ax for ax in fig.axes if ax.get_visible()]
+    assert len(visible) == 1 + len(result.codes)
+    for ax in visible:
+        assert ax.get_ylim()[0] == pytest.approx(-0.2)
+        assert any(line.get_ydata()[0] == 0.8 for line in ax.get_lines() if line.get_linestyle() == "--")
+
+
+def _cli():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    return app
+
+
+def test_cli_rounds_json_equals_library(tmp_path, sample_rounds):
+    _, _ = sample_rounds
+    plot = tmp_path / "trend.png"
+    args = ["rounds", str(SAMPLES / "rounds_long.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
+            "--n-resamples", "500", "--seed", "11", "--format", "json", "--plot", str(plot)]
+    result = CliRunner().invoke(_cli(), args)
+    assert result.exit_code == 0, result.output
+    data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
+    assert json.loads(result.stdout) == compare_rounds(data, n_resamples=500, seed=11).to_dict()
+    assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_cli_rounds_round_files_and_table(tmp_path):
+    args = ["rounds", str(SAMPLES / "round1.csv"), str(SAMPLES / "round2.csv"), "--round-files", "--keep",
+            "interview", "--codebook", str(SAMPLES / "codebook.csv"), "--n-resamples", "200", "--seed", "1",
+            "--codebooks", f"round1={SAMPLES / 'codebook.csv'},round2={SAMPLES / 'codebook.csv'}"]
+    result = CliRunner().invoke(_cli(), args)
+    assert result.exit_code == 0, result.output
+    assert "Agreement per round" in result.stdout and "round2" in result.stdout
+    bad = CliRunner().invoke(_cli(), ["rounds", str(SAMPLES / "round1.csv"), "--codebooks", "nonsense"])
+    assert isinstance(bad.exception, AgreeError)
