@@ -32,7 +32,7 @@ Wilson, E. B. (1927). Probable inference. JASA, 22(158), 209-212.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -530,6 +530,7 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     ci_low = ci_high = lower = p_below = None
     method = None
     boot = None
+    reps = None
     if n_resamples and n_resamples > 0 and len(counts) and np.isfinite(estimate):
         rng, used_seed = make_rng(seed)
         if clusters is not None:
@@ -578,7 +579,8 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         n_values=_n_values(pat, stat),
         n_categories=n_categories if n_categories is not None else len(data.values),
         level=level, weights=weights, z=z, p_value=p_two, p_value_one_sided=p_one, minimum=minimum,
-        p_below_min=p_below, lower_bound=lower, bootstrap=boot, details=details, warnings=tuple(warnings))
+        p_below_min=p_below, lower_bound=lower, bootstrap=boot, details=details, warnings=tuple(warnings),
+        replicates=reps)
 
 
 def _used_patterns(pat: Patterns, stat: _Statistic) -> np.ndarray:

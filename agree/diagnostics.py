@@ -904,7 +904,6 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
 def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray):
     """The ranked confused pairs, the overall alpha and the (q, q) confusion matrix."""
     cats = list(data.categories)
-    q = len(cats)
     if data.set_valued:
         conf = _set_confusion(x, m_u)
         values = list(data.values)

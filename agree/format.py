@@ -1,4 +1,9 @@
-"""Number formatting shared by the CLI and every report format, so numbers never disagree."""
+"""Number and text formatting shared by the CLI and every report format, so numbers never disagree.
+
+Report text is written in a small markup: ``*italic*`` for statistical symbols and
+``[[placeholder]]`` for what the author must fill in; `lit` escapes user text (code names,
+file names) so it is never read as markup.
+"""
 
 from __future__ import annotations
 
@@ -58,3 +63,50 @@ def format_interval(low: Any, high: Any, digits: int = 2) -> str:
     if low is None or high is None or not (math.isfinite(float(low)) and math.isfinite(float(high))):
         return "–"
     return f"[{format_value(low, 'coefficient', digits)}, {format_value(high, 'coefficient', digits)}]"
+
+
+def lit(text: Any) -> str:
+    """Escape user text (code names, file names) so it is never read as markup."""
+    return str(text).replace("\\", "\\\\").replace("*", "\\*").replace("[", "\\[")
+
+
+def spans(markup: str) -> list[tuple[str, str]]:
+    """Split markup into (kind, text) pieces: kind is "text", "italic" or "placeholder"."""
+    out: list[tuple[str, str]] = []
+    buf: list[str] = []
+    kind = "text"
+    i = 0
+
+    def flush(new_kind: str) -> None:
+        nonlocal kind
+        if buf:
+            out.append((kind, "".join(buf)))
+            buf.clear()
+        kind = new_kind
+
+    while i < len(markup):
+        ch = markup[i]
+        if ch == "\\" and i + 1 < len(markup):
+            buf.append(markup[i + 1])
+            i += 2
+            continue
+        if ch == "*" and kind in ("text", "italic"):
+            flush("italic" if kind == "text" else "text")
+        elif markup.startswith("[[", i) and kind == "text":
+            flush("placeholder")
+            i += 1
+        elif markup.startswith("]]", i) and kind == "placeholder":
+            buf[:0] = ["["]
+            buf.append("]")
+            flush("text")
+            i += 1
+        else:
+            buf.append(ch)
+        i += 1
+    flush("text")
+    return out
+
+
+def plain(markup: str) -> str:
+    """Markup as plain text (placeholders keep their brackets)."""
+    return "".join(text for _, text in spans(markup))

@@ -41,7 +41,7 @@ from typing import Any, Callable, Iterable, Mapping, Sequence
 import numpy as np
 import pandas as pd
 
-from agree.format import format_interval, format_value
+from agree.format import format_interval, format_value, lit, plain, spans  # noqa: F401 (re-exported)
 from agree.model import AgreeError, CodingData, as_coding_data
 from agree.results import AgreementResult, Note, _clean
 
@@ -52,53 +52,6 @@ PLACEHOLDER_NOTE = "Bracketed, highlighted text is for you to fill in; edit the 
 
 # ----------------------------------------------------------------------------------------
 # markup: *italic symbol*, [[placeholder]]; literal text goes through lit()
-
-
-def lit(text: Any) -> str:
-    """Escape user text (code names, file names) so it is never read as markup."""
-    return str(text).replace("\\", "\\\\").replace("*", "\\*").replace("[", "\\[")
-
-
-def spans(markup: str) -> list[tuple[str, str]]:
-    """Split markup into (kind, text) pieces: kind is "text", "italic" or "placeholder"."""
-    out: list[tuple[str, str]] = []
-    buf: list[str] = []
-    kind = "text"
-    i = 0
-
-    def flush(new_kind: str) -> None:
-        nonlocal kind
-        if buf:
-            out.append((kind, "".join(buf)))
-            buf.clear()
-        kind = new_kind
-
-    while i < len(markup):
-        ch = markup[i]
-        if ch == "\\" and i + 1 < len(markup):
-            buf.append(markup[i + 1])
-            i += 2
-            continue
-        if ch == "*" and kind in ("text", "italic"):
-            flush("italic" if kind == "text" else "text")
-        elif markup.startswith("[[", i) and kind == "text":
-            flush("placeholder")
-            i += 1
-        elif markup.startswith("]]", i) and kind == "placeholder":
-            buf[:0] = ["["]
-            buf.append("]")
-            flush("text")
-            i += 1
-        else:
-            buf.append(ch)
-        i += 1
-    flush("text")
-    return out
-
-
-def plain(markup: str) -> str:
-    """Markup as plain text (placeholders keep their brackets)."""
-    return "".join(text for _, text in spans(markup))
 
 
 # ----------------------------------------------------------------------------------------

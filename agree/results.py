@@ -64,6 +64,8 @@ class AgreementResult:
     where an analytic SE exists, it is the normal (or t) approximation P(θ < minimum).
     Kappa-type results carry `z`, `p_value` (two-sided) and `p_value_one_sided` for
     H0: no agreement beyond chance.
+    `replicates` holds the bootstrap values the interval was made from (not in `to_dict()`),
+    e.g. for intervals of differences computed from independent resamples.
     """
 
     name: str
@@ -89,6 +91,7 @@ class AgreementResult:
     bootstrap: BootstrapInfo | None = None
     details: Mapping[str, Any] = field(default_factory=dict)
     warnings: tuple[Note, ...] = ()
+    replicates: Any = field(default=None, repr=False, compare=False)  # the bootstrap θ* (B,), NaN if undefined
 
     @property
     def defined(self) -> bool:

@@ -186,7 +186,7 @@ class RoundsResult:
     def summary_markup(self, digits: int = 2) -> tuple[str, ...]:
         """Plain-language summary lines, in the report markup (see `agree.report`)."""
         from agree.format import format_interval, format_value
-        from agree.report import lit
+        from agree.format import lit
 
         def stat(res: AgreementResult) -> str:
             text = f"α {format_value(res.estimate, 'coefficient', digits)}"
@@ -250,7 +250,7 @@ class RoundsResult:
     @property
     def summary(self) -> tuple[str, ...]:
         """The summary lines as plain text."""
-        from agree.report import plain
+        from agree.format import plain
 
         return tuple(plain(s) for s in self.summary_markup())
 
@@ -306,7 +306,7 @@ class RoundsResult:
 
 def round_name(name: str, *, capital: bool = False) -> str:
     """'round 2' for a round called '2'; a name that already says 'round' is kept as it is."""
-    from agree.report import lit
+    from agree.format import lit
 
     text = lit(name) if name.lower().startswith("round") else f"round {lit(name)}"
     return text[0].upper() + text[1:] if capital else text
@@ -320,7 +320,6 @@ def _join(parts: Sequence[str]) -> str:
 
 def _change_line(ch: RoundChange, digits: int) -> str:
     from agree.format import format_interval, format_value
-    from agree.report import lit
 
     if ch.difference is None or not math.isfinite(ch.difference):
         return f"From {round_name(ch.from_round)} to {round_name(ch.to_round)} the change in α is undefined."
@@ -364,25 +363,11 @@ def _child_seed(master: int, *keys: int) -> int:
     return int(np.random.SeedSequence([master, *keys]).generate_state(1)[0])
 
 
-def alpha_replicates(data: CodingData, *, level: Any = "nominal", distance: str | None = None,
-                     n_resamples: int, seed: int) -> np.ndarray:
-    """The unit-bootstrap replicates of Krippendorff's α behind `krippendorff_alpha`'s interval.
-
-    Uses the engine's own statistic, pattern compression and resampling with the same seed,
-    so the replicates are exactly those the interval of ``krippendorff_alpha(data, ...,
-    seed=seed)`` was made from (NaN where a replicate is undefined).
-    """
-    from agree.coefficients import _Alpha, distance_matrix
-    from agree.patterns import compress
-    from agree.resampling import bootstrap_replicates, make_rng
-
-    delta, _ = distance_matrix(data, level, distance)
-    stat = _Alpha(name="krippendorff_alpha", delta=delta, V=len(data.values))
-    pat = compress(data.codes, len(data.values), ordered=False)
-    if not len(pat.counts):
+def _replicates(result: AgreementResult, n_resamples: int) -> np.ndarray:
+    """The bootstrap values behind a result's interval (all NaN when it was undefined)."""
+    if result.replicates is None:
         return np.full(n_resamples, np.nan)
-    rng, _ = make_rng(seed)
-    return bootstrap_replicates(stat.features(pat), pat.counts, stat.finish, int(n_resamples), rng)
+    return np.asarray(result.replicates, dtype=float)
 
 
 def difference_interval(from_replicates: np.ndarray, to_replicates: np.ndarray, *, estimate: float,
@@ -521,8 +506,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         s0 = _child_seed(seed, i, 0)
         overall = krippendorff_alpha(d, level=alpha_level, distance=distance, seed=s0, **opts)
         if n_resamples:
-            reps[(name, None)] = alpha_replicates(d, level=alpha_level, distance=distance,
-                                                  n_resamples=n_resamples, seed=s0)
+            reps[(name, None)] = _replicates(overall, n_resamples)
         warnings.extend(Note(w.code, f"Round {name}: {w.message}") for w in overall.warnings)
         step += 1
         tick(f"round {name}", step / total)
@@ -534,8 +518,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
                 sj = _child_seed(seed, i, j)
                 per_code[code] = krippendorff_alpha(binary, level="nominal", seed=sj, **opts)
                 if n_resamples:
-                    reps[(name, code)] = alpha_replicates(binary, level="nominal", n_resamples=n_resamples,
-                                                          seed=sj)
+                    reps[(name, code)] = _replicates(per_code[code], n_resamples)
             step += 1
             tick(f"round {name}", step / total)
         measured[name] = set(per_code)

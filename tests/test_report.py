@@ -335,7 +335,7 @@ def _cli():
 def test_cli_report_json_equals_library(tmp_path):
     out = tmp_path / "r.md"
     args = ["report", str(SAMPLES / "round2.csv"), "--codebook", str(SAMPLES / "codebook.csv"), "--keep",
-            "interview", "-o", str(out), "--n-resamples", "200", "--seed", "5", "--corpus-size", "600",
+            "interview", "-o", str(out), "--boot", "200", "--seed", "5", "--corpus-size", "600",
             "--format", "json"]
     result = CliRunner().invoke(_cli(), args)
     assert result.exit_code == 0, result.output
@@ -350,7 +350,7 @@ def test_cli_report_json_equals_library(tmp_path):
 def test_cli_report_refuses_to_overwrite_input(tmp_path):
     src = tmp_path / "data.csv"
     src.write_text("unit,a,b\n1,x,y\n2,x,x\n3,y,y\n")
-    result = CliRunner().invoke(_cli(), ["report", str(src), "-o", str(src), "--n-resamples", "0"])
+    result = CliRunner().invoke(_cli(), ["report", str(src), "-o", str(src), "--boot", "0"])
     assert result.exit_code != 0
     assert isinstance(result.exception, AgreeError) and result.exception.code == "report-format"
     html_in = tmp_path / "data.html"

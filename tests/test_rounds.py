@@ -21,7 +21,7 @@ from agree import krippendorff_alpha
 from agree.model import AgreeError, from_table
 from agree.readers import read
 from agree.report import build_report
-from agree.rounds import alpha_replicates, compare_rounds, difference_interval, split_rounds
+from agree.rounds import compare_rounds, difference_interval, split_rounds
 
 from conftest import as_labels, simulate_codes
 
@@ -49,7 +49,7 @@ def test_replicates_are_those_behind_the_engine_interval():
     rng = np.random.default_rng(3)
     data = _round(rng, 90, 0.6, missing=0.1)
     res = krippendorff_alpha(data, n_resamples=800, seed=42, ci_method="percentile")
-    reps = alpha_replicates(data, n_resamples=800, seed=42)
+    reps = res.replicates
     low, high = np.quantile(reps[np.isfinite(reps)], [0.025, 0.975])
     assert (low, high) == pytest.approx((res.ci_low, res.ci_high), abs=1e-12)
 
@@ -84,8 +84,8 @@ def test_difference_interval_from_independent_replicates(sample_rounds):
     # the seeds are derived per round (round index, code index 0 = overall)
     from agree.rounds import _child_seed
 
-    r1 = alpha_replicates(parts["1"], n_resamples=500, seed=_child_seed(11, 0, 0))
-    r2 = alpha_replicates(parts["2"], n_resamples=500, seed=_child_seed(11, 1, 0))
+    r1 = krippendorff_alpha(parts["1"], n_resamples=500, seed=_child_seed(11, 0, 0)).replicates
+    r2 = krippendorff_alpha(parts["2"], n_resamples=500, seed=_child_seed(11, 1, 0)).replicates
     diff = r2 - r1
     low, high = np.quantile(diff[np.isfinite(diff)], [0.025, 0.975])
     assert (overall.ci_low, overall.ci_high) == pytest.approx((low, high), abs=1e-12)
@@ -222,7 +222,7 @@ def test_cli_rounds_json_equals_library(tmp_path, sample_rounds):
     _, _ = sample_rounds
     plot = tmp_path / "trend.png"
     args = ["rounds", str(SAMPLES / "rounds_long.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
-            "--n-resamples", "500", "--seed", "11", "--format", "json", "--plot", str(plot)]
+            "--boot", "500", "--seed", "11", "--format", "json", "--plot", str(plot)]
     result = CliRunner().invoke(_cli(), args)
     assert result.exit_code == 0, result.output
     data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
@@ -232,7 +232,7 @@ def test_cli_rounds_json_equals_library(tmp_path, sample_rounds):
 
 def test_cli_rounds_round_files_and_table(tmp_path):
     args = ["rounds", str(SAMPLES / "round1.csv"), str(SAMPLES / "round2.csv"), "--round-files", "--keep",
-            "interview", "--codebook", str(SAMPLES / "codebook.csv"), "--n-resamples", "200", "--seed", "1",
+            "interview", "--codebook", str(SAMPLES / "codebook.csv"), "--boot", "200", "--seed", "1",
             "--codebooks", f"round1={SAMPLES / 'codebook.csv'},round2={SAMPLES / 'codebook.csv'}"]
     result = CliRunner().invoke(_cli(), args)
     assert result.exit_code == 0, result.output

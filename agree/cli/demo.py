@@ -50,7 +50,8 @@ def demo(
     Example: agree demo --out agree-demo
     """
     import agree
-    from agree.report import build_report, plain, write_report
+    from agree.format import plain
+    from agree.report import build_report, write_report
     from agree.sampling import load_codebook_categories
     from agree.rounds import compare_rounds
 

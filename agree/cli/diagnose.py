@@ -4,33 +4,19 @@ from __future__ import annotations
 
 import math
 import sys
-from enum import Enum
-from typing import Annotated, Any, Optional
+from typing import Annotated, Any
 
 import pandas as pd
 import typer
 from rich.table import Table
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.reading import (CasefoldOption, CodebookOption, CodeOption, CoderOption, Files,
-                               KeepOption, LayoutOption, LevelOption, SepOption, SheetOption,
-                               TextOption, TrimOption, UnitOption, load_data)
+from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOption, MinOption, SeedOption,
+                               TableFormat)
+from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.diagnostics import CodeDiagnostics, CoderDiagnostics, diagnose_codes, diagnose_coders
 
 
-class Format(str, Enum):
-    table = "table"
-    json = "json"
-    csv = "csv"
-
-
-FormatOption = Annotated[Format, typer.Option("--format", help="Output: a table, JSON (the "
-                                                             "library's to_dict()) or CSV.")]
-MinOption = Annotated[float, typer.Option("--min", help="The alpha each code should reach.")]
-BootOption = Annotated[int, typer.Option("--boot", help="Bootstrap replicates for the intervals "
-                                                        "(0: none).")]
-SeedOption = Annotated[Optional[int], typer.Option("--seed", help="Seed of the bootstrap "
-                                                                  "(drawn and reported if not given).")]
 MinUnitsOption = Annotated[int, typer.Option("--min-units", help="A code used on fewer shared units "
                                                                  "than this is 'too rare' to judge.")]
 TopOption = Annotated[int, typer.Option("--top", help="How many confused pairs to show in the table.")]
@@ -49,39 +35,25 @@ def _pct(x: Any) -> str:
     return f"{100 * x:.0f}%"
 
 
-def _read(files, layout, unit_col, coder_col, code_col, text_col, sheet, sep, codebook, trim,
-          casefold, level, keep):
-    return load_data(files, layout=layout, unit=unit_col, coder=coder_col, code=code_col,
-                     text=text_col, sheet=sheet, sep=sep, codebook=codebook, trim=trim,
-                     casefold=casefold, level=level, keep=keep)
-
-
 def _notes(notes) -> None:
     for n in notes:
         note(f"note: {n.message}")
 
 
 @app.command("codes")
+@reading_options
 def codes_command(
     files: Files,
     minimum: MinOption = 0.8,
-    boot: BootOption = 1000,
-    seed: SeedOption = None,
+    boot: BootOption = DEFAULT_BOOT,
+    seed: SeedOption = DEFAULT_SEED,
     min_units: MinUnitsOption = 5,
     top: TopOption = 10,
-    output: FormatOption = Format.table,
-    layout: LayoutOption = None,
-    unit_col: UnitOption = None,
-    coder_col: CoderOption = None,
-    code_col: CodeOption = None,
-    text_col: TextOption = None,
-    sheet: SheetOption = None,
-    sep: SepOption = ";",
+    output: FormatOption = TableFormat.table,
     codebook: CodebookOption = None,
-    trim: TrimOption = False,
-    casefold: CasefoldOption = False,
     level: LevelOption = None,
-    keep: KeepOption = None,
+    *,
+    reading: dict,
 ) -> None:
     """Which codes drive disagreement: per-code alpha, specific agreement, confusions, unequal use.
 
@@ -89,14 +61,13 @@ def codes_command(
 
     Example: agree codes coding.xlsx --min 0.8 --boot 2000 --seed 1
     """
-    data = _read(files, layout, unit_col, coder_col, code_col, text_col, sheet, sep, codebook, trim,
-                 casefold, level, keep)
+    data = load_data(files, codebook=codebook, level=level, **reading)
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
                             min_units_per_code=min_units)
     _notes(result.notes)
-    if output is Format.json:
+    if output is TableFormat.json:
         print_json(result.to_dict())
-    elif output is Format.csv:
+    elif output is TableFormat.csv:
         sys.stdout.write(result.to_frame().to_csv(index=False))
     else:
         _codes_table(result, top)
@@ -153,36 +124,28 @@ def _codes_table(result: CodeDiagnostics, top: int) -> None:
 
 
 @app.command("coders")
+@reading_options
 def coders_command(
     files: Files,
-    boot: BootOption = 1000,
-    seed: SeedOption = None,
-    output: FormatOption = Format.table,
-    layout: LayoutOption = None,
-    unit_col: UnitOption = None,
-    coder_col: CoderOption = None,
-    code_col: CodeOption = None,
-    text_col: TextOption = None,
-    sheet: SheetOption = None,
-    sep: SepOption = ";",
+    boot: BootOption = DEFAULT_BOOT,
+    seed: SeedOption = DEFAULT_SEED,
+    output: FormatOption = TableFormat.table,
     codebook: CodebookOption = None,
-    trim: TrimOption = False,
-    casefold: CasefoldOption = False,
     level: LevelOption = None,
-    keep: KeepOption = None,
+    *,
+    reading: dict,
 ) -> None:
     """Which coders drive disagreement: pairwise agreement, alpha without each coder, code use.
 
     Example: agree coders coding.xlsx --boot 2000 --seed 1
     """
-    data = _read(files, layout, unit_col, coder_col, code_col, text_col, sheet, sep, codebook, trim,
-                 casefold, level, keep)
+    data = load_data(files, codebook=codebook, level=level, **reading)
     result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,
                              seed=seed)
     _notes(result.notes)
-    if output is Format.json:
+    if output is TableFormat.json:
         print_json(result.to_dict())
-    elif output is Format.csv:
+    elif output is TableFormat.csv:
         sys.stdout.write(result.to_frame().to_csv(index=False))
     else:
         _coders_table(result)

@@ -9,6 +9,8 @@ A command declares the options it needs with the Annotated types below, e.g.::
 
 from __future__ import annotations
 
+import functools
+import inspect
 from enum import Enum
 from pathlib import Path
 from typing import Annotated, Any, Optional, Sequence
@@ -63,6 +65,39 @@ KeepOption = Annotated[Optional[list[str]], typer.Option(
     "--keep", help="Other per-unit column to keep (e.g. a round or document column); repeatable.")]
 ClusterOption = Annotated[Optional[str], typer.Option(
     "--cluster", help="Column grouping the units (e.g. document); resampling keeps each group whole.")]
+
+
+# How to read the sheets: the options every command shares, added by `reading_options`.
+# (name of the command parameter, its type, its default, the `load_data` keyword)
+_READING = (
+    ("layout", LayoutOption, None, "layout"),
+    ("unit_col", UnitOption, None, "unit"),
+    ("coder_col", CoderOption, None, "coder"),
+    ("code_col", CodeOption, None, "code"),
+    ("text_col", TextOption, None, "text"),
+    ("sheet", SheetOption, None, "sheet"),
+    ("sep", SepOption, ";", "sep"),
+    ("trim", TrimOption, False, "trim"),
+    ("casefold", CasefoldOption, False, "casefold"),
+    ("keep", KeepOption, None, "keep"),
+)
+
+
+def reading_options(command):
+    """Add the shared reading options to a command; it receives them as ``reading``, a dict
+    of `load_data` keywords (``load_data(files, codebook=..., level=..., **reading)``)."""
+    signature = inspect.signature(command, eval_str=True)
+    own = [p for p in signature.parameters.values() if p.name != "reading"]
+    extra = [inspect.Parameter(name, inspect.Parameter.KEYWORD_ONLY, default=default, annotation=kind)
+             for name, kind, default, _ in _READING]
+
+    @functools.wraps(command)
+    def wrapper(*args, **kwargs):
+        reading = {key: _value(kwargs.pop(name)) for name, _, _, key in _READING}
+        return command(*args, reading=reading, **kwargs)
+
+    wrapper.__signature__ = signature.replace(parameters=own + extra)
+    return wrapper
 
 
 def _value(x: Any) -> Any:

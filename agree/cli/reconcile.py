@@ -10,9 +10,7 @@ import typer
 from rich.table import Table
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.reading import (CasefoldOption, CodebookOption, CodeOption, CoderOption, Files,
-                               KeepOption, LayoutOption, LevelOption, SepOption, SheetOption,
-                               TextOption, TrimOption, UnitOption, load_data)
+from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.model import AgreeError
 from agree.reconcile import reconcile, write_consensus, write_review
 
@@ -72,6 +70,7 @@ def _split_format(fmt: Enum | None, summary: SummaryFormat) -> tuple[str | None,
 
 
 @app.command()
+@reading_options
 def disagreements(
     files: Files,
     output: OutputOption,
@@ -83,18 +82,10 @@ def disagreements(
     ] = False,
     force: ForceOption = False,
     summary_format: SummaryOption = SummaryFormat.table,
-    layout: LayoutOption = None,
-    unit_col: UnitOption = None,
-    coder_col: CoderOption = None,
-    code_col: CodeOption = None,
-    text_col: TextOption = None,
-    sheet: SheetOption = None,
-    sep: SepOption = ";",
     codebook: CodebookOption = None,
-    trim: TrimOption = False,
-    casefold: CasefoldOption = False,
     level: LevelOption = None,
-    keep: KeepOption = None,
+    *,
+    reading: dict,
 ):
     """Write the units the coders disagree on to a review workbook, worst first.
 
@@ -110,13 +101,11 @@ def disagreements(
 
     Example: agree disagreements coding.xlsx -o review.xlsx
     """
-    reading = _reading(layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col,
-                       sheet=sheet, sep=sep, codebook=codebook, trim=trim, casefold=casefold,
-                       level=level, keep=keep)
+    reading = {**reading, **_reading(codebook=codebook, level=level)}
     data = load_data(files, **reading)
     file_format, shown = _split_format(format, summary_format)
     options = _recorded({**reading, "include_agreed": include_agreed})
-    options["sep"] = sep
+    options["sep"] = reading["sep"]
     inputs = list(files) + ([codebook] if codebook else [])
     summary = write_review(data, output, format=file_format, inputs=inputs, options=options,
                            include_agreed=include_agreed, force=force)
@@ -137,6 +126,7 @@ def disagreements(
 
 
 @app.command("reconcile")
+@reading_options
 def reconcile_command(
     review: Annotated[list[Path], typer.Argument(
         help="The filled-in review file (xlsx or csv). Data files may follow it.",
@@ -157,18 +147,10 @@ def reconcile_command(
                          "'json' prints the summary as JSON instead of a table.")] = None,
     force: ForceOption = False,
     summary_format: SummaryOption = SummaryFormat.table,
-    layout: LayoutOption = None,
-    unit_col: UnitOption = None,
-    coder_col: CoderOption = None,
-    code_col: CodeOption = None,
-    text_col: TextOption = None,
-    sheet: SheetOption = None,
-    sep: SepOption = ";",
     codebook: CodebookOption = None,
-    trim: TrimOption = False,
-    casefold: CasefoldOption = False,
     level: LevelOption = None,
-    keep: KeepOption = None,
+    *,
+    reading: dict,
 ):
     """Read the decisions back and write one final code per unit.
 
@@ -192,9 +174,7 @@ def reconcile_command(
     if not files:
         raise AgreeError("no coding data given", hint="name the files the review was made from "
                          "with --data", code="no-input")
-    reading = _reading(layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col,
-                       sheet=sheet, sep=sep, codebook=codebook, trim=trim, casefold=casefold,
-                       level=level, keep=keep)
+    reading = {**reading, **_reading(codebook=codebook, level=level)}
     data = load_data(files, **reading)
     file_format, shown = _split_format(format, summary_format)
     consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority)

@@ -11,9 +11,8 @@ import typer
 from rich.table import Table
 
 from agree.cli.app import STATE, app, note, print_json, stderr, stdout
-from agree.cli.reading import (CasefoldOption, CodebookOption, CodeOption, CoderOption, Files, KeepOption,
-                               LayoutOption, LevelOption, SepOption, SheetOption, TextOption, TrimOption,
-                               UnitOption, load_data)
+from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, MinOption, SeedOption
+from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.model import AgreeError
 
 
@@ -22,12 +21,6 @@ class OutputFormat(str, Enum):
     json = "json"
 
 
-MinimumOption = Annotated[float, typer.Option("--minimum", help="Minimum acceptable agreement (Krippendorff's "
-                                                                 ".800 by default).")]
-ResamplesOption = Annotated[int, typer.Option("--n-resamples", help="Bootstrap replicates (units resampled).")]
-SeedOption = Annotated[Optional[int], typer.Option("--seed", help="Seed of the bootstrap (drawn and reported "
-                                                                  "when not given).")]
-ConfidenceOption = Annotated[float, typer.Option("--confidence-level", help="Level of the intervals.")]
 FormatOption = Annotated[OutputFormat, typer.Option("--format", help="table: human-readable; json: the "
                                                                      "result's to_dict().")]
 RoundColumnOption = Annotated[Optional[str], typer.Option(
@@ -121,14 +114,15 @@ def _read_rounds(files: list[Path], *, round_files: bool, round_column: str | No
 
 
 @app.command()
+@reading_options
 def report(
     files: Files,
     output: Annotated[Path, typer.Option("--output", "-o", help="Report file: .html, .md, .docx or .tex "
                                                                 "(the format follows the suffix).")],
-    minimum: MinimumOption = 0.8,
-    n_resamples: ResamplesOption = 2000,
-    seed: SeedOption = None,
-    confidence_level: ConfidenceOption = 0.95,
+    minimum: MinOption = 0.8,
+    boot: BootOption = DEFAULT_BOOT,
+    seed: SeedOption = DEFAULT_SEED,
+    ci: CIOption = 0.95,
     corpus_size: Annotated[Optional[int], typer.Option(
         "--corpus-size", help="Units in the whole corpus, to state the share that was double-coded.")] = None,
     consensus: Annotated[Optional[Path], typer.Option(
@@ -141,10 +135,10 @@ def report(
     title: Annotated[str, typer.Option("--title", help="Title of the report.")] = "Intercoder agreement",
     digits: Annotated[int, typer.Option("--digits", help="Decimals shown for coefficients.")] = 2,
     output_format: FormatOption = OutputFormat.table,
-    layout: LayoutOption = None, unit_col: UnitOption = None, coder_col: CoderOption = None,
-    code_col: CodeOption = None, text_col: TextOption = None, sheet: SheetOption = None, sep: SepOption = ";",
-    codebook: CodebookOption = None, trim: TrimOption = False, casefold: CasefoldOption = False,
-    level: LevelOption = None, keep: KeepOption = None,
+    codebook: CodebookOption = None,
+    level: LevelOption = None,
+    *,
+    reading: dict,
 ):
     """Write an agreement report: methods paragraph, tables, interpretation and plots.
 
@@ -160,13 +154,11 @@ def report(
     books = parse_codebooks(codebooks)
     inputs += list((books or {}).values())
     _check_output(output, inputs)
-    reading = dict(layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col, sheet=sheet,
-                   sep=sep, codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep)
+    reading = {**reading, "codebook": codebook, "level": level}
     data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
                                        reading=reading, required=False)
     level_name = level.value if level is not None else None
-    options = dict(level=level_name, minimum=minimum, n_resamples=n_resamples, seed=seed,
-                   confidence_level=confidence_level)
+    options = dict(level=level_name, minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci)
     with progress_bar("report") as tick:
         building = _scaled(tick, 0.0, 0.6)      # writing (with the plots) takes the rest
         if parts is not None:
@@ -197,7 +189,8 @@ def report(
 
 def _print_coefficients(result: Any) -> None:
     from agree.format import format_interval, format_value
-    from agree.report import plain, result_label
+    from agree.format import plain
+    from agree.report import result_label
 
     table = Table(title=result.title, title_justify="left")
     for header in ("Coefficient", "Estimate", "SE", f"{result.confidence_level:.0%} CI",
@@ -214,23 +207,24 @@ def _print_coefficients(result: Any) -> None:
 
 
 @app.command()
+@reading_options
 def rounds(
     files: Files,
     round_column: RoundColumnOption = None,
     round_files: RoundFilesOption = False,
     codebooks: CodebooksOption = None,
     drift_round: DriftOption = None,
-    minimum: MinimumOption = 0.8,
-    n_resamples: ResamplesOption = 2000,
-    seed: SeedOption = None,
-    confidence_level: ConfidenceOption = 0.95,
+    minimum: MinOption = 0.8,
+    boot: BootOption = DEFAULT_BOOT,
+    seed: SeedOption = DEFAULT_SEED,
+    ci: CIOption = 0.95,
     plot: Annotated[Optional[Path], typer.Option(
         "--plot", help="Write the trend plot (per code, with the minimum line) to this .png, .svg or .pdf.")] = None,
     output_format: FormatOption = OutputFormat.table,
-    layout: LayoutOption = None, unit_col: UnitOption = None, coder_col: CoderOption = None,
-    code_col: CodeOption = None, text_col: TextOption = None, sheet: SheetOption = None, sep: SepOption = ";",
-    codebook: CodebookOption = None, trim: TrimOption = False, casefold: CasefoldOption = False,
-    level: LevelOption = None, keep: KeepOption = None,
+    codebook: CodebookOption = None,
+    level: LevelOption = None,
+    *,
+    reading: dict,
 ):
     """Compare agreement across coding rounds: per round, per code, changes, drift.
 
@@ -244,12 +238,11 @@ def rounds(
             raise AgreeError(f"cannot tell the plot format from '{plot.name}'", hint="use .png, .svg or .pdf",
                              code="plot-format")
         _check_output(plot, list(files) + list((books or {}).values()))
-    reading = dict(layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col, sheet=sheet,
-                   sep=sep, codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep)
+    reading = {**reading, "codebook": codebook, "level": level}
     data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
                                        reading=reading, required=True)
-    options = dict(level=level.value if level is not None else None, minimum=minimum, n_resamples=n_resamples,
-                   seed=seed, confidence_level=confidence_level, codebooks=books, drift_round=drift_round)
+    options = dict(level=level.value if level is not None else None, minimum=minimum, n_resamples=boot,
+                   seed=seed, confidence_level=ci, codebooks=books, drift_round=drift_round)
     with progress_bar("rounds") as tick:
         if parts is not None:
             result = compare_rounds(parts, progress=tick, **options)

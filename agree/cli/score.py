@@ -7,24 +7,18 @@ import io
 import math
 import sys
 from enum import Enum
-from typing import Annotated, Optional
+from typing import Annotated
 
 import typer
 from rich.table import Table
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.reading import (CasefoldOption, ClusterOption, CodebookOption, CodeOption, CoderOption,
-                               Files, KeepOption, LayoutOption, LevelOption, SepOption, SheetOption,
-                               TextOption, TrimOption, UnitOption, load_data)
+from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, FormatOption, MinOption,
+                               SeedOption, TableFormat)
+from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.format import format_interval, format_value
 from agree.planning import decision_sentence
 from agree.scoring import ScoreResult, score as run_score
-
-
-class OutputFormat(str, Enum):
-    table = "table"
-    json = "json"
-    csv = "csv"
 
 
 class CIMethod(str, Enum):
@@ -32,15 +26,7 @@ class CIMethod(str, Enum):
     percentile = "percentile"
 
 
-MinOption = Annotated[Optional[float], typer.Option(
-    "--min", help="Minimum acceptable value (e.g. 0.8): adds the probability of lying below it and "
-                  "whether the one-sided lower bound clears it. A convention, not a law.")]
-BootOption = Annotated[int, typer.Option(
-    "--boot", help="Bootstrap replicates (units resampled with all their values); 0 for none.")]
-SeedOption = Annotated[int, typer.Option("--seed", help="Seed of the bootstrap; the same seed repeats the run.")]
-CIOption = Annotated[float, typer.Option("--ci", help="Confidence level of the two-sided interval.")]
 CIMethodOption = Annotated[CIMethod, typer.Option("--ci-method", help="Bootstrap interval: bca or percentile.")]
-FormatOption = Annotated[OutputFormat, typer.Option("--format", help="table (readable), json or csv.")]
 
 LABELS = {
     "percent_agreement": "Percent agreement",
@@ -58,40 +44,31 @@ LABELS = {
 
 
 @app.command()
+@reading_options
 def score(
     files: Files,
     level: LevelOption = None,
     codebook: CodebookOption = None,
     minimum: MinOption = None,
-    boot: BootOption = 2000,
-    seed: SeedOption = 1,
+    boot: BootOption = DEFAULT_BOOT,
+    seed: SeedOption = DEFAULT_SEED,
     ci: CIOption = 0.95,
     ci_method: CIMethodOption = CIMethod.bca,
-    output_format: FormatOption = OutputFormat.table,
+    output_format: FormatOption = TableFormat.table,
     cluster: ClusterOption = None,
-    layout: LayoutOption = None,
-    unit_col: UnitOption = None,
-    coder_col: CoderOption = None,
-    code_col: CodeOption = None,
-    text_col: TextOption = None,
-    sheet: SheetOption = None,
-    sep: SepOption = ";",
-    trim: TrimOption = False,
-    casefold: CasefoldOption = False,
-    keep: KeepOption = None,
+    *,
+    reading: dict,
 ):
     """Agreement between coders: every standard coefficient with a bootstrap interval.
 
     Example: agree score samples/round2.csv --codebook samples/codebook.csv --keep interview --min 0.8
     """
-    data = load_data(files, layout=layout, unit=unit_col, coder=coder_col, code=code_col, text=text_col,
-                     sheet=sheet, sep=sep, codebook=codebook, trim=trim, casefold=casefold, level=level,
-                     keep=keep, cluster=cluster)
+    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
     result = run_score(data, level=level.value if level else None, minimum=minimum, n_resamples=boot,
                        seed=seed, confidence_level=ci, ci_method=ci_method.value, cluster=cluster)
-    if output_format is OutputFormat.json:
+    if output_format is TableFormat.json:
         print_json(result.to_dict())
-    elif output_format is OutputFormat.csv:
+    elif output_format is TableFormat.csv:
         sys.stdout.write(score_csv(result))
     else:
         print_score(result)
