@@ -29,7 +29,6 @@ from __future__ import annotations
 
 import math
 import os
-import tempfile
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any, Sequence
@@ -38,6 +37,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from agree.coefficients import alpha_from_coincidence, alpha_from_sums, level_delta, ordinal_delta
+from agree.files import atomic_write
 from agree.model import AgreeError
 from agree.results import AgreementResult, Note, _clean
 
@@ -925,17 +925,10 @@ def save_assurance_plot(plan: Plan, path: str | os.PathLike) -> None:
                  f"{plan.inputs['coders']} coders", fontsize=10)
     ax.legend(fontsize=8, loc="lower right")
     fig.tight_layout()
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".plot-", suffix=".png", dir=folder)
-    os.close(fd)
     try:
-        fig.savefig(tmp, format="png")
-        os.replace(tmp, path)
+        atomic_write(path, lambda tmp: fig.savefig(tmp, format="png"))
     finally:
         plt.close(fig)
-        if os.path.exists(tmp):
-            os.remove(tmp)
 
 
 _DISPLAY_NAMES = {

@@ -55,6 +55,7 @@ import numpy as np
 import pandas as pd
 
 from agree.codebook import Codebook, codebook_from, read_codebook
+from agree.files import sha256_file
 from agree.model import (LEVELS, MISSING, AgreeError, CodingData, Provenance, ReadReport, _sort_key,
                          cell_location, normalise_value)
 
@@ -120,14 +121,6 @@ def _column_label(position: int, letters: bool) -> str:
         n, r = divmod(n - 1, 26)
         name = chr(65 + r) + name
     return f"column {position} ({name})"
-
-
-def _sha256_file(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
 
 
 def _sniff(head: bytes) -> str:
@@ -350,7 +343,7 @@ def _raise_all(problems: list[AgreeError], what: str) -> None:
 def _load_workbook(path: Path, *, sheet: Any, name: str) -> _Loaded:
     import openpyxl
 
-    loaded = _Loaded([], checksums={name: _sha256_file(path)})
+    loaded = _Loaded([], checksums={name: sha256_file(path)})
     try:
         wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
     except (zipfile.BadZipFile, KeyError, OSError, ValueError, TypeError) as exc:
@@ -453,7 +446,7 @@ def _load_parquet(path: Path, *, name: str) -> _Loaded:
     frame.columns = range(frame.shape[1])
     rows = np.arange(2, len(frame) + 2, dtype=np.int64)
     t = _finish_table(frame, header, rows, file=name, sheet=None, letters=False)
-    return _Loaded([t], checksums={name: _sha256_file(path)})
+    return _Loaded([t], checksums={name: sha256_file(path)})
 
 
 # -- encoding values ----------------------------------------------------------------------

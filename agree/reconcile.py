@@ -34,20 +34,18 @@ reading a CSV back removes exactly one leading ``'``.
 
 from __future__ import annotations
 
-import contextlib
 import datetime as _dt
 import difflib
-import hashlib
 import json
 import os
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Mapping, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
 
+from agree.files import atomic_write, check_output, sha256_file  # noqa: F401 (sha256_file re-exported)
 from agree.model import AgreeError, CodingData, _sort_key, as_coding_data, cell_location, normalise_value
 
 # Column headers of the review file. The workbook is read back by these names, so a team
@@ -361,49 +359,6 @@ def unprotect_text(text: str) -> str:
     return text[1:] if text[:1] == "'" else text
 
 
-def _check_output(path: str | os.PathLike, inputs: Sequence[str | os.PathLike], force: bool) -> Path:
-    out = Path(path)
-    for source in inputs:
-        if _same_file(out, Path(source)):
-            raise AgreeError(f"refusing to overwrite the input file {source}",
-                             hint="choose another output name", code="overwrite-input")
-    if out.is_dir():
-        raise AgreeError(f"{out} is a folder", hint="give a file name for the output",
-                         code="output-is-folder")
-    if out.exists() and not force:
-        raise AgreeError(f"{out} already exists",
-                         hint="use --force (force=True) to replace it, or choose another name",
-                         code="output-exists")
-    if not out.parent.is_dir():
-        raise AgreeError(f"the folder of {out} does not exist", code="no-folder")
-    return out
-
-
-def _same_file(a: Path, b: Path) -> bool:
-    try:
-        return os.path.samefile(a, b)
-    except OSError:
-        return a.resolve() == b.resolve()
-
-
-def _atomic_write(path: Path, write: Callable[[str], None]) -> None:
-    """Write through a temp file in the same folder, then os.replace: never a half file."""
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    os.close(fd)
-    try:
-        write(tmp)
-        with open(tmp, "rb+") as handle:
-            os.fsync(handle.fileno())
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-
-
 def _infer_format(path: Path, fmt: str | None, allowed: Sequence[str]) -> str:
     if fmt is None:
         fmt = path.suffix.lower().lstrip(".") or allowed[0]
@@ -414,14 +369,6 @@ def _infer_format(path: Path, fmt: str | None, allowed: Sequence[str]) -> str:
                          hint="set the format explicitly or use a matching file suffix",
                          code="format")
     return fmt
-
-
-def sha256_file(path: str | os.PathLike) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
 
 
 def _input_checksums(data: CodingData, inputs: Sequence[str | os.PathLike] | None) -> dict[str, str]:
@@ -489,7 +436,7 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
     fmt = _infer_format(out, format, REVIEW_FORMATS)
     checksums = _input_checksums(data, inputs)
     protected = set(checksums) | set(data.report.files if data.report else ())
-    _check_output(out, sorted(protected), force)
+    check_output(out, sorted(protected), force=force)
     table = review_table(data, include_agreed=include_agreed)
     status = _status(data)
     left_out = _left_out(data, status)
@@ -504,7 +451,7 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
         writer = lambda tmp: _write_csv(tmp, table)  # noqa: E731
     else:
         writer = lambda tmp: _write_markdown(tmp, table, summary)  # noqa: E731
-    _atomic_write(out, writer)
+    atomic_write(out, writer)
     return summary
 
 
@@ -1100,12 +1047,12 @@ def write_consensus(consensus: Consensus, path: str | os.PathLike, *, format: st
     protected = list(inputs)
     if consensus.review and Path(consensus.review).exists():
         protected.append(consensus.review)
-    _check_output(out, protected, force)
+    check_output(out, protected, force=force)
     frame = consensus_frame(consensus, data)
     if fmt == "csv":
-        _atomic_write(out, lambda tmp: _write_csv(tmp, frame))
+        atomic_write(out, lambda tmp: _write_csv(tmp, frame))
     else:
-        _atomic_write(out, lambda tmp: _write_consensus_xlsx(tmp, frame))
+        atomic_write(out, lambda tmp: _write_consensus_xlsx(tmp, frame))
     return out
 
 

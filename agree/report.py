@@ -33,7 +33,6 @@ import io
 import math
 import os
 import re
-import tempfile
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Iterable, Mapping, Sequence
@@ -41,6 +40,7 @@ from typing import Any, Callable, Iterable, Mapping, Sequence
 import numpy as np
 import pandas as pd
 
+from agree.files import atomic_write_bytes
 from agree.format import format_interval, format_value, lit, plain, spans  # noqa: F401 (re-exported)
 from agree.model import AgreeError, CodingData, as_coding_data
 from agree.results import AgreementResult, Note, _clean
@@ -1349,21 +1349,10 @@ def write_report(report: Report, path: str | os.PathLike, *, figures: bool = Tru
             folder = path.parent / fig_dir
             folder.mkdir(exist_ok=True)
             for f in figs:
-                written.append(_atomic_write(folder / f"{f.key}.png", f.png))
+                written.append(atomic_write_bytes(folder / f"{f.key}.png", f.png))
         render = render_markdown if fmt == "markdown" else render_latex
         payload = render(report, figure_dir=fig_dir, figures=figs).encode("utf-8")
-    written.insert(0, _atomic_write(path, payload))
+    written.insert(0, atomic_write_bytes(path, payload))
     return written
 
 
-def _atomic_write(path: Path, payload: bytes) -> Path:
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(payload)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path

@@ -22,7 +22,6 @@ import io
 import json
 import os
 import re
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Mapping, Sequence
@@ -30,6 +29,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 import pandas as pd
 
+from agree.files import atomic_write_bytes
 from agree.model import AgreeError, cell_location, normalise_value
 
 ID_COLUMN_NAMES = ("unit_id", "unit", "id", "unit id", "unitid", "segment_id", "excerpt_id",
@@ -329,17 +329,6 @@ def _check_coders(coders: Sequence[str]) -> tuple[str, ...]:
     return names
 
 
-def _atomic_write_bytes(path: Path, data: bytes) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=path.suffix, dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
-
-
 def _cell(value: Any) -> Any:
     """A value openpyxl can store: numpy scalars become Python, missing becomes blank."""
     if value is None:
@@ -468,7 +457,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     for i, (name, target) in enumerate(zip(names, targets)):
         order = np.random.default_rng([seed, 101, i]).permutation(len(sample)) if shuffle else base_order
         data, drop_down = _workbook_bytes(ids[order], texts[order], categories, name)
-        _atomic_write_bytes(target, data)
+        atomic_write_bytes(target, data)
 
     stratify = sample.attrs.get("stratify")
     buffer = io.StringIO()
@@ -480,7 +469,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
               if stratify and stratify in sample.columns else [""] * len(sample))
     for uid, stratum, d, r in sorted(zip(ids.tolist(), strata, draw, rows), key=lambda t: t[2]):
         writer.writerow([_cell(uid), stratum, d, r])
-    _atomic_write_bytes(targets[-2], buffer.getvalue().encode("utf-8"))
+    atomic_write_bytes(targets[-2], buffer.getvalue().encode("utf-8"))
 
     meta = {
         "seed": seed,
@@ -502,7 +491,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
         "codebook": categories,
         "files": [t.name for t in targets[:-2]],
     }
-    _atomic_write_bytes(targets[-1], (json.dumps(meta, indent=2, ensure_ascii=False) + "\n").encode("utf-8"))
+    atomic_write_bytes(targets[-1], (json.dumps(meta, indent=2, ensure_ascii=False) + "\n").encode("utf-8"))
     return CodingSheets(folder=str(folder), files=tuple(str(t) for t in targets[:-2]),
                         manifest_csv=str(targets[-2]), manifest_json=str(targets[-1]), coders=names,
                         n=int(len(sample)), seed=seed, shuffled=bool(shuffle), drop_down=drop_down)

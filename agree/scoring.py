@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
@@ -9,7 +10,7 @@ import numpy as np
 
 from agree import coefficients as coef
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
-from agree.results import AgreementResult, Note
+from agree.results import AgreementResult, Note, _clean
 
 FEW_UNITS = 30  # common practice: below this, intervals are wide and conventions shaky
 
@@ -38,6 +39,30 @@ class ScoreResult:
     warnings: tuple[Note, ...] = ()
     read: Mapping[str, Any] | None = None
 
+    @property
+    def primary(self) -> str:
+        """The coefficient decisions are made on: Krippendorff's alpha when computed."""
+        for name in ("krippendorff_alpha", "cohen_kappa", "fleiss_kappa"):
+            if name in self.coefficients:
+                return name
+        return next(iter(self.coefficients), "")
+
+    def decision(self) -> dict[str, Any] | None:
+        """Against the minimum: the one-sided lower bound, whether it clears the minimum, the
+        probability of lying below it, and the sentence saying so (None without a minimum)."""
+        if self.minimum is None or self.primary not in self.coefficients:
+            return None
+        from agree.planning import decision_sentence
+
+        r = self.coefficients[self.primary]
+        bound = r.lower_bound if r.lower_bound is not None and math.isfinite(r.lower_bound) else None
+        return _clean({
+            "coefficient": self.primary, "minimum": self.minimum, "estimate": r.estimate,
+            "lower_bound": bound, "bound": f"one-sided {self.confidence_level:.0%} lower bound ({r.ci_method})",
+            "clears_minimum": None if bound is None else bool(bound > self.minimum),
+            "p_below_min": r.p_below_min, "sentence": decision_sentence(r, self.minimum),
+        })
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "units": {"read": self.units_read, "used": self.units_used,
@@ -53,9 +78,18 @@ class ScoreResult:
             "bootstrap": {"replicates": self.n_resamples, "seed": self.seed, "method": self.ci_method,
                           "confidence_level": self.confidence_level},
             "minimum": self.minimum,
+            "decision": self.decision(),
             "warnings": [w.to_dict() for w in self.warnings],
             "read": None if self.read is None else dict(self.read),
         }
+
+    def _repr_html_(self) -> str:
+        rows = "".join(f"<tr><td>{k}</td><td>{v.estimate:.3f}</td><td>"
+                       + ("–" if v.ci_low is None else f"[{v.ci_low:.3f}, {v.ci_high:.3f}]") + "</td></tr>"
+                       for k, v in self.coefficients.items())
+        return (f"<p>{self.units_used} units used of {self.units_read}, {len(self.coders)} coders, "
+                f"level {self.level}</p><table><tr><th>coefficient</th><th>estimate</th>"
+                f"<th>{self.confidence_level:.0%} CI</th></tr>{rows}</table>")
 
 
 def score(data: Any, *, level: str | None = None, minimum: float | None = None, n_resamples: int = 2000,

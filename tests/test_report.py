@@ -356,7 +356,7 @@ def test_cli_report_refuses_to_overwrite_input(tmp_path):
     html_in = tmp_path / "data.html"
     html_in.write_text("unit,a,b\n")
     result = CliRunner().invoke(_cli(), ["report", str(html_in), "-o", str(html_in)])
-    assert isinstance(result.exception, AgreeError) and result.exception.code == "output-is-input"
+    assert isinstance(result.exception, AgreeError) and result.exception.code == "overwrite-input"
     assert html_in.read_text() == "unit,a,b\n"
 
 

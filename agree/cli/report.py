@@ -13,6 +13,7 @@ from rich.table import Table
 from agree.cli.app import STATE, app, note, print_json, stderr, stdout
 from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, MinOption, SeedOption
 from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
+from agree.files import atomic_write_bytes, check_output
 from agree.model import AgreeError
 
 
@@ -74,14 +75,6 @@ def parse_codebooks(spec: str | None) -> dict[str, Path] | None:
                              code="bad-option")
         out[name.strip()] = Path(file.strip())
     return out
-
-
-def _check_output(output: Path, inputs: list[Path]) -> None:
-    target = output.resolve()
-    for p in inputs:
-        if p is not None and Path(p).exists() and Path(p).resolve() == target:
-            raise AgreeError(f"the output {output} is one of the input files; it would be overwritten",
-                             hint="choose another output name", code="output-is-input")
 
 
 def _read_rounds(files: list[Path], *, round_files: bool, round_column: str | None, reading: dict,
@@ -153,7 +146,7 @@ def report(
     inputs = list(files) + [p for p in (consensus, codebook) if p is not None]
     books = parse_codebooks(codebooks)
     inputs += list((books or {}).values())
-    _check_output(output, inputs)
+    check_output(output, inputs)
     reading = {**reading, "codebook": codebook, "level": level}
     data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
                                        reading=reading, required=False)
@@ -237,7 +230,7 @@ def rounds(
         if plot.suffix.lower() not in (".png", ".svg", ".pdf"):
             raise AgreeError(f"cannot tell the plot format from '{plot.name}'", hint="use .png, .svg or .pdf",
                              code="plot-format")
-        _check_output(plot, list(files) + list((books or {}).values()))
+        check_output(plot, list(files) + list((books or {}).values()))
     reading = {**reading, "codebook": codebook, "level": level}
     data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
                                        reading=reading, required=True)
@@ -260,12 +253,11 @@ def rounds(
 def _write_plot(result: Any, path: Path) -> None:
     import io
 
-    from agree.report import _atomic_write
 
     buffer = io.BytesIO()
     result.trend_figure().savefig(buffer, format=path.suffix.lower().lstrip("."), dpi=150, bbox_inches="tight",
                                   facecolor="white")
-    _atomic_write(path, buffer.getvalue())
+    atomic_write_bytes(path, buffer.getvalue())
 
 
 def _print_rounds(result: Any) -> None:

@@ -17,7 +17,6 @@ from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption,
                                SeedOption, TableFormat)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.format import format_interval, format_value
-from agree.planning import decision_sentence
 from agree.scoring import ScoreResult, score as run_score
 
 
@@ -116,10 +115,9 @@ def print_score(result: ScoreResult) -> None:
         stdout.print(f"Left out: {shown}{more}", highlight=False)
     for name, reason in result.skipped.items():
         stdout.print(f"Not computed – {LABELS.get(name, name)}: {reason}", highlight=False)
-    if result.minimum is not None:
-        main = result.coefficients.get("krippendorff_alpha")
-        if main is not None:
-            stdout.print("Decision: " + decision_sentence(main, result.minimum) + ".", highlight=False)
+    decision = result.decision()
+    if decision is not None:
+        stdout.print(f"Decision: {decision['sentence']}.", highlight=False)
     for w in result.warnings:
         note(f"warning [{w.code}]: {w.message}")
     stdout.print("Benchmarks such as 0.80 (Krippendorff) or the Landis–Koch bands are conventions; compare the "
