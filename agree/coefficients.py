@@ -572,6 +572,7 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     if se0 and np.isfinite(estimate) and se0 > 0:
         z = estimate / se0
         p_two, p_one = float(2 * stats.norm.sf(abs(z))), float(stats.norm.sf(z))
+        details["z_method"] = "kappa / SE under H0 (Fleiss, Cohen & Everitt 1969)"
     n_used = int(counts[_used_patterns(pat, stat)].sum()) if len(counts) else 0
     return AgreementResult(
         name=stat.name, estimate=estimate, se=se, se_method=se_method, ci_low=ci_low, ci_high=ci_high,
@@ -839,6 +840,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
     if se0:
         z = res.estimate / se0
         p_two, p_one = float(2 * stats.norm.sf(abs(z))), float(stats.norm.sf(z))
+        details["z_method"] = "kappa / SE under H0 (Fleiss, Nee & Landis 1979)"
     return _replace(res, details=details, z=z, p_value=p_two, p_value_one_sided=p_one, warnings=tuple(notes))
 
 
@@ -865,9 +867,16 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
                          f"{d.n_coders} coders, so the coders rotate",
                          hint="use krippendorff_alpha, fleiss_kappa or gwet_ac1, which allow rotating coders",
                          code="rotating")
+    from dataclasses import replace as _replace
+
     stat = _Conger(name="conger_kappa", ordered=True, m=d.n_coders, V=len(d.values),
                    undefined_reason="no pairable unit, or no expected disagreement (p_e = 1)")
-    return _run(stat, d, level=None, weights=None, **_options(locals()))
+    res = _run(stat, d, level=None, weights=None, **_options(locals()))
+    if res.defined and res.se_method and res.se_method.startswith("linearisation") and res.se > 0:
+        z = res.estimate / res.se
+        res = _replace(res, z=z, p_value=float(2 * stats.norm.sf(abs(z))), p_value_one_sided=float(stats.norm.sf(z)),
+                       details={**res.details, "z_method": "Wald: kappa / linearised SE (no published null SE)"})
+    return res
 
 
 def brennan_prediger(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,

@@ -94,7 +94,8 @@ class ScoreResult:
 
 def score(data: Any, *, level: str | None = None, minimum: float | None = None, n_resamples: int = 2000,
           seed: int | None = None, confidence_level: float = 0.95, ci_method: str = "bca",
-          cluster: Any = None, categories: Any = None, distance: str | None = None) -> ScoreResult:
+          cluster: Any = None, categories: Any = None, distance: str | None = None,
+          progress: Any = None) -> ScoreResult:
     """Compute every standard coefficient that fits the data and the level of measurement.
 
     Nominal data: percent agreement, Cohen's kappa (two coders), Scott's pi, Fleiss',
@@ -105,6 +106,7 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
 
     Every coefficient uses the same seed, so the run repeats exactly. Units with fewer
     than two values are left out of every coefficient and named in the result.
+    `progress`, if given, is called as progress(name, fraction_done) after each coefficient.
     """
     d = as_coding_data(data, categories=categories)
     if d.n_coders < 2:
@@ -125,6 +127,8 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
     skipped: dict[str, str] = {}
 
     def attempt(name, fn, **kw):
+        if progress is not None:
+            progress(name, len(results) / 11)
         try:
             results[name] = fn(d, **opts, **kw)
         except AgreeError as exc:

@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 import sys
-from typing import Any
+from typing import Any, Iterator
 
 import typer
 from rich.console import Console
@@ -32,6 +33,31 @@ def _global(
 ):
     STATE["debug"] = debug
     STATE["quiet"] = quiet
+
+
+@contextlib.contextmanager
+def progress_bar(description: str) -> Iterator[Any]:
+    """A rich progress bar on stderr; silent when stderr is not a terminal or with --quiet.
+
+    Yields a callback(step, fraction) for the library's `progress=` argument."""
+    if STATE["quiet"] or not stderr.is_terminal:
+        yield lambda step, done: None
+        return
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    with Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.fields[step]}"),
+                  TimeElapsedColumn(), console=stderr, transient=True) as bar:
+        task = bar.add_task(description, total=1.0, step="")
+
+        def update(step: str, done: float) -> None:
+            bar.update(task, completed=min(max(done, 0.0), 1.0), step=step)
+
+        yield update
+
+
+def scaled(tick: Any, low: float, high: float) -> Any:
+    """A progress callback mapping 0..1 onto low..high of the bar."""
+    return lambda step, done: tick(step, low + (high - low) * done)
 
 
 def note(message: str) -> None:

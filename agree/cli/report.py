@@ -2,15 +2,14 @@
 
 from __future__ import annotations
 
-import contextlib
 from enum import Enum
 from pathlib import Path
-from typing import Annotated, Any, Iterator, Optional
+from typing import Annotated, Any, Optional
 
 import typer
 from rich.table import Table
 
-from agree.cli.app import STATE, app, note, print_json, stderr, stdout
+from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
 from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, MinOption, SeedOption
 from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.files import atomic_write_bytes, check_output
@@ -34,31 +33,6 @@ CodebooksOption = Annotated[Optional[str], typer.Option(
 DriftOption = Annotated[Optional[str], typer.Option(
     "--drift-round", help="The round in which only a share of units is still double-coded: compared "
                           "with the last full round (drift check).")]
-
-
-@contextlib.contextmanager
-def progress_bar(description: str) -> Iterator[Any]:
-    """A rich progress bar on stderr; silent when stderr is not a terminal or with --quiet.
-
-    Yields a callback(step, fraction) for the library's `progress=` argument."""
-    if STATE["quiet"] or not stderr.is_terminal:
-        yield lambda step, done: None
-        return
-    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
-
-    with Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.fields[step]}"),
-                  TimeElapsedColumn(), console=stderr, transient=True) as bar:
-        task = bar.add_task(description, total=1.0, step="")
-
-        def update(step: str, done: float) -> None:
-            bar.update(task, completed=min(max(done, 0.0), 1.0), step=step)
-
-        yield update
-
-
-def _scaled(tick: Any, low: float, high: float) -> Any:
-    """A progress callback mapping 0..1 onto low..high of the bar."""
-    return lambda step, done: tick(step, low + (high - low) * done)
 
 
 def parse_codebooks(spec: str | None) -> dict[str, Path] | None:
@@ -153,14 +127,14 @@ def report(
     level_name = level.value if level is not None else None
     options = dict(level=level_name, minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci)
     with progress_bar("report") as tick:
-        building = _scaled(tick, 0.0, 0.6)      # writing (with the plots) takes the rest
+        building = scaled(tick, 0.0, 0.6)      # writing (with the plots) takes the rest
         if parts is not None:
             rounds = compare_rounds(parts, codebooks=books, drift_round=drift_round,
-                                    progress=_scaled(tick, 0.0, 0.2), **options)
+                                    progress=scaled(tick, 0.0, 0.2), **options)
             data = parts[rounds.final_round]
             result = build_report(data, corpus_size=corpus_size, consensus=consensus, rounds=rounds,
                                   analysed_round=rounds.final_round, title=title, digits=digits,
-                                  progress=_scaled(tick, 0.2, 0.6), **options)
+                                  progress=scaled(tick, 0.2, 0.6), **options)
         else:
             if (books or drift_round) and column is None:
                 raise AgreeError("--codebooks and --drift-round need rounds",

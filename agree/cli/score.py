@@ -12,7 +12,7 @@ from typing import Annotated
 import typer
 from rich.table import Table
 
-from agree.cli.app import app, note, print_json, stdout
+from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
 from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, FormatOption, MinOption,
                                SeedOption, TableFormat)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
@@ -62,9 +62,12 @@ def score(
 
     Example: agree score samples/round2.csv --codebook samples/codebook.csv --keep interview --min 0.8
     """
-    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
-    result = run_score(data, level=level.value if level else None, minimum=minimum, n_resamples=boot,
-                       seed=seed, confidence_level=ci, ci_method=ci_method.value, cluster=cluster)
+    with progress_bar("score") as tick:
+        tick("reading", 0.0)
+        data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
+        result = run_score(data, level=level.value if level else None, minimum=minimum, n_resamples=boot,
+                           seed=seed, confidence_level=ci, ci_method=ci_method.value, cluster=cluster,
+                           progress=scaled(tick, 0.3, 1.0))
     if output_format is TableFormat.json:
         print_json(result.to_dict())
     elif output_format is TableFormat.csv:
