@@ -37,7 +37,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import special
 
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import Patterns, compress
@@ -471,6 +471,8 @@ def cohen_variances(table: np.ndarray, w: np.ndarray, kappa: float) -> dict[str,
     else:
         q = len(w)
         A_eq = np.vstack([np.kron(np.eye(q), np.ones(q)), np.kron(np.ones(q), np.eye(q))])
+        from scipy import optimize  # only weighted kappa needs the linear programme
+
         res = optimize.linprog(-w.ravel(), A_eq=A_eq, b_eq=np.concatenate([rows, cols]),
                                bounds=(0, None), method="highs")
         best = -res.fun if res.success else np.nan
@@ -559,19 +561,19 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     elif se is not None and np.isfinite(estimate):
         eps = 1 - confidence_level
         df = extra.get("df")
-        crit = stats.t.ppf(1 - eps / 2, df) if df else stats.norm.ppf(1 - eps / 2)
-        crit1 = stats.t.ppf(1 - eps, df) if df else stats.norm.ppf(1 - eps)
+        crit = special.stdtrit(df, 1 - eps / 2) if df else special.ndtri(1 - eps / 2)
+        crit1 = special.stdtrit(df, 1 - eps) if df else special.ndtri(1 - eps)
         ci_low, ci_high, lower = (float(estimate - crit * se), float(estimate + crit * se),
                                   float(estimate - crit1 * se))
         method = "t" if df else "wald"
         if minimum is not None and se > 0:
-            dist = stats.t(df) if df else stats.norm
-            p_below = float(dist.cdf((minimum - estimate) / se))
+            t = (minimum - estimate) / se
+            p_below = float(special.stdtr(df, t) if df else special.ndtr(t))
     z = p_two = p_one = None
     se0 = details.get("se0")
     if se0 and np.isfinite(estimate) and se0 > 0:
         z = estimate / se0
-        p_two, p_one = float(2 * stats.norm.sf(abs(z))), float(stats.norm.sf(z))
+        p_two, p_one = float(2 * special.ndtr(-abs(z))), float(special.ndtr(-z))
         details["z_method"] = "kappa / SE under H0 (Fleiss, Cohen & Everitt 1969)"
     n_used = int(counts[_used_patterns(pat, stat)].sum()) if len(counts) else 0
     return AgreementResult(
@@ -597,7 +599,7 @@ def _n_values(pat: Patterns, stat: _Statistic) -> int:
 
 
 def _wilson(p: float, n: float, level: float) -> tuple[float, float]:
-    z = stats.norm.ppf(1 - (1 - level) / 2)
+    z = special.ndtri(1 - (1 - level) / 2)
     centre = (p + z ** 2 / (2 * n)) / (1 + z ** 2 / n)
     half = z * np.sqrt(p * (1 - p) / n + z ** 2 / (4 * n ** 2)) / (1 + z ** 2 / n)
     return float(centre - half), float(centre + half)
@@ -812,17 +814,15 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
                           "kappas and the null test of Fleiss, Nee & Landis (1979) are not given; the "
                           "estimate uses Gwet's (2014) generalisation."))
         return _replace(res, details=details, warnings=tuple(notes))
-    V = len(d.values)
-    codes = d.codes[used]
-    R = np.zeros((len(codes), V))
-    for i in range(codes.shape[1]):
-        np.add.at(R, (np.arange(len(codes)), codes[:, i]), 1)
-    N = len(codes)
-    p = R.sum(axis=0) / (N * n)
+    pat = compress(d.codes[used], len(d.values), ordered=False)
+    R = pat.value_counts()
+    c = pat.counts.astype(float)
+    N = c.sum()
+    p = (c @ R) / (N * n)
     q = 1 - p
     pq = p * q
     with np.errstate(invalid="ignore", divide="ignore"):
-        kj = 1 - np.sum(R * (n - R), axis=0) / (N * n * (n - 1) * pq)
+        kj = 1 - (c @ (R * (n - R))) / (N * n * (n - 1) * pq)
     se0_j = np.sqrt(2 / (N * n * (n - 1)))
     spq = pq.sum()
     var0 = 2 / (N * n * (n - 1)) * (spq ** 2 - np.sum(pq * (q - p))) / spq ** 2 if spq > 0 else np.nan
@@ -831,7 +831,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
         k = float(kj[j]) if pq[j] > 0 else float("nan")
         z = k / se0_j if np.isfinite(k) else float("nan")
         per[_label(v)] = {"kappa": k, "se0": float(se0_j), "z": z,
-                          "p_value": float(2 * stats.norm.sf(abs(z))) if np.isfinite(z) else None,
+                          "p_value": float(2 * special.ndtr(-abs(z))) if np.isfinite(z) else None,
                           "share": float(p[j])}
     details["per_category"] = per
     se0 = float(np.sqrt(var0)) if np.isfinite(var0) and var0 > 0 else None
@@ -839,7 +839,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
     z = p_two = p_one = None
     if se0:
         z = res.estimate / se0
-        p_two, p_one = float(2 * stats.norm.sf(abs(z))), float(stats.norm.sf(z))
+        p_two, p_one = float(2 * special.ndtr(-abs(z))), float(special.ndtr(-z))
         details["z_method"] = "kappa / SE under H0 (Fleiss, Nee & Landis 1979)"
     return _replace(res, details=details, z=z, p_value=p_two, p_value_one_sided=p_one, warnings=tuple(notes))
 
@@ -874,7 +874,7 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     res = _run(stat, d, level=None, weights=None, **_options(locals()))
     if res.defined and res.se_method and res.se_method.startswith("linearisation") and res.se > 0:
         z = res.estimate / res.se
-        res = _replace(res, z=z, p_value=float(2 * stats.norm.sf(abs(z))), p_value_one_sided=float(stats.norm.sf(z)),
+        res = _replace(res, z=z, p_value=float(2 * special.ndtr(-abs(z))), p_value_one_sided=float(special.ndtr(-z)),
                        details={**res.details, "z_method": "Wald: kappa / linearised SE (no published null SE)"})
     return res
 

@@ -130,7 +130,19 @@ def _sniff(head: bytes) -> str:
         return "ole"
     if head.startswith(_MAGIC_PARQUET):
         return "parquet"
-    return "text"
+    return "text" if _looks_like_text(head) else "binary"
+
+
+def _looks_like_text(head: bytes) -> bool:
+    """Whether the first bytes read as delimited text: few control or undecodable characters,
+    and a delimiter or a line break somewhere."""
+    encodings = ("utf-16",) if head[:2] in (b"\xff\xfe", b"\xfe\xff") else ("utf-8", "cp1252")
+    for encoding in encodings:
+        text = head.decode(encoding, errors="replace")
+        bad = sum(1 for ch in text if ch == "\ufffd" or (ord(ch) < 32 and ch not in "\t\n\r\f"))
+        if text and bad <= 0.05 * len(text) and any(mark in text for mark in (",", ";", "\t", "\n")):
+            return True
+    return False
 
 
 _CONTENT_NAMES = {
@@ -138,6 +150,7 @@ _CONTENT_NAMES = {
     "ole": ("an old-format or password-protected Excel file", "save it as a plain .xlsx workbook"),
     "parquet": ("a Parquet file", "rename it to .parquet"),
     "text": ("plain text (CSV-like)", "rename it to .csv"),
+    "binary": ("binary data, neither a workbook nor delimited text", "check that this is the file you meant"),
 }
 
 
@@ -166,7 +179,7 @@ def _load_file(path: Path, *, sheet: Any, name: str) -> _Loaded:
         raise AgreeError("the file is empty", where=name, hint="check that the file was saved",
                          code="empty-file")
     with open(path, "rb") as fh:
-        head = fh.read(8)
+        head = fh.read(4096)
     kind = _sniff(head)
     if ext in WORKBOOK_EXTENSIONS:
         if kind == "ole":

@@ -375,6 +375,11 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
                    confidence_level=confidence_level)
     used_seed = scored.seed if scored.seed is not None else seed
     coefs = dict(scored.coefficients)
+    if rounds_result is not None and analysed_round is not None and "krippendorff_alpha" in coefs:
+        # the same figure as in the rounds section (same resamples), so the report shows one interval
+        same = rounds_result.round(analysed_round).overall
+        if same.level == coefs["krippendorff_alpha"].level and same.estimate == coefs["krippendorff_alpha"].estimate:
+            coefs["krippendorff_alpha"] = same
     primary = "krippendorff_alpha" if "krippendorff_alpha" in coefs else next(iter(coefs), "")
     ordered = [coefs[primary]] + [r for k, r in coefs.items() if k != primary] if primary else []
 
@@ -481,7 +486,7 @@ def _sample(d: CodingData, corpus_size: int | None) -> SampleSummary:
 
 
 def summarise_consensus(consensus: Any, data: CodingData | None = None) -> ConsensusSummary:
-    """Counts by source of a consensus file (path), DataFrame or `agree.reconcile.Consensus`.
+    """Counts by source of a consensus file (path), DataFrame or `agree.reconciliation.Consensus`.
 
     The table needs a "source" column (agreed, decided, majority, unresolved, ...). A unit id
     column (the first column whose name contains "unit", else the first column) is matched
@@ -501,7 +506,7 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
     elif isinstance(consensus, pd.DataFrame):
         frame = consensus
     elif hasattr(consensus, "table") and isinstance(consensus.table, pd.DataFrame):
-        frame = consensus.table          # an agree.reconcile.Consensus
+        frame = consensus.table          # an agree.reconciliation.Consensus
     else:
         raise AgreeError("consensus must be a file path or a DataFrame", code="consensus")
     cols = {str(c).strip().lower(): c for c in frame.columns}

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from agree.results import Note
 
@@ -105,7 +105,7 @@ def bootstrap_interval(estimate: float, replicates: np.ndarray, *, confidence_le
     used = method
     if method == "bca":
         below = np.mean(defined < estimate) + 0.5 * np.mean(defined == estimate)
-        z0 = stats.norm.ppf(below)
+        z0 = special.ndtri(below)
         accel = _acceleration(jack, jack_weights)
         if not np.isfinite(z0) or accel is None:
             used = "percentile"
@@ -113,8 +113,8 @@ def bootstrap_interval(estimate: float, replicates: np.ndarray, *, confidence_le
                 notes.append(Note("bca-fallback", "The BCa interval could not be formed (bias correction "
                                   "or acceleration undefined); the percentile interval is shown instead."))
         else:
-            zq = stats.norm.ppf(probs)
-            probs = stats.norm.cdf(z0 + (z0 + zq) / (1 - accel * (z0 + zq)))
+            zq = special.ndtri(probs)
+            probs = special.ndtr(z0 + (z0 + zq) / (1 - accel * (z0 + zq)))
     elif method != "percentile":
         raise ValueError(f"unknown interval method {method!r}")
     low, high, lower = np.quantile(defined, probs)

@@ -35,6 +35,7 @@ class ScoreResult:
     ci_method: str
     confidence_level: float
     minimum: float | None
+    resampled: str = "unit"     # "unit", or "cluster:<column>" when whole groups were resampled
     skipped: Mapping[str, str] = field(default_factory=dict)
     warnings: tuple[Note, ...] = ()
     read: Mapping[str, Any] | None = None
@@ -57,8 +58,8 @@ class ScoreResult:
         r = self.coefficients[self.primary]
         bound = r.lower_bound if r.lower_bound is not None and math.isfinite(r.lower_bound) else None
         return _clean({
-            "coefficient": self.primary, "minimum": self.minimum, "estimate": r.estimate,
-            "lower_bound": bound, "bound": f"one-sided {self.confidence_level:.0%} lower bound ({r.ci_method})",
+            "coefficient": self.primary, "minimum": self.minimum, "estimate": r.estimate, "lower_bound": bound,
+            "bound": None if bound is None else f"one-sided {self.confidence_level:.0%} lower bound ({r.ci_method})",
             "clears_minimum": None if bound is None else bool(bound > self.minimum),
             "p_below_min": r.p_below_min, "sentence": decision_sentence(r, self.minimum),
         })
@@ -76,7 +77,7 @@ class ScoreResult:
             "coefficients": {k: v.to_dict() for k, v in self.coefficients.items()},
             "skipped": dict(self.skipped),
             "bootstrap": {"replicates": self.n_resamples, "seed": self.seed, "method": self.ci_method,
-                          "confidence_level": self.confidence_level},
+                          "confidence_level": self.confidence_level, "unit": self.resampled},
             "minimum": self.minimum,
             "decision": self.decision(),
             "warnings": [w.to_dict() for w in self.warnings],
@@ -172,7 +173,8 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
         values_used=int(observed[used].sum()), n_categories=len(d.values),
         categories=tuple(coef._label(v) for v in d.values), n_resamples=int(n_resamples),
         seed=seed if n_resamples else None, ci_method=ci_method, confidence_level=confidence_level,
-        minimum=minimum, skipped=skipped, warnings=tuple(warnings), read=rep)
+        minimum=minimum, resampled=f"cluster:{cluster}" if isinstance(cluster, str) else
+        ("cluster" if cluster is not None else "unit"), skipped=skipped, warnings=tuple(warnings), read=rep)
 
 
 def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_used: int) -> list[Note]:
@@ -194,8 +196,6 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
                               "chance agreement is high and kappa-type coefficients are pulled down (the "
                               "prevalence paradox, Feinstein & Cicchetti 1990). Report both, with the "
                               "per-code diagnostics."))
-    for name, r in results.items():
-        for w in r.warnings:
-            if w.code == "undefined":
-                notes.append(Note("undefined", f"{name}: {w.message}"))
+    for r in results.values():
+        notes.extend(w for w in r.warnings if w.code == "undefined")
     return notes

@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 
 from agree.readers import read
-from agree.reconcile import ABOUT_SHEET, REVIEW_SHEET, reconcile, unprotect_text
+from agree.reconciliation import ABOUT_SHEET, REVIEW_SHEET, reconcile, unprotect_text
 
 DATA = ("unit,text,ann,bo,cy\n"
         "=SUM(A1),café,pos,neg,neg\n"

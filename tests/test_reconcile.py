@@ -19,7 +19,7 @@ import pandas as pd
 import pytest
 
 from agree.model import AgreeError, from_table
-from agree.reconcile import (ABOUT_SHEET, LISTS_SHEET, PAIRS_SHEET, REVIEW_SHEET, Consensus,
+from agree.reconciliation import (ABOUT_SHEET, LISTS_SHEET, PAIRS_SHEET, REVIEW_SHEET, Consensus,
                              _confused_pairs, protect_text, reconcile, review_table,
                              unprotect_text, write_consensus, write_review)
 
@@ -506,7 +506,7 @@ def test_existing_output_needs_force(tmp_path):
 
 
 def test_atomic_write_leaves_nothing_after_a_crash(tmp_path, monkeypatch):
-    module = importlib.import_module("agree.reconcile")  # the module, not the function agree.reconcile
+    module = importlib.import_module("agree.reconciliation")  # the module, not the function agree.reconcile
 
     data = from_table([["a", "b"]], unit_ids=["u1"])
 

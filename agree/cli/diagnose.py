@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 import sys
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
 import pandas as pd
 import typer
@@ -14,7 +14,9 @@ from agree.cli.app import app, note, print_json, stdout
 from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOption, MinOption, SeedOption,
                                TableFormat)
 from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
-from agree.diagnostics import CodeDiagnostics, CoderDiagnostics, diagnose_codes, diagnose_coders
+
+if TYPE_CHECKING:
+    from agree.diagnostics import CodeDiagnostics, CoderDiagnostics
 
 
 MinUnitsOption = Annotated[int, typer.Option("--min-units", help="A code used on fewer shared units "
@@ -62,6 +64,8 @@ def codes_command(
     Example: agree codes coding.xlsx --min 0.8 --boot 2000 --seed 1
     """
     data = load_data(files, codebook=codebook, level=level, **reading)
+    from agree.diagnostics import diagnose_codes
+
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
                             min_units_per_code=min_units)
     _notes(result.notes)
@@ -73,7 +77,7 @@ def codes_command(
         _codes_table(result, top)
 
 
-def _codes_table(result: CodeDiagnostics, top: int) -> None:
+def _codes_table(result: "CodeDiagnostics", top: int) -> None:
     frame = result.to_frame()
     level = f"{result.confidence_level:.0%}"
     table = Table(title=f"Codes, worst first (minimum alpha {_num(result.minimum, 2)})")
@@ -140,6 +144,8 @@ def coders_command(
     Example: agree coders coding.xlsx --boot 2000 --seed 1
     """
     data = load_data(files, codebook=codebook, level=level, **reading)
+    from agree.diagnostics import diagnose_coders
+
     result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,
                              seed=seed)
     _notes(result.notes)
@@ -151,7 +157,7 @@ def coders_command(
         _coders_table(result)
 
 
-def _coders_table(result: CoderDiagnostics) -> None:
+def _coders_table(result: "CoderDiagnostics") -> None:
     stdout.print(f"alpha ({result.level}), all coders: {_num(result.alpha)}", highlight=False)
     ptable = Table(title="Pairs of coders")
     for name in ["coder", "coder", "units", "% agree", "kappa", "alpha"]:

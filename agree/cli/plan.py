@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from enum import Enum
 from pathlib import Path
-from typing import Annotated, Optional
+from typing import TYPE_CHECKING, Annotated, Optional
 
 import typer
 from rich.markup import escape
@@ -12,9 +12,9 @@ from rich.table import Table
 
 from agree.cli.app import app, note, print_json, stdout
 from agree.model import AgreeError
-from agree.planning import Plan, plan_sample, save_assurance_plot
-from agree.sampling import (draw_sample, load_codebook_categories, read_corpus,
-                            write_coding_sheets)
+
+if TYPE_CHECKING:
+    from agree.planning import Plan
 
 
 class OutputFormat(str, Enum):
@@ -71,6 +71,8 @@ def plan(
     if plot is not None and plot.suffix.lower() != ".png":
         raise AgreeError(f"--plot writes a PNG file; got '{plot.name}'", hint="name it e.g. assurance.png",
                          code="plot-format")
+    from agree.planning import plan_sample, save_assurance_plot
+
     result = plan_sample(coders=coders, expected=expected, minimum=minimum, categories=categories,
                          shares=_shares(shares), rarest=rarest, level=level.value, confidence_level=ci,
                          assurance=assurance, missing=missing, seed=seed, replicates=replicates,
@@ -88,7 +90,7 @@ def _num(x: float, digits: int = 3) -> str:
     return f"{x:.{digits}f}"
 
 
-def print_plan(p: Plan) -> None:
+def print_plan(p: "Plan") -> None:
     i = p.inputs
     shares = ", ".join(f"{s:.3g}" for s in i["shares"])
     if p.units_needed is None:
@@ -155,6 +157,8 @@ def sample(
 
     Example: agree sample units.xlsx -n 120 --stratify interview --coders ana,ben -o sheets/ --codebook codes.txt
     """
+    from agree.sampling import draw_sample, load_codebook_categories, read_corpus, write_coding_sheets
+
     frame = read_corpus(corpus, sheet=sheet)
     drawn = draw_sample(frame, n, stratify=stratify, seed=seed, id_col=unit_col)
     categories = load_codebook_categories(codebook) if codebook is not None else None

@@ -12,7 +12,6 @@ from rich.table import Table
 from agree.cli.app import app, note, print_json, stdout
 from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.model import AgreeError
-from agree.reconcile import reconcile, write_consensus, write_review
 
 
 class ReviewFormat(str, Enum):
@@ -107,6 +106,8 @@ def disagreements(
     options = _recorded({**reading, "include_agreed": include_agreed})
     options["sep"] = reading["sep"]
     inputs = list(files) + ([codebook] if codebook else [])
+    from agree.reconciliation import write_review
+
     summary = write_review(data, output, format=file_format, inputs=inputs, options=options,
                            include_agreed=include_agreed, force=force)
     note(f"wrote {output}: {summary.needing_review} units need review "
@@ -177,6 +178,8 @@ def reconcile_command(
     reading = {**reading, **_reading(codebook=codebook, level=level)}
     data = load_data(files, **reading)
     file_format, shown = _split_format(format, summary_format)
+    from agree.reconciliation import reconcile, write_consensus
+
     consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority)
     inputs = [review_file, *files] + ([codebook] if codebook else [])
     write_consensus(consensus, output, format=file_format, inputs=inputs, force=force, data=data)

@@ -106,7 +106,9 @@ def print_score(result: ScoreResult) -> None:
             row.append(format_value(r.p_below_min, "probability"))
         table.add_row(*row)
     stdout.print(table)
-    boot = (f"{result.n_resamples} bootstrap replicates over units ({result.ci_method}), seed {result.seed}"
+    over = ("units" if result.resampled == "unit" else
+            f"whole groups of '{result.resampled.partition(':')[2]}'" if ":" in result.resampled else "whole groups")
+    boot = (f"{result.n_resamples} bootstrap replicates over {over} ({result.ci_method}), seed {result.seed}"
             if result.n_resamples else "no bootstrap; analytic intervals where published")
     stdout.print(f"Intervals: {boot}. SE: analytic where published, else the bootstrap SD.", highlight=False)
     stdout.print(f"Units: {result.units_read} read, {result.units_used} used, {len(result.units_left_out)} left out "
