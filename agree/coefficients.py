@@ -43,7 +43,7 @@ from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import Patterns, compress
 from agree.resampling import (bootstrap_interval, bootstrap_replicates, cluster_features,
                               jackknife_values, make_rng)
-from agree.results import AgreementResult, BootstrapInfo, Note
+from agree.results import AgreementResult, BootstrapInfo, Note, display_name
 
 # ----------------------------------------------------------------------------------------
 # weights and distances
@@ -511,6 +511,12 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         raise AgreeError(f"confidence level must be between 0 and 1; got {confidence_level}", code="ci")
     if ci_method not in ("bca", "percentile"):
         raise AgreeError(f"interval method must be 'bca' or 'percentile'; got '{ci_method}'", code="ci")
+    if n_resamples is not None and n_resamples < 0:
+        raise AgreeError(f"the number of bootstrap replicates cannot be negative; got {n_resamples}",
+                         hint="use --boot 0 (n_resamples=0) for no bootstrap", code="boot")
+    if minimum is not None and not -1 <= minimum <= 1:
+        raise AgreeError(f"the minimum is a value of the coefficient, between -1 and 1; got {minimum}",
+                         hint="e.g. --min 0.8 (minimum=0.8), not 80", code="minimum")
     codes = data.codes if mask is None else data.codes[mask]
     clusters, unit_label = _resolve_clusters(data, cluster)
     if clusters is not None and mask is not None:
@@ -521,7 +527,7 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     estimate = float(stat.finish((counts.astype(float) @ F)[None, :])[0]) if len(counts) else float("nan")
     warnings = list(notes)
     if not np.isfinite(estimate):
-        warnings.append(Note("undefined", f"{stat.name} is undefined: {stat.undefined_reason}."))
+        warnings.append(Note("undefined", f"{display_name(stat.name)} is undefined: {stat.undefined_reason}."))
     extra = stat.analytic(pat, estimate) if len(counts) else {}
     details = dict(details or {})
     for key in ("se0", "kappa_max", "p_o", "p_e"):
@@ -565,6 +571,12 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         crit1 = special.stdtrit(df, 1 - eps) if df else special.ndtri(1 - eps)
         ci_low, ci_high, lower = (float(estimate - crit * se), float(estimate + crit * se),
                                   float(estimate - crit1 * se))
+        if ci_low < -1 or ci_high > 1:
+            ci_low, ci_high, lower = max(ci_low, -1.0), min(ci_high, 1.0), max(lower, -1.0)
+            warnings.append(Note("interval-clipped", f"The {'t' if df else 'normal'}-approximation interval of "
+                                 f"{display_name(stat.name)} ran past the coefficient's range and was cut at "
+                                 "[-1, 1]: with so few units or agreement this close to 1 the approximation is "
+                                 "poor; use the bootstrap (--boot) instead."))
         method = "t" if df else "wald"
         if minimum is not None and se > 0:
             t = (minimum - estimate) / se
@@ -754,7 +766,7 @@ def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | N
 
 
 def _pi_type(d: CodingData, name: str, kind: str, weights: Any, opts: dict, doc_notes=()) -> AgreementResult:
-    _check_q(d, name)
+    _check_q(d, display_name(name))
     w, label = agreement_weights(d, weights)
     stat = _ChanceCorrected(name=name, kind=kind, w=w,
                             undefined_reason="no pairable unit, or no expected disagreement (chance agreement is 1)")

@@ -198,4 +198,6 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
                               "per-code diagnostics."))
     for r in results.values():
         notes.extend(w for w in r.warnings if w.code == "undefined")
+    clustered = [w for r in results.values() for w in r.warnings if w.code == "few-clusters"]
+    notes.extend(clustered[:1])
     return notes

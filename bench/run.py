@@ -109,29 +109,35 @@ def bench_bootstrap(n_units, repeat):
 _MEMORY_SCRIPT = """
 import sys, numpy as np
 sys.path.insert(0, {root!r})
-from bench.run import _codes, _coding_data
-x = _codes({n}, 5, 20, seed=3)
+x = np.load({path!r})
 if {reference}:
     import krippendorff
     krippendorff.alpha(reliability_data=x.T.astype(float), level_of_measurement='nominal',
                        value_domain=list(range(20)))
 else:
     import agree
+    from bench.run import _coding_data
     agree.krippendorff_alpha(_coding_data(x), n_resamples=0)
 """
 
 
 def bench_memory(n_units, reference):
+    """Peak RSS of a fresh process that loads the codes (int32, from .npy) and computes alpha,
+    against one that only loads them and imports the package."""
     root = str(HERE.parent)
+    path = DATA / f"codes_{n_units}x5x20.npy"
+    if not path.exists():
+        DATA.mkdir(parents=True, exist_ok=True)
+        np.save(path, _codes(n_units, 5, 20, seed=3))
     out = {}
-    base_wall, base_mb, _ = _child([PY, "-c", "import sys, numpy as np; sys.path.insert(0, %r); "
-                                    "from bench.run import _codes; _codes(%d, 5, 20, 3)" % (root, n_units)])
-    out["data_only_mb"] = base_mb
-    wall, mb, _ = _child([PY, "-c", _MEMORY_SCRIPT.format(root=root, n=n_units, reference=False)])
+    _, base_mb, _ = _child([PY, "-c", f"import sys, numpy as np; sys.path.insert(0, {root!r}); import agree; "
+                                      f"x = np.load({str(path)!r})"])
+    out["load_only_mb"] = base_mb
+    wall, mb, _ = _child([PY, "-c", _MEMORY_SCRIPT.format(root=root, path=str(path), reference=False)])
     out["agree_mb"] = mb
     out["agree_s"] = wall
     if reference:
-        wall, mb, _ = _child([PY, "-c", _MEMORY_SCRIPT.format(root=root, n=n_units, reference=True)])
+        wall, mb, _ = _child([PY, "-c", _MEMORY_SCRIPT.format(root=root, path=str(path), reference=True)])
         out["reference_mb"] = mb
         out["reference_s"] = wall
     return out
@@ -191,7 +197,7 @@ def main(argv=None):
           f"extra/point {b['extra_over_point']:.2f}  total/point {b['total_over_point']:.2f}")
     print(f"memory, alpha on {n} x 5 coders x 20 categories (fresh process) ...", flush=True)
     m = result["memory"] = bench_memory(n, a.reference_memory)
-    print(f"  peak RSS agree {m['agree_mb']:.0f} MB (data alone {m['data_only_mb']:.0f} MB)"
+    print(f"  peak RSS agree {m['agree_mb']:.0f} MB (loading the codes and importing agree: {m['load_only_mb']:.0f} MB)"
           + (f", reference {m['reference_mb']:.0f} MB" if "reference_mb" in m else ""))
     print(f"agree score on a long CSV of {3 * n} rows (fresh processes) ...", flush=True)
     s = result["score"] = bench_score(n, a.repeat)

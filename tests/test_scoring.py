@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 
 import agree
+from agree.results import display_name
 from agree import coefficients as coef
 from agree.model import AgreeError
 from tests.conftest import as_float, as_labels, simulate_codes, warning_codes
@@ -213,7 +214,7 @@ def test_undefined_coefficients_are_nan_with_a_warning_and_json_none():
     assert r.coefficients["percent_agreement"].estimate == 1.0
     messages = [w.message for w in r.warnings if w.code == "undefined"]
     assert len(messages) == len(undefined)
-    assert {m.split(" is undefined")[0] for m in messages} == undefined
+    assert {m.split(" is undefined")[0] for m in messages} == {display_name(n) for n in undefined}
     out = json.loads(json.dumps(r.to_dict(), allow_nan=False))
     for name in undefined:
         assert out["coefficients"][name]["estimate"] is None

@@ -22,11 +22,12 @@ class TableFormat(str, Enum):
 
 
 MinOption = Annotated[Optional[float], typer.Option(
-    "--min", help="Minimum acceptable value (e.g. 0.8): adds the probability of lying below it and "
+    "--min", min=-1.0, max=1.0, help="Minimum acceptable value (e.g. 0.8): adds the probability of lying below it and "
                   "whether the one-sided lower bound clears it. A convention, not a law.")]
 BootOption = Annotated[int, typer.Option(
-    "--boot", help="Bootstrap replicates (units resampled with all their values); 0 for none.")]
+    "--boot", min=0, help="Bootstrap replicates (units resampled with all their values); 0 for none.")]
 SeedOption = Annotated[int, typer.Option("--seed", help="Seed of the bootstrap; the same seed repeats the run.")]
-CIOption = Annotated[float, typer.Option("--ci", help="Confidence level of the two-sided interval.")]
+CIOption = Annotated[float, typer.Option("--ci", min=0.5, max=0.9999,
+                                         help="Confidence level of the two-sided interval (e.g. 0.95).")]
 FormatOption = Annotated[TableFormat, typer.Option(
     "--format", help="table (readable), json (the library's to_dict()) or csv.")]

@@ -17,6 +17,7 @@ from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption,
                                SeedOption, TableFormat)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.format import format_interval, format_value
+from agree.results import display_name
 from agree.scoring import ScoreResult, score as run_score
 
 
@@ -27,19 +28,6 @@ class CIMethod(str, Enum):
 
 CIMethodOption = Annotated[CIMethod, typer.Option("--ci-method", help="Bootstrap interval: bca or percentile.")]
 
-LABELS = {
-    "percent_agreement": "Percent agreement",
-    "cohen_kappa": "Cohen's kappa",
-    "weighted_kappa_linear": "Weighted kappa (linear)",
-    "weighted_kappa_quadratic": "Weighted kappa (quadratic)",
-    "scott_pi": "Scott's pi",
-    "fleiss_kappa": "Fleiss' kappa",
-    "conger_kappa": "Conger's kappa",
-    "brennan_prediger": "Brennan-Prediger",
-    "gwet_ac1": "Gwet's AC1",
-    "gwet_ac2": "Gwet's AC2 (quadratic)",
-    "krippendorff_alpha": "Krippendorff's alpha",
-}
 
 
 @app.command()
@@ -76,6 +64,19 @@ def score(
         print_score(result)
 
 
+def _label(name: str, r, level: str) -> str:
+    """The display name, saying "unweighted" where the level would allow weights."""
+    label = display_name(name)
+    label = label[0].upper() + label[1:]
+    if name == "krippendorff_alpha" and r.level:
+        return f"{label} ({r.level} metric)"
+    if r.weights and r.weights not in label:
+        return f"{label} ({r.weights} weights)"
+    if level in ("ordinal", "interval", "ratio") and r.weights is None and name != "percent_agreement":
+        label += " (unweighted)"
+    return label
+
+
 def score_csv(result: ScoreResult) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
@@ -101,7 +102,7 @@ def print_score(result: ScoreResult) -> None:
         table.add_column(f"P(< {format_value(result.minimum, 'threshold')})", justify="right")
     for name, r in result.coefficients.items():
         ci = format_interval(r.ci_low, r.ci_high, 3)
-        row = [LABELS.get(name, name), format_value(r.estimate, digits=3), format_value(r.se, "se", 3), ci]
+        row = [_label(name, r, result.level), format_value(r.estimate, digits=3), format_value(r.se, "se", 3), ci]
         if result.minimum is not None:
             row.append(format_value(r.p_below_min, "probability"))
         table.add_row(*row)
@@ -119,7 +120,7 @@ def print_score(result: ScoreResult) -> None:
         more = f" and {len(result.units_left_out) - 10} more" if len(result.units_left_out) > 10 else ""
         stdout.print(f"Left out: {shown}{more}", highlight=False)
     for name, reason in result.skipped.items():
-        stdout.print(f"Not computed – {LABELS.get(name, name)}: {reason}", highlight=False)
+        stdout.print(f"Not computed – {display_name(name)}: {reason}", highlight=False)
     decision = result.decision()
     if decision is not None:
         stdout.print(f"Decision: {decision['sentence']}.", highlight=False)
