@@ -89,7 +89,7 @@ def read_codebook(path: str | Path, *, sheet: str | int | None = None, trim: boo
     from agree.readers import _find, _load_file
 
     name = str(path)
-    loaded = _load_file(Path(path), sheet=sheet, name=name)
+    loaded = _load_file(Path(path), sheet=sheet, name=name, sheet_option="a codebook sheet (sheet=...)")
     table = loaded.tables[0]
     frame = table.frame
     columns = list(frame.columns)

@@ -29,7 +29,18 @@ Several codes in one cell
 -------------------------
 When a text cell contains the separator (``sep``, ``;`` by default) every value becomes a set
 of codes (``CodingData.set_valued``). Spaces around each code are removed and empty pieces
-(``"a;;b"``, a trailing ``;``) are ignored.
+(``"a;;b"``, a trailing ``;``) are ignored. The notes say how many cells held several codes and
+where the first are; when they are under 5% of the coded cells the note is a warning (a slip
+in a few cells changes every coefficient). ``sep=None`` (``--sep ''``) never splits.
+
+Refused and checked
+-------------------
+A consensus file written by ``agree reconcile`` (a ``final code`` column, or a ``source``
+column of consensus sources) is refused unless the coder columns are named: agreement is
+computed on the coders' independent codes. At the ordinal level without a codebook, text among
+numbers (``NA`` among 1..5) is an error, as at the interval and ratio levels; at the nominal
+level text such as ``NA`` among numbers is read as a code, with a warning. With one file per
+coder, a kept per-unit column must give a unit the same value in every coder's file.
 
 Rows
 ----
@@ -79,6 +90,10 @@ KEEP_NAMES = ("round", "cluster", "document", "document_id", "doc", "doc_id", "g
               "note", "comment", "comments", "memo", "interview", "interview_id", "participant",
               "participant_id", "respondent", "respondent_id", "speaker", "thread", "thread_id",
               "wave", "session", "site", "source", "file")
+MULTI_SHOWN = 3  # cells with several codes named in the note
+MULTI_WARNING_SHARE = 0.05  # below this share of coded cells, several codes per cell is a warning
+# Free-text columns written beside the codes: per-coder notes in one file per coder.
+NOTE_NAMES = ("notes", "note", "comment", "comments", "memo", "memos", "remarks")
 MISSING_LOOKALIKES = {"na", "n/a", "nan", "null", "none", "-", "missing"}
 
 _MAGIC_ZIP = b"PK\x03\x04"
@@ -160,7 +175,7 @@ def _wrong_content(file: str, expected: str, kind: str) -> AgreeError:
                       code="wrong-extension")
 
 
-def _load_file(path: Path, *, sheet: Any, name: str) -> _Loaded:
+def _load_file(path: Path, *, sheet: Any, name: str, sheet_option: str = "--sheet (sheet=...)") -> _Loaded:
     ext = path.suffix.lower()
     if ext == ".xls":
         raise AgreeError("the old .xls format is not supported", where=name,
@@ -189,6 +204,12 @@ def _load_file(path: Path, *, sheet: Any, name: str) -> _Loaded:
         if kind != "zip":
             raise _wrong_content(name, "an Excel workbook", kind)
         return _load_workbook(path, sheet=sheet, name=name)
+    if sheet is not None:
+        what = "a Parquet file" if ext in PARQUET_EXTENSIONS else "a text (CSV/TSV) file"
+        raise AgreeError(f"{sheet_option} was given, but this is {what}: it has no worksheets",
+                         where=name, code="bad-option",
+                         hint="--sheet applies to .xlsx workbooks only; leave it out for CSV, TSV and "
+                              "Parquet files")
     if ext in PARQUET_EXTENSIONS:
         if kind != "parquet":
             raise _wrong_content(name, "a Parquet file", kind)
@@ -493,6 +514,16 @@ class _Stats:
         return out
 
 
+def _quoted(name: str) -> str:
+    """A column name as typed on a command line (quoted when it holds spaces or quotes)."""
+    return name if re.fullmatch(r"[\w.\-]+", name) else repr(name)
+
+
+def _looks_missing(v: Any) -> bool:
+    """Text that people write for a missing value (NA, n/a, null, -, missing, ...)."""
+    return isinstance(v, str) and v.strip().lower() in MISSING_LOOKALIKES
+
+
 def _factorize(col: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Codes (-1 for missing) and the distinct values as an object array."""
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
@@ -624,10 +655,16 @@ def _find(columns: Sequence[str], names: Sequence[str], exclude: Iterable[str] =
 def _require(table: _Table, column: str, what: str) -> str:
     if column in table.frame.columns:
         return column
-    close = difflib.get_close_matches(column, [str(c) for c in table.frame.columns], n=1)
-    hint = f"did you mean '{close[0]}'?" if close else f"columns: {', '.join(map(str, table.frame.columns))}"
-    raise AgreeError(f"there is no {what} column '{column}'", where=table.where(1), hint=hint,
-                     code="no-column")
+    raise AgreeError(f"there is no {what} column '{column}'", where=table.where(1),
+                     hint=_columns_hint(column, table.frame.columns), code="no-column")
+
+
+def _columns_hint(column: str, columns: Iterable, label: str = "columns") -> str:
+    """'did you mean ...? (columns: a, b, c)': always says which columns there are."""
+    names = [str(c) for c in columns]
+    close = difflib.get_close_matches(column, names, n=1)
+    listed = f"{label}: {', '.join(repr(c) for c in names)}"
+    return f"did you mean '{close[0]}'? ({listed})" if close else listed
 
 
 @dataclass
@@ -688,7 +725,7 @@ def _roles(table: _Table, layout: str, *, unit, coder, code, text, keep, single_
         r.coder = _require(table, coder, "coder") if isinstance(coder, str) else _find(cols, CODER_NAMES, taken)
         if r.coder is None:
             raise AgreeError("no coder column found", where=table.where(1), code="no-column",
-                             hint=f"name it with coder=... (columns: {', '.join(cols)})")
+                             hint=f"name it with --coder-col (coder=...) (columns: {', '.join(cols)})")
         taken.add(r.coder)
     r.text = _text_column(table, text, taken | set(_as_list(code)))
     if r.text is not None:
@@ -724,7 +761,8 @@ def _roles(table: _Table, layout: str, *, unit, coder, code, text, keep, single_
             else:
                 raise AgreeError(f"cannot tell which column holds the codes: {', '.join(rest)}",
                                  where=table.where(1), code="no-column",
-                                 hint="name it with code=... (or choose the layout)")
+                                 hint="name it with --code-col (code=...), or choose the layout with "
+                                      "--layout (layout=...)")
     else:
         r.presence = rest
     used = {r.code, *r.presence}
@@ -832,7 +870,7 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
         if len(files) > 1 and len(part.tables) > 1:
             raise AgreeError(f"the workbook has {len(part.tables)} sheets with data; with several files "
                              "each file must give one table", where=str(f), code="several-sheets",
-                             hint="choose the sheet with sheet=...")
+                             hint="choose the sheet with --sheet (sheet=...)")
         loaded.tables += part.tables
         loaded.notes += part.notes
         loaded.left_out += part.left_out
@@ -842,6 +880,9 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
     for t in tables:
         t.name = t.sheet if one_file and t.sheet is not None else Path(t.file).stem
 
+    if coder is None:
+        for t in tables:
+            _refuse_consensus(t)
     layout_kind = _choose_layout(tables, layout, coder=coder, code=code, unit=unit)
     builder = _Builder(tables, layout_kind, unit=unit, coder=coder, code=code, text=text, keep=keep,
                        sep=sep, trim=trim, casefold=casefold)
@@ -861,6 +902,35 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
     return data
 
 
+def _refuse_consensus(table: _Table) -> None:
+    """Refuse a consensus file written by `agree reconcile`: its final code is not a coder.
+
+    Recognised by a 'final code' column, or by a 'source' column whose values are all among
+    the consensus sources (agreed, decided, majority, ...). Checks distinct values only.
+    """
+    from agree.reconciliation import FINAL, SOURCE, SOURCES
+
+    by_key = {_key(c): c for c in table.frame.columns}
+    final = by_key.get(_key(FINAL))
+    source = by_key.get(_key(SOURCE))
+    sign = None
+    if final is not None:
+        sign = f"it has a '{final}' column"
+    elif source is not None:
+        col = table.frame[source].dropna()
+        found = {str(v).strip().lower() for v in pd.unique(col)} - {""}
+        if found and found <= set(SOURCES):
+            sign = f"its '{source}' column holds consensus sources ({', '.join(sorted(found))})"
+    if sign is None:
+        return
+    raise AgreeError(
+        f"this looks like a consensus file written by 'agree reconcile' ({sign}): agreement must be "
+        "computed on the coders' independent codes, not on the reconciled final code",
+        where=table.where(), code="consensus-file",
+        hint="score the original coding files; if you really mean to compare some of these columns, "
+             "name them with --coder-col (coder=[...])")
+
+
 def _choose_layout(tables: list[_Table], layout: str | None, *, coder, code, unit) -> str:
     """One of wide, long, per-coder, presence-long, presence-per-coder."""
     def has_coder(t):
@@ -875,7 +945,8 @@ def _choose_layout(tables: list[_Table], layout: str | None, *, coder, code, uni
     if layout == "wide":
         if several:
             raise AgreeError(f"the wide layout reads one table; got {len(tables)}", code="bad-layout",
-                             hint="give one file (and one sheet), or choose layout per-coder")
+                             hint="give one file (and one sheet), or choose --layout per-coder "
+                                  "(layout='per-coder')")
         return "wide"
     if layout == "long":
         return "long"
@@ -922,8 +993,10 @@ class _Builder:
                                  code="bad-layout", hint="give files of one kind")
             if roles[0].presence:
                 self.layout = "presence-" + self.layout
+        self._check_kept(roles)
         for t, r in zip(self.tables, roles):
             self._add_table(t, r)
+        self._report_unused(roles)
         if self.layout in ("per-coder", "presence-per-coder"):
             self._check_coder_names()
         self.detected = self._describe(roles)
@@ -943,9 +1016,6 @@ class _Builder:
                 frame[c].map(lambda v: normalise_value(v) is None).to_numpy()
         ti = len(self.table_units)
         self.table_units.append((unit_idx, ids))
-        if r.unused:
-            self.left_out.append(f"{cell_location(t.file, t.sheet)}: column(s) not used: "
-                                 f"{', '.join(repr(c) for c in r.unused)}")
         if self.layout == "wide":
             for c in r.coders:
                 self._piece(t, ti, np.full(len(frame), self._coder_index(str(c)), dtype=np.int64),
@@ -972,6 +1042,43 @@ class _Builder:
                 self._check_blank_coder(t, r, coder_idx, values, unit_idx)
                 blank = blank & (coder_idx < 0)
             self._piece(t, ti, coder_idx, values, None, blank)
+
+    def _check_kept(self, roles: list[_Roles]) -> None:
+        """A column asked for with `keep` must be in at least one table (one table: checked in
+        `_roles`); the error lists the columns there are."""
+        for k in self.opts["keep"]:
+            if any(k in r.keep for r in roles):
+                continue
+            if len(self.tables) == 1:
+                _require(self.tables[0], k, "kept")
+            t = self.tables[0]
+            raise AgreeError(f"there is no kept column '{k}' in any of the {len(self.tables)} tables read",
+                             where=t.where(1), code="no-column",
+                             hint=_columns_hint(k, t.frame.columns, f"columns of {t.where()}"))
+
+    def _report_unused(self, roles: list[_Roles]) -> None:
+        """Columns not used, once per table; with one file or sheet per coder, a column that no
+        table uses is reported once (per-coder notes, or a per-unit column that could be kept)."""
+        per_coder = self.layout in ("per-coder", "presence-per-coder") and len(self.tables) > 1
+        everywhere: list[str] = []
+        if per_coder:
+            everywhere = [c for c in roles[0].unused if all(c in r.unused for r in roles[1:])]
+        for t, r in zip(self.tables, roles):
+            rest = [c for c in r.unused if c not in everywhere]
+            if rest:
+                self.left_out.append(f"{cell_location(t.file, t.sheet)}: column(s) not used: "
+                                     f"{', '.join(repr(c) for c in rest)}")
+        if everywhere:
+            where = "sheet" if len({t.file for t in self.tables}) == 1 else "file"
+            described = []
+            for c in everywhere:
+                if _key(c) in NOTE_NAMES:
+                    described.append(f"'{c}' (per-coder notes)")
+                else:
+                    described.append(f"'{c}' (to keep it as a per-unit column: --keep {_quoted(c)} "
+                                     f"(keep=[{c!r}]))")
+            self.left_out.append(f"column(s) not used, in every coder's {where} ({len(self.tables)} {where}s): "
+                                 + ", ".join(described))
 
     def _coder_index(self, name: str) -> int:
         if name not in self.coders:
@@ -1090,7 +1197,7 @@ class _Builder:
             raise AgreeError(f"only one coder found ({names})" if m == 1 else "no coder found",
                              where=", ".join(dict.fromkeys(t.file for t in self.tables)), code="one-coder",
                              hint="agreement needs two or more coders; for one file per coder give all the files "
-                                  "(or check the detected layout and set it with layout=...)")
+                                  "(or check the detected layout and set it with --layout (layout=...))")
         # per cell arrays (concatenated over pieces)
         parts_unit, parts_coder, parts_value, parts_row, parts_source = [], [], [], [], []
         for p in self.pieces:
@@ -1209,7 +1316,7 @@ class _Builder:
             if level in ("interval", "ratio", "ordinal"):
                 raise AgreeError(f"several codes per cell (set-valued data) cannot be read at the {level} level",
                                  where=cell_of.first(self._first_multi(atoms_sets)), code="set-at-level",
-                                 hint="use level nominal, or one code per cell")
+                                 hint="use --level nominal (level='nominal'), or one code per cell")
             if book is not None and not presence:
                 mapping = self._codebook_map(book, parts, lambda a: [i for i, s in enumerate(atoms_sets) if a in s],
                                              cell_of)
@@ -1223,24 +1330,43 @@ class _Builder:
             else:
                 categories = sorted(parts, key=_sort_key)
             if not presence:
-                self.notes.append(f"several codes in one cell: read as sets of codes (split on '{self.sep}')")
+                self.notes.append(self._multi_note(atoms, atoms_sets, value, cell_of))
             values = sorted(set(atoms_sets), key=_sort_key)
             pos = {v: i for i, v in enumerate(values)}
             remap = np.array([pos[s] for s in atoms_sets] + [MISSING], dtype=np.int32)
-            self._case_space_hints(parts)
+            self._case_space_hints(parts, lambda a: cell_of.first_of_many(
+                [i for i, s in enumerate(atoms_sets) if a in s])[0])
             return values, categories, remap, True, "nominal"
 
         data_level = level
         text_atoms = [i for i, a in enumerate(atoms) if isinstance(a, str)]
-        if level in ("interval", "ratio") and text_atoms:
+        has_numbers = len(text_atoms) < len(atoms)
+        # ordinal without a codebook orders values by sorting them: text among numbers would land
+        # above the highest scale point (e.g. "NA" among 1..5), so refuse it
+        mixed_ordinal = level == "ordinal" and book is None and has_numbers
+        if text_atoms and (level in ("interval", "ratio") or mixed_ordinal):
             problems = []
             for i in text_atoms[:50]:
-                hint = "numbers only at this level; leave a cell empty for missing"
-                if _DECIMAL_COMMA.match(atoms[i]):
+                a = atoms[i]
+                if _looks_missing(a):
+                    hint = (f"'{a}' looks like a missing value: leave such cells empty (an empty cell "
+                            "is missing)")
+                elif _DECIMAL_COMMA.match(a):
                     hint = "write decimals with a point (1.5), not a comma"
-                problems.append(AgreeError(f"text at {level} level: '{atoms[i]}'", where=cell_of.first(i),
-                                           code="text-at-interval", hint=hint))
-            _raise_all(problems, f"text values at {level} level")
+                elif level == "ordinal":
+                    hint = ("numbers only at this level (leave a cell empty for missing), or give a "
+                            "codebook with an order column (--codebook) that places every code on the scale")
+                else:
+                    hint = "numbers only at this level; leave a cell empty for missing"
+                where, count = cell_of.first_of_many([i])
+                more = f" (and {count - 1} more cell{'s' * (count != 2)})" if count > 1 else ""
+                what = "text among numbers at ordinal level" if level == "ordinal" else f"text at {level} level"
+                problems.append(AgreeError(f"{what}: '{a}'{more}", where=where, hint=hint,
+                                           code="text-at-ordinal" if level == "ordinal" else "text-at-interval"))
+            _raise_all(problems, "text values among numbers at ordinal level" if level == "ordinal"
+                       else f"text values at {level} level")
+        if book is None and has_numbers:
+            self._lookalike_warnings(atoms, text_atoms, cell_of)
         if book is not None:
             mapping = self._codebook_map(book, atoms, lambda a: [atoms.index(a)], cell_of)
             values = list(book.categories)
@@ -1249,7 +1375,7 @@ class _Builder:
             if data_level is None:
                 data_level = "ordinal" if book.ordered else "nominal"
                 self.notes.append(f"level: {data_level} (from the codebook{' order' if book.ordered else ''}; "
-                                  "set it with level=...)")
+                                  "set it with --level (level=...))")
         else:
             values = sorted(atoms, key=_sort_key)
             pos = {v: i for i, v in enumerate(values)}
@@ -1257,13 +1383,48 @@ class _Builder:
             if data_level is None:
                 data_level = "nominal"
                 if values and not text_atoms:
-                    self.notes.append("level: nominal (numbers read as categories; set level=ordinal, "
-                                      "interval or ratio if the numbers are a scale)")
+                    self.notes.append("level: nominal (numbers read as categories; set --level ordinal, "
+                                      "interval or ratio (level=...) if the numbers are a scale)")
             elif data_level == "ordinal" and text_atoms:
                 self.notes.append("ordinal level without a codebook: categories ordered by sorting their "
                                   "names; give a codebook with an order column to set the order")
-        self._case_space_hints(atoms)
+        self._case_space_hints(atoms, lambda a: cell_of.first(atoms.index(a)))
         return values, values, remap, False, data_level
+
+    def _multi_note(self, atoms, atoms_sets, value, cell_of) -> str:
+        """Where the cells with several codes are, and what splitting them does to the analysis.
+        A warning when they are few (under 5% of the coded cells): likely a slip, not a design."""
+        multi = [i for i, s in enumerate(atoms_sets) if len(s) > 1]
+        n_multi = int(np.isin(value, multi).sum()) if multi else 0
+        n_coded = int((value >= 0).sum())
+        share = n_multi / n_coded if n_coded else 0.0
+        shown = cell_of.firsts(multi, MULTI_SHOWN)
+        places = "; ".join(f"{where}: {atoms[int(cell_of.value[pos])]!r}" for where, pos in shown)
+        more = ", ..." if n_multi > len(shown) else ""
+        verb = "holds" if n_multi == 1 else "hold"
+        what = (f"{n_multi} of {n_coded} coded cells ({share:.1%}) {verb} several codes separated by "
+                f"'{self.sep}' (first: {places}{more})")
+        stop = "--sep '' (sep=None) keeps each cell as one code"
+        if n_multi and share < MULTI_WARNING_SHARE:
+            return (f"warning: only {what}; because of {'it' if n_multi == 1 else 'them'} all the data are "
+                    "analysed as sets of codes (set-valued), which changes every coefficient. Check "
+                    f"{'that cell' if n_multi == 1 else 'those cells'}; {stop}")
+        return f"several codes in one cell: {what}; the data are analysed as sets of codes (set-valued); {stop}"
+
+    def _lookalike_warnings(self, atoms, text_atoms, cell_of) -> None:
+        """Text such as 'NA' among numeric codes: read as a code of its own, most likely meant as
+        missing. One warning per value (replacing the general note on such values)."""
+        for i in text_atoms:
+            a = atoms[i]
+            if not _looks_missing(a):
+                continue
+            for raw in [k for k in self.stats.lookalikes if k.strip().lower() == a.strip().lower()]:
+                del self.stats.lookalikes[raw]
+            where, count = cell_of.first_of_many([i])
+            self.notes.append(
+                f"warning: '{a}' among numeric codes looks like a missing value but is read as a code of "
+                f"its own ({count} cell{'s' * (count != 1)}; first: {where}); if it means 'not coded', "
+                "leave those cells empty")
 
     def _first_multi(self, atoms_sets):
         for i, s in enumerate(atoms_sets):
@@ -1297,6 +1458,9 @@ class _Builder:
                 close = difflib.get_close_matches(a.casefold(), [x.casefold() for x in names], n=1, cutoff=0.5)
                 close = [names[[x.casefold() for x in names].index(close[0])]] if close else []
             hint = f"closest codebook entry: '{close[0]}'" if close else "add it to the codebook or fix the cell"
+            if _looks_missing(a):
+                hint = (f"'{a}' looks like a missing value: leave such cells empty (an empty cell is "
+                        "missing), or add it to the codebook if it is a code")
             more = f" (and {count - 1} more cell{'s' * (count != 2)})" if count > 1 else ""
             problems.append(AgreeError(f"code '{a}' is not in the codebook{more}", where=where,
                                        hint=hint, code="unknown-code"))
@@ -1326,24 +1490,34 @@ class _Builder:
         _raise_all(problems, "code columns are not in the codebook")
         return mapping
 
-    def _case_space_hints(self, atoms):
+    def _case_space_hints(self, atoms, locate):
+        """Warn about codes that differ only in surrounding spaces or in case (they count as
+        different codes), naming the first cells; `locate(atom)` gives a cell holding it."""
         texts = [a for a in atoms if isinstance(a, str)]
+
+        def shown(group):
+            return " / ".join(f"{x!r} ({locate(x)})" for x in group[:3])
+
         if not self.trim:
             groups: dict[str, list[str]] = {}
             for a in texts:
                 groups.setdefault(a.strip(), []).append(a)
             clash = [g for g in groups.values() if len(g) > 1]
             if clash:
-                self.notes.append(f"{len(clash)} code(s) differ only in surrounding spaces (e.g. "
-                                  f"{' / '.join(repr(x) for x in clash[0])}); trim=True would merge them")
+                self.notes.append(
+                    f"warning: {len(clash)} code(s) differ only in spaces before or after them and count as "
+                    f"different codes: {shown(clash[0])}{' ...' if len(clash) > 1 else ''}; "
+                    "use --trim (trim=True) to merge them")
         if not self.casefold:
             groups = {}
             for a in texts:
                 groups.setdefault(a.strip().casefold(), []).append(a)
             clash = [g for g in groups.values() if len(set(x.strip() for x in g)) > 1]
             if clash:
-                self.notes.append(f"{len(clash)} code(s) differ only in upper/lower case (e.g. "
-                                  f"{' / '.join(repr(x) for x in clash[0])}); casefold=True would merge them")
+                self.notes.append(
+                    f"warning: {len(clash)} code(s) differ only in upper/lower case and count as different "
+                    f"codes: {shown(clash[0])}{' ...' if len(clash) > 1 else ''}; "
+                    "use --casefold (casefold=True) to merge them")
 
     def _extras(self, unit_ids, table_maps):
         """Per-unit text and kept columns: the first non-empty value of each unit."""
@@ -1355,27 +1529,61 @@ class _Builder:
         return text, columns
 
     def _per_unit(self, name, entries, unit_ids, table_maps) -> np.ndarray:
+        """The first non-empty value of each unit. In one file per coder a kept column must give a
+        unit the same value in every coder's file (an error naming the cells otherwise); elsewhere
+        differing values are counted in a note. Works on distinct values, not row by row."""
         n = len(unit_ids)
         arr = np.full(n, None, dtype=object)
-        filled = np.zeros(n, dtype=bool)
+        canon = np.full(n, None, dtype=object)  # the value as text, for comparisons
+        first_entry = np.full(n, -1, dtype=np.int64)
+        first_row = np.zeros(n, dtype=np.int64)
         conflicts = 0
-        for t, col in entries:
+        clashes: list[tuple[int, int, int, int, int, str, str]] = []  # (unit, entry, row, entry, row, v1, v2)
+        for e, (t, col) in enumerate(entries):
             ti = self.tables.index(t)
             local = self.table_units[ti][0]
             ok = local >= 0
-            g = table_maps[ti][local[ok]]
             series = col[ok].reset_index(drop=True)
-            present = series.notna().to_numpy()
-            if series.dtype == object:
-                present = present & series.map(lambda v: normalise_value(v) is not None).to_numpy()
-            g, vals = g[present], series[present].to_numpy(dtype=object)
+            fcodes, uniques = _factorize(series)
+            keep_u = np.array([normalise_value(v) is not None for v in uniques] + [False], dtype=bool)
+            text_u = np.array([str(normalise_value(v)).strip() for v in uniques] + [""], dtype=object)
+            present = keep_u[fcodes]
+            g = table_maps[ti][local[ok]][present]
+            vals = series.to_numpy(dtype=object)[present]
+            txt = text_u[fcodes[present]]
+            rws = t.rows[ok][present]
             first_g, first_pos = np.unique(g, return_index=True)
-            new = ~filled[first_g]
-            arr[first_g[new]] = vals[first_pos[new]]
-            filled[first_g] = True
             if len(g) > len(first_g):
-                frame = pd.DataFrame({"g": g, "v": pd.Series(vals, dtype=object).astype(str)})
+                frame = pd.DataFrame({"g": g, "v": txt})
                 conflicts += int((frame.groupby("g")["v"].nunique() > 1).sum())
+            new = first_entry[first_g] < 0
+            old_g, old_pos = first_g[~new], first_pos[~new]
+            differ = canon[old_g] != txt[old_pos]
+            for u, pos in zip(old_g[differ][:20], old_pos[differ][:20]):
+                clashes.append((int(u), int(first_entry[u]), int(first_row[u]), e, int(rws[pos]),
+                                str(canon[u]), str(txt[pos])))
+            conflicts += int(differ.sum())
+            ng, npos = first_g[new], first_pos[new]
+            arr[ng], canon[ng] = vals[npos], txt[npos]
+            first_entry[ng], first_row[ng] = e, rws[npos]
+        if clashes and self.layout in ("per-coder", "presence-per-coder") and name != "text":
+            problems = []
+            for u, e1, r1, e2, r2, v1, v2 in clashes[:20]:
+                (t1, _), (t2, _) = entries[e1], entries[e2]
+                problems.append(AgreeError(
+                    f"column '{name}' gives unit '{unit_ids[u]}' different values in the coders' files: "
+                    f"'{v1}' ({t1.where(r1, name)}) and '{v2}' ({t2.where(r2, name)})",
+                    where=t2.where(r2, name), code="kept-conflict",
+                    hint=f"a kept per-unit column must give each unit the same value in every coder's file; "
+                         f"correct the cells, or do not keep '{name}'"))
+            if len(problems) == 1 and conflicts == 1:
+                raise problems[0]
+            if conflicts > len(problems):
+                problems.append(AgreeError(f"... and {conflicts - len(problems)} more", code="kept-conflict"))
+            first = problems[0]
+            raise AgreeError(f"{conflicts} values of '{name}' differ between the coders' files; first: "
+                             f"{first.message}", hint=first.hint, where=first.where, code=first.code,
+                             problems=problems)
         if conflicts:
             self.notes.append(f"column '{name}': {conflicts} unit(s) have different values on different "
                               "rows; the first was kept")
@@ -1406,6 +1614,14 @@ class _CellFinder:
     def first(self, index: int) -> str:
         hit = np.flatnonzero(self.value == index)
         return self._where(int(hit[0])) if hit.size else ""
+
+    def firsts(self, indices: list[int], k: int) -> list[tuple[str, int]]:
+        """The first `k` cells (by source, then row) holding any of `indices`: (where, position)."""
+        hit = np.flatnonzero(np.isin(self.value, indices))
+        if not hit.size:
+            return []
+        order = np.lexsort((self.rows[hit], self.source[hit]))[:k]
+        return [(self._where(int(hit[o])), int(hit[o])) for o in order]
 
     def first_of_many(self, indices: list[int]) -> tuple[str, int]:
         hit = np.flatnonzero(np.isin(self.value, indices))

@@ -96,3 +96,12 @@ def test_codebook_object_validates():
     assert Codebook(("a", 1.0, "b")).categories == ("a", 1, "b")
     with pytest.raises(AgreeError, match="more than once"):
         Codebook(("a", "b", "a"))
+
+
+def test_sheet_for_a_csv_codebook_is_an_error(tmp_path):
+    path = tmp_path / "cb.csv"
+    pd.DataFrame({"code": ["praise", "complaint"]}).to_csv(path, index=False)
+    with pytest.raises(AgreeError) as e:
+        read_codebook(path, sheet="codes")
+    assert e.value.code == "bad-option" and e.value.where == str(path)
+    assert "codebook sheet" in e.value.message

@@ -324,8 +324,15 @@ def test_trim_and_casefold_notes(tmp_path):
     path = write(frame, tmp_path / "t.csv")
     raw = read(path)
     assert len(raw.values) == 6
-    assert any("surrounding spaces" in n for n in raw.report.notes)
-    assert any("upper/lower case" in n for n in raw.report.notes)
+    spaces = [n for n in raw.report.notes if "spaces before or after" in n]
+    case = [n for n in raw.report.notes if "upper/lower case" in n]
+    assert len(spaces) == 1 and len(case) == 1
+    # warnings that name the cells and the CLI flag (Python keyword in parentheses)
+    assert spaces[0].startswith("warning:") and "--trim (trim=True)" in spaces[0]
+    assert "'joy' (" in spaces[0] and "t.csv, row 4, column 'ana')" in spaces[0]
+    assert "' joy' (" in spaces[0] and "t.csv, row 2, column 'ben')" in spaces[0]
+    assert case[0].startswith("warning:") and "--casefold (casefold=True)" in case[0]
+    assert "'Joy ' (" in case[0] and "t.csv, row 2, column 'ana')" in case[0]
     data = read(path, trim=True, casefold=True)
     assert data.values == ("anger", "joy")
     assert list(data.unit_ids) == ["u1", "u2", "u3"]
@@ -638,3 +645,188 @@ def test_reading_options_parse_with_typer(tmp_path):
     result = CliRunner().invoke(app, [str(path), "--coder-col", "who", "--level", "ordinal", "--trim"])
     assert result.exit_code == 0, result.output
     assert "ordinal ana,ben,chloe 3" in result.stdout
+
+
+# -- user review: reading pitfalls ----------------------------------------------------------------
+def test_consensus_file_is_refused_unless_coder_columns_are_named(tmp_path):
+    from agree.reconciliation import reconcile, write_consensus, write_review
+
+    data = read(write(wide_frame(), tmp_path / "coding.csv"))
+    write_review(data, tmp_path / "review.csv")
+    consensus = reconcile(data, tmp_path / "review.csv", allow_unresolved=True)
+    out = write_consensus(consensus, tmp_path / "consensus.csv", data=data)
+    with pytest.raises(AgreeError) as e:
+        read(out)
+    assert e.value.code == "consensus-file"
+    assert "independent codes" in e.value.message and "final code" in e.value.message
+    assert "original coding files" in e.value.hint and "--coder-col" in e.value.hint
+    # naming the coder columns means the user wants exactly those: no refusal
+    again = read(out, coder=CODERS)
+    assert again.coders == tuple(CODERS)
+    np.testing.assert_array_equal(again.codes, data.codes)
+
+
+def test_consensus_recognised_by_its_source_column(tmp_path):
+    from agree.reconciliation import SOURCES
+
+    frame = wide_frame().drop(columns=["excerpt"])
+    frame["agreed code"] = ["complaint", "praise", "complaint", "complaint"]
+    frame["source"] = [SOURCES[0], SOURCES[1], SOURCES[4], " Majority "]
+    with pytest.raises(AgreeError) as e:
+        read(write(frame, tmp_path / "c.xlsx"))
+    assert e.value.code == "consensus-file" and "'source' column" in e.value.message
+    # a 'source' column with other values is an ordinary per-unit column
+    frame["source"] = ["web", "phone", "web", "paper"]
+    data = read(write(frame, tmp_path / "ok.xlsx"))
+    assert "source" in data.columns
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".tsv", ".parquet"])
+def test_sheet_option_for_a_file_without_sheets_is_an_error(tmp_path, suffix):
+    path = write(wide_frame(), tmp_path / f"w{suffix}")
+    with pytest.raises(AgreeError) as e:
+        read(path, sheet="coding")
+    assert e.value.code == "bad-option"
+    assert e.value.where == str(path) and "--sheet" in e.value.message
+
+
+def _multi_frame(n_multi: int, n: int = 40) -> pd.DataFrame:
+    frame = pd.DataFrame({"unit": [f"u{i}" for i in range(n)], "ana": ["Burnout"] * n,
+                          "ben": ["Support"] * n})
+    frame.loc[3, "ana"] = "Burnout; Time pressure"
+    frame.loc[:n_multi - 2, "ben"] = "Support;Burnout"
+    return frame
+
+
+def test_few_cells_with_several_codes_are_a_warning_naming_the_cells(tmp_path, capsys):
+    path = write(_multi_frame(1), tmp_path / "m.csv")
+    data = read(path)
+    assert data.set_valued  # still split, as the spec says
+    [line] = [n for n in data.report.notes if "several codes" in n]
+    assert line.startswith("warning:")
+    assert "1 of 80 coded cells (1.2%) holds several codes" in line
+    assert "m.csv, row 5, column 'ana': 'Burnout; Time pressure'" in line
+    assert "sets of codes" in line and "--sep ''" in line
+    r.report_reading(data)
+    err = capsys.readouterr().err
+    assert "\nwarning: only 1 of 80" in err and "note: warning" not in err
+    assert not read(path, sep=None).set_valued
+
+
+def test_many_cells_with_several_codes_are_a_note(tmp_path):
+    data = read(write(_multi_frame(12), tmp_path / "m.csv"))
+    [line] = [n for n in data.report.notes if "several codes" in n]
+    assert line.startswith("several codes in one cell: 12 of 80 coded cells (15.0%)")
+    assert line.count("row ") == 3 and ", ...)" in line  # the first three cells, then '...'
+    assert "--sep '' (sep=None)" in line
+
+
+def test_text_among_numbers_at_ordinal_level_is_an_error(tmp_path):
+    frame = pd.DataFrame({"unit": list("abcd"), "x": ["1", "2", "NA", "5"], "y": ["2", "low", "3", "4"]})
+    path = write(frame, tmp_path / "o.csv")
+    with pytest.raises(AgreeError) as e:
+        read(path, level="ordinal")
+    assert e.value.code == "text-at-ordinal"
+    msgs = {p.message: p for p in e.value.problems}
+    na = msgs["text among numbers at ordinal level: 'NA'"]
+    assert "row 4, column 'x'" in na.where and "looks like a missing value" in na.hint
+    low = msgs["text among numbers at ordinal level: 'low'"]
+    assert "row 3, column 'y'" in low.where
+    assert "numbers only at this level" in low.hint and "codebook with an order column" in low.hint
+    # with a codebook order the text codes have a place on the scale
+    book = Codebook(categories=(1, 2, "low", 3, 4, 5, "NA"), ordered=True)
+    assert read(path, level="ordinal", codebook=book).values == book.categories
+    # text-only codes at ordinal level without a codebook still read (ordered by name, with a note)
+    words = pd.DataFrame({"unit": ["a", "b"], "x": ["low", "high"], "y": ["low", "low"]})
+    assert read(write(words, tmp_path / "w.csv"), level="ordinal").values == ("high", "low")
+
+
+def test_missing_lookalike_among_numbers(tmp_path):
+    frame = pd.DataFrame({"unit": list("abc"), "x": ["1", "n/a", "3"], "y": ["2", "n/a", "3"]})
+    path = write(frame, tmp_path / "n.csv")
+    data = read(path)  # nominal: read as a code of its own, with a warning
+    warn = [n for n in data.report.notes if "n/a" in n]
+    assert len(warn) == 1 and warn[0].startswith("warning: 'n/a' among numeric codes looks like a missing")
+    assert "2 cells" in warn[0] and "row 3, column 'x'" in warn[0] and "leave those cells empty" in warn[0]
+    with pytest.raises(AgreeError) as e:
+        read(path, level="interval")
+    assert "looks like a missing value" in e.value.hint
+    with pytest.raises(AgreeError) as e:
+        read(path, codebook=Codebook(categories=(1, 2, 3)))
+    assert e.value.code == "unknown-code" and "looks like a missing value" in e.value.hint
+
+
+def test_hints_name_cli_flags(tmp_path):
+    path = write(long_frame().rename(columns={"coder": "who"}), tmp_path / "l.csv")
+    with pytest.raises(AgreeError) as e:
+        read(path, layout="long")
+    assert "--coder-col (coder=...)" in e.value.hint
+    frame = pd.DataFrame({"unit": ["a", "b"], "x": ["1", "2"], "y": ["2", "2"]})
+    data = read(write(frame, tmp_path / "n.csv"))
+    assert any("--level ordinal" in n for n in data.report.notes)
+    with pytest.raises(AgreeError) as e:
+        read(write(_multi_frame(1), tmp_path / "m.csv"), level="ordinal")
+    assert "--level nominal (level='nominal')" in e.value.hint
+    import agree.readers as readers_module
+    import inspect
+    source = inspect.getsource(readers_module)
+    for bare in ('"name it with coder=', "set it with level=", "; trim=True would", "; casefold=True would"):
+        assert bare not in source
+
+
+def _coder_workbook(path, units, interviews, codes, notes=None):
+    frame = pd.DataFrame({"unit_id": units, "interview": interviews,
+                          "text": [f"synthetic excerpt {u}" for u in units], "code": codes,
+                          "notes": notes or [None] * len(units)})
+    frame.to_excel(path, index=False, sheet_name="coding")
+    return path
+
+
+def test_per_coder_files_keep_a_grouping_column(tmp_path):
+    units = ["u1", "u2", "u3", "u4"]
+    a = _coder_workbook(tmp_path / "ana.xlsx", units, ["i1", "i1", "i2", "i2"], ["x", "y", "x", "x"],
+                        notes=["unsure", None, None, None])
+    # ben got the units in another order (a shuffled coding workbook)
+    b = _coder_workbook(tmp_path / "ben.xlsx", units[::-1], ["i2", "i2", "i1", "i1"], ["x", "y", "y", "x"])
+    data = read([a, b], keep=["interview"])
+    assert list(data.columns["interview"]) == ["i1", "i1", "i2", "i2"]
+    # notes are each coder's own: reported once, not once per file
+    assert data.report.left_out == ("column(s) not used, in every coder's file (2 files): "
+                                    "'notes' (per-coder notes)",)
+    plain = read([a, b])
+    [line] = plain.report.left_out
+    assert "--keep interview (keep=['interview'])" in line and "'notes' (per-coder notes)" in line
+    # the CLI keeps the cluster column too
+    assert list(r.load_data([a, b], cluster="interview").columns["interview"]) == ["i1", "i1", "i2", "i2"]
+
+
+def test_per_coder_grouping_values_must_agree(tmp_path):
+    units = ["u1", "u2", "u3"]
+    a = _coder_workbook(tmp_path / "ana.xlsx", units, ["i1", "i1", "i2"], ["x", "y", "x"])
+    b = _coder_workbook(tmp_path / "ben.xlsx", units, ["i1", "i9", "i2"], ["x", "y", "y"])
+    with pytest.raises(AgreeError) as e:
+        read([a, b], keep=["interview"])
+    err = e.value
+    assert err.code == "kept-conflict"
+    assert "unit 'u2'" in err.message and "'i1'" in err.message and "'i9'" in err.message
+    assert "ana.xlsx, sheet 'coding', row 3, column 'interview'" in err.message
+    assert err.where.endswith("ben.xlsx, sheet 'coding', row 3, column 'interview'")
+
+
+def test_missing_kept_column_lists_the_columns(tmp_path):
+    path = write(wide_frame(), tmp_path / "w.csv")
+    with pytest.raises(AgreeError) as e:
+        read(path, keep=["round"])
+    assert e.value.code == "no-column" and "kept column 'round'" in e.value.message
+    assert "columns: 'excerpt_id', 'excerpt', 'ana', 'ben', 'chloe'" in e.value.hint
+    with pytest.raises(AgreeError) as e:
+        read(path, keep=["excerpts"])
+    assert "did you mean 'excerpt'?" in e.value.hint and "'chloe'" in e.value.hint
+    # one file per coder: absent from every file
+    units = ["u1", "u2"]
+    a = _coder_workbook(tmp_path / "ana.xlsx", units, ["i1", "i2"], ["x", "y"])
+    b = _coder_workbook(tmp_path / "ben.xlsx", units, ["i1", "i2"], ["x", "x"])
+    with pytest.raises(AgreeError) as e:
+        r.load_data([a, b], keep=["round"])
+    assert "no kept column 'round' in any of the 2 tables" in e.value.message
+    assert "'unit_id', 'interview', 'text', 'code', 'notes'" in e.value.hint

@@ -53,7 +53,8 @@ TextOption = Annotated[Optional[str], typer.Option("--text-col", help="Column wi
 SheetOption = Annotated[Optional[list[str]], typer.Option(
     "--sheet", help="Worksheet to read (repeat for one sheet per coder). Default: every sheet with data.")]
 SepOption = Annotated[str, typer.Option(
-    "--sep", help="Separator between several codes in one cell; '' never splits.")]
+    "--sep", help="Separator between several codes in one cell (any such cell makes the whole data set "
+                  "sets of codes); '' never splits: each cell is one code.")]
 CodebookOption = Annotated[Optional[Path], typer.Option(
     "--codebook", help="Codebook file (CSV/XLSX: code, optional order, optional description). "
                        "Fixes the category order and keeps unused codes; unknown codes are errors.")]
@@ -142,6 +143,7 @@ def report_reading(data: CodingData) -> None:
     note(f"read {report.units_read} units, {len(data.coders)} coders, {report.values_read} values "
          f"({report.values_missing} missing): {report.detected}")
     for line in report.notes:
-        note(f"note: {line}")
+        # warning-level notes start with "warning:" and are shown as they are, so they stand out
+        note(line if line.startswith("warning:") else f"note: {line}")
     for line in report.left_out:
         note(f"left out: {line}")
