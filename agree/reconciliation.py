@@ -116,12 +116,15 @@ class Consensus:
 
     Attributes
     ----------
-    table : one row per unit of the input, in input order: ``unit``, ``text`` (when the data
+    table : one row per unit of the input, in input order: ``unit``, the data's other
+        per-unit columns (e.g. ``interview``), ``text`` (when the data
         have it), ``final code`` (the value itself, a frozenset for set-valued data, None when
         there is none), ``source`` (one of ``SOURCES``), ``how decided``, ``decided by``,
         ``notes``, then one column per coder with the coder's independent code.
     units_read, agreed, decided, majority : unit counts by source.
     unresolved : ids of units that still need a decision (written with an empty final code).
+    unresolved_rows : their rows in the review sheet, as the spreadsheet counts them (None
+        for a unit the review file does not list).
     left_out : (unit id, why) for units fewer than two coders coded and nobody decided.
     review : the review file read (or "table" for a DataFrame).
     notes : anything the user should know (e.g. a data file changed since the review).
@@ -136,6 +139,7 @@ class Consensus:
     left_out: tuple[tuple[str, str], ...]
     review: str = "table"
     notes: tuple[str, ...] = ()
+    unresolved_rows: tuple[int | None, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -146,6 +150,7 @@ class Consensus:
             "majority": self.majority,
             "unresolved": len(self.unresolved),
             "unresolved_units": list(self.unresolved),
+            "unresolved_review_rows": list(self.unresolved_rows),
             "left_out": len(self.left_out),
             "left_out_units": [{"unit": u, "reason": r} for u, r in self.left_out],
             "written": int(len(self.table)),
@@ -254,7 +259,9 @@ def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
 
     Returns
     -------
-    DataFrame with columns ``unit``, ``text`` (when the data have unit text), ``status``
+    DataFrame with columns ``unit``, the data's other per-unit columns for context (e.g.
+    ``interview``; renamed "<name> (data)" if the name clashes), ``text`` (when the data have
+    unit text), ``status``
     (with `include_agreed`), one column per coder (the coder's code; empty when the coder
     did not code the unit), ``codes involved``, ``definitions`` (when the codebook has
     definitions), and the empty ``decision``, ``how decided``, ``decided by`` and ``notes``
@@ -275,11 +282,15 @@ def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
     labels = _value_labels(data)
     reserved = [UNIT, TEXT, STATUS, CODES_INVOLVED, DEFINITIONS, DECISION, HOW, WHO, NOTES]
     columns: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids[rows]]}
+    kept = _kept_headers(data, reserved)
+    for name, header in kept.items():
+        columns[header] = [_text(v) for v in np.asarray(data.columns[name], dtype=object)[rows]]
     if data.text is not None:
         columns[TEXT] = [_text(t) for t in data.text[rows]]
     if include_agreed:
         columns[STATUS] = np.where(status.needs_review[rows], "disagreement", "agreed").tolist()
-    for header, j in zip(_coder_headers(data.coders, reserved), range(data.n_coders)):
+    for header, j in zip(_coder_headers(data.coders, reserved + list(kept.values())),
+                         range(data.n_coders)):
         columns[header] = labels[data.codes[rows, j]].tolist()
     involved = [_codes_involved(data, data.codes[i]) for i in rows]
     order = _category_order(data)
@@ -289,6 +300,20 @@ def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
     for blank in (DECISION, HOW, WHO, NOTES):
         columns[blank] = [""] * len(rows)
     return pd.DataFrame(columns, dtype=object)
+
+
+def _kept_headers(data: CodingData, reserved: Sequence[str]) -> dict[str, str]:
+    """Headers for the data's other per-unit columns (e.g. an interview or round column),
+    shown for context. A name that clashes with a fixed column or a coder gets " (data)"."""
+    taken = {r.lower() for r in reserved} | {str(c).lower() for c in data.coders}
+    headers = {}
+    for name in data.columns or {}:
+        header = str(name)
+        while header.lower() in taken:
+            header = f"{header} (data)"
+        taken.add(header.lower())
+        headers[name] = header
+    return headers
 
 
 def _text(value: Any) -> str:
@@ -314,34 +339,71 @@ def _definitions(codebook: Mapping[Any, str], involved: Sequence[Any],
 
 
 # -- confused pairs ------------------------------------------------------------------------
+PAIR_UNITS = "units (one coder code 1, another code 2)"
+PAIRS_NOTE = ("The units column counts the units in which one coder gave code 1 and another coder gave "
+              "code 2 (for set-valued codes: one applied code 1 and not code 2, another code 2 "
+              "and not code 1). A unit counts once per pair, however many coders it had, so a "
+              "unit with three different codes counts for three pairs.")
+
+
+def _pair_units(data: CodingData) -> np.ndarray:
+    """(V, V) integer counts: units in which one coder gave value c and another value k.
+
+    Notes
+    -----
+    With presence G_uc = [some coder of unit u gave c], count_ck = Σ_u G_uc G_uk (c ≠ k), over
+    units with at least two values. For set-valued data X_uic = [coder i applied code c] and
+    count_ck = Σ_u [∃i: X_uic ¬X_uik] [∃j: X_ujk ¬X_ujc]. Unlike the coincidences o_ck (which
+    weigh each unit's pairs by 1 / (m_u - 1)), these are whole units.
+    """
+    codes = data.codes
+    pairable = (codes >= 0).sum(axis=1) >= 2
+    if data.set_valued:
+        cats = list(data.categories)
+        member = np.array([[c in v for c in cats] for v in data.values] + [[False] * len(cats)],
+                          dtype=bool).reshape(len(data.values) + 1, len(cats))
+        x = member[codes[pairable]]                                     # (N, m, C)
+        only = x[:, :, :, None] & ~x[:, :, None, :]                     # coder has c, not k
+        some = only.any(axis=1)                                         # (N, C, C)
+        both = some & np.swapaxes(some, 1, 2)
+        return both.sum(axis=0).astype(np.int64)
+    n_values = len(data.values)
+    given = np.zeros((int(pairable.sum()), n_values + 1), dtype=np.int64)
+    rows, cols = np.nonzero(codes[pairable] >= 0)
+    given[rows, codes[pairable][rows, cols]] = 1
+    given = given[:, :n_values]
+    counts = given.T @ given
+    np.fill_diagonal(counts, 0)
+    return counts
+
+
 def _confused_pairs(data: CodingData) -> pd.DataFrame:
     """The pairs of codes the coders confused, most often first.
 
-    ``times confused`` is the off-diagonal coincidence o_ck (Krippendorff 2011), from
-    `agree.diagnostics.confusion_table`: with two coders, the number of units where one
-    gave c and the other k; with more coders each unit's disagreeing pairs weigh
-    1 / (m_u - 1). With exactly two coders the directed counts are added. Set-valued data
-    are compared code by code.
+    The `PAIR_UNITS` column is the number of units in which one coder gave code 1 and another
+    code 2 (a whole number; see `_pair_units`). With exactly two coders the two directions are shown
+    as well, from `agree.diagnostics.confusion_table` (they add up to ``units``). Set-valued
+    data are compared code by code.
     """
     from agree.diagnostics import confusion_table
 
     order = _category_order(data)
-    o = confusion_table(data)
-    labels = [_label(c, order) for c in o.index]
+    labels = [_label(c, order) for c in (data.categories if data.set_valued else data.values)]
+    counts = _pair_units(data)
     k, l = np.triu_indices(len(labels), 1)
-    times = o.to_numpy()[k, l]
-    keep = times > 0
-    k, l, times = k[keep], l[keep], times[keep]
-    rank = np.lexsort((l, k, -times))
-    k, l, times = k[rank], l[rank], times[rank]
+    units = counts[k, l]
+    keep = units > 0
+    k, l, units = k[keep], l[keep], units[keep]
+    rank = np.lexsort((l, k, -units))
+    k, l, units = k[rank], l[rank], units[rank]
     names = np.array(labels, dtype=object)
     frame = pd.DataFrame({"code 1": names[k].tolist(), "code 2": names[l].tolist(),
-                          "times confused": times.tolist()})
+                          PAIR_UNITS: [int(u) for u in units]})
     if data.n_coders == 2:
         a, b = data.coders
         directed = confusion_table(data, directed=True).to_numpy()
-        frame[f"{a} says code 1, {b} says code 2"] = directed[k, l].tolist()
-        frame[f"{a} says code 2, {b} says code 1"] = directed[l, k].tolist()
+        frame[f"{a} says code 1, {b} says code 2"] = [int(round(v)) for v in directed[k, l]]
+        frame[f"{a} says code 2, {b} says code 1"] = [int(round(v)) for v in directed[l, k]]
     return frame
 
 
@@ -427,7 +489,8 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
     The xlsx workbook has three sheets: "Review" (the list, with a drop-down of the
     codebook's codes on the decision column and of discussion / adjudicator / majority on
     "how decided"; frozen header and unit column; wrapped text), "Confused pairs" (which
-    codes were given to the same unit, with counts) and "About this file" (inputs with
+    codes were given to the same unit, with whole-unit counts and a note saying what they
+    count) and "About this file" (inputs with
     checksums, date and time, agree version, options, and the number of units read, agreed,
     needing review and left out, with the left-out units named).
     """
@@ -587,6 +650,8 @@ def _list_source(wb: Any, name: str, labels: Sequence[str], column: int) -> str:
 def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: pd.DataFrame,
                        about: list[tuple[Any, Any]]) -> None:
     from openpyxl import Workbook
+    from openpyxl.comments import Comment
+    from openpyxl.styles import Font
     from openpyxl.utils import get_column_letter
     from openpyxl.worksheet.datavalidation import DataValidation
 
@@ -628,6 +693,11 @@ def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: p
     pairs_ws = wb.create_sheet(PAIRS_SHEET, 1)
     _fill_sheet(pairs_ws, list(pairs.columns), pairs.itertuples(index=False))
     pairs_ws.freeze_panes = "A2"
+    units_header = pairs_ws.cell(row=1, column=list(pairs.columns).index(PAIR_UNITS) + 1)
+    units_header.comment = Comment(PAIRS_NOTE, "agree", width=320, height=120)
+    note_row = len(pairs) + 3
+    _put(pairs_ws.cell(row=note_row, column=1), "note: " + PAIRS_NOTE)
+    pairs_ws.cell(row=note_row, column=1).font = Font(italic=True)
 
     about_ws = wb.create_sheet(ABOUT_SHEET, 2)
     _fill_sheet(about_ws, ["item", "value"], about, max_width=90)
@@ -825,6 +895,15 @@ def _listed(items: Sequence[str], limit: int = _UNRESOLVED_SHOWN) -> str:
     return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
 
 
+def unresolved_listing(units: Sequence[str], rows: Sequence[int | None],
+                       limit: int = _UNRESOLVED_SHOWN) -> str:
+    """Unit ids with their review-sheet rows (as the spreadsheet counts them), in sheet order:
+    "'u4' (row 3), 'u9' (row 7) and 12 more"."""
+    pairs = sorted(zip(units, rows), key=lambda p: (p[1] is None, p[1] or 0))   # down the sheet
+    items = [f"'{u}'" + (f" (row {r})" if r is not None else "") for u, r in pairs]
+    return _listed(items, limit)
+
+
 def _rows_text(rows: Sequence[int]) -> str:
     return ("row " if len(rows) == 1 else "rows ") + ", ".join(str(r) for r in rows)
 
@@ -968,15 +1047,22 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
         origin[undecided[has]] = "majority"
         how[undecided[has]] = "majority"
 
-    unresolved = tuple(str(u) for u in data.unit_ids[origin == "unresolved"])
+    open_units = np.nonzero(origin == "unresolved")[0]
+    unresolved = tuple(str(u) for u in data.unit_ids[open_units])
+    unresolved_rows = tuple(annotations[u].row if u in annotations else None for u in open_units)
     if unresolved and not allow_unresolved:
-        raise AgreeError(f"{len(unresolved)} units still need a decision: {_listed(list(unresolved))}",
-                         where=source.name, code="unresolved",
+        n_open = len(unresolved)
+        verb = "unit still needs" if n_open == 1 else "units still need"
+        where = cell_location(source.name, source.sheet) if source.sheet else source.name
+        raise AgreeError(f"{n_open} {verb} a decision: {unresolved_listing(unresolved, unresolved_rows)}",
+                         where=where, code="unresolved",
                          hint="fill in the decision column, or use --allow-unresolved "
                               "(allow_unresolved=True) to write them with an empty final code"
                               + ("" if majority else ", or --majority to take a strict majority"))
 
     table: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids]}
+    for name, header in _kept_headers(data, [UNIT, TEXT, FINAL, SOURCE, HOW, WHO, NOTES]).items():
+        table[header] = [_text(v) for v in np.asarray(data.columns[name], dtype=object)]
     if data.text is not None:
         table[TEXT] = [_text(t) for t in data.text]
     table.update({FINAL: final.tolist(), SOURCE: origin.tolist(), HOW: how.tolist(),
@@ -989,7 +1075,8 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
     return Consensus(table=pd.DataFrame(table, dtype=object), units_read=n,
                      agreed=counts["agreed"], decided=counts["decided"],
                      majority=counts["majority"], unresolved=unresolved, left_out=left,
-                     review=source.name, notes=_changed_inputs(data, source))
+                     review=source.name, notes=_changed_inputs(data, source),
+                     unresolved_rows=unresolved_rows)
 
 
 def _strict_majority(data: CodingData, units: np.ndarray) -> np.ndarray:

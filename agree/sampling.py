@@ -6,8 +6,12 @@ rounded down, and the units left over go to the strata with the largest remainde
 stratum's count is within one unit of proportional). The draw is reproducible from the seed
 and never takes a unit twice.
 
+`draw_sample(..., exclude=ids)` leaves out units already double-coded (`read_unit_ids` reads
+their ids from earlier coding files or a plain list).
+
 `write_coding_sheets` writes `<coder>.xlsx` for every coder, a single sheet with the header
-``unit_id, text, code, notes`` (the codebook as a drop-down list on `code`), plus
+``unit_id, [stratify and kept columns], text, code, notes`` (the context columns shaded, the
+codebook as a drop-down list on `code`), plus
 `manifest.csv` (unit id, stratum, draw order, corpus row) and `manifest.json` (seed, n, corpus
 checksum, date). The per-coder files read straight back with `agree.read([...])`: the coder
 name is the file stem.
@@ -24,7 +28,7 @@ import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any, Iterable, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
@@ -167,25 +171,32 @@ def largest_remainder_allocation(sizes: Sequence[int], n: int) -> np.ndarray:
 
 
 def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
-                seed: int | None = None, id_col: str | None = None) -> pd.DataFrame:
+                seed: int | None = None, id_col: str | None = None,
+                exclude: Iterable[Any] | None = None) -> pd.DataFrame:
     """Draw the reliability subsample from the full list of units.
 
     Parameters
     ----------
     corpus : one row per unit, with a unit-id column (detected by name, or `id_col`) and any
         other columns (text, document, participant, ...).
-    n : number of units to draw (at most the number of units).
+    n : number of units to draw (at most the number of units not excluded).
     stratify : a grouping column; each group then gets its proportional share (within one
-        unit; blank group values form their own group "(blank)").
+        unit; blank group values form their own group "(blank)") of the units not excluded.
     seed : makes the draw reproducible; drawn and recorded when None.
     id_col : the unit-id column, when its name is not a usual one.
+    exclude : ids of units not to draw, e.g. units already double-coded in earlier rounds
+        (see `read_unit_ids`). Ids are compared as the corpus ids are (1 and 1.0 alike);
+        ids not in the corpus are counted, not silently dropped.
 
     Returns
     -------
     DataFrame
         The drawn rows (all corpus columns) in draw order, with two added columns:
         ``draw_order`` (1..n) and ``corpus_row`` (the row in the corpus sheet, header = 1).
-        ``attrs`` records seed, id column, stratify column, allocation, corpus size and checksum.
+        ``attrs`` records seed, id column, stratify column, allocation, stratum sizes (units
+        available after exclusion), corpus size, checksum, ``excluded`` (corpus units left
+        out because they were in `exclude`), ``exclude_given`` (distinct ids given) and
+        ``exclude_not_in_corpus`` (given ids the corpus does not have).
     """
     if not isinstance(corpus, pd.DataFrame):
         raise AgreeError("the list of units must be a table (DataFrame)", code="corpus-format")
@@ -194,12 +205,21 @@ def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
         if added in corpus.columns:
             raise AgreeError(f"the list of units already has a column '{added}'",
                              hint="rename it; the sample adds this column", code="column-clash")
-    _unit_keys(corpus, id_col)
+    keys = _unit_keys(corpus, id_col)
     total = len(corpus)
+    excluded_ids = {_id_key(v) for v in (exclude if exclude is not None else ())} - {None}
+    eligible_mask = np.array([k not in excluded_ids for k in keys], dtype=bool)
+    eligible = np.flatnonzero(eligible_mask)
+    n_excluded = total - len(eligible)
+    not_in_corpus = len(excluded_ids - set(keys))
     if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
         raise AgreeError(f"the number of units to draw must be a positive whole number; got {n}",
                          code="sample-size")
-    if n > total:
+    if n > len(eligible):
+        if n_excluded:
+            raise AgreeError(f"cannot draw {n} units: {len(eligible)} of the {total} units are left "
+                             f"after excluding {n_excluded} already coded", code="sample-too-large",
+                             hint=f"draw at most {len(eligible)}")
         raise AgreeError(f"cannot draw {n} units from a list of {total}", code="sample-too-large",
                          hint=f"draw at most {total}")
     if seed is None:
@@ -208,9 +228,10 @@ def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
     rng = np.random.default_rng(seed)
 
     allocation: dict[str, int] | None = None
-    strata_labels = None
+    strata_sizes: dict[str, int] | None = None
+    strata_excluded: dict[str, int] | None = None
     if stratify is None:
-        chosen = rng.choice(total, size=n, replace=False)
+        chosen = eligible[rng.choice(len(eligible), size=n, replace=False)]
     else:
         if stratify not in corpus.columns:
             raise AgreeError(f"no column '{stratify}' to stratify by",
@@ -218,11 +239,13 @@ def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
                              code="no-stratify-column")
         strata_labels = np.array([_stratum_label(v) for v in corpus[stratify].tolist()], dtype=object)
         names = list(dict.fromkeys(strata_labels.tolist()))     # first-appearance order
-        members = [np.flatnonzero(strata_labels == s) for s in names]
+        members = [np.flatnonzero((strata_labels == s) & eligible_mask) for s in names]
         alloc = largest_remainder_allocation([len(m) for m in members], n)
         parts = [rng.choice(m, size=k, replace=False) for m, k in zip(members, alloc)]
         chosen = rng.permutation(np.concatenate(parts))
         allocation = {s: int(k) for s, k in zip(names, alloc)}
+        strata_sizes = {s: int(len(m)) for s, m in zip(names, members)}
+        strata_excluded = {s: int(np.sum((strata_labels == s) & ~eligible_mask)) for s in names}
 
     sample = corpus.iloc[chosen].copy()
     sample["draw_order"] = np.arange(1, n + 1)
@@ -235,12 +258,86 @@ def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
         checksum_of = "table (CSV form)"
     sample.attrs = {
         "seed": seed, "n": int(n), "id_col": id_col, "stratify": stratify,
-        "allocation": allocation, "strata_sizes": None if strata_labels is None else {
-            s: int(np.sum(strata_labels == s)) for s in allocation},
+        "allocation": allocation, "strata_sizes": strata_sizes, "strata_excluded": strata_excluded,
         "corpus_size": total, "corpus_checksum": checksum, "checksum_of": checksum_of,
         "source": corpus.attrs.get("source"),
+        "excluded": int(n_excluded), "exclude_given": len(excluded_ids),
+        "exclude_not_in_corpus": int(not_in_corpus),
     }
     return sample
+
+
+def _id_key(value: Any) -> str | None:
+    """A unit id as compared across files: trimmed, 1 and 1.0 alike; None when blank."""
+    v = normalise_value(value.strip() if isinstance(value, str) else value)
+    return None if v is None else str(v)
+
+
+def read_unit_ids(paths: str | os.PathLike | Sequence[str | os.PathLike], *,
+                  id_col: str | None = None) -> tuple[str, ...]:
+    """The unit ids found in files, e.g. the coding files of earlier rounds, to exclude them.
+
+    Parameters
+    ----------
+    paths : one file or several. A .txt file is a plain list, one id a line (blank lines and
+        lines starting with # skipped). A CSV or XLSX file (every sheet of a workbook) gives the
+        ids in its unit column: `id_col` when the file has that column, else the first column
+        with a usual id name (unit_id, unit, id, excerpt_id, ...). Long files, with one row
+        per unit and coder, give each id once.
+    id_col : the unit-id column's name, when it is not a usual one.
+
+    Returns
+    -------
+    tuple of str
+        The distinct ids, in order of first appearance.
+    """
+    if isinstance(paths, (str, os.PathLike)):
+        paths = [paths]
+    seen: dict[str, None] = {}
+    for raw in paths:
+        path = Path(raw)
+        if not path.is_file():
+            raise AgreeError(f"no such file: {path}", code="no-file")
+        suffix = path.suffix.lower()
+        if suffix in (".txt", ".lst"):
+            for line in path.read_text(encoding="utf-8-sig").splitlines():
+                key = _id_key(line)
+                if key is not None and not key.startswith("#"):
+                    seen.setdefault(key, None)
+            continue
+        if suffix in (".xlsx", ".xlsm"):
+            try:
+                frames = list(pd.read_excel(path, sheet_name=None, dtype=object, engine="openpyxl").items())
+            except Exception as exc:
+                raise AgreeError(f"could not read {path.name}: {exc}", code="exclude-unreadable") from exc
+        elif suffix in (".csv", ".tsv"):
+            try:
+                frames = [(None, pd.read_csv(path, dtype=str, keep_default_na=False,
+                                             sep="\t" if suffix == ".tsv" else None, engine="python",
+                                             encoding="utf-8-sig"))]
+            except Exception as exc:
+                raise AgreeError(f"could not read {path.name}: {exc}", code="exclude-unreadable") from exc
+        else:
+            raise AgreeError(f"cannot read unit ids from '{path.name}'",
+                             hint="give a coding file (CSV or XLSX) or a .txt list, one id a line",
+                             code="exclude-format")
+        found = False
+        for sheet, frame in frames:
+            columns = [str(c) for c in frame.columns]
+            try:
+                column = detect_id_column(frame, id_col if id_col in columns else None)
+            except AgreeError:
+                continue
+            found = True
+            for value in frame[column].tolist():
+                key = _id_key(value)
+                if key is not None:
+                    seen.setdefault(key, None)
+        if not found:
+            raise AgreeError(f"could not find the unit-id column in {path.name}",
+                             hint="name it unit_id (or excerpt_id, id, ...), pass --unit-col, or give "
+                                  "a .txt list of ids", code="no-id-column")
+    return tuple(seen)
 
 
 def _stratum_label(value: Any) -> str:
@@ -265,11 +362,16 @@ class CodingSheets:
     seed: int
     shuffled: bool
     drop_down: str | None       # "inline list", or None (no codebook, or too long for one)
+    context_columns: tuple[str, ...] = ()   # corpus columns copied into the sheets
+    excluded: int = 0                        # corpus units not drawn: already coded
+    exclude_not_in_corpus: int = 0           # ids to exclude that the corpus does not have
 
     def to_dict(self) -> dict[str, Any]:
         return {"folder": self.folder, "files": list(self.files), "manifest_csv": self.manifest_csv,
                 "manifest_json": self.manifest_json, "coders": list(self.coders), "n": self.n,
-                "seed": self.seed, "shuffled": self.shuffled, "drop_down": self.drop_down}
+                "seed": self.seed, "shuffled": self.shuffled, "drop_down": self.drop_down,
+                "context_columns": list(self.context_columns), "excluded": self.excluded,
+                "exclude_not_in_corpus": self.exclude_not_in_corpus}
 
 
 def load_codebook_categories(path: str | os.PathLike) -> dict[str, str]:
@@ -340,28 +442,51 @@ def _cell(value: Any) -> Any:
     return value
 
 
-def _workbook_bytes(ids: Sequence[Any], texts: Sequence[Any], categories: Sequence[str] | None,
-                    coder: str) -> tuple[bytes, str | None]:
+def _workbook_bytes(ids: Sequence[Any], context: Mapping[str, Sequence[Any]], texts: Sequence[Any],
+                    categories: Sequence[str] | None, coder: str) -> tuple[bytes, str | None]:
+    """One coder's workbook: unit_id, the context columns (shaded: to read, not to edit),
+    text, code, notes."""
     from openpyxl import Workbook
-    from openpyxl.styles import Alignment, Font
+    from openpyxl.comments import Comment
+    from openpyxl.styles import Alignment, Font, PatternFill
+    from openpyxl.utils import get_column_letter
     from openpyxl.worksheet.datavalidation import DataValidation
 
     wb = Workbook()
     ws = wb.active
     ws.title = "coding"
-    ws.append(list(SHEET_COLUMNS))
+    header = ["unit_id", *context, "text", "code", "notes"]
+    ws.append(header)
     for cell in ws[1]:
         cell.font = Font(bold=True)
-    for uid, text in zip(ids, texts):
-        ws.append([_cell(uid), _cell(text), None, None])
+    columns = [ids, *context.values(), texts]
+    for values in zip(*columns):
+        ws.append([_cell(v) for v in values] + [None, None])
     last = len(ids) + 1
+    shade = PatternFill("solid", start_color="EDEDED", end_color="EDEDED")
+    muted = Font(color="595959")
+    n_fixed = 1 + len(context)                  # unit_id and context: to read, not to edit
+    for row in ws.iter_rows(min_row=2, max_row=last, min_col=1, max_col=n_fixed):
+        for cell in row:
+            cell.fill = shade
+            cell.font = muted
+    for j in range(1, n_fixed + 1):
+        ws.cell(row=1, column=j).fill = shade
+    for j, name in enumerate(context, start=2):
+        ws.cell(row=1, column=j).comment = Comment(
+            f"'{name}' from the list of units, for context (and for scoring with --keep {name}). "
+            "Leave it as it is.", "agree", width=260, height=80)
+        ws.column_dimensions[get_column_letter(j)].width = max(12, min(30, len(str(name)) + 4))
+    text_col = get_column_letter(n_fixed + 1)
+    code_col = get_column_letter(n_fixed + 2)
+    notes_col = get_column_letter(n_fixed + 3)
     ws.column_dimensions["A"].width = 14
-    ws.column_dimensions["B"].width = 80
-    ws.column_dimensions["C"].width = 18
-    ws.column_dimensions["D"].width = 30
-    for row in ws.iter_rows(min_row=2, max_row=last, min_col=2, max_col=2):
+    ws.column_dimensions[text_col].width = 80
+    ws.column_dimensions[code_col].width = 18
+    ws.column_dimensions[notes_col].width = 30
+    for row in ws.iter_rows(min_row=2, max_row=last, min_col=n_fixed + 1, max_col=n_fixed + 1):
         row[0].alignment = Alignment(wrap_text=True, vertical="top")
-    ws.freeze_panes = "A2"
+    ws.freeze_panes = ws.cell(row=2, column=n_fixed + 1).coordinate
     mode = None
     inline = ",".join(categories or ())
     # Excel caps an inline list at 255 characters and splits it on commas. A longer list would
@@ -372,7 +497,7 @@ def _workbook_bytes(ids: Sequence[Any], texts: Sequence[Any], categories: Sequen
         dv.errorTitle = "Not a codebook code"
         dv.showErrorMessage = True
         ws.add_data_validation(dv)
-        dv.add(f"C2:C{max(last, 2)}")
+        dv.add(f"{code_col}2:{code_col}{max(last, 2)}")
         mode = "inline list"
     wb.properties.title = f"Coding sheet for {coder}"
     buffer = io.BytesIO()
@@ -380,11 +505,38 @@ def _workbook_bytes(ids: Sequence[Any], texts: Sequence[Any], categories: Sequen
     return buffer.getvalue(), mode
 
 
+def _context_columns(sample: pd.DataFrame, keep: Sequence[str], id_col: str,
+                     text_col: str | None) -> list[str]:
+    """The corpus columns copied into every coder's sheet: the stratify column, then `keep`."""
+    stratify = sample.attrs.get("stratify")
+    wanted = ([stratify] if stratify else []) + [str(k) for k in keep]
+    columns = [str(c) for c in sample.columns]
+    out: list[str] = []
+    problems = []
+    for name in wanted:
+        if name in (id_col, text_col) or name in out:
+            continue
+        if name not in columns:
+            problems.append(AgreeError(f"no column '{name}' in the list of units to copy into the sheets",
+                                       hint=f"columns are: {', '.join(columns)}", code="no-keep-column"))
+        elif name.strip().lower() in SHEET_COLUMNS or name in ("draw_order", "corpus_row"):
+            problems.append(AgreeError(f"the column '{name}' cannot be copied into the sheets: the "
+                                       "sheets have a column of that name",
+                                       hint="rename it in the list of units", code="column-clash"))
+        else:
+            out.append(name)
+    if problems:
+        raise AgreeError(problems[0].message, hint=problems[0].hint, code=problems[0].code,
+                         problems=problems)
+    return out
+
+
 def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, coders: Sequence[str],
                         codebook: Sequence[Any] | Mapping[Any, str] | None = None,
                         shuffle: bool = False, seed: int | None = None, id_col: str | None = None,
                         text_col: str | None = None, force: bool = False,
-                        corpus_path: str | os.PathLike | None = None) -> CodingSheets:
+                        corpus_path: str | os.PathLike | None = None,
+                        keep: Sequence[str] = ()) -> CodingSheets:
     """Write one blank coding workbook per coder, and the manifest.
 
     Parameters
@@ -403,6 +555,9 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
         never is).
     corpus_path : the corpus file, protected from being overwritten (defaults to the
         sample's recorded source).
+    keep : other corpus columns to copy into every sheet, after the unit id, for context.
+        The stratify column of a stratified draw is always copied, so the filled sheets can
+        be scored with ``--keep <column> --cluster <column>``.
 
     Returns
     -------
@@ -413,6 +568,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     id_col = detect_id_column(sample, id_col)
     text_col = detect_text_column(sample, text_col)
     _unit_keys(sample, id_col)
+    context_cols = _context_columns(sample, keep, id_col, text_col)
     if len(sample) == 0:
         raise AgreeError("the sample has no units", code="sample-size")
     categories = None
@@ -456,7 +612,8 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     drop_down = None
     for i, (name, target) in enumerate(zip(names, targets)):
         order = np.random.default_rng([seed, 101, i]).permutation(len(sample)) if shuffle else base_order
-        data, drop_down = _workbook_bytes(ids[order], texts[order], categories, name)
+        context = {c: sample[c].to_numpy(dtype=object)[order] for c in context_cols}
+        data, drop_down = _workbook_bytes(ids[order], context, texts[order], categories, name)
         atomic_write_bytes(target, data)
 
     stratify = sample.attrs.get("stratify")
@@ -484,6 +641,9 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
         "id_column": id_col,
         "text_column": text_col,
         "stratify": stratify,
+        "context_columns": context_cols,
+        "excluded": sample.attrs.get("excluded", 0),
+        "exclude_not_in_corpus": sample.attrs.get("exclude_not_in_corpus", 0),
         "allocation": sample.attrs.get("allocation"),
         "strata_sizes": sample.attrs.get("strata_sizes"),
         "coders": list(names),
@@ -494,4 +654,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     atomic_write_bytes(targets[-1], (json.dumps(meta, indent=2, ensure_ascii=False) + "\n").encode("utf-8"))
     return CodingSheets(folder=str(folder), files=tuple(str(t) for t in targets[:-2]),
                         manifest_csv=str(targets[-2]), manifest_json=str(targets[-1]), coders=names,
-                        n=int(len(sample)), seed=seed, shuffled=bool(shuffle), drop_down=drop_down)
+                        n=int(len(sample)), seed=seed, shuffled=bool(shuffle), drop_down=drop_down,
+                        context_columns=tuple(context_cols),
+                        excluded=int(sample.attrs.get("excluded", 0) or 0),
+                        exclude_not_in_corpus=int(sample.attrs.get("exclude_not_in_corpus", 0) or 0))

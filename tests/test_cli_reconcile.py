@@ -7,6 +7,7 @@ import hashlib
 import json
 import os
 import sys
+from pathlib import Path
 
 import openpyxl
 import pandas as pd
@@ -181,3 +182,48 @@ def test_help_says_agreement_uses_independent_codes(capsys):
     assert "Example: agree reconcile review.xlsx" in flat
     code, out, _ = run(capsys, "disagreements", "--help")
     assert code == 0 and "Example: agree disagreements" in " ".join(out.split())
+
+
+def test_one_unresolved_unit_reads_as_one_and_names_its_row(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    units = [c.value for c in openpyxl.load_workbook(review)[REVIEW_SHEET]["A"]][1:]
+    fill(review, {"=SUM(A1)": "neg"})
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv")
+    assert code == 2
+    row = units.index("@here") + 2          # as the spreadsheet counts rows (header = row 1)
+    assert f"1 unit still needs a decision: '@here' (row {row})" in err
+    assert "units still need" not in err
+    assert "--allow-unresolved (allow_unresolved=True)" in err
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv",
+                       "--allow-unresolved")
+    assert code == 0 and f"1 unit written without a final code (unresolved): '@here' (row {row})" in err
+
+
+def _example(capsys, command):
+    code, out, _ = run(capsys, command, "--help")
+    assert code == 0
+    flat = " ".join(out.split())
+    return flat.split("Example: ", 1)[1].split(" Other ")[0].split(" ╭")[0].split()
+
+
+def test_help_examples_run_on_the_bundled_samples(tmp_path, capsys):
+    root = Path(__file__).resolve().parents[1]
+    made = []
+    for command in ("disagreements", "reconcile"):
+        words = _example(capsys, command)
+        assert words[:2] == ["agree", command]
+        for w in words:
+            if w.startswith("samples/"):
+                assert (root / w).is_file(), w
+        args = [str(root / w) if w.startswith("samples/") else
+                (str(tmp_path / w) if w.endswith((".xlsx", ".csv")) else w) for w in words[2:]]
+        if command == "reconcile":
+            args += ["--majority", "--allow-unresolved"]
+        code, _, err = run(capsys, command, *args)
+        assert code == 0, err
+        made.append(tmp_path / words[-1])
+    assert all(p.exists() for p in made)
+    # the bundled round-1 file has an interview column: the review list shows it beside the unit
+    ws = openpyxl.load_workbook(made[0])[REVIEW_SHEET]
+    assert [c.value for c in ws[1]][:2] == ["unit", "interview"]

@@ -214,8 +214,16 @@ def test_plan_states_model_interval_and_sources():
     names = [c["name"] for c in d["closed_forms"]]
     assert any("Krippendorff" in n for n in names) and any("Donner" in n for n in names)
     assert all(set(c) == {"name", "units", "source", "assumptions"} for c in d["closed_forms"])
-    assert all("memory" in c["source"] for c in d["closed_forms"])
-    assert "as units, which is conservative" in d["closed_forms"][0]["assumptions"]
+    # user-facing text cites the published sources; 'from memory' and internal section
+    # numbers stay in the code comments and these tests
+    for item in d["closed_forms"] + d["rules_of_thumb"]:
+        text = " ".join(str(v) for v in item.values())
+        assert "memory" not in text and "METHODS" not in text and "[" not in text
+    assert "Krippendorff (2004; 2013), Content Analysis" in d["closed_forms"][0]["source"]
+    assert "as given in Krippendorff (2004)" in d["closed_forms"][0]["source"]
+    assert ("Whether N counts units or values is not settled here: it is treated as units, which is "
+            "conservative") in d["closed_forms"][0]["assumptions"]
+    assert d["closed_forms"][0]["assumptions"].startswith("Assumes two coders;")
     assert all("ignores the prevalence" in r["note"] for r in d["rules_of_thumb"])
     mc = [pt["mc_error"] for pt in d["curve"]]
     for pt, err in zip(d["curve"], mc):
@@ -378,8 +386,24 @@ def test_cli_plan_table_and_plot(tmp_path):
     out = CliRunner().invoke(app, ["plan", "--coders", "2", "--categories", "2", "--expected", "0.9",
                                    "--replicates", "100", "--boot", "100", "--plot", str(png)])
     assert out.exit_code == 0, out.output
-    assert "Units needed" in out.stdout and "[from memory]" in out.stdout
+    assert "Units needed" in out.stdout and "Krippendorff (2004; 2013)" in out.stdout
+    assert "memory" not in out.stdout and "METHODS" not in out.stdout and "\\[" not in out.stdout
     assert png.exists()
+
+
+def test_closed_form_says_it_assumes_two_coders_when_more_are_planned():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    p = plan_sample(coders=3, categories=4, expected=0.9, minimum=0.8, seed=1, **FAST)
+    krippendorff_form = p.closed_forms[0]
+    assert krippendorff_form.assumptions.startswith("Assumes two coders, while 3 are planned here")
+    assert "fewer units usually suffice" in krippendorff_form.assumptions
+    assert len(p.closed_forms) == 1                       # Donner-Eliasziw is for two coders only
+    out = CliRunner().invoke(app, ["plan", "--coders", "3", "--categories", "4", "--expected", "0.9",
+                                   "--replicates", "60", "--boot", "60"], terminal_width=300)
+    assert out.exit_code == 0, out.output
+    assert "Assumes two" in out.stdout and "3 are planned" in out.stdout   # cells wrap in the table
 
 
 def test_cli_plan_bad_input_exit_code_2():

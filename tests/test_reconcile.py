@@ -17,9 +17,11 @@ import numpy as np
 import openpyxl
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from agree.model import AgreeError, from_table
-from agree.reconciliation import (ABOUT_SHEET, LISTS_SHEET, PAIRS_SHEET, REVIEW_SHEET, Consensus,
+from agree.reconciliation import (ABOUT_SHEET, LISTS_SHEET, PAIR_UNITS, PAIRS_SHEET, REVIEW_SHEET, Consensus,
                              _confused_pairs, protect_text, reconcile, review_table,
                              unprotect_text, write_consensus, write_review)
 
@@ -239,17 +241,78 @@ def test_confused_pairs_match_crosstab():
         k, l = row[0], row[1]
         assert row[3] == cross.loc[k, l] and row[4] == cross.loc[l, k]
         assert row[2] == cross.loc[k, l] + cross.loc[l, k]
-    assert pairs["times confused"].sum() == int((x != y).sum())
-    assert list(pairs["times confused"]) == sorted(pairs["times confused"], reverse=True)
+    assert pairs[PAIR_UNITS].sum() == int((x != y).sum())
+    assert list(pairs[PAIR_UNITS]) == sorted(pairs[PAIR_UNITS], reverse=True)
 
 
-def test_confused_pairs_weigh_units_by_coders():
-    # o_ck = sum_u r_uc r_uk / (m_u - 1) (Krippendorff 2011, "Computing Krippendorff's
-    # alpha-reliability"): unit 1 gives 1 * 2 / 2 = 1, unit 2 gives 1 * 1 / 1 = 1
-    data = from_table([["a", "b", "b"], ["a", "b", None], ["a", "a", "a"]])
+def test_confused_pairs_count_whole_units_with_three_coders():
+    # The coincidences would give unit 1 the weight 1 * 2 / 2 = 1 and unit 4 the weight 1/2 per
+    # pair (Krippendorff 2011); the sheet counts whole units instead: a-b in units 1, 2 and 4.
+    data = from_table([["a", "b", "b"], ["a", "b", None], ["a", "a", "a"], ["a", "b", "c"]])
     pairs = _confused_pairs(data).set_index(["code 1", "code 2"])
-    assert pairs.loc[("a", "b"), "times confused"] == pytest.approx(2.0)
-    assert len(pairs) == 1
+    got = pairs[PAIR_UNITS].to_dict()
+    assert got == {("a", "b"): 3, ("a", "c"): 1, ("b", "c"): 1}
+    assert all(isinstance(v, int) for v in got.values())
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.lists(st.sampled_from(["a", "b", "c", None]), min_size=3, max_size=3),
+                min_size=1, max_size=25))
+def test_confused_pairs_equal_a_per_unit_count(rows):
+    # Property: the count for (c, k) is the number of units with at least two values in which
+    # both c and k were given, counted one unit at a time.
+    data = from_table(rows, categories=["a", "b", "c"])
+    pairs = _confused_pairs(data)
+    got = {(r[0], r[1]): r[2] for r in pairs.itertuples(index=False)}
+    want = {}
+    for row in rows:
+        given = {v for v in row if v is not None}
+        if sum(v is not None for v in row) < 2:
+            continue
+        for c, k in (("a", "b"), ("a", "c"), ("b", "c")):
+            if c in given and k in given:
+                want[(c, k)] = want.get((c, k), 0) + 1
+    assert {tuple(sorted(k, key="abc".index)): v for k, v in got.items()} == want
+
+
+def test_confused_pairs_set_valued_count_units():
+    # unit 1: ann {a}, bo {b}      -> a/b confused
+    # unit 2: ann {a, b}, bo {b}   -> a applied by ann only, nothing by bo only: no pair
+    # unit 3: ann {a, c}, bo {b}   -> a/b and c/b
+    data = from_table([[{"a"}, {"b"}], [{"a", "b"}, {"b"}], [{"a", "c"}, {"b"}]],
+                      categories=["a", "b", "c"])
+    pairs = _confused_pairs(data).set_index(["code 1", "code 2"])
+    assert pairs[PAIR_UNITS].to_dict() == {("a", "b"): 2, ("b", "c"): 1}
+
+
+def test_pairs_sheet_explains_the_count(tmp_path):
+    path = write_review(tricky_data(), tmp_path / "r.xlsx").path
+    ws = openpyxl.load_workbook(path)[PAIRS_SHEET]
+    header = [c.value for c in ws[1]]
+    col = header.index(PAIR_UNITS) + 1
+    assert ws.cell(1, col).comment is not None and "one coder gave code 1" in ws.cell(1, col).comment.text
+    values = [ws.cell(r, col).value for r in range(2, ws.max_row + 1)]
+    counts = [v for v in values if v is not None]
+    assert counts and all(isinstance(v, int) for v in counts)
+    notes = [ws.cell(r, 1).value for r in range(2, ws.max_row + 1)]
+    assert any(isinstance(v, str) and v.startswith("note:") for v in notes)
+
+
+def test_review_and_consensus_carry_kept_columns(tmp_path):
+    data = from_table([["a", "b"], ["a", "a"], ["b", "a"]], coders=["ann", "bo"],
+                      unit_ids=["u1", "u2", "u3"])
+    data = replace(data, columns={"interview": np.array(["i1", "i1", "i2"], dtype=object),
+                                  "notes": np.array(["x", "y", "z"], dtype=object)})
+    table = review_table(data)
+    assert list(table.columns[:3]) == ["unit", "interview", "notes (data)"]
+    assert list(table["interview"]) == ["i1", "i2"]
+    path = write_review(data, tmp_path / "r.xlsx").path
+    ws = openpyxl.load_workbook(path)[REVIEW_SHEET]
+    assert [c.value for c in ws[1]][:2] == ["unit", "interview"]
+    fill(path, {"u1": "a", "u3": "b"})
+    consensus = reconcile(data, path)
+    assert list(consensus.table["interview"]) == ["i1", "i1", "i2"]
+    assert list(consensus.table["final code"]) == ["a", "a", "b"]
 
 
 def test_long_codebook_uses_a_hidden_list_sheet(tmp_path):
@@ -358,8 +421,26 @@ def test_unresolved_raises_and_lists_units():
     with pytest.raises(AgreeError) as err:
         reconcile(data, review_table(data))
     assert err.value.code == "unresolved"
-    assert "25 units" in err.value.message and "u19" in err.value.message
+    assert "25 units still need a decision" in err.value.message and "u19" in err.value.message
     assert "u20" not in err.value.message and "and 5 more" in err.value.message
+    # review-table rows count as a spreadsheet does: header row 1, first unit row 2
+    assert "'u00' (row 2)" in err.value.message and "'u19' (row 21)" in err.value.message
+
+
+def test_one_unresolved_unit_is_singular_and_names_its_row(tmp_path):
+    data = from_table([["a", "b"], ["b", "a"], ["a", "a"]], unit_ids=["u1", "u2", "u3"])
+    path = write_review(data, tmp_path / "r.xlsx").path
+    units = review_units(path)
+    fill(path, {"u1": "a"})
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, path)
+    row = units.index("u2") + 2
+    assert err.value.message == f"1 unit still needs a decision: 'u2' (row {row})"
+    assert "sheet 'Review'" in err.value.where
+    assert "--allow-unresolved (allow_unresolved=True)" in err.value.hint
+    consensus = reconcile(data, path, allow_unresolved=True)
+    assert consensus.unresolved == ("u2",) and consensus.unresolved_rows == (row,)
+    assert consensus.to_dict()["unresolved_review_rows"] == [row]
 
 
 def test_allow_unresolved_writes_empty_final_code(tmp_path):

@@ -19,7 +19,7 @@ from typer.testing import CliRunner
 
 from agree.model import AgreeError
 from agree.sampling import (draw_sample, largest_remainder_allocation, load_codebook_categories,
-                            read_corpus, write_coding_sheets)
+                            read_corpus, read_unit_ids, write_coding_sheets)
 
 CODES = ["praise", "complaint", "question"]
 
@@ -141,15 +141,20 @@ def test_workbooks_and_manifest(tmp_path):
     written = write_coding_sheets(sample, out, coders=["ana", "ben"], codebook=CODES)
     assert sorted(p.name for p in out.iterdir()) == ["ana.xlsx", "ben.xlsx", "manifest.csv", "manifest.json"]
     ws, rows = _read_sheet(out / "ana.xlsx")
-    assert rows[0] == ("unit_id", "text", "code", "notes")
-    assert len(rows) == 26 and all(r[2] is None and r[3] is None for r in rows[1:])
+    # the stratify column follows the unit id, so the sheets can be scored by participant
+    assert rows[0] == ("unit_id", "participant", "text", "code", "notes")
+    assert len(rows) == 26 and all(r[3] is None and r[4] is None for r in rows[1:])
+    by_id = dict(zip(corpus["unit_id"], corpus["participant"]))
+    assert all(by_id[r[0]] == r[1] for r in rows[1:])
+    assert ws["B2"].fill.start_color.rgb.endswith("EDEDED") and ws["B1"].comment is not None
+    assert written.context_columns == ("participant",)
     # not shuffled: corpus order, the same for every coder
     _, rows_b = _read_sheet(out / "ben.xlsx")
     assert [r[0] for r in rows[1:]] == [r[0] for r in rows_b[1:]] == sorted(r[0] for r in rows[1:])
     dvs = ws.data_validations.dataValidation
     assert len(dvs) == 1 and dvs[0].type == "list"
     assert dvs[0].formula1 == '"praise,complaint,question"'
-    assert str(dvs[0].sqref) == "C2:C26"
+    assert str(dvs[0].sqref) == "D2:D26"
     assert written.drop_down == "inline list"
 
     manifest = pd.read_csv(out / "manifest.csv", dtype=str)
@@ -237,12 +242,13 @@ def test_sample_to_score_round_trip(tmp_path):
         wb = openpyxl.load_workbook(out / f"{coder}.xlsx")
         ws = wb["coding"]
         filled[coder] = {}
+        code_at = [c.value for c in ws[1]].index("code")
         for row in ws.iter_rows(min_row=2):
             uid = row[0].value
             code = truth[uid] if rng.random() < 0.8 else CODES[rng.integers(3)]
             if coder == "cai" and rng.random() < 0.1:
                 code = None                                      # cai skipped a few units
-            row[2].value = code
+            row[code_at].value = code
             filled[coder][uid] = code
         wb.save(out / f"{coder}.xlsx")
 
@@ -255,6 +261,139 @@ def test_sample_to_score_round_trip(tmp_path):
                       for c in ("ana", "ben", "cai")], dtype=float)
     want = krippendorff.alpha(reliability_data=table, level_of_measurement="nominal")
     assert result.estimate == pytest.approx(want, abs=1e-12)
+
+
+# -- leaving out units already coded ------------------------------------------------------------
+
+def test_excluded_units_are_never_drawn_and_counted():
+    corpus = make_corpus(100)
+    done = [f"u{i:04d}" for i in range(0, 100, 3)] + ["not-in-corpus", " u0001 "]
+    sample = draw_sample(corpus, 40, seed=3, exclude=done)
+    excluded = {f"u{i:04d}" for i in range(0, 100, 3)} | {"u0001"}
+    assert not set(sample["unit_id"]) & excluded
+    assert sample.attrs["excluded"] == len(excluded) == 35
+    assert sample.attrs["exclude_given"] == 36 and sample.attrs["exclude_not_in_corpus"] == 1
+    for uid, row in zip(sample["unit_id"], sample["corpus_row"]):
+        assert corpus["unit_id"].iloc[row - 2] == uid        # rows still point into the full corpus
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.sets(st.integers(0, 119), max_size=80), st.data())
+def test_stratified_draw_with_exclusions_is_proportional_over_what_is_left(done, data):
+    corpus = make_corpus(120, seed=4)
+    left = corpus[~corpus.index.isin(sorted(done))]
+    n = data.draw(st.integers(1, len(left)))
+    ids = corpus["unit_id"].iloc[sorted(done)].tolist()
+    sample = draw_sample(corpus, n, stratify="participant", seed=9, exclude=ids)
+    assert len(sample) == n and sample["unit_id"].is_unique and not set(sample["unit_id"]) & set(ids)
+    sizes = left["participant"].value_counts()
+    drawn = sample["participant"].value_counts()
+    for group, size in sizes.items():
+        assert abs(drawn.get(group, 0) - n * size / len(left)) < 1
+    assert sample.attrs["strata_sizes"] == {g: int(sizes.get(g, 0)) for g in sample.attrs["strata_sizes"]}
+
+
+def test_numeric_ids_excluded_alike():
+    corpus = pd.DataFrame({"id": [1, 2, 3, 4], "text": list("abcd")})
+    sample = draw_sample(corpus, 2, seed=1, exclude=[" 1 ", 2.0])   # text "1" from a CSV, 2.0 from a workbook
+    assert sorted(sample["id"]) == [3, 4] and sample.attrs["excluded"] == 2
+
+
+def test_too_few_units_left_after_exclusion():
+    corpus = make_corpus(10)
+    with pytest.raises(AgreeError) as err:
+        draw_sample(corpus, 8, seed=1, exclude=corpus["unit_id"][:5])
+    assert err.value.code == "sample-too-large" and "excluding 5 already coded" in err.value.message
+    assert err.value.hint == "draw at most 5"
+
+
+def test_read_unit_ids_from_coding_files_and_lists(tmp_path):
+    # wide coding file with an excerpt_id column (as samples/round1.csv)
+    (tmp_path / "r1.csv").write_text("excerpt_id,interview,ann,bo\nE1,I1,a,b\nE2,I1,a,a\n")
+    # long file: one row per unit and coder, each id once
+    (tmp_path / "r2.csv").write_text("unit,coder,code\nE3,ann,a\nE3,bo,b\nE4,ann,a\n")
+    # workbook with one sheet per coder
+    with pd.ExcelWriter(tmp_path / "r3.xlsx") as xl:
+        pd.DataFrame({"unit_id": ["E5", 6], "code": ["a", "b"]}).to_excel(xl, sheet_name="ann", index=False)
+        pd.DataFrame({"unit_id": ["E5", 7.0], "code": ["a", "b"]}).to_excel(xl, sheet_name="bo", index=False)
+    (tmp_path / "done.txt").write_text("# coded in the pilot\nE8\n\n E9 \n")
+    ids = read_unit_ids([tmp_path / "r1.csv", tmp_path / "r2.csv", tmp_path / "r3.xlsx", tmp_path / "done.txt"])
+    assert ids == ("E1", "E2", "E3", "E4", "E5", "6", "7", "E8", "E9")
+    (tmp_path / "odd.csv").write_text("key,code\nE1,a\n")
+    assert read_unit_ids(tmp_path / "odd.csv", id_col="key") == ("E1",)
+    with pytest.raises(AgreeError) as err:
+        read_unit_ids(tmp_path / "odd.csv")
+    assert err.value.code == "no-id-column" and "odd.csv" in err.value.message
+
+
+def test_bundled_rounds_are_excluded_from_the_next_sample():
+    from pathlib import Path
+
+    samples = Path(__file__).resolve().parents[1] / "samples"
+    corpus = read_corpus(samples / "corpus.csv")
+    done = read_unit_ids([samples / "round1.csv", samples / "round2.csv"])
+    rounds = set(pd.read_csv(samples / "round1.csv")["excerpt_id"]) | set(pd.read_csv(samples / "round2.csv")["excerpt_id"])
+    assert set(done) == rounds
+    sample = draw_sample(corpus, 200, stratify="interview", seed=1, exclude=done)
+    assert not set(sample["unit_id"]) & rounds
+    assert sample.attrs["excluded"] == len(rounds) and sample.attrs["exclude_not_in_corpus"] == 0
+
+
+# -- context columns in the sheets --------------------------------------------------------------
+
+def test_keep_columns_follow_the_unit_id(tmp_path):
+    corpus = make_corpus(30)
+    corpus["site"] = ["north", "south", "east"] * 10
+    sample = draw_sample(corpus, 9, stratify="participant", seed=1)
+    written = write_coding_sheets(sample, tmp_path / "s", coders=["ana", "ben"], keep=["site", "participant"])
+    _, rows = _read_sheet(tmp_path / "s" / "ana.xlsx")
+    assert rows[0] == ("unit_id", "participant", "site", "text", "code", "notes")
+    assert written.context_columns == ("participant", "site")
+    meta = json.loads((tmp_path / "s" / "manifest.json").read_text())
+    assert meta["context_columns"] == ["participant", "site"]
+
+
+@pytest.mark.parametrize("keep,code", [(["nope"], "no-keep-column"), (["Code"], "column-clash")])
+def test_bad_keep_columns(tmp_path, keep, code):
+    corpus = make_corpus(10)
+    corpus["Code"] = "x"
+    sample = draw_sample(corpus, 3, seed=1)
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path / "s", coders=["ana", "ben"], keep=keep)
+    assert err.value.code == code
+
+
+def test_filled_sheets_score_by_the_stratify_column(tmp_path):
+    """`agree score sheets/*.xlsx --keep participant --cluster participant` on the filled sheets."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    corpus = make_corpus(200, seed=2)
+    sample = draw_sample(corpus, 60, stratify="participant", seed=2)
+    out = tmp_path / "sheets"
+    write_coding_sheets(sample, out, coders=["ana", "ben"], codebook=CODES, shuffle=True)
+    rng = np.random.default_rng(2)
+    for coder in ("ana", "ben"):
+        wb = openpyxl.load_workbook(out / f"{coder}.xlsx")
+        ws = wb["coding"]
+        code_at = [c.value for c in ws[1]].index("code")
+        for row in ws.iter_rows(min_row=2):
+            row[code_at].value = CODES[(int(row[0].value[1:]) + (rng.random() < 0.2)) % 3]
+        wb.save(out / f"{coder}.xlsx")
+    agree_bin = Path(sys.executable).with_name("agree")
+    res = subprocess.run([str(agree_bin), "score", str(out / "ana.xlsx"), str(out / "ben.xlsx"),
+                          "--keep", "participant", "--cluster", "participant", "--boot", "200",
+                          "--format", "json"], capture_output=True, text=True)
+    assert res.returncode == 0, res.stderr
+    assert "participant" in res.stdout
+
+    import agree
+    from agree.readers import read as readers_read
+
+    data = getattr(agree, "read", readers_read)([out / "ana.xlsx", out / "ben.xlsx"], keep=["participant"])
+    groups = dict(zip(corpus["unit_id"], corpus["participant"]))
+    assert [str(g) for g in data.columns["participant"]] == [groups[u] for u in data.unit_ids]
 
 
 # -- CLI ---------------------------------------------------------------------------------------------
@@ -279,3 +418,82 @@ def test_cli_sample(tmp_path):
     again = CliRunner().invoke(app, args)
     assert again.exit_code != 0                               # folder not empty
     assert isinstance(again.exception, AgreeError) and again.exception.code == "output-exists"
+
+
+def test_cli_sample_excludes_and_keeps(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.csv"
+    make_corpus(60).to_csv(corpus_file, index=False)
+    (tmp_path / "round1.csv").write_text("unit_id,ana,ben\n" + "".join(f"u{i:04d},a,b\n" for i in range(20)))
+    (tmp_path / "more.txt").write_text("u0020\nu0021\nzzz\n")
+    args = ["sample", str(corpus_file), "-n", "30", "--stratify", "participant", "--coders", "ana,ben",
+            "-o", str(tmp_path / "sheets"), "--exclude", str(tmp_path / "round1.csv"),
+            "--exclude", str(tmp_path / "more.txt"), "--keep-col", "text", "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["excluded"] == 22 and got["exclude_not_in_corpus"] == 1
+    assert got["context_columns"] == ["participant"]          # the text column is there already
+    assert "excluded 22 units already coded" in res.stderr and "1 of those ids" in res.stderr
+    _, rows = _read_sheet(tmp_path / "sheets" / "ana.xlsx")
+    assert not {r[0] for r in rows[1:]} & {f"u{i:04d}" for i in range(22)}
+
+    table = CliRunner().invoke(app, args[:-2] + ["--force"])
+    assert table.exit_code == 0, table.output
+    assert "Already coded" in table.stdout and "--keep participant --cluster participant" in table.stderr
+
+
+def test_cli_sample_help_example_uses_bundled_files(tmp_path):
+    import shlex
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    root = Path(__file__).resolve().parents[1]
+    res = CliRunner().invoke(app, ["sample", "--help"], terminal_width=400)
+    flat = " ".join(res.stdout.split())
+    words = shlex.split(flat.split("Example: ", 1)[1].split(" ╭")[0])
+    assert words[:2] == ["agree", "sample"] and "--exclude" in words
+    for w in words:
+        if w.startswith("samples/"):
+            assert (root / w).is_file(), w
+    args = [str(root / w) if w.startswith("samples/") else w for w in words[1:]]
+    args[args.index("-o") + 1] = str(tmp_path / "sheets")
+    run = CliRunner().invoke(app, args)
+    assert run.exit_code == 0, run.output
+
+
+def test_demo_numbers_its_steps_and_excludes_coded_units(tmp_path, monkeypatch):
+    """The demo's sections are numbered 1, 2, 3, ... once each, and its next sample leaves out
+    the units of rounds 1 and 2. The report and the plan are stubbed (tested elsewhere)."""
+    import re
+    from pathlib import Path
+
+    import agree
+    import agree.cli.commands  # noqa: F401
+    import agree.report
+    from agree.cli.app import app
+
+    class FakeReport:
+        methods = "Methods paragraph."
+
+    monkeypatch.setattr(agree.report, "build_report", lambda *a, **k: FakeReport())
+    monkeypatch.setattr(agree.report, "write_report", lambda report, path: [Path(path)])
+    real_plan = agree.plan_sample
+    monkeypatch.setattr(agree, "plan_sample",
+                        lambda **k: real_plan(**{**k, "replicates": 60, "n_resamples": 60}))
+    res = CliRunner().invoke(app, ["demo", "--out", str(tmp_path / "demo"), "--boot", "50"],
+                             terminal_width=200)
+    assert res.exit_code == 0, res.output
+    numbers = [int(m) for m in re.findall(r"^(\d+)\. ", res.stdout, flags=re.M)]
+    assert numbers == list(range(1, len(numbers) + 1)) and len(numbers) >= 7
+    root = Path(__file__).resolve().parents[1] / "samples"
+    coded = set(pd.read_csv(root / "round1.csv")["excerpt_id"]) | set(pd.read_csv(root / "round2.csv")["excerpt_id"])
+    manifest = pd.read_csv(tmp_path / "demo" / "sheets" / "manifest.csv", dtype=str)
+    assert len(manifest) > 0 and not set(manifest["unit_id"]) & coded
+    assert f"{len(coded)} units coded in rounds 1 and 2 were excluded" in " ".join(res.stdout.split())
+    _, rows = _read_sheet(tmp_path / "demo" / "sheets" / "amara.xlsx")
+    assert rows[0][:2] == ("unit_id", "interview")

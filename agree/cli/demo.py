@@ -34,6 +34,17 @@ def _samples_folder(given: Path | None) -> Path:
     return folder
 
 
+class _Steps:
+    """Numbers the demo's sections 1, 2, 3, ... in the order they are printed."""
+
+    def __init__(self) -> None:
+        self.count = 0
+
+    def __call__(self, title: str) -> None:
+        self.count += 1
+        stdout.print(Rule(f"{self.count}. {title}", align="left"))
+
+
 def _section(title: str) -> None:
     stdout.print(Rule(title, align="left"))
 
@@ -52,7 +63,7 @@ def demo(
     import agree
     from agree.format import plain
     from agree.report import build_report, write_report
-    from agree.sampling import load_codebook_categories
+    from agree.sampling import load_codebook_categories, read_unit_ids
     from agree.rounds import compare_rounds
 
     folder = _samples_folder(samples)
@@ -61,33 +72,36 @@ def demo(
     stdout.print("agree demo: synthetic interviews with volunteers of a neighbourhood repair café; "
                  "8-code codebook, three coders (amara, bastien, chen), two coding rounds. See samples/README.md.")
 
+    step = _Steps()
     rounds = {}
     for name in ("round1", "round2"):
-        _section(f"1. Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8)")
+        step(f"Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8 "
+             "--cluster interview)")
         data = agree.read(folder / f"{name}.csv", codebook=codebook)
         report_reading(data)
         rounds[name] = data
         print_score(agree.score(data, minimum=0.8, n_resamples=boot, seed=seed, cluster="interview"))
 
-    _section("2. Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
+    step("Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
     codes = agree.diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
     _codes_table(codes, top=8)
 
-    _section("3. Review workbook for the round-1 disagreements (agree disagreements ... -o review-round1.xlsx)")
+    step("Review workbook for the round-1 disagreements (agree disagreements samples/round1.csv "
+         "--codebook samples/codebook.csv -o review-round1.xlsx)")
     review_path = out / "review-round1.xlsx"
     summary = agree.write_review(rounds["round1"], review_path, format="xlsx",
                                  inputs=[folder / "round1.csv", codebook], options={"source": "agree demo"},
                                  force=True)
     stdout.print(f"{summary.needing_review} units to reconcile, worst first: {review_path}", highlight=False)
 
-    _section("4. Did round 2 beat round 1? (agree rounds samples/rounds_long.csv --codebook ...)")
+    step("Did round 2 beat round 1? (agree rounds samples/rounds_long.csv --codebook ...)")
     long = agree.read(folder / "rounds_long.csv", codebook=codebook, keep=["round"])
     report_reading(long)
     compared = compare_rounds(long, minimum=0.8, n_resamples=boot, seed=seed)
     for line in compared.summary_markup():
         stdout.print(plain(line), highlight=False)
 
-    _section("5. Report for the methods section (agree report ... -o report.html)")
+    step("Report for the methods section (agree report ... -o report.html)")
     report = build_report(long, minimum=0.8, n_resamples=boot, seed=seed, corpus_size=600)
     written = []
     for suffix in (".html", ".md", ".docx", ".tex"):
@@ -96,22 +110,28 @@ def demo(
     stdout.print(plain(report.methods), highlight=False)
     stdout.print("Written: " + ", ".join(str(p) for p in written if p.suffix != ".png"), highlight=False)
 
-    _section("6. How many units to double-code next time (agree plan --coders 3 --shares ... --expected 0.85)")
+    step("How many units to double-code next time (agree plan --coders 3 --shares ... --expected 0.85)")
     plan = agree.plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
                              expected=0.85, minimum=0.8, seed=seed)
     print_plan(plan)
 
-    _section("7. Draw the next reliability sample and write coding sheets (agree sample samples/corpus.csv ...)")
+    step("Draw the next reliability sample, leaving out the units coded in rounds 1 and 2 "
+         "(agree sample samples/corpus.csv ... --exclude samples/round1.csv --exclude samples/round2.csv)")
     import pandas as pd
 
     corpus = pd.read_csv(folder / "corpus.csv")
+    already = read_unit_ids([folder / "round1.csv", folder / "round2.csv"])
+    available = len(corpus) - int(corpus["unit_id"].astype(str).isin(already).sum())
     n = int(plan.units_needed or 100)
-    drawn = agree.draw_sample(corpus, min(n, len(corpus)), stratify="interview", seed=seed)
+    if n > available:
+        note(f"the plan asks for {n} units but only {available} are not yet coded; drawing all {available}")
+    drawn = agree.draw_sample(corpus, min(n, available), stratify="interview", seed=seed, exclude=already)
     sheets = agree.write_coding_sheets(drawn, out / "sheets", coders=["amara", "bastien", "chen"],
                                        codebook=load_codebook_categories(codebook), shuffle=True, seed=seed,
                                        force=True)
-    stdout.print(f"{len(drawn)} units drawn (stratified by interview), one workbook per coder in {sheets.folder}",
-                 highlight=False)
+    stdout.print(f"{len(drawn)} units drawn (stratified by interview) from the {available} not yet coded; "
+                 f"{drawn.attrs['excluded']} units coded in rounds 1 and 2 were excluded. One workbook per "
+                 f"coder in {sheets.folder}, with the interview column beside the unit id.", highlight=False)
 
     _section("Done")
     stdout.print(f"All outputs are in {out.resolve()}: review-round1.xlsx, report.html (open it in a browser), "

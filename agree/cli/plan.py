@@ -7,8 +7,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Optional
 
 import typer
-from rich.markup import escape
 from rich.table import Table
+from rich.text import Text
 
 from agree.cli.app import app, note, print_json, stdout
 from agree.model import AgreeError
@@ -103,8 +103,8 @@ def print_plan(p: "Plan") -> None:
     stdout.print(head, highlight=False)
     stdout.print(f"Inputs: {i['coders']} coders; {i['categories']} categories with shares {shares}; "
                  f"missing {i['missing']:.0%}.", highlight=False)
-    stdout.print(escape("Model: " + p.model), highlight=False)
-    stdout.print(escape(p.interval), highlight=False)
+    stdout.print(Text("Model: " + p.model))
+    stdout.print(Text(p.interval))
     stdout.print(f"Smoothing: {p.smoothing}. Seed {p.seed}.", highlight=False)
     table = Table(title="Assurance by sample size", title_justify="left")
     table.add_column("Units", justify="right")
@@ -119,8 +119,8 @@ def print_plan(p: "Plan") -> None:
     forms.add_column("Units", justify="right")
     forms.add_column("Source and assumptions")
     for c in p.closed_forms:
-        forms.add_row(escape(c.name), "–" if c.units is None else str(c.units),
-                      escape(f"{c.source}. {c.assumptions}"))
+        forms.add_row(Text(c.name), "–" if c.units is None else str(c.units),
+                      Text(f"{c.source}. {c.assumptions}"))
     stdout.print(forms)
     for r in p.rules_of_thumb:
         units = ""
@@ -128,7 +128,7 @@ def print_plan(p: "Plan") -> None:
             units = f" (here {r.units} to {r.units_high} units)"
         elif r.units is not None:
             units = f" (here at least {r.units} units)"
-        stdout.print(escape(f"Rule of thumb, {r.name}: {r.rule}{units}. {r.note}"), highlight=False)
+        stdout.print(Text(f"Rule of thumb, {r.name}: {r.rule}{units}. {r.note}"))
     for w in p.warnings:
         note(f"warning [{w.code}]: {w.message}")
 
@@ -141,7 +141,16 @@ def sample(
     coders: Annotated[str, typer.Option("--coders", help="Coder names, comma-separated: one workbook each.")],
     out: Annotated[Path, typer.Option("-o", "--out", help="Folder for the coding workbooks and the manifest.")],
     stratify: Annotated[Optional[str], typer.Option(
-        "--stratify", help="Column to stratify by (e.g. document): each group in proportion.")] = None,
+        "--stratify", help="Column to stratify by (e.g. interview): each group in proportion. The column "
+                           "is copied into every coder's sheet, so the sheets can be scored with "
+                           "--keep COLUMN --cluster COLUMN.")] = None,
+    keep: Annotated[Optional[list[str]], typer.Option(
+        "--keep", "--keep-col", help="Another column of the list of units to copy into every coder's "
+                                     "sheet, after the unit id, for context; repeatable.")] = None,
+    exclude: Annotated[Optional[list[Path]], typer.Option(
+        "--exclude", help="A file of units already double-coded (a coding file with a unit column, "
+                          "or a .txt list, one id a line): those units are not drawn again; "
+                          "repeat for several files.")] = None,
     seed: Annotated[int, typer.Option("--seed", help="Seed of the draw; the same seed draws the same units.")] = 1,
     codebook: Annotated[Optional[Path], typer.Option(
         "--codebook", help="Codebook (.txt one code a line, or .csv/.xlsx with a code column): "
@@ -155,30 +164,44 @@ def sample(
 ):
     """Draw the reliability sample and write one blank coding workbook per coder.
 
-    Example: agree sample units.xlsx -n 120 --stratify interview --coders ana,ben -o sheets/ --codebook codes.txt
+    Example: agree sample samples/corpus.csv -n 120 --stratify interview --coders amara,bastien --codebook samples/codebook.csv --exclude samples/round1.csv --exclude samples/round2.csv -o sheets/
     """
-    from agree.sampling import draw_sample, load_codebook_categories, read_corpus, write_coding_sheets
+    from agree.sampling import (draw_sample, load_codebook_categories, read_corpus, read_unit_ids,
+                                write_coding_sheets)
 
     frame = read_corpus(corpus, sheet=sheet)
-    drawn = draw_sample(frame, n, stratify=stratify, seed=seed, id_col=unit_col)
+    exclude_files = list(exclude or [])
+    already = read_unit_ids(exclude_files, id_col=unit_col) if exclude_files else ()
+    drawn = draw_sample(frame, n, stratify=stratify, seed=seed, id_col=unit_col, exclude=already)
     categories = load_codebook_categories(codebook) if codebook is not None else None
     names = [c.strip() for c in coders.split(",") if c.strip()]
     written = write_coding_sheets(drawn, out, coders=names, codebook=categories, shuffle=shuffle,
-                                  text_col=text_col, force=force, corpus_path=corpus)
+                                  text_col=text_col, force=force, corpus_path=corpus, keep=list(keep or []))
+    if exclude_files:
+        note(sample_exclusion_note(drawn, [str(f) for f in exclude_files]))
     if output_format is OutputFormat.json:
         print_json(written.to_dict())
         return
-    stdout.print(f"Drew {written.n} of {drawn.attrs['corpus_size']} units from {corpus} "
+    available = drawn.attrs["corpus_size"] - drawn.attrs.get("excluded", 0)
+    pool = (f"{available} units not yet coded in {corpus}" if drawn.attrs.get("excluded")
+            else f"{drawn.attrs['corpus_size']} units from {corpus}")
+    stdout.print(f"Drew {written.n} of {pool} "
                  f"(seed {drawn.attrs['seed']}{', stratified by ' + stratify if stratify else ', simple random'}).",
                  highlight=False)
     allocation = drawn.attrs.get("allocation")
     if allocation:
+        excluded = drawn.attrs.get("strata_excluded") or {}
         table = Table(title=f"Units drawn per {stratify}", title_justify="left")
         table.add_column(str(stratify))
-        table.add_column("Units", justify="right")
+        if any(excluded.values()):
+            table.add_column("Already coded", justify="right")
+        table.add_column("Units available", justify="right")
         table.add_column("Drawn", justify="right")
         for name, k in allocation.items():
-            table.add_row(name, str(drawn.attrs["strata_sizes"][name]), str(k))
+            cells = [Text(name)]
+            if any(excluded.values()):
+                cells.append(str(excluded.get(name, 0)))
+            table.add_row(*cells, str(drawn.attrs["strata_sizes"][name]), str(k))
         stdout.print(table)
     for f in written.files:
         stdout.print(f"wrote {f}", highlight=False)
@@ -186,4 +209,25 @@ def sample(
     if categories is not None and written.drop_down is None:
         note("the codebook is too long for a drop-down list (Excel allows 255 characters); "
              "the code column is left free")
-    note(f"read them back with: agree score {' '.join(written.files)}")
+    if written.context_columns:
+        note(f"column(s) {', '.join(repr(c) for c in written.context_columns)} copied into every sheet "
+             "for context (shaded; leave them as they are)")
+    note(f"read them back with: {score_command(written, stratify)}")
+
+
+def sample_exclusion_note(drawn, files: list[str]) -> str:
+    """How many units were left out of the draw as already coded, and any ids not found."""
+    a = drawn.attrs
+    text = (f"excluded {a['excluded']} unit{'s' if a['excluded'] != 1 else ''} already coded "
+            f"({a['exclude_given']} distinct id{'s' if a['exclude_given'] != 1 else ''} in "
+            f"{', '.join(files)})")
+    if a.get("exclude_not_in_corpus"):
+        text += f"; {a['exclude_not_in_corpus']} of those ids are not in the list of units"
+    return text
+
+
+def score_command(written, stratify: Optional[str]) -> str:
+    command = f"agree score {' '.join(written.files)}"
+    if stratify:
+        command += f" --keep {stratify} --cluster {stratify}"
+    return command

@@ -38,7 +38,7 @@ class Level(str, Enum):
 
 Files = Annotated[list[Path], typer.Argument(
     help="Coding files (.csv, .tsv, .xlsx, .parquet). Several files: one per coder.",
-    show_default=False)]
+    show_default=False, metavar="FILE")]
 LayoutOption = Annotated[Optional[Layout], typer.Option(
     "--layout", help="How the coding is laid out (detected when not given): wide = one column per "
                      "coder; long = unit, coder, code columns; per-coder = one file or sheet per coder; "

@@ -48,7 +48,7 @@ def _reading(**options: Any) -> dict[str, Any]:
 
 
 def _recorded(options: dict[str, Any]) -> dict[str, Any]:
-    """The options worth recording: those given (not left at None/empty/False)."""
+    """The options to note in the file: those given (not left at None/empty/False)."""
     return {k: v for k, v in options.items() if v not in (None, False, [], ())}
 
 
@@ -98,7 +98,9 @@ def disagreements(
     how many units were read, agreed, need review and were left out (fewer than
     two coders). Fill it in, then run `agree reconcile`.
 
-    Example: agree disagreements coding.xlsx -o review.xlsx
+    Example: agree disagreements samples/round1.csv --codebook samples/codebook.csv -o review.xlsx
+
+    Other per-unit columns kept with --keep (e.g. --keep interview) are shown beside the unit.
     """
     reading = {**reading, **_reading(codebook=codebook, level=level)}
     data = load_data(files, **reading)
@@ -168,7 +170,7 @@ def reconcile_command(
     review file no longer matches the data, or when units still need a decision
     (unless --allow-unresolved). Never overwrites the review file or the data.
 
-    Example: agree reconcile review.xlsx --data coding.xlsx -o consensus.csv
+    Example: agree reconcile review.xlsx --data samples/round1.csv --codebook samples/codebook.csv -o consensus.csv
     """
     review_file, *extra = review
     files = list(data_files or []) + extra
@@ -178,7 +180,7 @@ def reconcile_command(
     reading = {**reading, **_reading(codebook=codebook, level=level)}
     data = load_data(files, **reading)
     file_format, shown = _split_format(format, summary_format)
-    from agree.reconciliation import reconcile, write_consensus
+    from agree.reconciliation import reconcile, unresolved_listing, write_consensus
 
     consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority)
     inputs = [review_file, *files] + ([codebook] if codebook else [])
@@ -187,7 +189,9 @@ def reconcile_command(
         note(f"note: {line}")
     if consensus.unresolved:
         n = len(consensus.unresolved)
-        note(f"{n} unit{'s' if n != 1 else ''} written without a final code (unresolved)")
+        note(f"{n} unit{'s' if n != 1 else ''} written without a final code (unresolved): "
+             + unresolved_listing(consensus.unresolved, consensus.unresolved_rows or
+                                  [None] * n))
     note(f"wrote {output}: {len(consensus.table)} units. {INDEPENDENT}")
     summary = consensus.to_dict()
     if shown == "json":
