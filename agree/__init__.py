@@ -31,7 +31,7 @@ _LAZY = {
     "agree.rounds": ("RoundsResult", "compare_rounds"),
     "agree.reconciliation": ("Consensus", "ReviewSummary", "reconcile", "review_table", "write_consensus",
                              "write_review"),
-    "agree.sampling": ("draw_sample", "write_coding_sheets"),
+    "agree.sampling": ("draw_sample", "read_unit_ids", "write_coding_sheets"),
 }
 _WHERE = {name: module for module, names in _LAZY.items() for name in names}
 

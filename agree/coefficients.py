@@ -557,8 +557,8 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         boot = BootstrapInfo(replicates=int(n_resamples), seed=used_seed, method=iv.method,
                              unit=unit_label, n_undefined=iv.n_undefined)
         if clusters is not None and n_items < 20:
-            warnings.append(Note("few-clusters", f"Only {n_items} clusters were resampled; bootstrap intervals "
-                                 "from so few groups are rough."))
+            warnings.append(Note("few-clusters", f"Only {n_items} groups ({unit_label.partition(':')[2] or 'clusters'}) "
+                                 "were resampled; bootstrap intervals from fewer than 20 groups are rough."))
     elif extra.get("wilson"):
         n = extra["n"]
         ci_low, ci_high = _wilson(estimate, n, confidence_level)

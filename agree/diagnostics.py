@@ -54,17 +54,22 @@ import pandas as pd
 from scipy import stats
 from scipy.sparse.csgraph import connected_components
 
+from agree.format import format_value
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import compress
 from agree.coefficients import alpha_from_coincidence, level_delta, set_delta
-from agree.resampling import bootstrap_interval, bootstrap_replicates, jackknife_values, make_rng
+from agree.resampling import (bootstrap_interval, bootstrap_replicates, cluster_features, jackknife_values,
+                              make_rng)
 from agree.results import BootstrapInfo, Note, _clean
 
 __all__ = ["CodeDiagnostics", "CoderDiagnostics", "confusion_table", "diagnose_codes",
            "diagnose_coders"]
 
 #: Status of a code, worst first (the order used to rank codes).
-STATUSES = ("below minimum", "too rare", "undefined", "ok")
+STATUSES = ("below minimum", "uncertain", "too rare", "undefined", "ok")
+#: Distances between sets of codes (set-valued data), as in `agree.score`.
+SET_DISTANCES = ("masi", "jaccard")
+DEFAULT_SET_DISTANCE = "masi"
 
 _SIGNIFICANCE = 0.05          # Holm-adjusted p below this flags unequal use
 _EXACT_BELOW = 25             # McNemar: exact binomial test when b + c < 25 (METHODS 6.5)
@@ -72,6 +77,7 @@ _CONFUSION_REASON = 0.25      # name the main confusion in a reason from this sh
 _PARADOX_PREVALENCE = 0.5     # |PI| from which prevalence explains high p_o with low kappa
 _PARADOX_BIAS = 0.1           # |BI| from which bias is named as a cause
 _CHUNK_CELLS = 4_000_000
+_FEW_CLUSTERS = 20           # fewer clusters than this: intervals are rough (common practice)
 
 
 # =========================================================================================
@@ -91,7 +97,9 @@ class CodeDiagnostics:
     per_code : DataFrame, one row per code in codebook order (``to_frame()`` ranks them). The
         columns are stable; the report writer relies on them:
 
-        - ``code``, ``status`` (one of "below minimum", "too rare", "undefined", "ok"),
+        - ``code``, ``status`` (one of "below minimum", "uncertain", "too rare",
+          "undefined", "ok"; see Notes of :func:`diagnose_codes`), ``judged_on``
+          ("interval" or "estimate": what the status compares with the minimum),
           ``reason`` (short, plain language), ``rank`` (1 = worst), ``explanation`` (longer
           text: the kappa paradox, why a code is undefined), ``paradox`` (bool).
         - ``alpha``, ``ci_low``, ``ci_high``: Krippendorff's alpha for the code against all
@@ -129,7 +137,13 @@ class CodeDiagnostics:
     marginal_homogeneity : dict with ``test``, ``statistic``, ``df``, ``p_value``,
         ``dropped`` (categories left out as singular), ``groups``, ``bhapkar_statistic``,
         ``bhapkar_p_value``, ``n_units`` and ``reason`` when no test was made.
-    alpha : overall alpha of the data (nominal; Jaccard distance for set-valued data).
+    alpha : overall alpha of the data (nominal; for set-valued data with the set distance
+        ``distance``, MASI by default as in :func:`agree.score`).
+    distance : the distance between sets of codes ("masi" or "jaccard"); None for data
+        with one code per unit and coder.
+    cluster, n_clusters : the column (or "cluster" for given labels) whose groups were
+        resampled whole, and how many groups; None when units were resampled.
+    level : the data's declared level of measurement.
     notes : what the reader should know (units left out, levels ignored, ...).
     """
 
@@ -147,6 +161,15 @@ class CodeDiagnostics:
     min_units_per_code: int
     bootstrap: BootstrapInfo | None = None
     notes: tuple[Note, ...] = ()
+    distance: str | None = None
+    cluster: str | None = None
+    n_clusters: int | None = None
+    level: str = "nominal"
+
+    @property
+    def alpha_label(self) -> str:
+        """What the overall alpha is: "nominal", or "sets of codes, masi distance"."""
+        return f"sets of codes, {self.distance} distance" if self.distance else "nominal"
 
     def to_frame(self) -> pd.DataFrame:
         """One row per code, worst first (see ``per_code`` for the columns)."""
@@ -157,10 +180,15 @@ class CodeDiagnostics:
         ``marginal_homogeneity``, ``alpha``, settings and ``notes``."""
         return _clean({
             "alpha": self.alpha,
+            "alpha_level": self.alpha_label,
+            "distance": self.distance,
+            "level": self.level,
             "coders": list(self.coders),
             "n_units": self.n_units,
             "n_pairable_units": self.n_pairable_units,
             "set_valued": self.set_valued,
+            "cluster": self.cluster,
+            "n_clusters": self.n_clusters,
             "minimum": self.minimum,
             "confidence_level": self.confidence_level,
             "min_units_per_code": self.min_units_per_code,
@@ -188,7 +216,10 @@ class CoderDiagnostics:
     code_use : DataFrame, one row per coder and value: ``coder``, ``code``, ``uses``,
         ``units_coded``, ``share``, ``share_others``, ``ratio``.
     alpha : alpha of all coders at ``level``.
-    level : the level used ("jaccard" distance for set-valued data).
+    level : the level used; for set-valued data the set distance ("masi" by default, as in
+        :func:`agree.score`, or "jaccard").
+    cluster, n_clusters : the column whose groups were resampled whole, and how many; None
+        when units were resampled.
     """
 
     pairwise: pd.DataFrame
@@ -201,6 +232,13 @@ class CoderDiagnostics:
     confidence_level: float
     bootstrap: BootstrapInfo | None = None
     notes: tuple[Note, ...] = ()
+    cluster: str | None = None
+    n_clusters: int | None = None
+
+    @property
+    def level_label(self) -> str:
+        """The level for people: "nominal", or "sets of codes, masi distance"."""
+        return f"sets of codes, {self.level} distance" if self.level in SET_DISTANCES else self.level
 
     def pairwise_matrix(self, statistic: str = "kappa") -> pd.DataFrame:
         """Coder x coder matrix of ``statistic`` ("percent_agreement", "kappa", "alpha" or
@@ -242,8 +280,11 @@ class CoderDiagnostics:
         return _clean({
             "alpha": self.alpha,
             "level": self.level,
+            "level_label": self.level_label,
             "n_units": self.n_units,
             "confidence_level": self.confidence_level,
+            "cluster": self.cluster,
+            "n_clusters": self.n_clusters,
             "bootstrap": None if self.bootstrap is None else self.bootstrap.to_dict(),
             "coders": _records(self.to_frame()),
             "pairwise": _records(self.pairwise),
@@ -306,8 +347,8 @@ def _delta(kind: str, scores: np.ndarray | None = None, values: Sequence | None 
     """δ (V, V) for a level, or None for ordinal (built from the margins of each o)."""
     if kind == "ordinal":
         return None
-    if kind == "jaccard":
-        return set_delta("jaccard", values)
+    if kind in SET_DISTANCES:
+        return set_delta(kind, values)
     return level_delta(kind, scores)
 
 
@@ -429,21 +470,53 @@ def stuart_maxwell(table: np.ndarray, categories: Sequence | None = None) -> dic
     return result
 
 
+def _cluster_labels(data: CodingData, cluster: Any) -> tuple[np.ndarray | None, str | None]:
+    """Per-unit cluster labels (as text) and the name to report, from a kept column name or
+    an array of labels; (None, None) when units are resampled one by one."""
+    if cluster is None:
+        return None, None
+    if isinstance(cluster, str):
+        if cluster not in data.columns:
+            known = ", ".join(data.columns) or "none"
+            raise AgreeError(f"no column '{cluster}' to resample clusters by (columns kept: {known})",
+                             hint="name the column with --cluster when reading the data", code="cluster")
+        return np.asarray(data.columns[cluster]).astype(str), cluster
+    labels = np.asarray(cluster)
+    if labels.ndim != 1 or len(labels) != data.n_units:
+        raise AgreeError(f"cluster labels: one per unit is needed ({data.n_units}); got {labels.size}",
+                         code="cluster")
+    return labels.astype(str), "cluster"
+
+
 def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resamples: int, seed,
                confidence_level: float, ci_method: str, minimum: float | None = None,
-               counts: np.ndarray | None = None):
-    """Bootstrap intervals for several statistics from the same unit resamples.
+               counts: np.ndarray | None = None, clusters: np.ndarray | None = None,
+               cluster_name: str | None = None, labels: Sequence[str] | None = None):
+    """Bootstrap intervals for several statistics from the same unit (or cluster) resamples.
 
     Items are the distinct rows of `features` (units with the same features resample alike),
     or, with `counts`, the rows of `features` are already distinct patterns occurring
-    `counts` times. Returns (low, high, p_below_min, BootstrapInfo, notes).
+    `counts` times. With `clusters` (one label per row of `features`, which are then units),
+    the items are the clusters: the features of their units summed, each drawn whole.
+    `labels` name the statistics in the notes ("code 'X', α"). Returns (low, high,
+    p_below_min, BootstrapInfo, notes).
     """
     k = len(estimates)
     nan = np.full(k, np.nan)
     if n_resamples <= 0 or features.shape[0] == 0:
         return nan, nan.copy(), nan.copy(), None, []
     rng, used_seed = make_rng(seed)
-    if counts is None:
+    notes: list[Note] = []
+    unit = "unit"
+    if clusters is not None:
+        items, n_items = cluster_features(features, clusters)
+        counts = np.ones(n_items, dtype=np.int64)
+        unit = f"cluster:{cluster_name or 'cluster'}"
+        if n_items < _FEW_CLUSTERS:
+            notes.append(Note("few-clusters", f"Only {n_items} clusters ({cluster_name or 'cluster'}) were "
+                              "resampled; bootstrap intervals from fewer than "
+                              f"{_FEW_CLUSTERS} groups are rough."))
+    elif counts is None:
         items, counts = np.unique(features, axis=0, return_counts=True)
     else:
         items = features
@@ -452,9 +525,9 @@ def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resampl
     jack = jackknife_values(items[informative], counts[informative], finish) if informative.any() else None
     weights = counts[informative]
     low, high, below = nan.copy(), nan.copy(), nan.copy()
-    notes: list[Note] = []
     n_undefined = 0
     method_used = ci_method
+    fallback = []
     for j in range(k):
         iv = bootstrap_interval(float(estimates[j]), boot[:, j], confidence_level=confidence_level,
                                 method=ci_method, jack=None if jack is None else jack[:, j],
@@ -464,10 +537,19 @@ def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resampl
         n_undefined = max(n_undefined, iv.n_undefined)
         if iv.method != ci_method and np.isfinite(estimates[j]):
             method_used = f"{ci_method} (percentile where BCa could not be formed)"
-        notes.extend(iv.notes)
-    info = BootstrapInfo(replicates=n_resamples, seed=used_seed, method=method_used,
+        name = labels[j] if labels is not None else f"statistic {j + 1}"
+        for n in iv.notes:
+            if n.code == "bca-fallback":
+                fallback.append(name)
+            else:
+                notes.append(Note(n.code, f"{name}: {n.message}"))
+    if fallback:
+        notes.append(Note("bca-fallback", "The BCa interval could not be formed (bias correction or "
+                          "acceleration undefined) for " + ", ".join(fallback) + "; the percentile "
+                          "interval is shown there instead."))
+    info = BootstrapInfo(replicates=n_resamples, seed=used_seed, method=method_used, unit=unit,
                          n_undefined=n_undefined)
-    unique = {n.code: n for n in notes}
+    unique = {(n.code, n.message): n for n in notes}
     return low, high, below, info, list(unique.values())
 
 
@@ -635,13 +717,19 @@ def _fmt_pct(x: float) -> str:
     return f"{100 * x:.0f}%"
 
 
+def _signed(x: float) -> str:
+    text = format_value(x, "coefficient", 2)
+    return text if text.startswith("\u2212") else "+" + text
+
+
 def _ratio_text(ratio: float) -> str:
     return f"{ratio:.1f}x" if ratio >= 1 else f"{ratio:.2f}x"
 
 
 def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int = 1000,
                    seed: int | None = None, confidence_level: float = 0.95,
-                   min_units_per_code: int = 5, ci_method: str = "bca") -> CodeDiagnostics:
+                   min_units_per_code: int = 5, ci_method: str = "bca",
+                   distance: str | None = None, cluster: Any = None) -> CodeDiagnostics:
     """Which codes of the codebook drive disagreement, and why.
 
     Parameters
@@ -656,6 +744,12 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     min_units_per_code : a code used on fewer pairable units than this is "too rare" to judge
         (default 5: common practice, not a published threshold).
     ci_method : "bca" (default) or "percentile".
+    distance : set-valued data: the distance between sets of codes for the overall alpha and
+        the alpha after merging two codes, "masi" (default, as in :func:`agree.score`, so
+        the overall alpha is the same figure) or "jaccard". Ignored for single codes.
+    cluster : per-unit group labels, or the name of a kept per-unit column (e.g. the
+        document): the bootstrap resamples whole groups (every code from the same
+        resamples). A note warns when there are fewer than 20 groups.
 
     Returns
     -------
@@ -679,10 +773,12 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
       Bias index: with two coders Byrt et al.'s BI = (b - c)/N (positive: the first coder
       uses k more); with more coders the mean over pairs of coders of |b - c|/N, each pair
       on the units both coded (so it is never negative).
-    - kappa paradox: flagged when the present/absent percent agreement reaches the minimum,
-      alpha or kappa does not, and prevalence (|PI| >= 0.5) or bias (|BI| >= 0.1) explains
-      the gap; the explanation names the cause (Feinstein & Cicchetti 1990). These two
-      cut-offs are our own choice for wording, not published thresholds.
+    - kappa paradox: flagged when the present/absent percent agreement and the specific
+      agreement p_s both reach the minimum, alpha or kappa does not, and prevalence
+      (|PI| >= 0.5) or bias (|BI| >= 0.1) explains the gap; the explanation names the cause
+      (Feinstein & Cicchetti 1990). When p_s is low too, the coders really disagree on the
+      code's presence and there is no paradox to explain. These cut-offs are our own choice
+      for wording, not published thresholds.
     - unequal use: with two coders the per-code McNemar test (exact binomial when
       b + c < 25, else chi-square without continuity correction), Holm over the codes; a
       significant test flags the coder who uses k more and the one who uses it less. With
@@ -693,12 +789,18 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     - confusions: share_ck = 2 o_ck / Σ_{g≠h} o_gh, expected e_ck = n_c n_k / (n - 1), and
       alpha after merging c and k (METHODS 6.3, 6.4). For set-valued data o_ck counts pairs of
       coders where one applied c and not k and the other k and not c; shares are of all such
-      confusions, e_ck uses the numbers of values with c and not k, and alpha (Jaccard
-      distance) is recomputed after replacing k by c in every set.
-    - status: "undefined" (nobody, or every value, has the code), "too rare" (used on fewer
-      than `min_units_per_code` pairable units), "below minimum" (alpha < minimum), "ok".
-      Codes are ranked by status in that order of concern — below minimum, too rare,
-      undefined, ok — and by alpha within a status, lowest first.
+      confusions, e_ck uses the numbers of values with c and not k, and alpha (with
+      `distance`, MASI by default) is recomputed after replacing k by c in every set.
+    - status: "undefined" (nobody, or every value, has the code, or alpha is undefined),
+      "too rare" (used on fewer than `min_units_per_code` pairable units), "below minimum"
+      (alpha < minimum), "uncertain" (alpha at or above the minimum, but the lower end of its
+      interval below it), "ok" (the lower end of the interval at or above the minimum).
+      This follows the advice to judge a coefficient by its interval, not its estimate
+      (Krippendorff 2004). Without an interval (``n_resamples=0``, or too few defined
+      replicates) the estimate is compared with the minimum and the reason says so
+      (``judged_on`` = "estimate"). Codes are ranked by status in the order of concern —
+      below minimum, uncertain, too rare, undefined, ok — and by alpha within a status,
+      lowest first.
 
     References
     ----------
@@ -707,6 +809,8 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     Stuart (1955); Maxwell (1970).
     """
     data = _check(data)
+    distance = _set_distance(data, distance)
+    clusters, cluster_name = _cluster_labels(data, cluster)
     if minimum is not None and not (-1.0 <= float(minimum) <= 1.0):
         raise AgreeError(f"minimum must be between -1 and 1; got {minimum}", code="bad-option")
     if not 0 < confidence_level < 1:
@@ -731,15 +835,21 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     if data.level != "nominal" and not data.set_valued:
         notes.append(Note("nominal-diagnostics", f"The data are declared {data.level}; code "
                           "diagnostics treat each value as a nominal category (applied or not)."))
+        notes.append(Note("rating-scale", "For a rating scale, presence/absence diagnostics per scale "
+                          "point are of limited use: a near miss (e.g. 3 against 4) counts as a full "
+                          "disagreement on both points. Judge the scale by the overall alpha at its "
+                          f"level ({data.level})."))
 
     # --- agreement on each code --------------------------------------------------------
     features = _code_features(r, m_u)
     finish = _code_alpha_finish(q)
     point = finish(features.sum(axis=0))
     alpha_k, ps_k = point[:q], point[q:]
+    names = [f"code '{c}', α" for c in cats] + [f"code '{c}', specific agreement" for c in cats]
     low, high, below, boot_info, boot_notes = _intervals(
         point, features, finish, n_resamples=n_resamples, seed=seed,
-        confidence_level=confidence_level, ci_method=ci_method, minimum=minimum)
+        confidence_level=confidence_level, ci_method=ci_method, minimum=minimum,
+        clusters=clusters, cluster_name=cluster_name, labels=names)
     notes.extend(boot_notes)
     n = float(m_u[pairable].sum())
     n_k = r[pairable].sum(axis=0)
@@ -831,7 +941,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
                                               "flag"])
 
     # --- confusions -----------------------------------------------------------------------
-    pairs, overall_alpha, conf = _confusions(data, x, m_u, r)
+    pairs, overall_alpha, conf = _confusions(data, x, m_u, r, distance)
     disagreements_k = n_k - np.array([conf[k, k] for k in range(q)])
     off = conf.copy()
     np.fill_diagonal(off, 0.0)
@@ -859,11 +969,13 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     # --- status, reasons, explanations --------------------------------------------------
     rows = []
     for k in range(q):
-        status, reason_parts, explanation = _judge(
+        status, reason_parts, explanation, judged_on = _judge(
             k, cats, coders, alpha_k[k], kappa[k], percent[k], n_k[k], n, units_with[k], uses[:, k],
             flags[:, k], ratio[:, k], share[:, k], prevalence[k], bias[k], top_idx[k], top_share[k],
-            has_top[k], omission[k], ps_k[k], minimum, min_units_per_code, data.set_valued)
-        row = {"code": cats[k], "status": status, "reason": "; ".join(reason_parts), "rank": 0,
+            has_top[k], omission[k], ps_k[k], minimum, min_units_per_code, data.set_valued,
+            ci_low=low[k], bootstrapped=boot_info is not None)
+        row = {"code": cats[k], "status": status, "judged_on": judged_on,
+               "reason": "; ".join(reason_parts), "rank": 0,
                "alpha": alpha_k[k], "ci_low": low[k], "ci_high": high[k], "p_below_min": below[k],
                "specific_agreement": ps_k[k], "specific_ci_low": low[q + k],
                "specific_ci_high": high[q + k], "kappa": kappa[k], "kappa_method": kappa_method,
@@ -890,26 +1002,43 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     per_code.loc[order, "rank"] = np.arange(1, q + 1)
     per_code["rank"] = per_code["rank"].astype(int)
     if minimum is not None:
-        notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {minimum} "
-                          "(a convention; choose it before looking at the data)."))
+        judged = ("the lower end of each code's interval" if boot_info is not None
+                  else "each code's estimate (no bootstrap, so no interval)")
+        notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {minimum}, comparing "
+                          f"{judged} with it (a convention; choose it before looking at the data)."))
     return CodeDiagnostics(per_code=per_code, confused_pairs=pairs, usage=usage,
                            marginal_homogeneity=_clean(homogeneity), alpha=overall_alpha,
                            coders=tuple(coders), n_units=data.n_units,
                            n_pairable_units=n_pairable_units, set_valued=data.set_valued,
                            minimum=None if minimum is None else float(minimum),
                            confidence_level=confidence_level, min_units_per_code=min_units_per_code,
-                           bootstrap=boot_info, notes=tuple(notes))
+                           bootstrap=boot_info, notes=tuple(notes), distance=distance,
+                           cluster=cluster_name,
+                           n_clusters=None if clusters is None else int(len(np.unique(clusters))),
+                           level=data.level)
 
 
-def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray):
+def _set_distance(data: CodingData, distance: str | None) -> str | None:
+    """The set distance to use: None for single codes, else "masi" (default) or "jaccard"."""
+    if distance is not None and distance not in SET_DISTANCES:
+        raise AgreeError(f"distance for sets of codes must be 'masi' or 'jaccard'; got '{distance}'",
+                         hint="use masi (the default, as in agree score) or jaccard", code="bad-option")
+    if not data.set_valued:
+        return None
+    return distance or DEFAULT_SET_DISTANCE
+
+
+def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray,
+                distance: str | None = None):
     """The ranked confused pairs, the overall alpha and the (q, q) confusion matrix."""
+    distance = distance or DEFAULT_SET_DISTANCE
     cats = list(data.categories)
     if data.set_valued:
         conf = _set_confusion(x, m_u)
         values = list(data.values)
         rv = _value_counts(data.codes, len(values))
         o_values = _coincidence(rv)
-        overall = float(_alpha_from_o(o_values, "jaccard", values=values))
+        overall = float(_alpha_from_o(o_values, distance, values=values))
         ok = m_u >= 2
         both = np.einsum("uic,uik->uck", x[ok], x[ok])
         n_only = (r[ok][:, :, None] - both).sum(axis=0)     # values with c and not k
@@ -932,7 +1061,7 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray)
     rows = []
     for c, k in zip(*np.nonzero(np.triu(conf, 1) > 0)):
         e = expected(c, k)
-        merged = _merged_alpha(data, conf if not data.set_valued else None, c, k, o_values)
+        merged = _merged_alpha(data, conf if not data.set_valued else None, c, k, o_values, distance)
         units = int(((x[pairable][:, :, c] * (1 - x[pairable][:, :, k])).sum(1) > 0).__and__(
             (x[pairable][:, :, k] * (1 - x[pairable][:, :, c])).sum(1) > 0).sum())
         rows.append({"code_a": cats[c], "code_b": cats[k], "count": conf[c, k], "units": units,
@@ -951,12 +1080,12 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray)
 
 
 def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int,
-                  o_values: np.ndarray | None = None) -> float:
+                  o_values: np.ndarray | None = None, distance: str = DEFAULT_SET_DISTANCE) -> float:
     """Alpha after merging categories c and k (k becomes c).
 
     The coincidences after relabelling are Pᵀ o P, with P the 0/1 map from old values to new
     ones, so nothing is recounted per unit. For set-valued data the values are the sets and
-    k is replaced by c in each before the Jaccard alpha is recomputed."""
+    k is replaced by c in each before alpha is recomputed with the set distance."""
     if o is not None:
         keep = [j for j in range(o.shape[0]) if j != k]
         merged = o.copy()
@@ -969,15 +1098,18 @@ def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int,
     distinct = list(dict.fromkeys(new_values))
     P = np.zeros((len(new_values), len(distinct)))
     P[np.arange(len(new_values)), [distinct.index(v) for v in new_values]] = 1.0
-    return float(_alpha_from_o(P.T @ o_values @ P, "jaccard", values=distinct))
+    return float(_alpha_from_o(P.T @ o_values @ P, distance, values=distinct))
 
 
 def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, flags, ratio, share,
-           prevalence, bias, top, top_share, has_top, omission, ps, minimum, min_units, set_valued):
-    """Status, reason fragments and (paradox, explanation) for one code."""
+           prevalence, bias, top, top_share, has_top, omission, ps, minimum, min_units, set_valued,
+           ci_low=np.nan, bootstrapped=False):
+    """Status, reason fragments, (paradox, explanation) and what was judged ("interval",
+    "estimate" or "") for one code."""
     parts: list[str] = []
     explanation = ""
     paradox = False
+    judged_on = ""
     users = [coders[i] for i in range(len(coders)) if uses[i] > 0]
     if n_k == 0:
         status = "undefined"
@@ -995,15 +1127,33 @@ def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, fla
         status = "too rare"
         parts.append(f"used on only {int(units_with)} shared unit{'s' if units_with != 1 else ''} "
                      f"(fewer than {min_units}): too rare to judge")
-    elif minimum is not None and np.isfinite(alpha) and alpha < minimum:
-        status = "below minimum"
     elif not np.isfinite(alpha):
         status = "undefined"
         parts.append("alpha is undefined")
-    else:
+    elif minimum is None:
         status = "ok"
+    elif np.isfinite(ci_low):
+        judged_on = "interval"
+        if alpha < minimum:
+            status = "below minimum"
+        elif ci_low >= minimum:
+            status = "ok"
+            parts.append("the interval's lower end is at or above the minimum")
+        else:
+            status = "uncertain"
+            parts.append("the estimate reaches the minimum but the interval reaches below it")
+    else:
+        judged_on = "estimate"
+        why = "no bootstrap" if not bootstrapped else "no interval could be formed"
+        if alpha < minimum:
+            status = "below minimum"
+            parts.append(f"estimate below the minimum ({why}: judged on the estimate alone)")
+        else:
+            status = "ok"
+            parts.append(f"estimate at or above the minimum ({why}: judged on the estimate alone, "
+                         "not on an interval)")
     if status == "undefined" and n_k == 0:
-        return status, parts, (paradox, explanation)
+        return status, parts, (paradox, explanation), judged_on
     if len(users) == 1 and len(coders) > 1:
         parts.append(f"used by {users[0]} only")
     else:
@@ -1022,36 +1172,36 @@ def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, fla
     if np.isfinite(prevalence) and abs(prevalence) >= _PARADOX_PREVALENCE:
         side = "absence" if prevalence < 0 else "presence"
         causes.append(f"the coders mostly agree on the code's {side} (prevalence index "
-                      f"{prevalence:+.2f}), so high agreement is expected by chance alone")
+                      f"{_signed(prevalence)}), so high agreement is expected by chance alone")
     if np.isfinite(bias) and abs(bias) >= _PARADOX_BIAS:
-        causes.append(f"the coders apply it at different rates (bias index {bias:+.2f})")
-    if (minimum is not None and np.isfinite(percent) and np.isfinite(chance)
-            and percent >= minimum and chance < minimum and causes):
+        causes.append(f"the coders apply it at different rates (bias index {_signed(bias)})")
+    if (minimum is not None and np.isfinite(percent) and np.isfinite(chance) and np.isfinite(ps)
+            and percent >= minimum and ps >= minimum and chance < minimum and causes):
         paradox = True
         cause = "; ".join(causes)
         explanation = (f"Percent agreement is {_fmt_pct(percent)} but chance-corrected agreement is "
-                       f"{chance:.2f}: {cause}. When one coder applied the code, another applied it "
+                       f"{format_value(chance, 'coefficient', 2)}: {cause}. When one coder applied the code, another applied it "
                        f"too in {_fmt_pct(ps) if np.isfinite(ps) else 'no'} of the pairs (specific "
                        "agreement). This is the kappa paradox (Feinstein & Cicchetti 1990): report "
                        "specific agreement beside the coefficient.")
-        if status == "below minimum":
+        if status in ("below minimum", "uncertain"):
             parts.append(f"{_fmt_pct(percent)} raw agreement, mostly on absence"
                          if np.isfinite(prevalence) and prevalence <= -0.5
                          else f"{_fmt_pct(percent)} raw agreement but low chance-corrected agreement")
     if status == "below minimum" and not parts:
         parts.append("disagreement spread over several codes")
     if status == "ok" and not parts:
-        parts.append("meets the minimum" if minimum is not None else "defined")
-    return status, parts, (paradox, explanation)
+        parts.append("defined (no minimum given)")
+    return status, parts, (paradox, explanation), judged_on
 
 
 # =========================================================================================
 # diagnose_coders
 # =========================================================================================
 
-def _level_of(data: CodingData, level: str | None) -> str:
+def _level_of(data: CodingData, level: str | None, distance: str | None = None) -> str:
     if data.set_valued:
-        return "jaccard"
+        return _set_distance(data, distance)
     level = level or data.level
     if level not in LEVELS:
         raise AgreeError(f"level must be one of {', '.join(LEVELS)}; got '{level}'", code="level")
@@ -1063,17 +1213,20 @@ def _level_of(data: CodingData, level: str | None) -> str:
 
 def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1000,
                     seed: int | None = None, confidence_level: float = 0.95,
-                    ci_method: str = "bca") -> CoderDiagnostics:
+                    ci_method: str = "bca", distance: str | None = None,
+                    cluster: Any = None) -> CoderDiagnostics:
     """Which coders drive disagreement.
 
     Parameters
     ----------
     data : CodingData, DataFrame or array (units x coders).
-    level : level of measurement for alpha (default: the data's level; set-valued data use
-        the Jaccard distance).
+    level : level of measurement for alpha (default: the data's level).
+    distance : set-valued data: "masi" (default, as in :func:`agree.score`) or "jaccard".
     n_resamples : unit bootstrap replicates for the intervals of the leave-one-out changes
         (0: none). Seeded by `seed`, recorded in the result.
     confidence_level, ci_method : as for the coefficients.
+    cluster : per-unit group labels, or the name of a kept per-unit column: the bootstrap
+        resamples whole groups (a note warns below 20 groups).
 
     Returns
     -------
@@ -1095,7 +1248,8 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
     Krippendorff (2004); Cohen, J. (1960). Educational and Psychological Measurement, 20, 37-46.
     """
     data = _check(data)
-    kind = _level_of(data, level)
+    kind = _level_of(data, level, distance)
+    clusters, cluster_name = _cluster_labels(data, cluster)
     if ci_method not in ("bca", "percentile"):
         raise AgreeError(f"ci_method must be 'bca' or 'percentile'; got '{ci_method}'", code="bad-option")
     notes: list[Note] = []
@@ -1130,13 +1284,13 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
     if kind != "nominal":
         notes.append(Note("pairwise-kappa-nominal", "Pairwise kappa treats the values as nominal "
                           f"categories (unweighted); pairwise alpha uses the {kind} "
-                          f"{'distance' if kind == 'jaccard' else 'level'}."))
+                          f"{'distance' if kind in SET_DISTANCES else 'level'}."))
 
     # leave one coder out, with a paired bootstrap of the change
     subsets = [everyone] + [[j for j in everyone if j != i] for i in everyone]
     if m >= 3:
         # Leave-one-out needs coder identity: resample ordered patterns (METHODS 7.5).
-        pat = compress(codes, V, ordered=True)
+        pat = compress(codes, V, ordered=True, keep_inverse=clusters is not None)
         blocks = [_value_counts(pat.codes[:, cols], V) for cols in subsets]
         without = np.array([alpha_of(cols) for cols in subsets[1:]])
         pairable_without = [int((codes[:, cols] >= 0).sum(1).__ge__(2).sum()) for cols in subsets[1:]]
@@ -1155,9 +1309,15 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
             a = _alpha_from_o(o, kind, **args)
             return a[..., 1:] - a[..., :1]
 
+        names = [f"change in alpha without {c}" for c in data.coders]
+        if clusters is not None:
+            features, counts = features[pat.inverse], None
+        else:
+            counts = pat.counts
         low, high, _, boot_info, boot_notes = _intervals(
             without - alpha, features, finish, n_resamples=n_resamples, seed=seed,
-            confidence_level=confidence_level, ci_method=ci_method, counts=pat.counts)
+            confidence_level=confidence_level, ci_method=ci_method, counts=counts,
+            clusters=clusters, cluster_name=cluster_name, labels=names)
         notes.extend(boot_notes)
     else:
         without = np.full(m, np.nan)
@@ -1190,4 +1350,6 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
                                                "share_others", "ratio"])
     return CoderDiagnostics(pairwise=pairwise, leave_one_out=leave, code_use=code_use, alpha=alpha,
                             level=kind, coders=tuple(data.coders), n_units=data.n_units,
-                            confidence_level=confidence_level, bootstrap=boot_info, notes=tuple(notes))
+                            confidence_level=confidence_level, bootstrap=boot_info, notes=tuple(notes),
+                            cluster=cluster_name,
+                            n_clusters=None if clusters is None else int(len(np.unique(clusters))))

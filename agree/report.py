@@ -48,6 +48,9 @@ from agree.results import AgreementResult, Note, _clean
 Progress = Callable[[str, float], None]
 
 TENTATIVE = 0.667
+DEFAULT_MINIMUM = 0.8            # Krippendorff's (2004) convention, used when no minimum is given
+HOW_DECIDED = "how decided"      # column of `agree reconcile`'s consensus file (agree.reconciliation.HOW)
+HOW_ORDER = ("discussion", "adjudicator", "majority")
 PLACEHOLDER_NOTE = "Bracketed, highlighted text is for you to fill in; edit the wording freely."
 
 # ----------------------------------------------------------------------------------------
@@ -186,9 +189,13 @@ class ConsensusSummary:
     units_not_in_data: int = 0
     data_units_missing: int = 0
     file: str | None = None
+    by_method: Mapping[str, int] = field(default_factory=dict)   # "how decided": units per way
+    decided_without_method: int = 0                               # decided units with no "how decided"
 
     def to_dict(self) -> dict[str, Any]:
         return _clean({"n_units": self.n_units, "by_source": dict(self.by_source),
+                       "by_method": dict(self.by_method),
+                       "decided_without_method": self.decided_without_method,
                        "units_not_in_data": self.units_not_in_data,
                        "data_units_missing": self.data_units_missing, "file": self.file})
 
@@ -235,6 +242,10 @@ class Report:
     interpretation : interpretation paragraphs (markup).
     cautions : the usual cautions (markup).
     warnings : notes from the computations.
+    minimum_default : True when no minimum was given and the default .800 was used.
+    per_code_skipped : why the per-code section was left out (rating scales), else "".
+    cluster, n_clusters : the column whose groups were resampled whole and how many groups
+        (in the data the figures describe); None when units were resampled.
     """
 
     title: str
@@ -259,6 +270,10 @@ class Report:
     interpretation: tuple[str, ...]
     cautions: tuple[str, ...]
     warnings: tuple[Note, ...]
+    minimum_default: bool = False
+    per_code_skipped: str = ""
+    cluster: str | None = None
+    n_clusters: int | None = None
     _figures: dict = field(default_factory=dict, init=False, repr=False, compare=False)  # figure cache
 
     @property
@@ -272,8 +287,11 @@ class Report:
         return _clean({
             "title": self.title,
             "settings": {"level": self.level, "minimum": self.minimum,
+                         "minimum_default": self.minimum_default,
                          "confidence_level": self.confidence_level, "n_resamples": self.n_resamples,
-                         "seed": self.seed, "digits": self.digits},
+                         "seed": self.seed, "digits": self.digits, "cluster": self.cluster,
+                         "n_clusters": self.n_clusters},
+            "per_code_skipped": self.per_code_skipped or None,
             "sample": self.sample.to_dict(),
             "primary": self.primary,
             "coefficients": [r.to_dict() for r in self.coefficients],
@@ -299,11 +317,12 @@ class Report:
 # building
 
 
-def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n_resamples: int = 2000,
-                 seed: int | None = None, confidence_level: float = 0.95, corpus_size: int | None = None,
-                 consensus: Any = None, rounds: Any = None, round_column: str = "round",
-                 codebooks: Mapping[str, Any] | None = None, drift_round: str | None = None,
-                 analysed_round: str | None = None, title: str = "Intercoder agreement", digits: int = 2,
+def build_report(data: Any, *, level: str | None = None, minimum: float | None = None,
+                 n_resamples: int = 2000, seed: int | None = None, confidence_level: float = 0.95,
+                 corpus_size: int | None = None, consensus: Any = None, rounds: Any = None,
+                 round_column: str = "round", codebooks: Mapping[str, Any] | None = None,
+                 drift_round: str | None = None, analysed_round: str | None = None,
+                 title: str = "Intercoder agreement", digits: int = 2, cluster: str | None = None,
                  progress: Progress | None = None) -> Report:
     """Compute everything an agreement report shows.
 
@@ -312,7 +331,8 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
     data : CodingData, DataFrame or array (units x coders). With `rounds` given as a
         {round: data} mapping, None means the last full round's data.
     level : level of measurement ("nominal", "ordinal", "interval", "ratio"); default the data's.
-    minimum : the minimum acceptable agreement (Krippendorff's .800 by default).
+    minimum : the minimum acceptable agreement. None (default) uses .800, Krippendorff's
+        convention, and the report says that it is the default.
     n_resamples, seed, confidence_level : the bootstrap settings (recorded in the report).
     corpus_size : the number of units in the whole corpus, to state the share double-coded.
     consensus : a consensus file (path) or DataFrame with a "source" column (agreed, decided,
@@ -324,6 +344,9 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
     analysed_round : the round `data` holds, when `rounds` are given separately (stated in the
         methods paragraph).
     title, digits : the report's title and the decimals shown for coefficients.
+    cluster : the name of a kept per-unit column (e.g. the document or interview): every
+        bootstrap (coefficients, per-code diagnostics, rounds) resamples its groups whole, and
+        the methods paragraph says so.
     progress : optional callback(step, fraction done), for a progress bar.
 
     Returns
@@ -334,6 +357,9 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
     from agree.rounds import RoundsResult, compare_rounds
 
     tick = progress or (lambda step, done: None)
+    minimum_default = minimum is None
+    if minimum is None:
+        minimum = DEFAULT_MINIMUM
     if not 0 < minimum <= 1:
         raise AgreeError(f"minimum must be between 0 and 1; got {minimum}", code="minimum")
     if corpus_size is not None and corpus_size < 1:
@@ -342,7 +368,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
     rounds_result = None
     round_opts = dict(level=level, minimum=minimum, n_resamples=n_resamples, seed=seed,
                       confidence_level=confidence_level, codebooks=codebooks, drift_round=drift_round,
-                      progress=lambda step, done: tick(step, 0.2 * done))
+                      cluster=cluster, progress=lambda step, done: tick(step, 0.2 * done))
     if isinstance(rounds, Mapping):
         tick("rounds", 0.0)
         parts = dict(rounds)
@@ -371,8 +397,13 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
                          "None or False", code="rounds")
 
     tick("scoring", 0.2)
+    if cluster is not None and cluster not in d.columns:
+        raise AgreeError(f"no column '{cluster}' to resample clusters by (columns kept: "
+                         f"{', '.join(d.columns) or 'none'})", hint="read the data keeping the column "
+                         "(--cluster NAME keeps it)", code="cluster")
+    n_clusters = None if cluster is None else int(len(np.unique(np.asarray(d.columns[cluster]).astype(str))))
     scored = score(d, level=level, minimum=minimum, n_resamples=n_resamples, seed=seed,
-                   confidence_level=confidence_level)
+                   confidence_level=confidence_level, cluster=cluster)
     used_seed = scored.seed if scored.seed is not None else seed
     coefs = dict(scored.coefficients)
     if rounds_result is not None and analysed_round is not None and "krippendorff_alpha" in coefs:
@@ -384,8 +415,16 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
     ordered = [coefs[primary]] + [r for k, r in coefs.items() if k != primary] if primary else []
 
     tick("diagnostics", 0.5)
-    per_code, pairs, confusion = _diagnostics(d, minimum=minimum, n_resamples=n_resamples, seed=used_seed,
-                                              confidence_level=confidence_level)
+    rating = (level or d.level) in ("ordinal", "interval", "ratio") and not d.set_valued
+    per_code, pairs, confusion, diag_notes = _diagnostics(
+        d, per_code=not rating, minimum=minimum, n_resamples=n_resamples, seed=used_seed,
+        confidence_level=confidence_level, cluster=cluster)
+    skipped_codes = ""
+    if rating:
+        skipped_codes = (f"Agreement per code is not reported: the values are points of an {level or d.level} "
+                         "rating scale, and treating each point as a code that is present or absent would "
+                         f"count every near miss as a full disagreement, so the overall α at the "
+                         f"{level or d.level} level is the figure to judge.")
     code_use = _code_use(d)
     sample = _sample(d, corpus_size)
     if rounds_result is not None and analysed_round is not None:
@@ -394,6 +433,12 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
     warnings = list(scored.warnings)
     if rounds_result is not None:
         warnings.extend(rounds_result.warnings)
+    if cluster is not None and n_clusters is not None and n_resamples:
+        # one clear note on few groups, naming the column, instead of one per computation
+        warnings = [w for w in warnings if w.code != "few-clusters"]
+        if n_clusters < 20:
+            warnings.insert(0, Note("few-clusters", f"Only {n_clusters} {cluster} groups were resampled; "
+                                    "bootstrap intervals from fewer than 20 groups are rough."))
 
     tick("text", 0.9)
     report = Report(
@@ -402,7 +447,9 @@ def build_report(data: Any, *, level: str | None = None, minimum: float = 0.8, n
         coefficients=tuple(ordered), primary=primary, skipped=dict(scored.skipped),
         per_code=per_code, confused_pairs=pairs, confusion=confusion, code_use=code_use,
         consensus=cons, rounds=rounds_result, analysed_round=analysed_round, methods="",
-        interpretation=(), cautions=CAUTIONS, warnings=tuple(_dedupe(warnings)))
+        interpretation=(), cautions=CAUTIONS, warnings=tuple(_dedupe(warnings)),
+        minimum_default=minimum_default, per_code_skipped=skipped_codes, cluster=cluster,
+        n_clusters=n_clusters)
     report = replace(report, methods=methods_paragraph(report, set_valued=d.set_valued),
                      interpretation=interpretation(report))
     tick("done", 1.0)
@@ -427,14 +474,20 @@ def _records(frame: pd.DataFrame | None) -> tuple[dict[str, Any], ...]:
     return tuple(_clean({str(k): v for k, v in row.items()}) for row in frame.to_dict(orient="records"))
 
 
-def _diagnostics(d: CodingData, **kw: Any):
-    """Per-code records, confused pairs and the confusion table from `agree.diagnostics`."""
+def _diagnostics(d: CodingData, *, per_code: bool = True, **kw: Any):
+    """Per-code records, confused pairs, the confusion table and the diagnostics' notes from
+    `agree.diagnostics` (no per-code records or pairs when `per_code` is False)."""
     from agree.coefficients import _label
     from agree.diagnostics import confusion_table, diagnose_codes
 
-    diag = diagnose_codes(d, **kw)
-    per_code = _records(diag.to_frame())
-    pairs = _records(diag.confused_pairs)
+    notes: tuple[Note, ...] = ()
+    if per_code:
+        diag = diagnose_codes(d, **kw)
+        records = _records(diag.to_frame())
+        pairs = _records(diag.confused_pairs)
+        notes = diag.notes
+    else:
+        records, pairs = (), ()
     if d.n_coders == 2 and not d.set_valued:
         table = confusion_table(d, directed=True)
         row_title = f"{table.index.name or d.coders[0]}'s code"
@@ -448,7 +501,7 @@ def _diagnostics(d: CodingData, **kw: Any):
         rows=tuple(map(_label, table.index)), columns=tuple(map(_label, table.columns)),
         counts=tuple(tuple(float(x) for x in row) for row in table.to_numpy(dtype=float)),
         row_title=row_title, column_title=column_title, source=source)
-    return per_code, pairs, confusion
+    return records, pairs, confusion, notes
 
 
 def _code_use(d: CodingData) -> CrossTable:
@@ -515,6 +568,16 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
                          hint="use the file written by `agree reconcile`", code="consensus")
     sources = frame[cols["source"]].astype(str).str.strip()
     by_source = {str(k): int(v) for k, v in sources.value_counts(sort=False).items()}
+    by_method: dict[str, int] = {}
+    without = 0
+    if HOW_DECIDED in cols:
+        how = frame[cols[HOW_DECIDED]].fillna("").astype(str).str.strip().str.lower()
+        how = how.where(~how.isin(["nan", "none"]), "")
+        for k, v in how[how != ""].value_counts(sort=False).items():
+            by_method[str(k)] = int(v)
+        by_method = {k: by_method[k] for k in HOW_ORDER if k in by_method} | \
+                    {k: v for k, v in by_method.items() if k not in HOW_ORDER}
+        without = int(((sources == "decided") & (how == "")).sum())
     order = ["agreed", "decided", "majority", "single coder", "unresolved", "not coded"]
     by_source = {k: by_source[k] for k in order if k in by_source} | \
                 {k: v for k, v in by_source.items() if k not in order}
@@ -525,7 +588,8 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
         known = set(map(str, data.unit_ids))
         not_in_data, missing = len(ids - known), len(known - ids)
     return ConsensusSummary(n_units=int(len(frame)), by_source=by_source, units_not_in_data=not_in_data,
-                            data_units_missing=missing, file=file)
+                            data_units_missing=missing, file=file, by_method=by_method,
+                            decided_without_method=without)
 
 
 # ----------------------------------------------------------------------------------------
@@ -535,8 +599,8 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
 CAUTIONS = (
     "Conventions are not laws: the thresholds are conventions, not derived cut-offs (Landis and Koch "
     "call their bands arbitrary). Choose the minimum by the cost of drawing a wrong conclusion, and "
-    "judge it by the lower end of the interval or the probability of lying below it, not by the point "
-    "estimate alone (Krippendorff, 2004).",
+    "judge it by the lower end of the interval (or the share of bootstrap resamples below it), not by "
+    "the point estimate alone (Krippendorff, 2004).",
     "Kappa and skewed prevalence: when a code is very common or very rare, κ and α can be low although "
     "the coders mostly agree, because chance agreement is high (Feinstein & Cicchetti, 1990). Gwet's AC1, "
     "Brennan–Prediger and PABAK run higher on the same data, so the bands of one coefficient do not "
@@ -640,35 +704,72 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
         p.append(coef_text + ".")
         if prim.bootstrap is not None:
             b = prim.bootstrap
-            unit = "units" if b.unit == "unit" else f"whole clusters ({lit(b.unit.split(':', 1)[-1])})"
             seed_text = f", random seed {b.seed}" if b.seed is not None else ""
-            p.append(f"Confidence intervals ({prim.confidence_level:.0%}) are "
-                     f"{INTERVAL_METHODS.get(b.method, lit(b.method))} intervals from "
-                     f"{format_value(b.replicates, 'count')} resamples of {unit}{seed_text}.")
+            if b.unit != "unit" or report.cluster is not None:
+                seed_text = f" (random seed {b.seed})" if b.seed is not None else ""
+            method = INTERVAL_METHODS.get(b.method, lit(b.method))
+            if b.unit != "unit" or report.cluster is not None:
+                column = report.cluster or b.unit.split(":", 1)[-1]
+                groups = ("" if report.n_clusters is None else
+                          f" (*n* = {format_value(report.n_clusters, 'count')} groups)")
+                p.append(f"Confidence intervals ({prim.confidence_level:.0%}) are {method} intervals from "
+                         f"{format_value(b.replicates, 'count')} bootstrap resamples{seed_text} in which "
+                         f"whole {lit(column)} groups{groups} were resampled, each with all its units, so "
+                         f"that units from the same {lit(column)} stay together.")
+            else:
+                p.append(f"Confidence intervals ({prim.confidence_level:.0%}) are {method} intervals from "
+                         f"{format_value(b.replicates, 'count')} resamples of units{seed_text}.")
         elif prim.ci_method:
             p.append(f"The confidence interval is a {INTERVAL_METHODS.get(prim.ci_method, lit(prim.ci_method))}.")
         result = f"Overall, {_stat_markup(prim, digits)}"
         if prim.p_below_min is not None:
-            result += (f"; the probability that {_symbol(prim.name)} lies below the minimum of "
-                       f"{format_value(report.minimum, 'threshold')} is "
-                       f"{format_value(prim.p_below_min, 'probability')} (share of resamples below it)")
+            result += (f"; a share of {format_value(prim.p_below_min, 'probability')} of the bootstrap "
+                       f"resamples fell below the minimum of {format_value(report.minimum, 'threshold')}")
         result += "."
         p.append(result)
-    p.append(f"The minimum acceptable value was set at {format_value(report.minimum, 'threshold')} because "
-             "[[why this minimum]]; codes below it were [[what happened to them: dropped, merged or "
-             "redefined]].")
+    threshold = format_value(report.minimum, "threshold")
+    codes_clause = ("" if not report.per_code else
+                    "; codes below it were [[what happened to them: dropped, merged or redefined]]")
+    if report.minimum_default:
+        p.append(f"The minimum acceptable value was {threshold}, the default convention (Krippendorff, 2004) "
+                 "used when no other minimum is given; [[why this minimum suits the study]]"
+                 f"{codes_clause}.")
+    else:
+        p.append(f"The minimum acceptable value was set at {threshold} because [[why this minimum]]"
+                 f"{codes_clause}.")
     if report.consensus is not None:
         c = report.consensus
-        parts = [f"{format_value(n, 'count')} {_SOURCE_TEXT.get(k, f'had the source ‘{lit(k)}’')}"
-                 for k, n in c.by_source.items()]
+        parts = []
+        for k, n in c.by_source.items():
+            text = f"{format_value(n, 'count')} {_SOURCE_TEXT.get(k, f'had the source ‘{lit(k)}’')}"
+            if k == "decided" and c.by_method:
+                text = f"{format_value(n, 'count')} were decided ({_decided_text(c)})"
+            parts.append(text)
+        if c.by_method:
+            how = "as recorded in the consensus file"
+            if c.decided_without_method:
+                how += " ([[how the decided units without a recorded procedure were decided]])"
+        else:
+            how = "by [[the procedure, e.g. discussion or a third coder]]"
         p.append("Agreement was computed on each coder's own codes, before resolution. Disagreements were "
-                 "then resolved by [[the procedure, e.g. discussion or a third coder]]: "
-                 f"of the {_units(c.n_units)} in the final data, " + _join(parts) + ".")
+                 f"then resolved {how}: of the {_units(c.n_units)} in the final data, " + _join(parts) + ".")
     else:
         p.append("Disagreements were resolved by [[how disagreements were resolved]]; agreement was computed "
                  "on each coder's own codes, before resolution.")
     p.append("The codebook and the reliability data are available at [[where]].")
     return " ".join(p)
+
+
+_METHOD_TEXT = {"discussion": "by discussion", "adjudicator": "by an adjudicator",
+                "majority": "by a majority of the coders"}
+
+
+def _decided_text(c: ConsensusSummary) -> str:
+    """'5 by discussion and 2 by an adjudicator' from the consensus file's "how decided"."""
+    parts = [f"{format_value(n, 'count')} {_METHOD_TEXT.get(k, f'by ‘{lit(k)}’')}" for k, n in c.by_method.items()]
+    if c.decided_without_method:
+        parts.append(f"{format_value(c.decided_without_method, 'count')} with no procedure recorded")
+    return _join(parts)
 
 
 _SOURCE_TEXT = {"agreed": "were coded alike by the coders", "decided": "were decided after discussion "
@@ -688,9 +789,11 @@ def interpretation(report: Report) -> tuple[str, ...]:
     digits = report.digits
     out = []
     minimum = format_value(report.minimum, "threshold")
+    here = (f"the minimum here is {minimum}, the default convention, since no other minimum was given "
+            "(--min)" if report.minimum_default else f"the minimum here is {minimum}")
     out.append("Convention used: Krippendorff (2004) advises relying on variables with α ≥ .800, drawing only "
-               "tentative conclusions for .667 ≤ α < .800, and discarding variables below .667; the minimum "
-               f"here is {minimum}. Kappa-type values are labelled with the bands of Landis and Koch (1977): "
+               "tentative conclusions for .667 ≤ α < .800, and discarding variables below .667; "
+               f"{here}. Kappa-type values are labelled with the bands of Landis and Koch (1977): "
                "below 0 poor, .00–.20 slight, .21–.40 fair, .41–.60 moderate, .61–.80 substantial, "
                ".81–1.00 almost perfect.")
     prim = report.primary_result
@@ -710,8 +813,8 @@ def interpretation(report: Report) -> tuple[str, ...]:
         }[band]
         if band == "estimate-only":
             if prim.p_below_min is not None:
-                text += (f" (probability below the minimum "
-                         f"{format_value(prim.p_below_min, 'probability')}).")
+                text += (f" (a share of {format_value(prim.p_below_min, 'probability')} of the bootstrap "
+                         "resamples fell below it).")
             else:
                 text += "."
         out.append(text)
@@ -732,18 +835,31 @@ def interpretation(report: Report) -> tuple[str, ...]:
     if rest:
         out.append("Other coefficients: " + "; ".join(rest) + ".")
     if report.per_code:
-        estimates = [(r.get("code"), r.get("alpha"), r.get("ci_low")) for r in report.per_code]
-        bands: dict[str, list[str]] = {}
-        for code, est, low in estimates:
-            b = krippendorff_band(est if est is not None else math.nan, low, report.minimum)
-            bands.setdefault(b, []).append(str(code))
-        pieces = []
-        for b in ("reliable", "estimate-only", "tentative", "below", "undefined"):
-            if b in bands:
-                names = ", ".join(f"‘{lit(c)}’" for c in bands[b])
-                pieces.append(f"{BAND_TEXT[b]}: {names}")
-        out.append(f"Per code (presence/absence α, {len(report.per_code)} codes): " + "; ".join(pieces) + ".")
+        # the statuses of the per-code table, word for word: one source of truth
+        groups: dict[str, list[str]] = {}
+        for rec in report.per_code:
+            groups.setdefault(str(rec.get("status")), []).append(str(rec.get("code")))
+        order = [s for s in STATUS_TEXT if s in groups] + [s for s in groups if s not in STATUS_TEXT]
+        pieces = [f"{lit(s)} ({lit(STATUS_TEXT.get(s, s))}): " + ", ".join(f"‘{lit(c)}’" for c in groups[s])
+                  for s in order]
+        judged = any(rec.get("judged_on") == "estimate" for rec in report.per_code)
+        tail = (" Without bootstrap intervals the statuses compare the estimates with the minimum."
+                if judged else "")
+        out.append(f"Per code (presence/absence α, {len(report.per_code)} codes; status as in the per-code "
+                   "table): " + "; ".join(pieces) + "." + tail)
+    elif report.per_code_skipped:
+        out.append(lit(report.per_code_skipped))
     return tuple(out)
+
+
+#: Plain meaning of each per-code status of `agree.diagnostics.diagnose_codes`, worst first.
+STATUS_TEXT = {
+    "below minimum": "estimate below the minimum",
+    "uncertain": "estimate at or above the minimum, interval reaches below it",
+    "too rare": "used on too few units to judge",
+    "undefined": "α undefined",
+    "ok": "lower end of the interval at or above the minimum",
+}
 
 
 # ----------------------------------------------------------------------------------------
@@ -817,7 +933,8 @@ def report_tables(report: Report) -> list[Table]:
         header = ("Code",) + tuple(h for _, h, _ in spec) + tuple(c.capitalize() for c in text_cols)
         tables.append(Table("per_code", "Agreement per code (each code as present or absent)", header,
                             tuple(rows), note="From the per-code diagnostics; α here is nominal α on the "
-                            "presence/absence recoding of each code."))
+                            "presence/absence recoding of each code. Status: " + "; ".join(
+                                f"{lit(k)}, {lit(v)}" for k, v in STATUS_TEXT.items()) + "."))
     if report.confused_pairs:
         recs = report.confused_pairs[:10]
         spec = [("count", "Count", "amount"), ("share", "Share of disagreement", "percent"),
@@ -830,8 +947,10 @@ def report_tables(report: Report) -> list[Table]:
         tables.append(Table("confused_pairs", "Most often confused code pairs",
                             ("Code", "Confused with") + tuple(h for _, h, _ in spec), tuple(rows),
                             note="Count: coincidences of the two codes within units (for two coders, units "
-                                 "where one gave each). α if merged: overall nominal α with the two codes "
-                                 "merged into one."))
+                                 "where one gave each; with more coders each pair of values is weighted "
+                                 "1/(*m* − 1), so counts can be fractional). α if merged: overall α (nominal; "
+                                 "for sets of codes with the same set distance as the coefficients) with the "
+                                 "two codes merged into one."))
     if report.code_use is not None:
         cu = report.code_use
         rows = []

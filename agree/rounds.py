@@ -29,7 +29,7 @@ from __future__ import annotations
 import math
 import os
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace as _replace
 from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
@@ -157,6 +157,8 @@ class RoundsResult:
     codes : the codes compared per round.
     level, minimum, confidence_level, n_resamples, seed : the settings used.
     warnings : notes from the computations.
+    cluster : the column whose groups were resampled whole within each round (None: units).
+    n_clusters : {round: number of groups} when `cluster` is set.
     """
 
     rounds: tuple[RoundAgreement, ...]
@@ -170,6 +172,8 @@ class RoundsResult:
     n_resamples: int
     seed: int | None
     warnings: tuple[Note, ...] = ()
+    cluster: str | None = None
+    n_clusters: Mapping[str, int] | None = None
 
     @property
     def final_round(self) -> str:
@@ -269,7 +273,8 @@ class RoundsResult:
     def to_dict(self) -> dict[str, Any]:
         return _clean({
             "settings": {"level": self.level, "minimum": self.minimum, "confidence_level": self.confidence_level,
-                         "n_resamples": self.n_resamples, "seed": self.seed},
+                         "n_resamples": self.n_resamples, "seed": self.seed, "cluster": self.cluster,
+                         "n_clusters": None if self.n_clusters is None else dict(self.n_clusters)},
             "codes": list(self.codes),
             "rounds": [r.to_dict() for r in self.rounds],
             "changes": [c.to_dict() for c in self.changes],
@@ -427,6 +432,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
                    minimum: float = 0.8, n_resamples: int = 2000, seed: int | None = None,
                    confidence_level: float = 0.95, codebooks: Mapping[str, Any] | None = None,
                    drift_round: str | None = None, round_column: str = "round", ci_method: str = "bca",
+                   cluster: str | None = None,
                    progress: Callable[[str, float], None] | None = None) -> RoundsResult:
     """Agreement per coding round, changes between rounds, definition changes and drift.
 
@@ -443,6 +449,9 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         changed since the round they were last measured in are flagged.
     drift_round : the round in which only a share of units is still double-coded; it is
         compared with the last full round before it instead of being a round of its own.
+    cluster : the name of a kept per-unit column (e.g. the interview): within each round,
+        whole groups are resampled instead of units (a note warns when a round has fewer
+        than 20 groups).
     progress : optional callback(step, fraction done).
 
     Returns
@@ -453,7 +462,8 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
     -----
     Difference of α between independent rounds: α_b - α_a with the percentile interval of
     α*_b,i - α*_a,i, the replicates drawn independently in each round (units resampled with
-    all their values). Beyond sampling noise when the interval excludes 0.
+    all their values, or whole clusters with `cluster`). Beyond sampling noise when the
+    interval excludes 0.
     """
     from agree import krippendorff_alpha
 
@@ -469,6 +479,15 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
     if not 0 < minimum <= 1:
         raise AgreeError(f"minimum must be between 0 and 1; got {minimum}", code="minimum")
     order = list(parts)
+    n_clusters: dict[str, int] | None = None
+    if cluster is not None:
+        n_clusters = {}
+        for name, part in parts.items():
+            if cluster not in part.columns:
+                raise AgreeError(f"round {name}: no column '{cluster}' to resample clusters by (columns kept: "
+                                 f"{', '.join(part.columns) or 'none'})",
+                                 hint="read the data keeping the column (--cluster NAME keeps it)", code="cluster")
+            n_clusters[name] = int(len(np.unique(np.asarray(part.columns[cluster]).astype(str))))
     if drift_round is not None:
         drift_round = str(drift_round)
         if drift_round not in parts:
@@ -504,7 +523,14 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
     for i, name in enumerate(order):
         d = parts[name]
         s0 = _child_seed(seed, i, 0)
-        overall = krippendorff_alpha(d, level=alpha_level, distance=distance, seed=s0, **opts)
+        groups = None if cluster is None else np.asarray(d.columns[cluster]).astype(str)
+        overall = krippendorff_alpha(d, level=alpha_level, distance=distance, seed=s0, cluster=groups, **opts)
+        if cluster is not None and n_resamples:
+            # the engine's note says "clusters"; name the column and the round instead
+            overall = _replace(overall, warnings=tuple(w for w in overall.warnings if w.code != "few-clusters"))
+            if n_clusters[name] < 20:
+                warnings.append(Note("few-clusters", f"Round {name}: only {n_clusters[name]} {cluster} groups "
+                                     "were resampled; bootstrap intervals from fewer than 20 groups are rough."))
         if n_resamples:
             reps[(name, None)] = _replicates(overall, n_resamples)
         warnings.extend(Note(w.code, f"Round {name}: {w.message}") for w in overall.warnings)
@@ -516,7 +542,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
             if code in by_label:
                 binary = d.presence(by_label[code])
                 sj = _child_seed(seed, i, j)
-                per_code[code] = krippendorff_alpha(binary, level="nominal", seed=sj, **opts)
+                per_code[code] = krippendorff_alpha(binary, level="nominal", seed=sj, cluster=groups, **opts)
                 if n_resamples:
                     reps[(name, code)] = _replicates(per_code[code], n_resamples)
             step += 1
@@ -573,4 +599,5 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
                         definition_changes=tuple(definition_changes), codes=tuple(code_list),
                         level=("sets of codes (masi distance)" if set_valued else str(level)),
                         minimum=float(minimum), confidence_level=float(confidence_level),
-                        n_resamples=int(n_resamples), seed=seed, warnings=tuple(warnings))
+                        n_resamples=int(n_resamples), seed=seed, warnings=tuple(warnings), cluster=cluster,
+                        n_clusters=n_clusters)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import io
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -15,6 +16,7 @@ from typer.testing import CliRunner
 import agree.cli.commands  # noqa: F401  (registers the commands)
 from agree.cli.app import app
 from agree.diagnostics import diagnose_codes, diagnose_coders
+from agree.format import format_value
 from agree.model import from_table
 
 ROWS = [
@@ -71,7 +73,7 @@ def test_codes_table_shows_worst_first_and_notes(coding_csv):
     assert "worst first" in out and "reason" in out
     assert out.index(first) < out.index("Most confused pairs")
     assert "read 15 units" in result.stderr          # the reading note goes to stderr
-    assert "unit resamples, seed 1" in result.stderr
+    assert "resamples of units, seed 1" in result.stderr
 
 
 def test_coders_json_equals_to_dict(coding_csv):
@@ -112,3 +114,98 @@ def test_help_has_examples():
         result = run([command, "--help"])
         assert result.exit_code == 0
         assert "Example" in result.stdout and "--format" in result.stdout
+
+
+# -- review fixes ----------------------------------------------------------------------------
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+
+
+def test_codes_overall_alpha_agrees_with_score_and_names_the_distance():
+    score = run(["score", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0"])
+    assert score.exit_code == 0, score.output
+    alpha = json.loads(score.stdout)["coefficients"]["krippendorff_alpha"]["estimate"]
+    codes = run(["codes", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0"])
+    assert codes.exit_code == 0, codes.output
+    printed = json.loads(codes.stdout)
+    assert printed["alpha"] == pytest.approx(alpha)
+    assert printed["distance"] == "masi"
+    table = run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "0"])
+    assert "masi distance" in table.stdout
+    assert format_value(alpha, "coefficient", 3) in table.stdout
+    jaccard = run(["codes", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0",
+                   "--distance", "jaccard"])
+    assert json.loads(jaccard.stdout)["distance"] == "jaccard"
+    assert json.loads(jaccard.stdout)["alpha"] != pytest.approx(alpha)
+
+
+def test_codes_status_follows_the_interval_on_the_sample():
+    result = run(["codes", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "1000"])
+    codes = {c["code"]: c for c in json.loads(result.stdout)["codes"]}
+    conflict = codes["Conflict"]
+    assert conflict["alpha"] >= 0.8 > conflict["ci_low"]
+    assert conflict["status"] == "uncertain"
+    table = run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "1000"])
+    assert "meets the minimum" not in table.stdout
+    assert "uncertain" in table.stdout
+
+
+def test_codes_table_is_apa_style_with_display_labels_and_coincidence_note():
+    result = run(["codes", str(SAMPLES / "round1.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
+                  "--boot", "200"])
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert not re.search(r"(?<![\d.])0\.\d{3}", out)      # no leading zero (APA, as in score)
+    assert re.search(r"(?<![\d.])\.\d{3}\b", out)          # three decimals, as in score's tables
+    assert "krippendorff_alpha" not in out and "p_s" not in out
+    assert "specific agreement" in out and "Fleiss' κ" in out
+    assert "coincidences" in out
+    assert "¹ coincidences" in result.stderr and "1/(m − 1)" in result.stderr
+    coders = run(["coders", str(SAMPLES / "round1.csv"), "--boot", "200"])
+    assert coders.exit_code == 0, coders.output
+    assert not re.search(r"(?<![\d.])0\.\d{3}", coders.stdout)
+    assert "Krippendorff's α" in coders.stdout and "Cohen's κ" in coders.stdout
+
+
+def test_codes_and_coders_resample_clusters():
+    for command in ("codes", "coders"):
+        result = run([command, str(SAMPLES / "round1.csv"), "--cluster", "interview", "--boot", "200",
+                      "--format", "json"])
+        assert result.exit_code == 0, result.output
+        printed = json.loads(result.stdout)
+        assert printed["bootstrap"]["unit"] == "cluster:interview"
+        assert printed["n_clusters"] == 12
+        assert "12 clusters (interview)" in result.stderr      # fewer than 20: a warning
+        table = run([command, str(SAMPLES / "round1.csv"), "--cluster", "interview", "--boot", "200"])
+        assert "whole interview groups (12 groups)" in table.stderr
+    bad = run(["codes", str(SAMPLES / "round1.csv"), "--cluster", "nope", "--boot", "10"])
+    assert bad.exit_code != 0 and "nope" in str(bad.exception)
+
+
+def test_codes_on_a_rating_scale_prints_a_caution():
+    result = run(["codes", str(SAMPLES / "ratings.csv"), "--codebook", str(SAMPLES / "ratings_codebook.csv"),
+                  "--boot", "0"])
+    assert result.exit_code == 0, result.output
+    assert "of limited use" in result.stderr and "rating scale" in result.stderr
+
+
+def test_codes_notes_name_the_code_and_paradox_is_filtered(tmp_path):
+    path = tmp_path / "rare.csv"
+    rows = [("u0", "rare", "x")] + [(f"u{i}", a, b) for i, (a, b) in
+                                    enumerate([("x", "x"), ("y", "y"), ("x", "y")] * 10, start=1)]
+    pd.DataFrame(rows, columns=["unit", "a", "b"]).to_csv(path, index=False)
+    result = run(["codes", str(path), "--boot", "300", "--min-units", "1"])
+    assert result.exit_code == 0, result.output
+    lines = [ln for ln in result.stderr.splitlines() if "bootstrap replicates were undefined" in ln]
+    assert lines and all("code '" in ln for ln in lines)
+
+
+def test_help_examples_use_bundled_samples():
+    for command in ("codes", "coders", "report", "rounds"):
+        text = run([command, "--help"]).stdout
+        examples = re.findall(r"Example: agree (.+)", text)
+        assert examples, command
+        for example in examples:
+            for token in example.split():
+                if token.startswith("samples/"):
+                    assert (SAMPLES.parent / token).exists(), (command, token)

@@ -161,11 +161,24 @@ def test_set_valued_directed_by_hand():
     assert directed.loc["x", "x"] == 1 and directed.loc["y", "y"] == 1
 
 
-def _jaccard_alpha(sets_by_unit):
-    """Independent pairwise Krippendorff alpha with the Jaccard distance (METHODS 4.3)."""
-    def dist(a, b):
-        u = a | b
-        return 0.0 if not u else 1 - len(a & b) / len(u)
+def _jaccard(a, b):
+    u = a | b
+    return 0.0 if not u else 1 - len(a & b) / len(u)
+
+
+def _masi(a, b):
+    """MASI distance 1 - J * M, M = 1 (equal), 2/3 (one a subset of the other), 1/3 (overlap),
+    0 (disjoint) (Passonneau 2006, written out here from the definition)."""
+    if a == b:
+        return 0.0
+    if not (a & b):
+        return 1.0
+    m = 2 / 3 if (a <= b or b <= a) else 1 / 3
+    return 1 - (len(a & b) / len(a | b)) * m
+
+
+def _jaccard_alpha(sets_by_unit, dist=_jaccard):
+    """Independent pairwise Krippendorff alpha with a set distance (METHODS 4.3)."""
     units = [[s for s in u if s is not None] for u in sets_by_unit]
     units = [u for u in units if len(u) >= 2]
     values = [s for u in units for s in u]
@@ -193,13 +206,20 @@ def test_set_valued_merged_alpha_against_pairwise_computation(rng):
             unit.append(s)
         rows.append(unit)
     d = from_table(rows, coders=["a", "b", "c"])
-    diag = diagnose_codes(d, n_resamples=0)
+    diag = diagnose_codes(d, n_resamples=0, distance="jaccard")
+    assert diag.distance == "jaccard"
     as_sets = [[None if v is None else frozenset(v) for v in u] for u in rows]
     assert diag.alpha == pytest.approx(_jaccard_alpha(as_sets))
     pairs = diag.confused_pairs.set_index(["code_a", "code_b"])
     merged = [[None if v is None else frozenset("q" if c == "r" else c for c in v) for v in u]
               for u in rows]
     assert pairs.loc[("q", "r"), "alpha_if_merged"] == pytest.approx(_jaccard_alpha(merged))
+    # the default is MASI, as in agree.score, for the overall alpha and the merged alpha
+    masi = diagnose_codes(d, n_resamples=0)
+    assert masi.distance == "masi" and masi.alpha_label == "sets of codes, masi distance"
+    assert masi.alpha == pytest.approx(_jaccard_alpha(as_sets, _masi))
+    pairs = masi.confused_pairs.set_index(["code_a", "code_b"])
+    assert pairs.loc[("q", "r"), "alpha_if_merged"] == pytest.approx(_jaccard_alpha(merged, _masi))
     # Presence alpha of each code against krippendorff on the 0/1 recoding.
     for code in cats:
         binary = np.array([[np.nan if v is None else float(code in v) for v in u] for u in rows]).T
@@ -609,12 +629,15 @@ def test_two_coders_leave_one_out_is_undefined():
 def test_set_valued_coders():
     t = [[{"x"}, {"x"}, {"x", "y"}], [{"y"}, {"y"}, set()], [{"x"}, {"y"}, {"y"}],
          [{"x", "y"}, {"x", "y"}, {"x"}]]
-    diag = diagnose_coders(from_table(t, coders=["a", "b", "c"]), n_resamples=0)
+    diag = diagnose_coders(from_table(t, coders=["a", "b", "c"]), n_resamples=0, distance="jaccard")
     assert diag.level == "jaccard"
     as_sets = [[frozenset(v) for v in u] for u in t]
     assert diag.alpha == pytest.approx(_jaccard_alpha(as_sets))
     loo = diag.leave_one_out.set_index("coder")
     assert loo.loc["c", "alpha_without"] == pytest.approx(_jaccard_alpha([u[:2] for u in as_sets]))
+    masi = diagnose_coders(from_table(t, coders=["a", "b", "c"]), n_resamples=0)
+    assert masi.level == "masi"
+    assert masi.alpha == pytest.approx(_jaccard_alpha(as_sets, _masi))
     assert set(diag.code_use.code) == {"x", "y"}
 
 
@@ -645,3 +668,157 @@ def test_per_code_results_do_not_depend_on_coder_order(seed, m, q, n, missing):
     if len(pairs):
         assert pairs.share.sum() == pytest.approx(1.0)
         assert (pairs.alpha_if_merged.notna() | pairs.delta_alpha.isna()).all()
+
+
+# -----------------------------------------------------------------------------------------
+# Status by the interval, not the estimate (Krippendorff 2004: judge by the lower end)
+
+SAMPLES = __import__("pathlib").Path(__file__).resolve().parent.parent / "samples"
+
+
+def _multicode():
+    from agree.readers import read
+    return read(SAMPLES / "multicode.xlsx")
+
+
+@pytest.fixture(scope="module")
+def multicode_diag():
+    return diagnose_codes(_multicode(), n_resamples=1000, seed=5)
+
+
+def test_status_compares_the_lower_end_of_the_interval_with_the_minimum(multicode_diag):
+    frame = multicode_diag.to_frame()
+    assert set(frame.status) <= {"below minimum", "uncertain", "too rare", "undefined", "ok"}
+    for r in frame.itertuples():
+        if r.status in ("too rare", "undefined"):
+            continue
+        assert r.judged_on == "interval"
+        if r.alpha < 0.8:
+            assert r.status == "below minimum"
+        elif r.ci_low >= 0.8:
+            assert r.status == "ok"
+        else:
+            assert r.status == "uncertain"
+            assert "interval reaches below" in r.reason
+    # the review's case: Conflict .84 with an interval reaching far below .8 is not "ok"
+    conflict = frame.set_index("code").loc["Conflict"]
+    assert conflict.alpha >= 0.8 and conflict.ci_low < 0.8
+    assert conflict.status == "uncertain"
+    # ranked in order of concern
+    order = ["below minimum", "uncertain", "too rare", "undefined", "ok"]
+    assert list(frame.status) == sorted(frame.status, key=order.index)
+
+
+def test_without_bootstrap_the_estimate_is_judged_and_the_reason_says_so():
+    diag = diagnose_codes(_multicode(), n_resamples=0)
+    frame = diag.to_frame().set_index("code")
+    assert frame.loc["Conflict", "status"] == "ok"          # .84 >= .8 on the estimate
+    assert frame.loc["Conflict", "judged_on"] == "estimate"
+    assert "no bootstrap" in frame.loc["Conflict", "reason"]
+    assert "estimate alone" in frame.loc["Coordination", "reason"]
+    assert any("no bootstrap" in n.message for n in diag.notes if n.code == "minimum")
+
+
+def test_overall_alpha_uses_the_same_set_distance_as_score():
+    from agree import krippendorff_alpha, score
+    d = _multicode()
+    masi = diagnose_codes(d, n_resamples=0)
+    scored = score(d, n_resamples=0).coefficients["krippendorff_alpha"].estimate
+    assert masi.alpha == pytest.approx(scored)
+    assert masi.to_dict()["alpha_level"] == "sets of codes, masi distance"
+    jac = diagnose_codes(d, n_resamples=0, distance="jaccard")
+    assert jac.alpha == pytest.approx(krippendorff_alpha(d, distance="jaccard", n_resamples=0).estimate)
+    assert jac.alpha != pytest.approx(masi.alpha)
+    assert diagnose_coders(d, n_resamples=0).alpha == pytest.approx(scored)
+    with pytest.raises(AgreeError) as err:
+        diagnose_codes(d, n_resamples=0, distance="cosine")
+    assert err.value.code == "bad-option"
+    # single codes: no distance
+    assert diagnose_codes(from_table([["a", "a"], ["a", "b"], ["b", "b"]]), n_resamples=0).distance is None
+
+
+def test_kappa_paradox_needs_high_specific_agreement():
+    # Two coders, 100 units: both yes 88, yes/no 5, no/yes 5, both no 2. Percent agreement .90
+    # and kappa .23 (Feinstein & Cicchetti 1990's first paradox; hand computation: p_e =
+    # .93² + .07² = .8698). Specific agreement for "yes" 176/186 = .946 (a paradox: the coders
+    # agree on the code), for "no" 4/14 = .286 (no paradox: they rarely agree on "no").
+    d = table_data([[88, 5], [5, 2]], ["yes", "no"])
+    diag = diagnose_codes(d, n_resamples=0, min_units_per_code=1)
+    yes, no = row(diag, "yes"), row(diag, "no")
+    assert yes.percent_agreement == pytest.approx(0.90) and no.percent_agreement == pytest.approx(0.90)
+    assert yes.kappa == pytest.approx((0.90 - 0.8698) / (1 - 0.8698))
+    assert yes.specific_agreement == pytest.approx(176 / 186)
+    assert no.specific_agreement == pytest.approx(4 / 14)
+    assert bool(yes.paradox) and "paradox" in yes.explanation
+    assert not bool(no.paradox)
+
+
+def test_bootstrap_notes_name_the_code():
+    # "rare" appears once: most replicates have no "rare" at all (undefined alpha)
+    t = [["rare", "x"]] + [["x", "x"], ["y", "y"], ["x", "y"]] * 10
+    diag = diagnose_codes(from_table(t), n_resamples=300, seed=1, min_units_per_code=1)
+    undefined = [n.message for n in diag.notes if n.code == "undefined-replicates"]
+    assert undefined and all(m.startswith("code '") for m in undefined)
+    assert any("code 'rare'" in m for m in undefined)
+
+
+def test_rating_scale_gets_a_caution():
+    d = from_table([[1, 2], [2, 2], [3, 4], [4, 4], [5, 5]], level="ordinal")
+    diag = diagnose_codes(d, n_resamples=0, min_units_per_code=1)
+    assert any(n.code == "rating-scale" and "limited use" in n.message for n in diag.notes)
+
+
+# -----------------------------------------------------------------------------------------
+# Cluster resampling (Efron & Tibshirani 1993: resample the independent units, here groups)
+
+def _replicated(rng, n=60, copies=5):
+    codes = simulate_codes(rng, n, 2, 3, alpha=0.6)
+    labels = as_labels(codes, ["a", "b", "c"])
+    base = from_table(labels)
+    big = from_table(np.repeat(np.asarray(labels, dtype=object), copies, axis=0))
+    groups = np.repeat(np.arange(n), copies)
+    return base, big, groups
+
+
+def _width(frame, code):
+    r = frame.set_index("code").loc[code]
+    return r.ci_high - r.ci_low
+
+
+def test_cluster_bootstrap_resamples_whole_groups(rng):
+    # Each unit copied five times: resampling the copies as if independent gives intervals
+    # about sqrt(5) times too narrow; resampling the groups whole gives the width of the
+    # original data (the copies add no information).
+    base, big, groups = _replicated(rng)
+    kw = dict(n_resamples=1500, seed=3, ci_method="percentile", minimum=None)
+    w_base = _width(diagnose_codes(base, **kw).per_code, "a")
+    w_units = _width(diagnose_codes(big, **kw).per_code, "a")
+    clustered = diagnose_codes(big, cluster=groups, **kw)
+    w_groups = _width(clustered.per_code, "a")
+    assert w_groups == pytest.approx(w_base, rel=0.2)
+    assert w_units < 0.7 * w_groups
+    assert clustered.bootstrap.unit == "cluster:cluster" and clustered.n_clusters == 60
+    assert clustered.to_dict()["n_clusters"] == 60
+    assert not any(n.code == "few-clusters" for n in clustered.notes)
+    # the point estimates do not depend on the resampling
+    assert row(clustered, "a").alpha == pytest.approx(row(diagnose_codes(big, **kw), "a").alpha)
+
+
+def test_cluster_column_and_few_clusters_note(rng):
+    t = simulate_codes(rng, 40, 3, 3, alpha=0.6)
+    labels = as_labels(t, ["a", "b", "c"])
+    d = from_table(labels)
+    from dataclasses import replace
+    d = replace(d, columns={"doc": np.repeat([f"d{i}" for i in range(8)], 5)})
+    diag = diagnose_codes(d, cluster="doc", n_resamples=200, seed=1)
+    assert diag.cluster == "doc" and diag.n_clusters == 8
+    assert diag.bootstrap.unit == "cluster:doc"
+    assert any(n.code == "few-clusters" and "8 clusters (doc)" in n.message for n in diag.notes)
+    coders = diagnose_coders(d, cluster="doc", n_resamples=200, seed=1)
+    assert coders.bootstrap.unit == "cluster:doc" and coders.n_clusters == 8
+    assert coders.leave_one_out.delta_ci_low.notna().all()
+    with pytest.raises(AgreeError) as err:
+        diagnose_codes(d, cluster="nope", n_resamples=10)
+    assert err.value.code == "cluster"
+    with pytest.raises(AgreeError):
+        diagnose_codes(d, cluster=np.arange(3), n_resamples=10)

@@ -372,3 +372,130 @@ def test_cli_report_exit_code_and_one_line_error(tmp_path):
     assert proc.returncode == 2
     assert proc.stderr.strip().startswith("error: cannot tell the report format")
     assert "Traceback" not in proc.stderr
+
+
+# -- review fixes ----------------------------------------------------------------------------
+
+def test_interpretation_uses_exactly_the_per_code_statuses(sample_report):
+    from agree.report import STATUS_TEXT
+
+    text = plain(sample_report.interpretation[-1])
+    assert text.startswith("Per code")
+    sentences = {}
+    for piece in text.split(": ", 1)[1].rstrip(".").split("; "):
+        head, names = piece.rsplit("): ", 1)
+        status = head.split(" (", 1)[0]
+        sentences[status] = {n.strip("‘’") for n in names.split(", ")}
+    table = {}
+    for rec in sample_report.per_code:
+        table.setdefault(rec["status"], set()).add(rec["code"])
+    assert sentences == table                         # one source of truth
+    assert set(table) <= set(STATUS_TEXT)
+    # the old estimate-based bands are gone from the per-code sentence
+    assert "tentative" not in text and "below .667" not in text
+    # and the per-code table carries the same statuses
+    per_code = {t.key: t for t in report_tables(sample_report)}["per_code"]
+    col = per_code.header.index("Status")
+    assert [r[col].text for r in per_code.rows] == [rec["status"] for rec in sample_report.per_code]
+
+
+def test_methods_wording_of_the_share_below_and_the_default_minimum(sample_report):
+    text = sample_report.to_dict()["methods"]
+    prim = sample_report.primary_result
+    share = format_value(prim.p_below_min, "probability")
+    assert f"a share of {share} of the bootstrap resamples fell below the minimum of .800" in text
+    assert "probability that" not in text
+    assert "default convention (Krippendorff, 2004)" in text
+    assert sample_report.minimum_default and sample_report.to_dict()["settings"]["minimum_default"]
+    given = build_report(_sample_round2(), n_resamples=0, seed=1, minimum=0.8)
+    assert not given.minimum_default
+    assert "default convention" not in given.to_dict()["methods"]
+    assert "set at .800 because [why this minimum]" in given.to_dict()["methods"]
+
+
+def test_cluster_resampling_is_stated_in_the_methods():
+    report = build_report(_sample_round2(), n_resamples=200, seed=3, cluster="interview")
+    text = report.to_dict()["methods"]
+    assert "whole interview groups (n = 12 groups) were resampled" in text
+    assert "resamples of units" not in text
+    assert report.primary_result.bootstrap.unit == "cluster:interview"
+    assert report.n_clusters == 12 and report.to_dict()["settings"]["cluster"] == "interview"
+    few = [w for w in report.warnings if w.code == "few-clusters"]
+    assert len(few) == 1 and "12 interview groups" in few[0].message
+    # per-code intervals come from the same kind of resamples
+    unclustered = build_report(_sample_round2(), n_resamples=200, seed=3)
+    by_code = {r["code"]: r for r in unclustered.per_code}
+    assert [r["alpha"] for r in report.per_code] == pytest.approx([by_code[r["code"]]["alpha"]
+                                                                   for r in report.per_code])
+    assert [r["ci_low"] for r in report.per_code] != [by_code[r["code"]]["ci_low"] for r in report.per_code]
+    with pytest.raises(AgreeError):
+        build_report(_sample_round2(), n_resamples=0, cluster="nope")
+
+
+def test_rating_scale_report_skips_the_per_code_section():
+    data = read(SAMPLES / "ratings.csv", codebook=SAMPLES / "ratings_codebook.csv")
+    report = build_report(data, n_resamples=0, seed=1)
+    assert report.level == "ordinal"
+    assert report.per_code == () and report.confused_pairs == ()
+    keys = {t.key for t in report_tables(report)}
+    assert "per_code" not in keys and "confused_pairs" not in keys
+    joined = " ".join(plain(p) for p in report.interpretation)
+    assert "Agreement per code is not reported" in joined and "rating scale" in joined
+    methods = report.to_dict()["methods"]
+    assert "codes below it" not in methods
+    assert "below .667" not in joined.split("Agreement per code")[-1]
+    md = render_markdown(report)
+    assert "Agreement per code is not reported" in md and "'2'" not in md
+
+
+def test_consensus_how_decided_replaces_the_placeholder():
+    from agree.reconciliation import HOW
+    from agree.report import HOW_DECIDED
+
+    assert HOW_DECIDED == HOW
+    data, _ = _missing_data()
+    ids = list(map(str, data.unit_ids))
+    sources = ["agreed"] * 50 + ["decided"] * 20 + ["majority"] * 7 + ["unresolved"] * 3
+    how = [""] * 50 + ["discussion"] * 12 + ["adjudicator"] * 6 + [""] * 2 + [""] * 10
+    frame = pd.DataFrame({"unit": ids, "final code": "apple", "source": sources, HOW: how})
+    report = build_report(data, n_resamples=0, seed=1, consensus=frame)
+    c = report.to_dict()["consensus"]
+    assert c["by_method"] == {"discussion": 12, "adjudicator": 6}
+    assert c["decided_without_method"] == 2
+    text = report.to_dict()["methods"]
+    assert "[how disagreements were resolved]" not in text
+    assert "[the procedure" not in text
+    assert "20 were decided (12 by discussion, 6 by an adjudicator, and 2 with no procedure recorded)" in text
+    assert "as recorded in the consensus file" in text
+    # without the column the placeholder stays
+    plain_frame = frame.drop(columns=[HOW])
+    text = build_report(data, n_resamples=0, seed=1, consensus=plain_frame).to_dict()["methods"]
+    assert "[the procedure, e.g. discussion or a third coder]" in text
+
+
+def test_cli_report_refuses_to_overwrite_without_force(tmp_path):
+    out = tmp_path / "r.md"
+    args = ["report", str(SAMPLES / "round2.csv"), "-o", str(out), "--boot", "0"]
+    first = CliRunner().invoke(_cli(), args)
+    assert first.exit_code == 0, first.output
+    out.write_text("my edits")
+    again = CliRunner().invoke(_cli(), args)
+    assert isinstance(again.exception, AgreeError) and again.exception.code == "output-exists"
+    assert out.read_text() == "my edits"
+    # the figures folder alone also counts
+    out.unlink()
+    again = CliRunner().invoke(_cli(), args)
+    assert isinstance(again.exception, AgreeError) and "r-figures" in again.exception.message
+    forced = CliRunner().invoke(_cli(), args + ["--force"])
+    assert forced.exit_code == 0, forced.output
+    assert out.read_text() != "my edits"
+
+
+def test_cli_report_cluster(tmp_path):
+    out = tmp_path / "r.html"
+    result = CliRunner().invoke(_cli(), ["report", str(SAMPLES / "round2.csv"), "--cluster", "interview",
+                                         "-o", str(out), "--boot", "200", "--format", "json"])
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    assert "whole interview groups (n = 12 groups)" in printed["methods"]
+    assert "12 interview groups were resampled" in result.stderr

@@ -239,3 +239,70 @@ def test_cli_rounds_round_files_and_table(tmp_path):
     assert "Agreement per round" in result.stdout and "round2" in result.stdout
     bad = CliRunner().invoke(_cli(), ["rounds", str(SAMPLES / "round1.csv"), "--codebooks", "nonsense"])
     assert isinstance(bad.exception, AgreeError)
+
+
+# -- review fixes ----------------------------------------------------------------------------
+
+def _replicated_round(rng, n=50, copies=4):
+    base = _round(rng, n, 0.6)
+    labels = base.labels().to_numpy()
+    big = from_table(np.repeat(labels, copies, axis=0), coders=["a", "b", "c"], categories=CODES)
+    from dataclasses import replace
+    big = replace(big, columns={"doc": np.repeat([f"d{i}" for i in range(n)], copies)})
+    return base, big
+
+
+def test_rounds_resample_whole_clusters_within_each_round():
+    # Each unit copied four times within its group: resampling groups gives about the width
+    # of the original round; resampling the copies as if independent about half of it
+    # (Efron & Tibshirani 1993: resample the independent units).
+    rng = np.random.default_rng(11)
+    base1, big1 = _replicated_round(rng)
+    base2, big2 = _replicated_round(rng)
+    kw = dict(n_resamples=1500, seed=2, ci_method="percentile")
+    width = lambda r: r.overall.ci_high - r.overall.ci_low  # noqa: E731
+    plain_ = compare_rounds({"1": base1, "2": base2}, **kw)
+    units = compare_rounds({"1": big1, "2": big2}, **kw)
+    groups = compare_rounds({"1": big1, "2": big2}, cluster="doc", **kw)
+    for name in ("1", "2"):
+        assert width(groups.round(name)) == pytest.approx(width(plain_.round(name)), rel=0.25)
+        assert width(units.round(name)) < 0.75 * width(groups.round(name))
+        assert groups.round(name).overall.estimate == pytest.approx(units.round(name).overall.estimate)
+        assert groups.round(name).overall.bootstrap.unit == "cluster"
+    assert groups.cluster == "doc" and groups.n_clusters == {"1": 50, "2": 50}
+    assert groups.to_dict()["settings"]["cluster"] == "doc"
+    assert not any(w.code == "few-clusters" for w in groups.warnings)
+
+
+def test_rounds_warn_about_few_clusters_and_unknown_column():
+    parts = {"r1": read(SAMPLES / "round1.csv", keep=["interview"]),
+             "r2": read(SAMPLES / "round2.csv", keep=["interview"])}
+    result = compare_rounds(parts, cluster="interview", n_resamples=100, seed=1)
+    few = [w.message for w in result.warnings if w.code == "few-clusters"]
+    assert len(few) == 2 and all("12 interview groups" in m for m in few)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds(parts, cluster="nope", n_resamples=10)
+    assert err.value.code == "cluster"
+
+
+def test_cli_rounds_without_a_round_column_points_to_the_options():
+    import subprocess
+    import sys
+
+    exe = Path(sys.executable).parent / "agree"
+    proc = subprocess.run([str(exe), "rounds", str(SAMPLES / "round1.csv"), "--boot", "0"],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert "--round-column NAME" in proc.stderr and "--round-files" in proc.stderr
+    assert "no kept column" not in proc.stderr
+
+
+def test_cli_rounds_cluster():
+    result = CliRunner().invoke(_cli(), ["rounds", str(SAMPLES / "round1.csv"), str(SAMPLES / "round2.csv"),
+                                         "--round-files", "--cluster", "interview", "--boot", "100",
+                                         "--format", "json"])
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    assert printed["settings"]["cluster"] == "interview"
+    assert printed["settings"]["n_clusters"] == {"round1": 12, "round2": 12}
+    assert "12 interview groups" in result.stderr

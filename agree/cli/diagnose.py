@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import sys
+from enum import Enum
 from typing import TYPE_CHECKING, Annotated, Any
 
 import pandas as pd
@@ -13,7 +14,8 @@ from rich.table import Table
 from agree.cli.app import app, note, print_json, stdout
 from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOption, MinOption, SeedOption,
                                TableFormat)
-from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
+from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
+from agree.format import format_interval, format_value
 
 if TYPE_CHECKING:
     from agree.diagnostics import CodeDiagnostics, CoderDiagnostics
@@ -24,11 +26,26 @@ MinUnitsOption = Annotated[int, typer.Option("--min-units", help="A code used on
 TopOption = Annotated[int, typer.Option("--top", help="How many confused pairs to show in the table.")]
 
 
-def _num(x: Any, digits: int = 3) -> str:
-    if x is None or (isinstance(x, float) and not math.isfinite(x)):
-        return "–"
-    text = f"{x:.{digits}f}"
-    return text[1:] if text.startswith("-") and not text.strip("-0.") else text   # no "-0.000"
+class SetDistance(str, Enum):
+    masi = "masi"
+    jaccard = "jaccard"
+
+
+DistanceOption = Annotated[SetDistance, typer.Option(
+    "--distance", help="Sets of codes per unit: distance between two coders' sets for the overall alpha "
+                       "(masi, the default as in `agree score`, or jaccard).")]
+
+DIGITS = 3          # decimals in tables, as in `agree score`
+
+
+def _num(x: Any, digits: int = DIGITS) -> str:
+    """A coefficient in APA style (no leading zero), as in `agree score` and the report."""
+    return format_value(x, "coefficient", digits)
+
+
+def _signed(x: Any, digits: int = DIGITS) -> str:
+    text = format_value(x, "coefficient", digits)
+    return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
 
 
 def _pct(x: Any) -> str:
@@ -42,6 +59,17 @@ def _notes(notes) -> None:
         note(f"note: {n.message}")
 
 
+def _resampled(bootstrap, cluster: str | None, n_clusters: int | None) -> str:
+    """'bca intervals, 2,000 resamples of units, seed 1' (or of whole groups of a column)."""
+    if cluster is not None:
+        what = (f"whole {cluster} groups ({format_value(n_clusters, 'count')} groups)" if cluster != "cluster"
+                else f"whole clusters ({format_value(n_clusters, 'count')})")
+    else:
+        what = "units"
+    return (f"intervals: {bootstrap.method}, {format_value(bootstrap.replicates, 'count')} resamples of "
+            f"{what}, seed {bootstrap.seed}")
+
+
 @app.command("codes")
 @reading_options
 def codes_command(
@@ -51,6 +79,8 @@ def codes_command(
     seed: SeedOption = DEFAULT_SEED,
     min_units: MinUnitsOption = 5,
     top: TopOption = 10,
+    distance: DistanceOption = SetDistance.masi,
+    cluster: ClusterOption = None,
     output: FormatOption = TableFormat.table,
     codebook: CodebookOption = None,
     level: LevelOption = None,
@@ -59,15 +89,18 @@ def codes_command(
 ) -> None:
     """Which codes drive disagreement: per-code alpha, specific agreement, confusions, unequal use.
 
-    Codes are listed worst first, each with a short reason.
+    Codes are listed worst first, each with a status and a short reason. A code is "ok" when
+    the lower end of its interval reaches the minimum, "uncertain" when only the estimate does.
 
-    Example: agree codes coding.xlsx --min 0.8 --boot 2000 --seed 1
+    Example: agree codes samples/round1.csv --codebook samples/codebook.csv --cluster interview
+
+    Example: agree codes samples/multicode.xlsx --distance masi --min 0.8 --boot 2000 --seed 1
     """
-    data = load_data(files, codebook=codebook, level=level, **reading)
+    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
     from agree.diagnostics import diagnose_codes
 
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
-                            min_units_per_code=min_units)
+                            min_units_per_code=min_units, distance=distance.value, cluster=cluster)
     _notes(result.notes)
     if output is TableFormat.json:
         print_json(result.to_dict())
@@ -79,41 +112,52 @@ def codes_command(
 
 def _codes_table(result: "CodeDiagnostics", top: int) -> None:
     frame = result.to_frame()
-    level = f"{result.confidence_level:.0%}"
-    table = Table(title=f"Codes, worst first (minimum alpha {_num(result.minimum, 2)})")
+    level = f"{result.confidence_level:.0%} CI"
+    stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {_num(result.alpha)}", highlight=False)
+    minimum = "none" if result.minimum is None else format_value(result.minimum, "threshold")
+    table = Table(title=f"Codes, worst first (presence/absence α; minimum {minimum})")
     table.add_column("#", justify="right", no_wrap=True)
     table.add_column("code", min_width=8)
-    table.add_column("status", min_width=8)
-    for name in ["alpha", f"{level} interval", "p_s", "kappa"]:
+    table.add_column("status", min_width=9)
+    kappa = "Cohen's κ" if len(result.coders) == 2 else "Fleiss' κ"
+    for name in ["α", level, "specific agreement", kappa]:
         table.add_column(name, justify="right", no_wrap=True)
     table.add_column("reason", ratio=1, min_width=20)
     for row in frame.itertuples(index=False):
-        interval = ("–" if not math.isfinite(row.ci_low)
-                    else f"{_num(row.ci_low)} to {_num(row.ci_high)}")
-        table.add_row(str(row.rank), str(row.code), row.status, _num(row.alpha), interval,
+        table.add_row(str(row.rank), str(row.code), row.status, _num(row.alpha),
+                      format_interval(row.ci_low, row.ci_high, DIGITS),
                       _num(row.specific_agreement), _num(row.kappa), row.reason)
     stdout.print(table)
-    note("p_s: specific agreement (when one coder applied the code, how often another did too); "
+    judged = ("ok: the interval's lower end reaches the minimum; uncertain: only the estimate does"
+              if result.bootstrap is not None else
+              "no bootstrap (--boot 0): statuses compare the estimate, not an interval, with the minimum")
+    note(f"status — {judged}")
+    note("specific agreement: when one coder applied the code, how often another did too; "
          "--format csv or json for per-coder use and the tests of equal use")
     pairs = result.confused_pairs.head(top)
     if len(pairs):
         ptable = Table(title="Most confused pairs (share of all disagreement)")
-        columns = ["codes", "count", "share", "o/e", "alpha if merged", "change"]
+        columns = ["codes", "coincidences¹", "share", "o/e", "α if merged", "change"]
         if len(result.coders) == 2:
             columns[2:2] = [f"{result.coders[0]}→{result.coders[1]}", "reverse"]
         for name in columns:
-            ptable.add_column(name, justify="left" if name == "codes" else "right")
+            ptable.add_column(name, justify="left" if name == "codes" else "right",
+                              min_width=len(name) if name.startswith("coinc") else None)
         for p in pairs.itertuples(index=False):
-            cells = [f"{p.code_a} / {p.code_b}", _num(p.count, 1), _pct(p.share), _num(p.o_over_e, 2),
-                     _num(p.alpha_if_merged), f"{p.delta_alpha:+.3f}"]
+            cells = [f"{p.code_a} / {p.code_b}", format_value(p.count, "number", 1), _pct(p.share),
+                     format_value(p.o_over_e, "number", 2), _num(p.alpha_if_merged), _signed(p.delta_alpha)]
             if len(result.coders) == 2:
-                cells[2:2] = [_num(p.a_to_b, 0), _num(p.b_to_a, 0)]
+                cells[2:2] = [format_value(p.a_to_b, "amount"), format_value(p.b_to_a, "amount")]
             ptable.add_row(*cells)
         stdout.print(ptable)
+        note("¹ coincidences: pairs of values within a unit, each pair weighted 1/(m − 1) for a unit "
+             "coded by m coders, so with more than two coders they can be fractional; o/e: observed "
+             f"over expected coincidences; α if merged: overall α ({result.alpha_label}) with the two "
+             "codes merged")
     mh = result.marginal_homogeneity
     if mh.get("test"):
-        line = (f"Marginal homogeneity (Stuart–Maxwell): X² = {_num(mh['statistic'])}, "
-                f"df = {mh['df']}, p = {_num(mh['p_value'], 4)}")
+        line = (f"Marginal homogeneity (Stuart–Maxwell): X² = {format_value(mh['statistic'], 'number', DIGITS)}, "
+                f"df = {mh['df']}, p = {format_value(mh['p_value'], 'probability')}")
         if mh.get("dropped"):
             line += f"; left out (never in a disagreement): {', '.join(map(str, mh['dropped']))}"
         stdout.print(line, highlight=False)
@@ -123,8 +167,7 @@ def _codes_table(result: "CodeDiagnostics", top: int) -> None:
         if row.paradox:
             note(f"note: {row.code}: {row.explanation}")
     if result.bootstrap is not None:
-        note(f"intervals: {result.bootstrap.method}, {result.bootstrap.replicates} unit resamples, "
-             f"seed {result.bootstrap.seed}")
+        note(_resampled(result.bootstrap, result.cluster, result.n_clusters))
 
 
 @app.command("coders")
@@ -133,6 +176,8 @@ def coders_command(
     files: Files,
     boot: BootOption = DEFAULT_BOOT,
     seed: SeedOption = DEFAULT_SEED,
+    distance: DistanceOption = SetDistance.masi,
+    cluster: ClusterOption = None,
     output: FormatOption = TableFormat.table,
     codebook: CodebookOption = None,
     level: LevelOption = None,
@@ -141,13 +186,15 @@ def coders_command(
 ) -> None:
     """Which coders drive disagreement: pairwise agreement, alpha without each coder, code use.
 
-    Example: agree coders coding.xlsx --boot 2000 --seed 1
+    Example: agree coders samples/round1.csv --codebook samples/codebook.csv --cluster interview
+
+    Example: agree coders samples/ratings.csv --codebook samples/ratings_codebook.csv --boot 2000 --seed 1
     """
-    data = load_data(files, codebook=codebook, level=level, **reading)
+    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
     from agree.diagnostics import diagnose_coders
 
     result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,
-                             seed=seed)
+                             seed=seed, distance=distance.value, cluster=cluster)
     _notes(result.notes)
     if output is TableFormat.json:
         print_json(result.to_dict())
@@ -158,24 +205,24 @@ def coders_command(
 
 
 def _coders_table(result: "CoderDiagnostics") -> None:
-    stdout.print(f"alpha ({result.level}), all coders: {_num(result.alpha)}", highlight=False)
+    stdout.print(f"Krippendorff's α ({result.level_label}), all coders: {_num(result.alpha)}", highlight=False)
     ptable = Table(title="Pairs of coders")
-    for name in ["coder", "coder", "units", "% agree", "kappa", "alpha"]:
+    for name in ["coder", "coder", "units", "% agreement", "Cohen's κ", "Krippendorff's α"]:
         ptable.add_column(name, justify="left" if name == "coder" else "right")
     for p in result.pairwise.itertuples(index=False):
-        ptable.add_row(p.coder_a, p.coder_b, str(p.n_units), _pct(p.percent_agreement),
+        ptable.add_row(p.coder_a, p.coder_b, format_value(p.n_units, "count"), _pct(p.percent_agreement),
                        _num(p.kappa), _num(p.alpha))
     stdout.print(ptable)
     frame = result.to_frame()
     if frame.alpha_without.notna().any():
-        level = f"{result.confidence_level:.0%}"
-        ltable = Table(title="Alpha with each coder left out (a positive change: the coder lowers it)")
-        for name in ["coder", "alpha without", "change", f"{level} interval of change"]:
+        level = f"{result.confidence_level:.0%} CI of change"
+        ltable = Table(title="Krippendorff's α with each coder left out (a positive change: the coder lowers it)")
+        for name in ["coder", "α without", "change", level]:
             ltable.add_column(name, justify="left" if name == "coder" else "right")
         for r in frame.sort_values("delta", ascending=False).itertuples(index=False):
             interval = ("–" if not math.isfinite(r.delta_ci_low)
-                        else f"{r.delta_ci_low:+.3f} to {r.delta_ci_high:+.3f}")
-            ltable.add_row(r.coder, _num(r.alpha_without), f"{r.delta:+.3f}", interval)
+                        else f"[{_signed(r.delta_ci_low)}, {_signed(r.delta_ci_high)}]")
+            ltable.add_row(r.coder, _num(r.alpha_without), _signed(r.delta), interval)
         stdout.print(ltable)
     use = result.code_use_table()
     utable = Table(title="Share of each coder's units given each code")
@@ -186,5 +233,4 @@ def _coders_table(result: "CoderDiagnostics") -> None:
         utable.add_row(str(coder), *[_pct(float(v)) if pd.notna(v) else "–" for v in shares])
     stdout.print(utable)
     if result.bootstrap is not None:
-        note(f"intervals: {result.bootstrap.method}, {result.bootstrap.replicates} unit resamples, "
-             f"seed {result.bootstrap.seed}")
+        note(_resampled(result.bootstrap, result.cluster, result.n_clusters))

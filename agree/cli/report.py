@@ -11,7 +11,7 @@ from rich.table import Table
 
 from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
 from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, MinOption, SeedOption
-from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
+from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.files import atomic_write_bytes, check_output
 from agree.model import AgreeError
 
@@ -52,9 +52,11 @@ def parse_codebooks(spec: str | None) -> dict[str, Path] | None:
 
 
 def _read_rounds(files: list[Path], *, round_files: bool, round_column: str | None, reading: dict,
-                 required: bool) -> tuple[Any, dict[str, Any] | None, str | None]:
+                 required: bool, cluster: str | None = None) -> tuple[Any, dict[str, Any] | None, str | None]:
     """The data and, when there are rounds, {round: data} (for --round-files) or the column name."""
     keep = list(reading.pop("keep") or ())
+    if cluster and cluster not in keep:
+        keep.append(cluster)
     if round_files:
         if len(files) < 2:
             raise AgreeError("--round-files needs one file per round (at least two)", code="bad-option")
@@ -69,7 +71,17 @@ def _read_rounds(files: list[Path], *, round_files: bool, round_column: str | No
         return None, parts, None
     column = round_column or "round"
     if round_column or required:
-        data = load_data(files, keep=keep + [column], **reading)
+        try:
+            data = load_data(files, keep=keep + [column], **reading)
+        except AgreeError as exc:
+            if round_column is None and exc.code == "no-column" and f"'{column}'" in exc.message:
+                raise AgreeError("the data have no 'round' column to tell the rounds apart",
+                                 where=exc.where,
+                                 hint="name the column that holds the round with --round-column NAME, or give "
+                                      "one file per round with --round-files (e.g. agree rounds "
+                                      "samples/round1.csv samples/round2.csv --round-files)",
+                                 code="round-column") from exc
+            raise
         return data, None, column
     try:
         data = load_data(files, keep=keep + [column], **reading)
@@ -86,7 +98,7 @@ def report(
     files: Files,
     output: Annotated[Path, typer.Option("--output", "-o", help="Report file: .html, .md, .docx or .tex "
                                                                 "(the format follows the suffix).")],
-    minimum: MinOption = 0.8,
+    minimum: MinOption = None,
     boot: BootOption = DEFAULT_BOOT,
     seed: SeedOption = DEFAULT_SEED,
     ci: CIOption = 0.95,
@@ -101,6 +113,9 @@ def report(
     drift_round: DriftOption = None,
     title: Annotated[str, typer.Option("--title", help="Title of the report.")] = "Intercoder agreement",
     digits: Annotated[int, typer.Option("--digits", help="Decimals shown for coefficients.")] = 2,
+    cluster: ClusterOption = None,
+    force: Annotated[bool, typer.Option("--force", help="Replace an existing report (and its figures "
+                                                        "folder).")] = False,
     output_format: FormatOption = OutputFormat.table,
     codebook: CodebookOption = None,
     level: LevelOption = None,
@@ -109,7 +124,11 @@ def report(
 ):
     """Write an agreement report: methods paragraph, tables, interpretation and plots.
 
-    Example: agree report samples/round2.csv --codebook samples/codebook.csv --corpus-size 600 -o report.html
+    Without --min the report uses .800, Krippendorff's convention, and says it is the default.
+
+    Example: agree report samples/round2.csv --codebook samples/codebook.csv --corpus-size 600 --cluster interview -o report.html
+
+    Example: agree report samples/round1.csv samples/round2.csv --round-files --codebook samples/codebook.csv -o report.md
     """
     from agree.report import build_report, write_report
     from agree.rounds import compare_rounds
@@ -120,17 +139,24 @@ def report(
     inputs = list(files) + [p for p in (consensus, codebook) if p is not None]
     books = parse_codebooks(codebooks)
     inputs += list((books or {}).values())
-    check_output(output, inputs)
+    check_output(output, inputs, force=force)
+    if output.suffix.lower() in (".md", ".markdown", ".tex"):
+        figures = output.parent / f"{output.stem}-figures"
+        if figures.exists() and not force:
+            raise AgreeError(f"{figures} already exists", hint="use --force to replace it, or choose another "
+                             "report name", code="output-exists")
     reading = {**reading, "codebook": codebook, "level": level}
     data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
-                                       reading=reading, required=False)
+                                       reading=reading, required=False, cluster=cluster)
     level_name = level.value if level is not None else None
-    options = dict(level=level_name, minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci)
+    options = dict(level=level_name, minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci,
+                   cluster=cluster)
     with progress_bar("report") as tick:
         building = scaled(tick, 0.0, 0.6)      # writing (with the plots) takes the rest
         if parts is not None:
             rounds = compare_rounds(parts, codebooks=books, drift_round=drift_round,
-                                    progress=scaled(tick, 0.0, 0.2), **options)
+                                    progress=scaled(tick, 0.0, 0.2),
+                                    **{**options, "minimum": 0.8 if minimum is None else minimum})
             data = parts[rounds.final_round]
             result = build_report(data, corpus_size=corpus_size, consensus=consensus, rounds=rounds,
                                   analysed_round=rounds.final_round, title=title, digits=digits,
@@ -148,6 +174,9 @@ def report(
         tick("done", 1.0)
     for path in written:
         note(f"wrote {path}")
+    for w in result.warnings:
+        if w.code == "few-clusters":
+            note(f"note: {w.message}")
     if output_format is OutputFormat.json:
         print_json(result.to_dict())
     else:
@@ -187,6 +216,7 @@ def rounds(
     ci: CIOption = 0.95,
     plot: Annotated[Optional[Path], typer.Option(
         "--plot", help="Write the trend plot (per code, with the minimum line) to this .png, .svg or .pdf.")] = None,
+    cluster: ClusterOption = None,
     output_format: FormatOption = OutputFormat.table,
     codebook: CodebookOption = None,
     level: LevelOption = None,
@@ -195,7 +225,9 @@ def rounds(
 ):
     """Compare agreement across coding rounds: per round, per code, changes, drift.
 
-    Example: agree rounds samples/round1.csv samples/round2.csv --round-files --keep interview
+    Example: agree rounds samples/round1.csv samples/round2.csv --round-files --cluster interview
+
+    Example: agree rounds samples/rounds_long.csv --round-column round --codebook samples/codebook.csv
     """
     from agree.rounds import compare_rounds
 
@@ -207,14 +239,19 @@ def rounds(
         check_output(plot, list(files) + list((books or {}).values()))
     reading = {**reading, "codebook": codebook, "level": level}
     data, parts, column = _read_rounds(list(files), round_files=round_files, round_column=round_column,
-                                       reading=reading, required=True)
+                                       reading=reading, required=True, cluster=cluster)
     options = dict(level=level.value if level is not None else None, minimum=minimum, n_resamples=boot,
-                   seed=seed, confidence_level=ci, codebooks=books, drift_round=drift_round)
+                   seed=seed, confidence_level=ci, codebooks=books, drift_round=drift_round, cluster=cluster)
     with progress_bar("rounds") as tick:
         if parts is not None:
             result = compare_rounds(parts, progress=tick, **options)
         else:
             result = compare_rounds(data, round_column=column, progress=tick, **options)
+    for w in result.warnings:
+        note(f"note: {w.message}")
+    if result.cluster is not None and result.n_resamples:
+        groups = ", ".join(f"{k}: {v}" for k, v in (result.n_clusters or {}).items())
+        note(f"intervals: whole {result.cluster} groups resampled within each round ({groups} groups)")
     if plot is not None:
         _write_plot(result, plot)
         note(f"wrote {plot}")
