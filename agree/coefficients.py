@@ -37,12 +37,11 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 import pandas as pd
-from scipy import special
 
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import Patterns, compress
 from agree.resampling import (bootstrap_interval, bootstrap_replicates, cluster_features,
-                              jackknife_values, make_rng)
+                              jackknife_values, make_rng, norm_cdf, norm_ppf)
 from agree.results import AgreementResult, BootstrapInfo, Note, display_name
 
 # ----------------------------------------------------------------------------------------
@@ -567,8 +566,10 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     elif se is not None and np.isfinite(estimate):
         eps = 1 - confidence_level
         df = extra.get("df")
-        crit = special.stdtrit(df, 1 - eps / 2) if df else special.ndtri(1 - eps / 2)
-        crit1 = special.stdtrit(df, 1 - eps) if df else special.ndtri(1 - eps)
+        from scipy import special  # Student's t, only for intervals without a bootstrap
+
+        crit = special.stdtrit(df, 1 - eps / 2) if df else norm_ppf(1 - eps / 2)
+        crit1 = special.stdtrit(df, 1 - eps) if df else norm_ppf(1 - eps)
         ci_low, ci_high, lower = (float(estimate - crit * se), float(estimate + crit * se),
                                   float(estimate - crit1 * se))
         if ci_low < -1 or ci_high > 1:
@@ -580,12 +581,12 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         method = "t" if df else "wald"
         if minimum is not None and se > 0:
             t = (minimum - estimate) / se
-            p_below = float(special.stdtr(df, t) if df else special.ndtr(t))
+            p_below = float(special.stdtr(df, t) if df else norm_cdf(t))
     z = p_two = p_one = None
     se0 = details.get("se0")
     if se0 and np.isfinite(estimate) and se0 > 0:
         z = estimate / se0
-        p_two, p_one = float(2 * special.ndtr(-abs(z))), float(special.ndtr(-z))
+        p_two, p_one = float(2 * norm_cdf(-abs(z))), float(norm_cdf(-z))
         details["z_method"] = "kappa / SE under H0 (Fleiss, Cohen & Everitt 1969)"
     n_used = int(counts[_used_patterns(pat, stat)].sum()) if len(counts) else 0
     return AgreementResult(
@@ -611,7 +612,7 @@ def _n_values(pat: Patterns, stat: _Statistic) -> int:
 
 
 def _wilson(p: float, n: float, level: float) -> tuple[float, float]:
-    z = special.ndtri(1 - (1 - level) / 2)
+    z = norm_ppf(1 - (1 - level) / 2)
     centre = (p + z ** 2 / (2 * n)) / (1 + z ** 2 / n)
     half = z * np.sqrt(p * (1 - p) / n + z ** 2 / (4 * n ** 2)) / (1 + z ** 2 / n)
     return float(centre - half), float(centre + half)
@@ -843,7 +844,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
         k = float(kj[j]) if pq[j] > 0 else float("nan")
         z = k / se0_j if np.isfinite(k) else float("nan")
         per[_label(v)] = {"kappa": k, "se0": float(se0_j), "z": z,
-                          "p_value": float(2 * special.ndtr(-abs(z))) if np.isfinite(z) else None,
+                          "p_value": float(2 * norm_cdf(-abs(z))) if np.isfinite(z) else None,
                           "share": float(p[j])}
     details["per_category"] = per
     se0 = float(np.sqrt(var0)) if np.isfinite(var0) and var0 > 0 else None
@@ -851,7 +852,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
     z = p_two = p_one = None
     if se0:
         z = res.estimate / se0
-        p_two, p_one = float(2 * special.ndtr(-abs(z))), float(special.ndtr(-z))
+        p_two, p_one = float(2 * norm_cdf(-abs(z))), float(norm_cdf(-z))
         details["z_method"] = "kappa / SE under H0 (Fleiss, Nee & Landis 1979)"
     return _replace(res, details=details, z=z, p_value=p_two, p_value_one_sided=p_one, warnings=tuple(notes))
 
@@ -886,7 +887,7 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     res = _run(stat, d, level=None, weights=None, **_options(locals()))
     if res.defined and res.se_method and res.se_method.startswith("linearisation") and res.se > 0:
         z = res.estimate / res.se
-        res = _replace(res, z=z, p_value=float(2 * special.ndtr(-abs(z))), p_value_one_sided=float(special.ndtr(-z)),
+        res = _replace(res, z=z, p_value=float(2 * norm_cdf(-abs(z))), p_value_one_sided=float(norm_cdf(-z)),
                        details={**res.details, "z_method": "Wald: kappa / linearised SE (no published null SE)"})
     return res
 

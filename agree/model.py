@@ -151,8 +151,11 @@ class CodingData:
         codes = np.asarray(self.codes)
         if codes.ndim != 2:
             raise AgreeError("coding data must be a units x coders table", code="shape")
-        if codes.dtype != np.int32:
-            object.__setattr__(self, "codes", codes.astype(np.int32))
+        if codes.dtype != np.int32 or codes.flags.writeable:
+            # a private read-only copy: the data cannot change under a computed result
+            codes = codes.astype(np.int32, copy=True)
+            codes.setflags(write=False)
+            object.__setattr__(self, "codes", codes)
         if len(self.coders) != codes.shape[1]:
             raise AgreeError("one coder name is needed per column", code="shape")
         if len(self.unit_ids) != codes.shape[0]:

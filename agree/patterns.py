@@ -9,6 +9,7 @@ counts (METHODS 7.5), at a cost independent of the number of units.
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -45,7 +46,30 @@ class Patterns:
         return (self.codes[:, :, None] == np.arange(V)[None, None, :]).astype(float)
 
 
+# Recently compressed read-only tables (CodingData.codes is read-only), so that scoring one data
+# set with several coefficients compresses its units once per kind of pattern.
+_RECENT: dict[tuple, tuple[weakref.ref, Patterns]] = {}
+_RECENT_SIZE = 4
+
+
 def compress(codes: np.ndarray, n_values: int, *, ordered: bool, keep_inverse: bool = False) -> Patterns:
+    """Group the units of a (N, m) codes table into distinct patterns (see `_compress`);
+    a read-only table compressed recently is not compressed again."""
+    codes = np.asarray(codes)
+    if codes.flags.writeable:
+        return _compress(codes, n_values, ordered=ordered, keep_inverse=keep_inverse)
+    key = (id(codes), n_values, ordered, keep_inverse)
+    hit = _RECENT.get(key)
+    if hit is not None and hit[0]() is codes:
+        return hit[1]
+    result = _compress(codes, n_values, ordered=ordered, keep_inverse=keep_inverse)
+    if len(_RECENT) >= _RECENT_SIZE:
+        _RECENT.pop(next(iter(_RECENT)))
+    _RECENT[key] = (weakref.ref(codes), result)
+    return result
+
+
+def _compress(codes: np.ndarray, n_values: int, *, ordered: bool, keep_inverse: bool = False) -> Patterns:
     """Group the units of a (N, m) codes table into distinct patterns.
 
     Each row is encoded as one integer in base V + 1 (missing = 0) when that fits in

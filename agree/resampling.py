@@ -16,15 +16,35 @@ DiCiccio, T. J., & Efron, B. (1996). Bootstrap confidence intervals. Statistical
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+from statistics import NormalDist
 from typing import Callable
 
 import numpy as np
-from scipy import special
 
 from agree.results import Note
 
 Finish = Callable[[np.ndarray], np.ndarray]
+
+_NORMAL = NormalDist()
+
+
+def norm_cdf(x):
+    """Standard normal distribution function Φ(x), elementwise (the standard library's, so
+    the engine loads without scipy.stats)."""
+    return np.vectorize(_NORMAL.cdf, otypes=[float])(x) if np.ndim(x) else _NORMAL.cdf(float(x))
+
+
+def norm_ppf(p):
+    """Standard normal quantile Φ⁻¹(p), elementwise; ±inf at 0 and 1."""
+    def one(v: float) -> float:
+        if v <= 0:
+            return -math.inf
+        if v >= 1:
+            return math.inf
+        return _NORMAL.inv_cdf(v)
+    return np.vectorize(one, otypes=[float])(p) if np.ndim(p) else one(float(p))
 
 # Largest number of (replicate x item) weights held in memory at once.
 _CHUNK_CELLS = 4_000_000
@@ -105,7 +125,7 @@ def bootstrap_interval(estimate: float, replicates: np.ndarray, *, confidence_le
     used = method
     if method == "bca":
         below = np.mean(defined < estimate) + 0.5 * np.mean(defined == estimate)
-        z0 = special.ndtri(below)
+        z0 = norm_ppf(below)
         accel = _acceleration(jack, jack_weights)
         if not np.isfinite(z0) or accel is None:
             used = "percentile"
@@ -113,8 +133,8 @@ def bootstrap_interval(estimate: float, replicates: np.ndarray, *, confidence_le
                 notes.append(Note("bca-fallback", "The BCa interval could not be formed (bias correction "
                                   "or acceleration undefined); the percentile interval is shown instead."))
         else:
-            zq = special.ndtri(probs)
-            probs = special.ndtr(z0 + (z0 + zq) / (1 - accel * (z0 + zq)))
+            zq = norm_ppf(probs)
+            probs = norm_cdf(z0 + (z0 + zq) / (1 - accel * (z0 + zq)))
     elif method != "percentile":
         raise ValueError(f"unknown interval method {method!r}")
     low, high, lower = np.quantile(defined, probs)
