@@ -551,7 +551,12 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
                                 jack=jack, jack_weights=item_counts, minimum=minimum)
         ci_low, ci_high, lower, p_below, method = iv.low, iv.high, iv.lower_bound, iv.p_below_min, iv.method
         warnings.extend(iv.notes)
-        if se is None:
+        if clusters is not None:
+            # published SEs assume independent units; with groups resampled the bootstrap SD is the SE
+            if se is not None:
+                details["se_independent_units"] = se
+            se, se_method = iv.se, "bootstrap standard deviation (whole groups resampled)"
+        elif se is None:
             se, se_method = iv.se, "bootstrap standard deviation"
         boot = BootstrapInfo(replicates=int(n_resamples), seed=used_seed, method=iv.method,
                              unit=unit_label, n_undefined=iv.n_undefined)

@@ -111,7 +111,9 @@ def print_score(result: ScoreResult) -> None:
             f"whole groups of '{result.resampled.partition(':')[2]}'" if ":" in result.resampled else "whole groups")
     boot = (f"{result.n_resamples} bootstrap replicates over {over} ({result.ci_method}), seed {result.seed}"
             if result.n_resamples else "no bootstrap; analytic intervals where published")
-    stdout.print(f"Intervals: {boot}. SE: analytic where published, else the bootstrap SD.", highlight=False)
+    se_rule = ("the bootstrap SD (published SEs assume independent units)" if result.resampled != "unit"
+               else "analytic where published, else the bootstrap SD")
+    stdout.print(f"Intervals: {boot}. SE: {se_rule}.", highlight=False)
     stdout.print(f"Units: {result.units_read} read, {result.units_used} used, {len(result.units_left_out)} left out "
                  f"(fewer than two coders). Values: {result.values_read} read, {result.values_missing} empty cells.",
                  highlight=False)
