@@ -832,7 +832,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
                           "kappas and the null test of Fleiss, Nee & Landis (1979) are not given; the "
                           "estimate uses Gwet's (2014) generalisation."))
         return _replace(res, details=details, warnings=tuple(notes))
-    pat = compress(d.codes[used], len(d.values), ordered=False)
+    pat = compress(d.codes if used.all() else d.codes[used], len(d.values), ordered=False)
     R = pat.value_counts()
     c = pat.counts.astype(float)
     N = c.sum()

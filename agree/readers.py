@@ -56,6 +56,7 @@ import csv
 import difflib
 import hashlib
 import io
+import os
 import re
 import zipfile
 from dataclasses import dataclass, field
@@ -524,10 +525,32 @@ def _looks_missing(v: Any) -> bool:
     return isinstance(v, str) and v.strip().lower() in MISSING_LOOKALIKES
 
 
+# Factorized columns computed ahead, in parallel (see `_prefetch_factorize`), by column array.
+_PREFETCHED: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+
+
 def _factorize(col: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Codes (-1 for missing) and the distinct values as an object array."""
+    done = _PREFETCHED.pop(id(col.array), None)
+    if done is not None:
+        return done
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     return np.asarray(codes, dtype=np.int64), np.asarray(uniques, dtype=object)
+
+
+def _prefetch_factorize(columns: list[pd.Series]) -> None:
+    """Factorize large text columns on several threads at once (the hashing releases the GIL)."""
+    big = [c for c in columns if len(c) >= 100_000 and isinstance(c.dtype, pd.StringDtype)]
+    if len(big) < 2:
+        return
+    from concurrent.futures import ThreadPoolExecutor
+
+    def work(col: pd.Series):
+        codes, uniques = pd.factorize(col, use_na_sentinel=True)
+        return id(col.array), (np.asarray(codes, dtype=np.int64), np.asarray(uniques, dtype=object))
+
+    with ThreadPoolExecutor(max_workers=min(len(big), os.cpu_count() or 1)) as pool:
+        _PREFETCHED.update(pool.map(work, big))
 
 
 def _atom(v: Any, *, trim: bool, casefold: bool) -> Any:
@@ -1003,6 +1026,14 @@ class _Builder:
         return self._assemble(book=book, level=level)
 
     def _add_table(self, t: _Table, r: _Roles) -> None:
+        if self.layout == "long":
+            _prefetch_factorize([t.frame[c] for c in (r.unit, r.coder, r.code)])
+        try:
+            self._add_columns(t, r)
+        finally:
+            _PREFETCHED.clear()  # keyed by object id: never let an entry outlive its column
+
+    def _add_columns(self, t: _Table, r: _Roles) -> None:
         frame = t.frame
         unit_idx, ids = _encode_ids(frame[r.unit], r.unit, self.stats, trim=self.trim)
         blank = unit_idx < 0
