@@ -830,3 +830,24 @@ def test_missing_kept_column_lists_the_columns(tmp_path):
         r.load_data([a, b], keep=["round"])
     assert "no kept column 'round' in any of the 2 tables" in e.value.message
     assert "'unit_id', 'interview', 'text', 'code', 'notes'" in e.value.hint
+
+
+def test_parallel_factorizing_of_a_large_long_table_changes_nothing(tmp_path, monkeypatch):
+    # 40,000 units x 3 coders = 120,000 rows: above the size where columns are factorized in parallel
+    import agree.readers as readers
+
+    rng = np.random.default_rng(5)
+    n = 40_000
+    frame = pd.DataFrame({
+        "unit": np.repeat([f"u{i}" for i in range(n)], 3),
+        "coder": np.tile(["ana", "ben", "cy"], n),
+        "code": rng.choice(["a", "b", "c", "d"], 3 * n),
+    }).sample(frac=1.0, random_state=1)
+    path = tmp_path / "long.csv"
+    frame.to_csv(path, index=False)
+    fast = readers.read(path)
+    monkeypatch.setattr(readers, "_prefetch_factorize", lambda columns: None)
+    plain = readers.read(path)
+    assert list(fast.unit_ids) == list(plain.unit_ids) and fast.values == plain.values
+    np.testing.assert_array_equal(fast.codes, plain.codes)
+    assert not readers._PREFETCHED
