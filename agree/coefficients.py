@@ -626,19 +626,87 @@ def _wilson(p: float, n: float, level: float) -> tuple[float, float]:
 # ----------------------------------------------------------------------------------------
 # public coefficients
 
-_COMMON_DOC = """
+_COMMON_PARAMETERS = """
     Parameters
     ----------
-    data : CodingData, DataFrame or array (units x coders; None/NaN for missing).
-    categories : the full category list in scale order (unused categories included). By
-        default the data's own values (a codebook read with the data fixes them).
-    confidence_level : two-sided level of the interval (default 0.95).
-    n_resamples : bootstrap replicates (units resampled with all their values); 0 for none.
-    ci_method : "bca" (default) or "percentile".
-    seed : int for a reproducible bootstrap; None draws one and records it in the result.
-    minimum : a minimum acceptable value; the result gives the share of replicates below it.
-    cluster : per-unit group labels, or the name of a kept column: resample whole groups.
+    data : CodingData, DataFrame or array
+        Units in rows, coders in columns; None, NaN or "" where a coder did not code a unit.
+    {specific}categories : sequence, optional
+        The full category list in scale order, unused categories included (they matter for
+        AC1 and Brennan-Prediger). By default the data's own values; a codebook read with the
+        data fixes them.
+    confidence_level : float
+        Level of the two-sided interval (default 0.95).
+    n_resamples : int
+        Bootstrap replicates (units resampled with all their values); 0 for none, in which
+        case the interval is analytic where a published SE exists.
+    ci_method : {{"bca", "percentile"}}
+        Bootstrap interval (default BCa).
+    seed : int, optional
+        Seed of the bootstrap; None draws one and records it in the result.
+    minimum : float, optional
+        A minimum acceptable value: the result gives the share of replicates below it and
+        the one-sided lower bound to compare with it.
+    cluster : array or str, optional
+        Per-unit group labels, or the name of a kept column: whole groups are resampled.
+
+    Returns
+    -------
+    AgreementResult
+        Estimate (NaN with a warning when undefined), SE and how it was obtained, interval,
+        one-sided lower bound, share below the minimum, counts, bootstrap record and warnings.
 """
+
+_SPECIFIC = {
+    "weights": ("weights : None, \"linear\", \"quadratic\" or q x q array\n"
+                "        Agreement weights on the category scores (the numbers for numeric codes,\n"
+                "        else ranks in category order); None for unweighted.\n    "),
+    "level": ("level : {\"nominal\", \"ordinal\", \"interval\", \"ratio\"} or callable\n"
+              "        Level of measurement, which sets the metric; a function f(c, k) >= 0 with\n"
+              "        f(c, c) = 0 gives a custom metric.\n"
+              "    distance : {\"masi\", \"jaccard\"}, optional\n"
+              "        For sets of codes (several codes per unit and coder); MASI by default.\n    "),
+}
+
+
+_REFERENCES = {
+    "krippendorff_alpha": ["Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg School "
+                           "for Communication.", "Passonneau, R. (2006). Measuring agreement on set-valued items "
+                           "(MASI). LREC 2006."],
+    "percent_agreement": ["Fleiss, J. L. (1971). Measuring nominal scale agreement among many raters. Psychological "
+                          "Bulletin, 76(5), 378-382.", "Wilson, E. B. (1927). Probable inference. JASA, 22, 209-212."],
+    "cohen_kappa": ["Cohen, J. (1960). A coefficient of agreement for nominal scales. EPM, 20(1), 37-46.",
+                    "Cohen, J. (1968). Weighted kappa. Psychological Bulletin, 70(4), 213-220.",
+                    "Fleiss, J. L., Cohen, J., & Everitt, B. S. (1969). Large sample standard errors of kappa and "
+                    "weighted kappa. Psychological Bulletin, 72(5), 323-327."],
+    "scott_pi": ["Scott, W. A. (1955). Reliability of content analysis. Public Opinion Quarterly, 19(3), 321-325.",
+                 "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."],
+    "fleiss_kappa": ["Fleiss, J. L. (1971). Psychological Bulletin, 76(5), 378-382.",
+                     "Fleiss, J. L., Nee, J. C. M., & Landis, J. R. (1979). Psychological Bulletin, 86(5), 974-977.",
+                     "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."],
+    "conger_kappa": ["Conger, A. J. (1980). Integration and generalization of kappas for multiple raters. "
+                     "Psychological Bulletin, 88(2), 322-328."],
+    "brennan_prediger": ["Brennan, R. L., & Prediger, D. J. (1981). Coefficient kappa: Some uses, misuses, and "
+                         "alternatives. EPM, 41(3), 687-699."],
+    "gwet_ac1": ["Gwet, K. L. (2008). Computing inter-rater reliability and its variance in the presence of high "
+                 "agreement. BJMSP, 61, 29-48.", "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."],
+    "pabak": ["Byrt, T., Bishop, J., & Carlin, J. B. (1993). Bias, prevalence and kappa. Journal of Clinical "
+              "Epidemiology, 46(5), 423-429."],
+}
+
+
+def _documented(*specific: str):
+    """Complete a coefficient's docstring with the parameters every coefficient shares (placed
+    before its Notes) and the return value."""
+    def decorate(func):
+        params = _COMMON_PARAMETERS.format(specific="".join(_SPECIFIC[k] for k in specific))
+        doc = func.__doc__ or ""
+        head, sep, notes = doc.partition("\n    Notes\n")
+        refs = "".join(f"    {r}\n" for r in _REFERENCES.get(func.__name__, ()))
+        refs = f"\n    References\n    ----------\n{refs}" if refs else ""
+        func.__doc__ = head.rstrip() + "\n" + params + (sep + notes.rstrip() + "\n" if sep else "") + refs
+        return func
+    return decorate
 
 
 def _prepare(data: Any, categories: Any, *, single: bool = True) -> CodingData:
@@ -665,6 +733,7 @@ def _check_q(d: CodingData, name: str) -> list[Note]:
     return []
 
 
+@_documented("level")
 def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | None = None,
                        categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
                        n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
@@ -680,7 +749,7 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
     Jaccard or MASI distance. Undefined (NaN) when there is no pairable unit or no
     expected disagreement. No analytic standard error is standard; the interval is the
     unit bootstrap (Hughes 2022 on why not the pair-resampling bootstrap).
-    """ + _COMMON_DOC
+    """
     d = as_coding_data(data, categories=categories)
     if d.n_coders < 2:
         raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}", code="one-coder")
@@ -717,6 +786,7 @@ def _label(v: Any) -> str:
     return str(v)
 
 
+@_documented("weights")
 def percent_agreement(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
                       confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
                       seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -728,7 +798,7 @@ def percent_agreement(data: Any, *, weights: Any = None, categories: Sequence[An
     units with two or more values (Fleiss 1971). With two coders this is the share of units
     coded alike (Wilson interval when no bootstrap is asked). Not chance-corrected: never
     report it alone (Lombard, Snyder-Duch & Bracken 2002). Sets of codes agree when equal.
-    """ + _COMMON_DOC
+    """
     d = as_coding_data(data, categories=categories)
     if d.n_coders < 2:
         raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}", code="one-coder")
@@ -737,6 +807,7 @@ def percent_agreement(data: Any, *, weights: Any = None, categories: Sequence[An
     return _run(stat, d, level=None, weights=label, **_options(locals()))
 
 
+@_documented("weights")
 def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
                 confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
                 seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -750,7 +821,7 @@ def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | N
     H0: κ = 0, which gives z and the p-values; details["kappa_max"] the largest κ the
     coders' margins allow. Weights: "linear", "quadratic" (on the category scores) or a
     q x q matrix.
-    """ + _COMMON_DOC
+    """
     d = _prepare(data, categories)
     if d.n_coders != 2:
         raise AgreeError(f"Cohen's kappa compares exactly two coders; the data have {d.n_coders} "
@@ -779,6 +850,7 @@ def _pi_type(d: CodingData, name: str, kind: str, weights: Any, opts: dict, doc_
     return _run(stat, d, level=None, weights=label, notes=list(doc_notes) + _weight_notes(w), **opts)
 
 
+@_documented("weights")
 def scott_pi(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
              confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
              seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -789,12 +861,13 @@ def scott_pi(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
     π = (p_o - p_e) / (1 - p_e), p_e = Σ_kl w_kl π_k π_l, π_k the mean over coded units of
     r_uk / r_u (Scott 1955; Gwet 2014 for missing values and weights). With more than two
     coders this is Fleiss' kappa. `se` by linearisation (Gwet 2008).
-    """ + _COMMON_DOC
+    """
     d = _prepare(data, categories)
     res = _pi_type(d, "scott_pi", "pi", weights, _options(locals()))
     return _add_fleiss_null(res, d, weights)
 
 
+@_documented()
 def fleiss_kappa(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
                  n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
                  minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -807,7 +880,7 @@ def fleiss_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     (Gwet 2014). With the same number of coders for every unit, details["per_category"]
     gives Fleiss' κ_j with the null SE of Fleiss, Nee & Landis (1979), which also gives
     z and the p-values for H0: no agreement beyond chance. `se` by linearisation (Gwet 2008).
-    """ + _COMMON_DOC
+    """
     d = _prepare(data, categories)
     res = _pi_type(d, "fleiss_kappa", "pi", None, _options(locals()))
     return _add_fleiss_null(res, d, None)
@@ -862,6 +935,7 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
     return _replace(res, details=details, z=z, p_value=p_two, p_value_one_sided=p_one, warnings=tuple(notes))
 
 
+@_documented()
 def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
                  n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
                  minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -873,7 +947,7 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     coder i's coded units in category k (Conger 1980; Gwet 2014 for missing values). Equals
     Cohen's kappa for two coders with no missing values. `se` by linearisation (Gwet 2014);
     z is the Wald statistic κ / se.
-    """ + _COMMON_DOC
+    """
     d = _prepare(data, categories)
     _check_q(d, "Conger's kappa")
     observed = d.codes >= 0
@@ -897,6 +971,7 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     return res
 
 
+@_documented("weights")
 def brennan_prediger(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
                      confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
                      seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -907,11 +982,12 @@ def brennan_prediger(data: Any, *, weights: Any = None, categories: Sequence[Any
     κ_n = (p_o - 1/q) / (1 - 1/q), q the number of categories (unused codebook categories
     count, so pass the codebook's list). It is Bennett, Alpert & Goldstein's S.
     `se` = SE(p_o) / (1 - p_e) by linearisation.
-    """ + _COMMON_DOC
+    """
     d = _prepare(data, categories)
     return _pi_type(d, "brennan_prediger", "bp", weights, _options(locals()))
 
 
+@_documented("weights")
 def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
              confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
              seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -922,7 +998,7 @@ def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
     γ = (p_a - p_e) / (1 - p_e), p_e = T_w / (q (q - 1)) Σ_k π_k (1 - π_k), T_w = Σ w_kl,
     π_k the mean over coded units of r_uk / r_u (Gwet 2008; 2014). `se` by Gwet's
     linearisation; the interval without bootstrap uses t with n - 1 df.
-    """ + _COMMON_DOC
+    """
     d = _prepare(data, categories)
     name = "gwet_ac1" if weights is None else "gwet_ac2"
     res = _pi_type(d, name, "ac", weights, _options(locals()))
@@ -933,6 +1009,7 @@ def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
     return res
 
 
+@_documented()
 def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
           n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
           minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -944,7 +1021,7 @@ def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_leve
     PI = (a - d)/N and bias index BI = (b - c)/N of the 2 x 2 table (a: both the first
     category, d: both the second), with κ = (PABAK - PI² + BI²)/(1 - PI² + BI²).
     Report them beside kappa, not instead of it.
-    """ + _COMMON_DOC
+    """
     from dataclasses import replace as _replace
 
     d = _prepare(data, categories)

@@ -1,0 +1,24 @@
+"""Every public function and class has a docstring; coefficients document their parameters,
+return value and sources (numpydoc sections)."""
+
+import pytest
+
+import agree
+
+COEFFICIENTS = ["percent_agreement", "cohen_kappa", "scott_pi", "fleiss_kappa", "conger_kappa",
+                "brennan_prediger", "gwet_ac1", "pabak", "krippendorff_alpha"]
+
+
+@pytest.mark.parametrize("name", sorted(agree.__all__))
+def test_every_export_has_a_docstring(name):
+    assert (getattr(agree, name).__doc__ or "").strip(), name
+
+
+@pytest.mark.parametrize("name", COEFFICIENTS)
+def test_coefficients_document_parameters_returns_notes_and_references(name):
+    doc = getattr(agree, name).__doc__
+    for section in ("Parameters\n", "Returns\n", "Notes\n", "References\n"):
+        assert section in doc, (name, section)
+    assert doc.index("Parameters") < doc.index("Returns") < doc.index("Notes") < doc.index("References")
+    for parameter in ("data :", "categories :", "n_resamples :", "seed :", "minimum :", "cluster :"):
+        assert parameter in doc, (name, parameter)
