@@ -82,6 +82,16 @@ def agreement_weights(data: CodingData, weights: Any) -> tuple[np.ndarray, str |
     return w, "custom"
 
 
+def _order_notes(data: CodingData, what: str) -> list[Note]:
+    """The scale order matters for `what` but was only inferred by sorting text labels."""
+    if data.order != "alphabetical" or data.set_valued:
+        return []
+    shown = " < ".join(str(v) for v in data.values[:6]) + (" < ..." if len(data.values) > 6 else "")
+    return [Note("alphabetical-order", f"{what} uses the order of the categories, which was only inferred by "
+                 f"sorting the labels alphabetically ({shown}); pass them in scale order (categories=[...]) "
+                 "or read the data with a codebook that has an order column (--codebook).")]
+
+
 def _weight_notes(w: np.ndarray) -> list[Note]:
     if np.allclose(w, w.T):
         return []
@@ -756,7 +766,8 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
     delta, label = distance_matrix(d, level, distance)
     stat = _Alpha(name="krippendorff_alpha", delta=delta, V=len(d.values),
                   undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
-    res = _run(stat, d, level=label, weights=None, **_options(locals()))
+    notes = _order_notes(d, "The ordinal metric") if label == "ordinal" else []
+    res = _run(stat, d, level=label, weights=None, notes=notes, **_options(locals()))
     return _with_alpha_details(res, d, delta)
 
 
@@ -833,7 +844,7 @@ def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | N
     stat = _Cohen(name="cohen_kappa" if label is None else f"weighted_kappa_{label}", ordered=True,
                   w=w, V=len(d.values),
                   undefined_reason="no unit coded by both coders, or no expected disagreement (p_e = 1)")
-    notes = _weight_notes(w)
+    notes = _weight_notes(w) + (_order_notes(d, f"{label.capitalize()} weighting") if isinstance(weights, str) else [])
     both = (d.codes >= 0).all(axis=1)
     dropped = int((~both & ((d.codes >= 0).sum(axis=1) >= 1)).sum())
     if dropped:
@@ -847,7 +858,10 @@ def _pi_type(d: CodingData, name: str, kind: str, weights: Any, opts: dict, doc_
     w, label = agreement_weights(d, weights)
     stat = _ChanceCorrected(name=name, kind=kind, w=w,
                             undefined_reason="no pairable unit, or no expected disagreement (chance agreement is 1)")
-    return _run(stat, d, level=None, weights=label, notes=list(doc_notes) + _weight_notes(w), **opts)
+    notes = list(doc_notes) + _weight_notes(w)
+    if isinstance(weights, str):
+        notes += _order_notes(d, f"{label.capitalize()} weighting")
+    return _run(stat, d, level=None, weights=label, notes=notes, **opts)
 
 
 @_documented("weights")

@@ -146,6 +146,7 @@ class CodingData:
     codebook: Mapping[Any, str] | None = None
     provenance: Provenance | None = None
     report: ReadReport | None = None
+    order: str = "given"  # how `values` were ordered: "given" (codebook, categories), "numeric", "alphabetical"
 
     def __post_init__(self):
         codes = np.asarray(self.codes)
@@ -334,9 +335,11 @@ def from_table(table: Any, *, coders: Sequence[str] | None = None,
     index = {v: i for i, v in enumerate(values)}
     codes = np.array([MISSING if v is None else index[v] for v in flat], dtype=np.int32)
     codes = codes.reshape(raw.shape)
+    numeric = all(isinstance(v, (int, float)) for v in values)
     data = CodingData(codes=codes, values=values, unit_ids=np.array(unit_ids, dtype=object),
                       coders=tuple(str(c) for c in coders), categories=tuple(cats or ()),
-                      set_valued=set_valued, level=level or ("nominal"))
+                      set_valued=set_valued, level=level or ("nominal"),
+                      order="given" if categories is not None else "numeric" if numeric else "alphabetical")
     if level is not None and level not in LEVELS and not set_valued:
         raise AgreeError(f"level must be one of {', '.join(LEVELS)}; got '{level}'", code="level")
     return data
@@ -355,7 +358,7 @@ def reindex_categories(data: CodingData, categories: Iterable[Any]) -> CodingDat
     """Re-express codes over a given category list (which must contain every observed value)."""
     cats = tuple(normalise_value(c) for c in categories)
     if data.set_valued:
-        return replace(data, categories=cats)
+        return replace(data, categories=cats, order="given")
     pos = {v: i for i, v in enumerate(cats)}
     used = set(np.unique(data.codes[data.codes >= 0]).tolist())
     missing = [data.values[i] for i in used if data.values[i] not in pos]
@@ -363,4 +366,4 @@ def reindex_categories(data: CodingData, categories: Iterable[Any]) -> CodingDat
         raise AgreeError(f"values not among the categories: {', '.join(map(str, missing[:5]))}",
                          code="unknown-code")
     mapping = np.array([pos.get(v, 0) for v in data.values] + [MISSING], dtype=np.int32)
-    return replace(data, codes=mapping[data.codes], values=cats, categories=cats)
+    return replace(data, codes=mapping[data.codes], values=cats, categories=cats, order="given")

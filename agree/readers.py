@@ -1266,7 +1266,9 @@ class _Builder:
         return CodingData(codes=codes, values=tuple(values), unit_ids=np.asarray(unit_ids, dtype=object),
                           coders=tuple(self.coders), categories=tuple(categories), level=data_level,
                           set_valued=set_valued, text=text, columns=columns, codebook=codebook_map,
-                          provenance=Provenance(sources=tuple(self.sources), source=src, row=row))
+                          provenance=Provenance(sources=tuple(self.sources), source=src, row=row),
+                          order="given" if book is not None else
+                          "numeric" if all(isinstance(v, (int, float)) for v in values) else "alphabetical")
 
     def _check_unit_ids(self):
         problems = []

@@ -198,6 +198,10 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
                               "per-code diagnostics."))
     for r in results.values():
         notes.extend(w for w in r.warnings if w.code == "undefined")
-    clustered = [w for r in results.values() for w in r.warnings if w.code == "few-clusters"]
-    notes.extend(clustered[:1])
+    once = {}  # warnings that concern the data, not one coefficient: shown once
+    for r in results.values():
+        for w in r.warnings:
+            if w.code in ("few-clusters", "alphabetical-order", "asymmetric-weights", "interval-clipped"):
+                once.setdefault(w.code, w)
+    notes.extend(once.values())
     return notes

@@ -368,3 +368,27 @@ def test_cluster_unknown_column_is_an_error(round1):
         agree.score(round1, cluster="household", n_resamples=50, seed=1)
     assert err.value.code == "cluster"
     assert "household" in err.value.message and "interview" in err.value.message
+
+
+# -- an ordinal scale whose order was only guessed from the labels ---------------------------
+ORDINAL_TEXT = [["low", "low"], ["mid", "high"], ["high", "high"], ["mid", "mid"], ["low", "mid"],
+                ["high", "mid"], ["low", "low"], ["mid", "mid"]] * 4
+
+
+def test_alphabetical_scale_order_is_flagged_for_ordinal_alpha_and_weights():
+    res = agree.krippendorff_alpha(ORDINAL_TEXT, level="ordinal", n_resamples=0)
+    assert [w.code for w in res.warnings] == ["alphabetical-order"]
+    assert "high < low < mid" in res.warnings[0].message
+    weighted = agree.cohen_kappa(ORDINAL_TEXT, weights="linear", n_resamples=0)
+    assert "alphabetical-order" in {w.code for w in weighted.warnings}
+    assert "alphabetical-order" in warning_codes(agree.score(ORDINAL_TEXT, level="ordinal", n_resamples=0))
+
+
+def test_scale_order_given_by_categories_or_numbers_is_not_flagged():
+    given = agree.krippendorff_alpha(ORDINAL_TEXT, level="ordinal", n_resamples=0,
+                                     categories=["low", "mid", "high"])
+    assert not given.warnings
+    numbers = [[1, 1], [2, 3], [3, 3], [2, 2], [1, 2]] * 4
+    assert not agree.krippendorff_alpha(numbers, level="ordinal", n_resamples=0).warnings
+    nominal = agree.krippendorff_alpha(ORDINAL_TEXT, level="nominal", n_resamples=0)
+    assert not nominal.warnings   # the order does not matter at nominal level
