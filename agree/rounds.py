@@ -524,7 +524,9 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         d = parts[name]
         s0 = _child_seed(seed, i, 0)
         groups = None if cluster is None else np.asarray(d.columns[cluster]).astype(str)
-        overall = krippendorff_alpha(d, level=alpha_level, distance=distance, seed=s0, cluster=groups, **opts)
+        # the figure shown uses `seed` itself, so it equals `agree score` on the same round; the
+        # differences between rounds need independent resamples, drawn with a seed per round
+        overall = krippendorff_alpha(d, level=alpha_level, distance=distance, seed=seed, cluster=groups, **opts)
         if cluster is not None and n_resamples:
             # the engine's note says "clusters"; name the column and the round instead
             overall = _replace(overall, warnings=tuple(w for w in overall.warnings if w.code != "few-clusters"))
@@ -532,7 +534,9 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
                 warnings.append(Note("few-clusters", f"Round {name}: only {n_clusters[name]} {cluster} groups "
                                      "were resampled; bootstrap intervals from fewer than 20 groups are rough."))
         if n_resamples:
-            reps[(name, None)] = _replicates(overall, n_resamples)
+            independent = krippendorff_alpha(d, level=alpha_level, distance=distance, seed=s0, cluster=groups,
+                                             **opts)
+            reps[(name, None)] = _replicates(independent, n_resamples)
         warnings.extend(Note(w.code, f"Round {name}: {w.message}") for w in overall.warnings)
         step += 1
         tick(f"round {name}", step / total)

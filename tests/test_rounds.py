@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 from typer.testing import CliRunner
 
+import agree
 from agree import krippendorff_alpha
 from agree.model import AgreeError, from_table
 from agree.readers import read
@@ -306,3 +307,23 @@ def test_cli_rounds_cluster():
     assert printed["settings"]["cluster"] == "interview"
     assert printed["settings"]["n_clusters"] == {"round1": 12, "round2": 12}
     assert "12 interview groups" in result.stderr
+
+
+def test_each_round_shows_the_same_alpha_and_interval_as_score(sample_rounds):
+    # one figure per round whichever command prints it: same data, same seed, same interval
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    for name in ("1", "2"):
+        scored = agree.score(parts[name], n_resamples=500, seed=11).coefficients["krippendorff_alpha"]
+        shown = result.round(name).overall
+        assert (shown.estimate, shown.ci_low, shown.ci_high) == (scored.estimate, scored.ci_low, scored.ci_high)
+
+
+def test_report_on_rounds_prints_the_interval_of_score_for_the_analysed_round(sample_rounds):
+    data, _ = sample_rounds
+    report = build_report(data, n_resamples=300, seed=4)
+    alpha = report.primary_result
+    scored = agree.score(split_rounds(data)["2"], n_resamples=300, seed=4).coefficients["krippendorff_alpha"]
+    assert (alpha.ci_low, alpha.ci_high) == (scored.ci_low, scored.ci_high)
+    assert (report.rounds.round("2").overall.ci_low, report.rounds.round("2").overall.ci_high) == \
+        (scored.ci_low, scored.ci_high)
