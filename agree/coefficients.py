@@ -40,7 +40,7 @@ import pandas as pd
 
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import Patterns, compress
-from agree.resampling import (bootstrap_interval, bootstrap_replicates, cluster_features,
+from agree.resampling import (bootstrap_interval, bootstrap_replicates, check_settings, cluster_features,
                               jackknife_values, make_rng, norm_cdf, norm_ppf)
 from agree.results import AgreementResult, BootstrapInfo, Note, display_name
 
@@ -72,11 +72,14 @@ def agreement_weights(data: CodingData, weights: Any) -> tuple[np.ndarray, str |
             return 1.0 - diff ** 2, "quadratic"
         raise AgreeError(f"weights must be None, 'linear', 'quadratic' or a matrix; got '{weights}'",
                          code="weights")
-    w = np.asarray(weights, dtype=float)
+    try:
+        w = np.asarray(weights, dtype=float)
+    except (TypeError, ValueError):
+        raise AgreeError("a weight matrix must hold numbers between 0 and 1", code="weights") from None
     if w.shape != (q, q):
         raise AgreeError(f"a weight matrix must be {q} x {q} (one row and column per category); "
                          f"got {w.shape[0]} x {w.shape[1] if w.ndim > 1 else 1}", code="weights")
-    if not np.allclose(np.diag(w), 1.0) or (w < 0).any() or (w > 1).any():
+    if not np.isfinite(w).all() or not np.allclose(np.diag(w), 1.0) or (w < 0).any() or (w > 1).any():
         raise AgreeError("a weight matrix needs 1 on the diagonal and entries between 0 and 1",
                          code="weights")
     return w, "custom"
@@ -135,8 +138,12 @@ def distance_matrix(data: CodingData, level: Any, distance: str | None = None) -
         name = distance or "masi"
         return set_delta(name, values), name
     if callable(level):
-        d = np.array([[float(level(a, b)) for b in values] for a in values], dtype=float).reshape(V, V)
-        if (d < 0).any() or not np.allclose(np.diag(d), 0):
+        try:
+            d = np.array([[float(level(a, b)) for b in values] for a in values], dtype=float).reshape(V, V)
+        except (TypeError, ValueError) as exc:
+            raise AgreeError(f"the distance function must return a number for every pair of values ({exc})",
+                             code="level") from None
+        if not np.isfinite(d).all() or (d < 0).any() or not np.allclose(np.diag(d), 0):
             raise AgreeError("a distance function must give 0 for equal values and no negative values",
                              code="level")
         return d, getattr(level, "__name__", "custom")
@@ -505,9 +512,11 @@ def _resolve_clusters(data: CodingData, cluster: Any) -> tuple[np.ndarray | None
                              hint="name the column with --cluster when reading the data", code="cluster")
         return np.asarray(data.columns[cluster]), f"cluster:{cluster}"
     arr = np.asarray(cluster)
-    if len(arr) != data.n_units:
-        raise AgreeError(f"cluster labels: one per unit is needed ({data.n_units}); got {len(arr)}",
-                         code="cluster")
+    if arr.ndim != 1 or len(arr) != data.n_units:
+        raise AgreeError(f"cluster labels: one per unit is needed ({data.n_units}); got an array of shape "
+                         f"{arr.shape}", code="cluster")
+    if any(v is None or (isinstance(v, float) and np.isnan(v)) for v in arr.tolist()):
+        raise AgreeError("cluster labels: every unit needs a group; some labels are missing", code="cluster")
     return arr, "cluster"
 
 
@@ -516,16 +525,8 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
          weights: str | None, notes: Sequence[Note] = (), n_categories: int | None = None,
          mask: np.ndarray | None = None, details: dict | None = None) -> AgreementResult:
     """Point estimate, analytic SE where published, bootstrap interval and the record."""
-    if not 0 < confidence_level < 1:
-        raise AgreeError(f"confidence level must be between 0 and 1; got {confidence_level}", code="ci")
-    if ci_method not in ("bca", "percentile"):
-        raise AgreeError(f"interval method must be 'bca' or 'percentile'; got '{ci_method}'", code="ci")
-    if n_resamples is not None and n_resamples < 0:
-        raise AgreeError(f"the number of bootstrap replicates cannot be negative; got {n_resamples}",
-                         hint="use --boot 0 (n_resamples=0) for no bootstrap", code="boot")
-    if minimum is not None and not -1 <= minimum <= 1:
-        raise AgreeError(f"the minimum is a value of the coefficient, between -1 and 1; got {minimum}",
-                         hint="e.g. --min 0.8 (minimum=0.8), not 80", code="minimum")
+    check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum,
+                   ci_method=ci_method, seed=seed)
     codes = data.codes if mask is None else data.codes[mask]
     clusters, unit_label = _resolve_clusters(data, cluster)
     if clusters is not None and mask is not None:

@@ -58,8 +58,8 @@ from agree.format import format_value
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import compress
 from agree.coefficients import alpha_from_coincidence, level_delta, set_delta
-from agree.resampling import (bootstrap_interval, bootstrap_replicates, cluster_features, jackknife_values,
-                              make_rng)
+from agree.resampling import (bootstrap_interval, bootstrap_replicates, check_settings, cluster_features,
+                              jackknife_values, make_rng)
 from agree.results import BootstrapInfo, Note, _clean
 
 __all__ = ["CodeDiagnostics", "CoderDiagnostics", "confusion_table", "diagnose_codes",
@@ -175,6 +175,20 @@ class CodeDiagnostics:
         """One row per code, worst first (see ``per_code`` for the columns)."""
         return self.per_code.sort_values("rank", kind="stable").reset_index(drop=True)
 
+    def _repr_html_(self) -> str:
+        from agree.report import notebook_html
+
+        frame = self.to_frame()
+        counts = frame["status"].value_counts()
+        statuses = ", ".join(f"{int(counts[s])} {s}" for s in STATUSES if s in counts)
+        minimum = "no minimum" if self.minimum is None else f"minimum {self.minimum:g}"
+        summary = (f"Code diagnostics: {len(frame)} codes, {len(self.coders)} coders, "
+                   f"{self.n_pairable_units} of {self.n_units} units pairable; "
+                   f"overall α = {_display(self.alpha)} ({self.alpha_label}); {minimum}: {statuses}.")
+        shown = ["rank", "code", "status", "alpha", "ci_low", "ci_high", "specific_agreement",
+                 "kappa", "units_with_code", "top_confusion", "reason"]
+        return notebook_html(summary, frame[shown], notes=[n.message for n in self.notes])
+
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe dict: ``codes`` (rows of ``to_frame()``), ``confused_pairs``, ``usage``,
         ``marginal_homogeneity``, ``alpha``, settings and ``notes``."""
@@ -274,6 +288,13 @@ class CoderDiagnostics:
                          "mean_kappa": _nanmean(pairs.kappa), "mean_alpha": _nanmean(pairs.alpha)})
         return pd.DataFrame(rows)
 
+    def _repr_html_(self) -> str:
+        from agree.report import notebook_html
+
+        summary = (f"Coder diagnostics: {len(self.coders)} coders, {self.n_units} units; "
+                   f"α = {_display(self.alpha)} ({self.level_label}).")
+        return notebook_html(summary, self.to_frame(), notes=[n.message for n in self.notes])
+
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe dict: ``coders`` (rows of ``to_frame()``), ``pairwise``,
         ``leave_one_out``, ``code_use``, ``alpha``, ``level``, settings and ``notes``."""
@@ -294,6 +315,11 @@ class CoderDiagnostics:
         })
 
 
+def _display(x: Any) -> str:
+    """A number for a summary line (three decimals; NaN as an en dash)."""
+    return format_value(x, "number", 3)
+
+
 def _nanmean(x) -> float:
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
@@ -304,11 +330,16 @@ def _nanmean(x) -> float:
 # Building blocks (all vectorised over units)
 # =========================================================================================
 
-def _check(data: Any) -> CodingData:
+def _check(data: Any, allow_empty: bool = False) -> CodingData:
     data = as_coding_data(data)
     if data.n_coders < 2:
         raise AgreeError("diagnostics need at least two coders", code="too-few-coders",
                          hint="give one column per coder")
+    if not allow_empty and (data.n_units == 0 or not data.observed.any()):
+        raise AgreeError("no units to analyse" if data.n_units == 0 else
+                         f"no units to analyse: none of the {data.n_units} units has a coded value",
+                         hint="check that the data have one row per unit and one column per coder",
+                         code="empty")
     return data
 
 
@@ -618,7 +649,7 @@ def confusion_table(data: Any, *, directed: bool = False,
     ----------
     Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability.
     """
-    data = _check(data)
+    data = _check(data, allow_empty=True)
     labels = list(data.categories) if data.set_valued else list(data.values)
     if not directed:
         if coders is not None:
@@ -808,16 +839,11 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     Spitzer & Fleiss (1974); Krippendorff (2004); McNemar (1947); Cochran (1950); Holm (1979);
     Stuart (1955); Maxwell (1970).
     """
+    check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum,
+                   ci_method=ci_method)
     data = _check(data)
     distance = _set_distance(data, distance)
     clusters, cluster_name = _cluster_labels(data, cluster)
-    if minimum is not None and not (-1.0 <= float(minimum) <= 1.0):
-        raise AgreeError(f"minimum must be between -1 and 1; got {minimum}", code="bad-option")
-    if not 0 < confidence_level < 1:
-        raise AgreeError(f"confidence_level must be between 0 and 1; got {confidence_level}",
-                         code="bad-option")
-    if ci_method not in ("bca", "percentile"):
-        raise AgreeError(f"ci_method must be 'bca' or 'percentile'; got '{ci_method}'", code="bad-option")
     notes: list[Note] = []
     cats = list(data.categories)
     q = len(cats)
@@ -1057,13 +1083,12 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray,
         share_of = lambda c, k: 2 * o[c, k] / total if total > 0 else np.nan  # noqa: E731
         expected = lambda c, k: n_c[c] * n_c[k] / (n - 1) if n > 1 else np.nan  # noqa: E731
     directed = _directed(data, 0, 1) if data.n_coders == 2 else None
-    pairable = m_u >= 2
+    pair_c, pair_k = np.nonzero(np.triu(conf, 1) > 0)
+    pair_units = _pair_units(x[m_u >= 2], pair_c, pair_k)
     rows = []
-    for c, k in zip(*np.nonzero(np.triu(conf, 1) > 0)):
+    for c, k, units in zip(pair_c, pair_k, pair_units.tolist()):
         e = expected(c, k)
         merged = _merged_alpha(data, conf if not data.set_valued else None, c, k, o_values, distance)
-        units = int(((x[pairable][:, :, c] * (1 - x[pairable][:, :, k])).sum(1) > 0).__and__(
-            (x[pairable][:, :, k] * (1 - x[pairable][:, :, c])).sum(1) > 0).sum())
         rows.append({"code_a": cats[c], "code_b": cats[k], "count": conf[c, k], "units": units,
                      "share": share_of(c, k), "expected": e,
                      "o_over_e": conf[c, k] / e if e and e > 0 else np.nan,
@@ -1077,6 +1102,23 @@ def _confusions(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray,
         pairs = pairs.sort_values(["share", "delta_alpha"], ascending=[False, False],
                                   kind="stable").reset_index(drop=True)
     return pairs, overall, conf
+
+
+def _pair_units(x: np.ndarray, cs: np.ndarray, ks: np.ndarray) -> np.ndarray:
+    """For each pair (c, k): the units where one coder applied c and not k and another k and
+    not c. `x` is the (N, m, q) presence array of the pairable units; all pairs at once, in
+    chunks of units so that memory stays bounded."""
+    out = np.zeros(len(cs), dtype=np.int64)
+    if not len(cs) or not x.shape[0]:
+        return out
+    step = max(1, _CHUNK_CELLS // max(1, x.shape[1] * len(cs)))
+    for start in range(0, x.shape[0], step):
+        xc = x[start:start + step, :, cs]                     # (n, m, P)
+        xk = x[start:start + step, :, ks]
+        c_only = (xc * (1.0 - xk)).sum(axis=1) > 0            # some coder: c and not k
+        k_only = (xk * (1.0 - xc)).sum(axis=1) > 0
+        out += (c_only & k_only).sum(axis=0)
+    return out
 
 
 def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int,
@@ -1247,11 +1289,10 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
     ----------
     Krippendorff (2004); Cohen, J. (1960). Educational and Psychological Measurement, 20, 37-46.
     """
+    check_settings(n_resamples=n_resamples, confidence_level=confidence_level, ci_method=ci_method)
     data = _check(data)
     kind = _level_of(data, level, distance)
     clusters, cluster_name = _cluster_labels(data, cluster)
-    if ci_method not in ("bca", "percentile"):
-        raise AgreeError(f"ci_method must be 'bca' or 'percentile'; got '{ci_method}'", code="bad-option")
     notes: list[Note] = []
     m = data.n_coders
     values = list(data.values)

@@ -216,7 +216,8 @@ class CodingData:
                coders: Sequence[int] | None = None) -> "CodingData":
         """A new CodingData with some units (bool mask or indices) and/or coders."""
         u = slice(None) if units is None else units
-        c = list(range(self.n_coders)) if coders is None else list(coders)
+        c = list(range(self.n_coders)) if coders is None else [
+            self.coders.index(x) if isinstance(x, str) else int(x) for x in coders]
         prov = None
         if self.provenance is not None:
             prov = replace(self.provenance, source=self.provenance.source[u][:, c],
@@ -281,8 +282,8 @@ def normalise_value(v: Any) -> Any:
     if isinstance(v, (float, np.floating)):
         f = float(v)
         return int(f) if f.is_integer() else f
-    if isinstance(v, (set, frozenset)):
-        return frozenset(normalise_value(x) for x in v)
+    if isinstance(v, (set, frozenset, list, tuple)):  # several codes (lists come from str.split)
+        return frozenset(x for x in (normalise_value(x) for x in v) if x is not None)
     if isinstance(v, str):
         if v == "":
             return None
@@ -322,6 +323,9 @@ def from_table(table: Any, *, coders: Sequence[str] | None = None,
     observed = {v for v in flat if v is not None}
     if categories is not None:
         cats = tuple(normalise_value(c) for c in categories)
+        if len(set(cats)) != len(cats):
+            twice = sorted({str(c) for c in cats if cats.count(c) > 1})
+            raise AgreeError(f"categories listed twice: {', '.join(twice)}", code="categories")
         known = set(cats)
         unknown = ({c for s in observed for c in s} if set_valued else observed) - known
         if unknown:

@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import numpy as np
+import pandas as pd
 from scipy import optimize, stats
 
 from agree.coefficients import alpha_from_coincidence, alpha_from_sums, level_delta, ordinal_delta
@@ -133,6 +134,33 @@ class Plan:
     n_resamples: int
     assurance_at_units_needed: float | None = None
     details: dict[str, Any] = field(default_factory=dict)
+
+    def to_frame(self) -> pd.DataFrame:
+        """The assurance curve, one row per simulated sample size: ``units``, ``assurance``
+        (share of simulated studies whose lower bound cleared the minimum), ``mc_error``
+        (its Monte Carlo error) and ``smoothed`` (the fitted curve used for `units_needed`)."""
+        return pd.DataFrame([(p.units, p.assurance, p.mc_error, p.smoothed) for p in self.curve],
+                            columns=["units", "assurance", "mc_error", "smoothed"])
+
+    def _repr_html_(self) -> str:
+        from agree.format import format_value
+        from agree.report import notebook_html
+
+        wanted = self.inputs.get("assurance")
+        minimum = self.inputs.get("minimum")
+        target = (f"the lower bound of α clears {format_value(minimum, 'number', 3)}"
+                  if minimum is not None else "the lower bound clears the minimum")
+        if wanted is not None:
+            target += f" with probability {format_value(wanted, 'number', 2)}"
+        if self.units_needed is None:
+            head = f"Plan: no simulated sample size was enough for {target}."
+        else:
+            at = ("" if self.assurance_at_units_needed is None else
+                  f" (assurance there {format_value(self.assurance_at_units_needed, 'number', 3)})")
+            head = f"Plan: {self.units_needed} units coded by every coder so that {target}{at}."
+        summary = (f"{head} {self.replicates} simulated studies per size, {self.n_resamples} "
+                   f"bootstrap resamples each, seed {self.seed}.")
+        return notebook_html(summary, self.to_frame(), notes=[w.message for w in self.warnings])
 
     def to_dict(self) -> dict[str, Any]:
         return _clean({

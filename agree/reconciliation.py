@@ -126,7 +126,7 @@ class Consensus:
     unresolved_rows : their rows in the review sheet, as the spreadsheet counts them (None
         for a unit the review file does not list).
     left_out : (unit id, why) for units fewer than two coders coded and nobody decided.
-    review : the review file read (or "table" for a DataFrame).
+    review : the review file read (or "review table" when the decisions came as a DataFrame).
     notes : anything the user should know (e.g. a data file changed since the review).
     """
 
@@ -137,9 +137,17 @@ class Consensus:
     majority: int
     unresolved: tuple[str, ...]
     left_out: tuple[tuple[str, str], ...]
-    review: str = "table"
+    review: str = "review table"
     notes: tuple[str, ...] = ()
     unresolved_rows: tuple[int | None, ...] = ()
+
+    def _repr_html_(self) -> str:
+        from agree.report import notebook_html
+
+        summary = (f"Consensus from {self.review}: {self.units_read} units read; {self.agreed} agreed, "
+                   f"{self.decided} decided, {self.majority} by majority, {len(self.unresolved)} "
+                   f"unresolved, {len(self.left_out)} left out (fewer than two coders).")
+        return notebook_html(summary, consensus_frame(self), notes=self.notes)
 
     def to_dict(self) -> dict[str, Any]:
         return {

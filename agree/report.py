@@ -352,16 +352,22 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     Returns
     -------
     Report
+
+    Raises
+    ------
+    AgreeError
+        "empty" when there are no units (or no coded values) to analyse; "boot", "ci" or
+        "minimum" for settings out of range (as :func:`agree.score`).
     """
     from agree import score
+    from agree.resampling import check_settings
     from agree.rounds import RoundsResult, compare_rounds
 
     tick = progress or (lambda step, done: None)
     minimum_default = minimum is None
     if minimum is None:
         minimum = DEFAULT_MINIMUM
-    if not 0 < minimum <= 1:
-        raise AgreeError(f"minimum must be between 0 and 1; got {minimum}", code="minimum")
+    check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum)
     if corpus_size is not None and corpus_size < 1:
         raise AgreeError(f"corpus size must be a positive number of units; got {corpus_size}",
                          code="corpus-size")
@@ -379,6 +385,11 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     if data is None:
         raise AgreeError("no data to report on", code="no-input")
     d = as_coding_data(data)
+    if d.n_units == 0 or not d.observed.any():
+        raise AgreeError("no units to analyse" if d.n_units == 0 else
+                         f"no units to analyse: none of the {d.n_units} units has a coded value",
+                         hint="check that the data have one row per unit and one column per coder",
+                         code="empty")
     if isinstance(rounds, RoundsResult):
         rounds_result = rounds
     elif rounds is None or rounds is True or isinstance(rounds, str):
@@ -406,11 +417,6 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
                    confidence_level=confidence_level, cluster=cluster)
     used_seed = scored.seed if scored.seed is not None else seed
     coefs = dict(scored.coefficients)
-    if rounds_result is not None and analysed_round is not None and "krippendorff_alpha" in coefs:
-        # the same figure as in the rounds section (same resamples), so the report shows one interval
-        same = rounds_result.round(analysed_round).overall
-        if same.level == coefs["krippendorff_alpha"].level and same.estimate == coefs["krippendorff_alpha"].estimate:
-            coefs["krippendorff_alpha"] = same
     primary = "krippendorff_alpha" if "krippendorff_alpha" in coefs else next(iter(coefs), "")
     ordered = [coefs[primary]] + [r for k, r in coefs.items() if k != primary] if primary else []
 
@@ -1145,6 +1151,42 @@ def _html_table(t: Table) -> str:
     note = f'<p class="note">{_html_markup(t.note)}</p>' if t.note else ""
     return (f'<table id="table-{t.key}"><caption>{_html_markup(t.caption)}</caption><thead><tr>{head}</tr>'
             f'</thead><tbody>{"".join(body)}</tbody></table>{note}')
+
+
+def _notebook_cell(v: Any, counts: bool = False) -> str:
+    if isinstance(v, (frozenset, set)):
+        return "; ".join(sorted(str(x) for x in v)) or "–"
+    if isinstance(v, (bool, np.bool_)):
+        return "yes" if v else "no"
+    if isinstance(v, (int, np.integer)):
+        return f"{int(v):,}"
+    if isinstance(v, (float, np.floating)):
+        if not math.isfinite(float(v)):
+            return "–"
+        if counts:
+            return f"{int(v):,}"
+        return format_value(v, "number", 3)
+    if v is None or (isinstance(v, str) and not v):
+        return "–"
+    return str(v)
+
+
+def notebook_html(summary: str, frame: pd.DataFrame, *, notes: Sequence[str] = (),
+                  max_rows: int = 60) -> str:
+    """A result for a notebook: one summary line and its main table (an HTML fragment).
+
+    All text is HTML-escaped; missing values and NaN show as an en dash; numbers get three
+    decimals (whole counts none). Long tables show their first and last rows."""
+    shown = frame.astype(object).copy()
+    for j in range(frame.shape[1]):
+        column = frame.iloc[:, j]
+        finite = column[np.isfinite(column)] if column.dtype.kind in "fiu" else column.iloc[:0]
+        counts = bool(len(finite) and (finite == np.round(finite)).all() and (finite.abs() > 1).any())
+        shown.iloc[:, j] = [_notebook_cell(v, counts) for v in column]
+    table = shown.to_html(index=False, escape=True, na_rep="–", max_rows=max_rows,
+                          border=0, classes="agree-table")
+    notes_html = "".join(f"<p><small>{html.escape(str(n))}</small></p>" for n in notes)
+    return f'<div class="agree-result"><p>{html.escape(summary)}</p>\n{table}\n{notes_html}</div>'
 
 
 def render_html(report: Report, *, standalone: bool = True, figures: bool = True) -> str:

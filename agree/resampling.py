@@ -19,10 +19,11 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from statistics import NormalDist
-from typing import Callable
+from typing import Any, Callable
 
 import numpy as np
 
+from agree.model import AgreeError
 from agree.results import Note
 
 Finish = Callable[[np.ndarray], np.ndarray]
@@ -48,6 +49,29 @@ def norm_ppf(p):
 
 # Largest number of (replicate x item) weights held in memory at once.
 _CHUNK_CELLS = 4_000_000
+
+
+def check_settings(*, n_resamples: Any = 0, confidence_level: Any = 0.95, minimum: Any = None,
+                   ci_method: str = "bca", seed: Any = None) -> None:
+    """Raise AgreeError for settings out of range, with the codes every command uses: "boot"
+    (`n_resamples` not a whole number >= 0), "ci" (`confidence_level` not strictly between 0
+    and 1, or an unknown `ci_method`), "minimum" (not a number between -1 and 1), "seed"."""
+    def number(x: Any) -> bool:
+        return isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(x, (bool, np.bool_))
+
+    if not number(n_resamples) or int(n_resamples) != n_resamples or n_resamples < 0:
+        raise AgreeError(f"the number of bootstrap replicates must be a whole number, 0 or more; "
+                         f"got {n_resamples!r}", hint="use --boot 0 (n_resamples=0) for no bootstrap", code="boot")
+    if not number(confidence_level) or not 0 < confidence_level < 1:
+        raise AgreeError(f"the confidence level must be between 0 and 1; got {confidence_level!r}",
+                         hint="e.g. --ci 0.95 (confidence_level=0.95), not 95", code="ci")
+    if ci_method not in ("bca", "percentile"):
+        raise AgreeError(f"the interval method must be 'bca' or 'percentile'; got '{ci_method}'", code="ci")
+    if minimum is not None and (not number(minimum) or not -1 <= minimum <= 1):
+        raise AgreeError(f"the minimum is a value of the coefficient, between -1 and 1; got {minimum!r}",
+                         hint="e.g. --min 0.8 (minimum=0.8), not 80", code="minimum")
+    if seed is not None and not isinstance(seed, (int, np.integer, np.random.Generator)):
+        raise AgreeError(f"the seed must be a whole number; got {seed!r}", code="seed")
 
 
 def make_rng(seed: int | np.random.Generator | None) -> tuple[np.random.Generator, int | None]:
@@ -141,6 +165,12 @@ def bootstrap_interval(estimate: float, replicates: np.ndarray, *, confidence_le
     if np.ptp(defined) == 0 and defined[0] == 1.0:
         notes.append(Note("no-disagreement", "Every replicate equals 1: there is no disagreement in these "
                           "units, so the interval is not informative about the coders' reliability."))
+    elif np.ptp(defined) == 0:
+        notes.append(Note("constant-replicates", "Every bootstrap replicate gives the same value (too few distinct "
+                          "units to resample), so the interval has no width and says nothing about uncertainty."))
+    if len(replicates) < 200:
+        notes.append(Note("few-replicates", f"Only {len(replicates)} bootstrap replicates: intervals and shares "
+                          "below the minimum are rough; use 2,000 or more (5,000+ for BCa)."))
     p_below = None if minimum is None else float(np.mean(defined < minimum))
     return Interval(float(low), float(high), float(lower), used, float(np.std(defined, ddof=1)),
                     p_below, n_undefined, tuple(notes))

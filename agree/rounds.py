@@ -35,6 +35,7 @@ from typing import Any, Callable, Mapping, Sequence
 import numpy as np
 
 from agree.model import AgreeError, CodingData, as_coding_data
+from agree.resampling import check_settings
 from agree.results import AgreementResult, Note, _clean
 
 TENTATIVE = 0.667
@@ -476,8 +477,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         raise AgreeError("rounds: give {round: data} or data with a round column", code="rounds")
     if not parts:
         raise AgreeError("no rounds to compare", code="rounds")
-    if not 0 < minimum <= 1:
-        raise AgreeError(f"minimum must be between 0 and 1; got {minimum}", code="minimum")
+    check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum, ci_method=ci_method)
     order = list(parts)
     n_clusters: dict[str, int] | None = None
     if cluster is not None:

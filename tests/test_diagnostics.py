@@ -822,3 +822,70 @@ def test_cluster_column_and_few_clusters_note(rng):
     assert err.value.code == "cluster"
     with pytest.raises(AgreeError):
         diagnose_codes(d, cluster=np.arange(3), n_resamples=10)
+
+
+# -- API review: settings, empty data, notebook display, pair units ----------------------------
+
+@pytest.mark.parametrize("kwargs, code", [
+    ({"confidence_level": 95}, "ci"),
+    ({"confidence_level": 0}, "ci"),
+    ({"n_resamples": -5}, "boot"),
+    ({"n_resamples": 2.5}, "boot"),
+    ({"ci_method": "normal"}, "ci"),
+])
+def test_bad_settings_raise_agree_error(kwargs, code):
+    # the codes agree.score uses for the same settings
+    x = np.array([[0, 0, 1], [1, 1, 1], [0, 1, 0], [1, 1, 1], [0, 0, 0]])
+    for diagnose in (diagnose_codes, diagnose_coders):
+        with pytest.raises(AgreeError) as err:
+            diagnose(x, **kwargs)
+        assert err.value.code == code
+
+
+@pytest.mark.parametrize("minimum, ok", [(-1.0, True), (-0.2, True), (1.0, True), (1.5, False), (80, False)])
+def test_minimum_between_minus_one_and_one(minimum, ok):
+    # a coefficient's minimum lives on its own scale, [-1, 1], as in agree.score
+    x = np.array([[0, 0], [1, 1], [0, 1], [1, 1], [0, 0]])
+    if ok:
+        assert diagnose_codes(x, minimum=minimum, n_resamples=0).minimum == minimum
+    else:
+        with pytest.raises(AgreeError) as err:
+            diagnose_codes(x, minimum=minimum, n_resamples=0)
+        assert err.value.code == "minimum"
+
+
+@pytest.mark.parametrize("table", [np.empty((0, 2)), np.full((3, 2), np.nan)])
+def test_no_units_raises_empty(table):
+    for diagnose in (diagnose_codes, diagnose_coders):
+        with pytest.raises(AgreeError) as err:
+            diagnose(table, n_resamples=0)
+        assert err.value.code == "empty"
+
+
+def test_pair_units_match_a_count_unit_by_unit():
+    # the vectorised count of units with a c/k confusion against the definition, unit by unit
+    rng = np.random.default_rng(3)
+    codes = rng.integers(0, 6, size=(80, 3)).astype(float)
+    codes[rng.random(codes.shape) < 0.15] = np.nan
+    d = from_table(codes)
+    pairs = diagnose_codes(d, n_resamples=0).confused_pairs
+    labels = d.labels().to_numpy()
+    for row in pairs.itertuples(index=False):
+        expected = 0
+        for unit in labels:
+            given = [v for v in unit if v is not None and not (isinstance(v, float) and np.isnan(v))]
+            if len(given) >= 2 and row.code_a in given and row.code_b in given:
+                expected += 1
+        assert row.units == expected
+
+
+def test_notebook_display_escapes_text_and_shows_nan_as_dash():
+    x = pd.DataFrame({"ann": ["<b>x</b>", "y", "y", "x"], "bo": ["<b>x</b>", "y", "<b>x</b>", "y"],
+                      "cy": ["<b>x</b>", "y", "y", None]})
+    codes = diagnose_codes(x, n_resamples=0)
+    page = codes._repr_html_()
+    assert "<table" in page and "Code diagnostics" in page
+    assert "&lt;b&gt;x&lt;/b&gt;" in page and "<b>x</b>" not in page
+    assert "<td>–</td>" in page and ">nan<" not in page.lower()   # no interval: en dashes
+    coders = diagnose_coders(x, n_resamples=0)._repr_html_()
+    assert "Coder diagnostics" in coders and "<table" in coders and ">nan<" not in coders.lower()

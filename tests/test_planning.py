@@ -417,3 +417,15 @@ def test_cli_plan_bad_input_exit_code_2():
     assert res.returncode == 2
     assert res.stderr.startswith("error:") and "sum to 0.9" in res.stderr
     assert "Traceback" not in res.stderr
+
+
+def test_plan_to_frame_and_notebook_display():
+    p = plan_sample(coders=2, categories=2, expected=0.9, seed=7, **FAST)
+    frame = p.to_frame()
+    assert list(frame.columns) == ["units", "assurance", "mc_error", "smoothed"]
+    assert frame["units"].tolist() == [pt.units for pt in p.curve]
+    # Monte Carlo error of a share: sqrt(P(1 - P)/R)
+    assert np.allclose(frame["mc_error"], np.sqrt(frame["assurance"] * (1 - frame["assurance"]) / p.replicates))
+    page = p._repr_html_()
+    assert page.startswith('<div class="agree-result"><p>Plan: ') and "<table" in page
+    assert ">nan<" not in page.lower()

@@ -627,3 +627,16 @@ def test_numeric_codes_decided_as_numbers_or_text(tmp_path):
     csv = tmp_path / "review.csv"
     write_review(data, csv)
     assert "'-1" in csv.read_text(encoding="utf-8")
+
+
+def test_consensus_from_a_dataframe_names_it_review_table_and_displays_in_a_notebook():
+    data = from_table([["a", "a"], ["<i>b</i>", "a"], ["b", None]], coders=["ann", "bo"])
+    review = review_table(data)
+    review["decision"] = "a"
+    cons = reconcile(data, review)
+    assert cons.review == "review table"           # as the docstring says
+    assert Consensus.__dataclass_fields__["review"].default == "review table"
+    page = cons._repr_html_()
+    assert "Consensus from review table" in page and "<table" in page
+    assert "&lt;i&gt;b&lt;/i&gt;" in page and "<i>b</i>" not in page
+    assert "–" in page and "None" not in page      # missing codes shown as an en dash

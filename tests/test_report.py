@@ -499,3 +499,34 @@ def test_cli_report_cluster(tmp_path):
     printed = json.loads(result.stdout)
     assert "whole interview groups (n = 12 groups)" in printed["methods"]
     assert "12 interview groups were resampled" in result.stderr
+
+
+@pytest.mark.parametrize("kwargs, code", [
+    ({"confidence_level": 95}, "ci"), ({"n_resamples": -5}, "boot"), ({"minimum": 1.5}, "minimum"),
+    ({"minimum": -1.5}, "minimum"),
+])
+def test_report_settings_are_checked_like_score(kwargs, code):
+    x = np.array([[0, 0], [1, 1], [0, 1], [1, 1], [0, 0]])
+    with pytest.raises(AgreeError) as err:
+        build_report(x, rounds=False, **kwargs)
+    assert err.value.code == code
+
+
+def test_report_accepts_a_minimum_in_minus_one_to_one():
+    # score accepts any minimum in [-1, 1]; so does the report
+    x = np.array([[0, 0], [1, 1], [0, 1], [1, 1], [0, 0], [1, 0], [1, 1]])
+    assert build_report(x, minimum=-0.2, n_resamples=0, rounds=False).minimum == -0.2
+
+
+def test_report_on_no_units_raises_empty():
+    with pytest.raises(AgreeError) as err:
+        build_report(np.empty((0, 2)), n_resamples=0)
+    assert err.value.code == "empty"
+
+
+def test_notebook_html_escapes_and_dashes():
+    from agree.report import notebook_html
+    page = notebook_html("a <summary> & more", pd.DataFrame({"code": ["<x>"], "alpha": [np.nan],
+                                                             "n": [12.0], "k": [0.5]}))
+    assert "a &lt;summary&gt; &amp; more" in page and "&lt;x&gt;" in page
+    assert "<td>–</td>" in page and "<td>12</td>" in page and "<td>0.500</td>" in page
