@@ -176,7 +176,7 @@ class CodeDiagnostics:
         return self.per_code.sort_values("rank", kind="stable").reset_index(drop=True)
 
     def _repr_html_(self) -> str:
-        from agree.report import notebook_html
+        from agree.format import notebook_html
 
         frame = self.to_frame()
         counts = frame["status"].value_counts()
@@ -289,7 +289,7 @@ class CoderDiagnostics:
         return pd.DataFrame(rows)
 
     def _repr_html_(self) -> str:
-        from agree.report import notebook_html
+        from agree.format import notebook_html
 
         summary = (f"Coder diagnostics: {len(self.coders)} coders, {self.n_units} units; "
                    f"α = {_display(self.alpha)} ({self.level_label}).")

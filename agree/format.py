@@ -7,11 +7,15 @@ file names) so it is never read as markup.
 
 from __future__ import annotations
 
+import html
 import math
 import re
-from typing import Any
+from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 
 def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
@@ -110,3 +114,39 @@ def spans(markup: str) -> list[tuple[str, str]]:
 def plain(markup: str) -> str:
     """Markup as plain text (placeholders keep their brackets)."""
     return "".join(text for _, text in spans(markup))
+
+
+def _notebook_cell(v: Any, counts: bool = False) -> str:
+    if isinstance(v, (frozenset, set)):
+        return "; ".join(sorted(str(x) for x in v)) or "–"
+    if isinstance(v, (bool, np.bool_)):
+        return "yes" if v else "no"
+    if isinstance(v, (int, np.integer)):
+        return f"{int(v):,}"
+    if isinstance(v, (float, np.floating)):
+        if not math.isfinite(float(v)):
+            return "–"
+        if counts:
+            return f"{int(v):,}"
+        return format_value(v, "number", 3)
+    if v is None or (isinstance(v, str) and not v):
+        return "–"
+    return str(v)
+
+
+def notebook_html(summary: str, frame: "pd.DataFrame", *, notes: Sequence[str] = (),
+                  max_rows: int = 60) -> str:
+    """A result for a notebook: one summary line and its main table (an HTML fragment).
+
+    All text is HTML-escaped; missing values and NaN show as an en dash; numbers get three
+    decimals (whole counts none). Long tables show their first and last rows."""
+    shown = frame.astype(object).copy()
+    for j in range(frame.shape[1]):
+        column = frame.iloc[:, j]
+        finite = column[np.isfinite(column)] if column.dtype.kind in "fiu" else column.iloc[:0]
+        counts = bool(len(finite) and (finite == np.round(finite)).all() and (finite.abs() > 1).any())
+        shown.iloc[:, j] = [_notebook_cell(v, counts) for v in column]
+    table = shown.to_html(index=False, escape=True, na_rep="–", max_rows=max_rows,
+                          border=0, classes="agree-table")
+    notes_html = "".join(f"<p><small>{html.escape(str(n))}</small></p>" for n in notes)
+    return f'<div class="agree-result"><p>{html.escape(summary)}</p>\n{table}\n{notes_html}</div>'

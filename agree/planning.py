@@ -144,7 +144,7 @@ class Plan:
 
     def _repr_html_(self) -> str:
         from agree.format import format_value
-        from agree.report import notebook_html
+        from agree.format import notebook_html
 
         wanted = self.inputs.get("assurance")
         minimum = self.inputs.get("minimum")

@@ -142,7 +142,7 @@ class Consensus:
     unresolved_rows: tuple[int | None, ...] = ()
 
     def _repr_html_(self) -> str:
-        from agree.report import notebook_html
+        from agree.format import notebook_html
 
         summary = (f"Consensus from {self.review}: {self.units_read} units read; {self.agreed} agreed, "
                    f"{self.decided} decided, {self.majority} by majority, {len(self.unresolved)} "

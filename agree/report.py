@@ -41,7 +41,7 @@ import numpy as np
 import pandas as pd
 
 from agree.files import atomic_write_bytes
-from agree.format import format_interval, format_value, lit, plain, spans  # noqa: F401 (re-exported)
+from agree.format import format_interval, format_value, lit, notebook_html, plain, spans  # noqa: F401 (re-exported)
 from agree.model import AgreeError, CodingData, as_coding_data
 from agree.results import AgreementResult, Note, _clean
 
@@ -1151,42 +1151,6 @@ def _html_table(t: Table) -> str:
     note = f'<p class="note">{_html_markup(t.note)}</p>' if t.note else ""
     return (f'<table id="table-{t.key}"><caption>{_html_markup(t.caption)}</caption><thead><tr>{head}</tr>'
             f'</thead><tbody>{"".join(body)}</tbody></table>{note}')
-
-
-def _notebook_cell(v: Any, counts: bool = False) -> str:
-    if isinstance(v, (frozenset, set)):
-        return "; ".join(sorted(str(x) for x in v)) or "–"
-    if isinstance(v, (bool, np.bool_)):
-        return "yes" if v else "no"
-    if isinstance(v, (int, np.integer)):
-        return f"{int(v):,}"
-    if isinstance(v, (float, np.floating)):
-        if not math.isfinite(float(v)):
-            return "–"
-        if counts:
-            return f"{int(v):,}"
-        return format_value(v, "number", 3)
-    if v is None or (isinstance(v, str) and not v):
-        return "–"
-    return str(v)
-
-
-def notebook_html(summary: str, frame: pd.DataFrame, *, notes: Sequence[str] = (),
-                  max_rows: int = 60) -> str:
-    """A result for a notebook: one summary line and its main table (an HTML fragment).
-
-    All text is HTML-escaped; missing values and NaN show as an en dash; numbers get three
-    decimals (whole counts none). Long tables show their first and last rows."""
-    shown = frame.astype(object).copy()
-    for j in range(frame.shape[1]):
-        column = frame.iloc[:, j]
-        finite = column[np.isfinite(column)] if column.dtype.kind in "fiu" else column.iloc[:0]
-        counts = bool(len(finite) and (finite == np.round(finite)).all() and (finite.abs() > 1).any())
-        shown.iloc[:, j] = [_notebook_cell(v, counts) for v in column]
-    table = shown.to_html(index=False, escape=True, na_rep="–", max_rows=max_rows,
-                          border=0, classes="agree-table")
-    notes_html = "".join(f"<p><small>{html.escape(str(n))}</small></p>" for n in notes)
-    return f'<div class="agree-result"><p>{html.escape(summary)}</p>\n{table}\n{notes_html}</div>'
 
 
 def render_html(report: Report, *, standalone: bool = True, figures: bool = True) -> str:

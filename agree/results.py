@@ -147,10 +147,16 @@ class AgreementResult:
         })
 
     def _repr_html_(self) -> str:
-        def f(x):
-            return "–" if x is None or (isinstance(x, float) and not math.isfinite(x)) else f"{x:.3f}"
-        ci = f"[{f(self.ci_low)}, {f(self.ci_high)}]" if self.ci_low is not None else "–"
-        warn = "".join(f"<li>{w.message}</li>" for w in self.warnings)
-        return (f"<div><b>{self.name}</b> = {f(self.estimate)} &nbsp; SE {f(self.se)} &nbsp; "
-                f"{self.confidence_level:.0%} CI {ci} &nbsp; ({self.n_units} units, "
-                f"{self.n_coders} coders)" + (f"<ul>{warn}</ul>" if warn else "") + "</div>")
+        import pandas as pd
+
+        from agree.format import notebook_html
+
+        row = {"estimate": self.estimate, "se": self.se, "ci_low": self.ci_low, "ci_high": self.ci_high,
+               "n_units": self.n_units, "n_coders": self.n_coders}
+        if self.minimum is not None:
+            row.update(minimum=self.minimum, p_below_min=self.p_below_min, lower_bound=self.lower_bound)
+        how = [f"level {self.level}" if self.level else "", f"{self.weights} weights" if self.weights else "",
+               f"SE: {self.se_method}" if self.se_method else "",
+               f"{self.confidence_level:.0%} CI: {self.ci_method}" if self.ci_method else ""]
+        summary = display_name(self.name) + ": " + "; ".join(h for h in how if h)
+        return notebook_html(summary, pd.DataFrame([row]), notes=[w.message for w in self.warnings])

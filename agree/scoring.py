@@ -10,7 +10,7 @@ import numpy as np
 
 from agree import coefficients as coef
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
-from agree.results import AgreementResult, Note, _clean
+from agree.results import AgreementResult, Note, _clean, display_name
 
 FEW_UNITS = 30  # common practice: below this, intervals are wide and conventions shaky
 
@@ -84,13 +84,30 @@ class ScoreResult:
             "read": None if self.read is None else dict(self.read),
         }
 
+    def to_frame(self):
+        """One row per coefficient (pandas DataFrame), named for people."""
+        import pandas as pd
+
+        return pd.DataFrame([{
+            "coefficient": display_name(name), "estimate": r.estimate, "se": r.se, "ci_low": r.ci_low,
+            "ci_high": r.ci_high, "p_below_min": r.p_below_min, "lower_bound": r.lower_bound,
+            "n_units": r.n_units, "weights": r.weights or ("" if name in ("krippendorff_alpha", "percent_agreement")
+                                                           else "unweighted"),
+            "se_method": r.se_method, "ci_method": r.ci_method} for name, r in self.coefficients.items()])
+
     def _repr_html_(self) -> str:
-        rows = "".join(f"<tr><td>{k}</td><td>{v.estimate:.3f}</td><td>"
-                       + ("–" if v.ci_low is None else f"[{v.ci_low:.3f}, {v.ci_high:.3f}]") + "</td></tr>"
-                       for k, v in self.coefficients.items())
-        return (f"<p>{self.units_used} units used of {self.units_read}, {len(self.coders)} coders, "
-                f"level {self.level}</p><table><tr><th>coefficient</th><th>estimate</th>"
-                f"<th>{self.confidence_level:.0%} CI</th></tr>{rows}</table>")
+        from agree.format import notebook_html
+
+        summary = (f"{self.units_used} of {self.units_read} units used, {len(self.coders)} coders "
+                   f"({', '.join(self.coders)}), level {self.level}; {self.confidence_level:.0%} intervals"
+                   + (f" from {self.n_resamples} bootstrap replicates ({self.ci_method}, {self.resampled}), seed "
+                      f"{self.seed}" if self.n_resamples else ", analytic"))
+        notes = [w.message for w in self.warnings]
+        notes += [f"Not computed, {display_name(k)}: {v}" for k, v in self.skipped.items()]
+        decision = self.decision()
+        if decision is not None:
+            notes.insert(0, "Decision: " + decision["sentence"] + ".")
+        return notebook_html(summary, self.to_frame(), notes=notes)
 
 
 def score(data: Any, *, level: str | None = None, minimum: float | None = None, n_resamples: int = 2000,

@@ -525,7 +525,7 @@ def test_report_on_no_units_raises_empty():
 
 
 def test_notebook_html_escapes_and_dashes():
-    from agree.report import notebook_html
+    from agree.format import notebook_html
     page = notebook_html("a <summary> & more", pd.DataFrame({"code": ["<x>"], "alpha": [np.nan],
                                                              "n": [12.0], "k": [0.5]}))
     assert "a &lt;summary&gt; &amp; more" in page and "&lt;x&gt;" in page

@@ -392,3 +392,13 @@ def test_scale_order_given_by_categories_or_numbers_is_not_flagged():
     assert not agree.krippendorff_alpha(numbers, level="ordinal", n_resamples=0).warnings
     nominal = agree.krippendorff_alpha(ORDINAL_TEXT, level="nominal", n_resamples=0)
     assert not nominal.warnings   # the order does not matter at nominal level
+
+
+def test_notebook_view_names_coefficients_for_people_and_shows_the_decision(round1):
+    r = agree.score(round1, n_resamples=200, seed=1, minimum=0.8)
+    frame = r.to_frame()
+    assert list(frame["coefficient"]) == [display_name(k) for k in r.coefficients]
+    page = r._repr_html_()
+    assert "Krippendorff&#x27;s alpha" in page or "Krippendorff's alpha" in page
+    assert "krippendorff_alpha" not in page and "Decision:" in page and "nan" not in page.lower()
+    assert "<table" in r.coefficients["krippendorff_alpha"]._repr_html_()
