@@ -26,7 +26,8 @@ __version__ = "0.1.0"
 _LAZY = {
     "agree.diagnostics": ("CodeDiagnostics", "CoderDiagnostics", "confusion_table", "diagnose_codes",
                           "diagnose_coders"),
-    "agree.planning": ("Plan", "decision_sentence", "plan_sample"),
+    "agree.format": ("decision_sentence",),
+    "agree.planning": ("Plan", "plan_sample"),
     "agree.report": ("Report", "build_report", "write_report"),
     "agree.rounds": ("RoundsResult", "compare_rounds"),
     "agree.reconciliation": ("Consensus", "ReviewSummary", "reconcile", "review_table", "write_consensus",

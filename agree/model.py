@@ -21,6 +21,11 @@ import pandas as pd
 LEVELS = ("nominal", "ordinal", "interval", "ratio")
 MISSING = -1
 
+# Columns of the consensus file `agree reconcile` writes (readers refuse to score it as coding data).
+CONSENSUS_FINAL = "final code"
+CONSENSUS_SOURCE = "source"
+CONSENSUS_SOURCES = ("agreed", "decided", "majority", "unresolved", "single coder", "not coded")
+
 
 class AgreeError(ValueError):
     """Bad input or an impossible request. The message is one line meant for the user.

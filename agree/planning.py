@@ -39,8 +39,9 @@ from scipy import optimize, stats
 
 from agree.coefficients import alpha_from_coincidence, alpha_from_sums, level_delta, ordinal_delta
 from agree.files import atomic_write
+from agree.format import _percent, decision_sentence  # noqa: F401 (decision_sentence: part of the planning API)
 from agree.model import AgreeError
-from agree.results import AgreementResult, Note, _clean
+from agree.results import Note, _clean
 
 PLAN_LEVELS = ("nominal", "ordinal", "interval")
 
@@ -975,58 +976,3 @@ def save_assurance_plot(plan: Plan, path: str | os.PathLike) -> None:
         atomic_write(path, lambda tmp: fig.savefig(tmp, format="png"))
     finally:
         plt.close(fig)
-
-
-_DISPLAY_NAMES = {
-    "krippendorff_alpha": "alpha", "cohen_kappa": "kappa", "fleiss_kappa": "Fleiss' kappa",
-    "conger_kappa": "Conger's kappa", "scott_pi": "pi", "gwet_ac1": "AC1", "gwet_ac2": "AC2",
-    "brennan_prediger": "Brennan-Prediger kappa", "pabak": "PABAK",
-    "percent_agreement": "percent agreement",
-}
-
-
-def _percent(level: float) -> str:
-    """0.95 -> '95%', 0.975 -> '97.5%'."""
-    return f"{round(level * 100, 4):g}%"
-
-
-def _apa(x: float, digits: int) -> str:
-    """A bounded coefficient without the leading zero (APA): .84, -.12, 1.00."""
-    text = f"{x:.{digits}f}"
-    if text.startswith("0."):
-        return text[1:]
-    if text.startswith("-0."):
-        return "-" + text[2:]
-    return text
-
-
-def decision_sentence(result: AgreementResult, minimum: float, confidence_level: float | None = None,
-                      *, digits: int = 2) -> str:
-    """Whether a coefficient's lower confidence bound clears a minimum, as one sentence.
-
-    Uses the one-sided lower bound (`result.lower_bound`) when there is one, else the lower end
-    of the two-sided interval, and says which. "Clears" means strictly above the minimum. When
-    rounding would show the bound and the minimum as equal, more digits are shown.
-
-    Examples: "alpha = .84; the one-sided 95% lower bound .80 clears the minimum .80" (with
-    ``digits=2`` and a bound of .803 this becomes "... lower bound .803 clears the minimum .800").
-    """
-    name = _DISPLAY_NAMES.get(result.name, result.name.replace("_", " "))
-    level = result.confidence_level if confidence_level is None else confidence_level
-    estimate = result.estimate
-    if estimate is None or not math.isfinite(estimate):
-        return f"{name} is undefined, so it cannot be compared with the minimum {_apa(minimum, digits)}"
-    if result.lower_bound is not None and math.isfinite(result.lower_bound):
-        bound, kind = result.lower_bound, f"the one-sided {_percent(level)} lower bound"
-    elif result.ci_low is not None and math.isfinite(result.ci_low):
-        bound, kind = result.ci_low, f"the lower end of the two-sided {_percent(level)} interval"
-    else:
-        return (f"{name} = {_apa(estimate, digits)}; no confidence bound is available, so the minimum "
-                f"{_apa(minimum, digits)} cannot be tested")
-    clears = bound > minimum
-    shown = digits
-    while shown < 4 and bound != minimum and _apa(bound, shown) == _apa(minimum, shown):
-        shown += 1
-    verb = "clears" if clears else "does not clear"
-    return (f"{name} = {_apa(estimate, shown)}; {kind} {_apa(bound, shown)} {verb} the minimum "
-            f"{_apa(minimum, shown)}")

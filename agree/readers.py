@@ -931,7 +931,7 @@ def _refuse_consensus(table: _Table) -> None:
     Recognised by a 'final code' column, or by a 'source' column whose values are all among
     the consensus sources (agreed, decided, majority, ...). Checks distinct values only.
     """
-    from agree.reconciliation import FINAL, SOURCE, SOURCES
+    from agree.model import CONSENSUS_FINAL as FINAL, CONSENSUS_SOURCE as SOURCE, CONSENSUS_SOURCES as SOURCES
 
     by_key = {_key(c): c for c in table.frame.columns}
     final = by_key.get(_key(FINAL))

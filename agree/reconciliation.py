@@ -46,6 +46,7 @@ import numpy as np
 import pandas as pd
 
 from agree.files import atomic_write, check_output, sha256_file  # noqa: F401 (sha256_file re-exported)
+from agree.model import CONSENSUS_FINAL as FINAL, CONSENSUS_SOURCE as SOURCE, CONSENSUS_SOURCES as SOURCES
 from agree.model import AgreeError, CodingData, _sort_key, as_coding_data, cell_location, normalise_value
 
 # Column headers of the review file. The workbook is read back by these names, so a team
@@ -60,11 +61,8 @@ HOW = "how decided"
 WHO = "decided by"
 NOTES = "notes"
 # Consensus columns.
-FINAL = "final code"
-SOURCE = "source"
 
 HOW_CHOICES = ("discussion", "adjudicator", "majority")
-SOURCES = ("agreed", "decided", "majority", "unresolved", "single coder", "not coded")
 SET_SEPARATOR = "; "
 NONE_LABEL = "(none)"
 REVIEW_SHEET = "Review"

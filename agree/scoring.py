@@ -53,7 +53,7 @@ class ScoreResult:
         probability of lying below it, and the sentence saying so (None without a minimum)."""
         if self.minimum is None or self.primary not in self.coefficients:
             return None
-        from agree.planning import decision_sentence
+        from agree.format import decision_sentence
 
         r = self.coefficients[self.primary]
         bound = r.lower_bound if r.lower_bound is not None and math.isfinite(r.lower_bound) else None
