@@ -354,8 +354,9 @@ def split_rounds(data: CodingData, round_column: str = "round") -> dict[str, Cod
     if round_column not in data.columns:
         kept = ", ".join(data.columns) or "none"
         raise AgreeError(f"the data have no round column '{round_column}' (columns kept: {kept})",
-                         hint="read the data keeping the round column (--round-column), or give one file "
-                              "per round with --round-files", code="round-column")
+                         hint=f"read the data keeping the round column (--round-column NAME on the command line; "
+                              f"agree.read(..., keep=['{round_column}']) in Python), or give one file per round "
+                              "(--round-files; a {round: data} mapping)", code="round-column")
     labels = np.asarray(data.columns[round_column], dtype=object)
     missing = np.array([x is None or (isinstance(x, float) and math.isnan(x)) or str(x) == "" for x in labels])
     if missing.any():

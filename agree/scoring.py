@@ -125,6 +125,13 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
     Every coefficient uses the same seed, so the run repeats exactly. Units with fewer
     than two values are left out of every coefficient and named in the result.
     `progress`, if given, is called as progress(name, fraction_done) after each coefficient.
+
+    Warnings (``warnings``): "few-units" below 30 units with two or more values (common practice);
+    "prevalence-skew" when percent agreement is at least .80 while alpha, kappa or Fleiss' kappa
+    is below .67 and one category takes at least 60% of the values (the prevalence paradox of
+    Feinstein & Cicchetti 1990; the cut-offs are ours, only to decide when to say it); undefined
+    coefficients; and data-wide notes from the coefficients (few clusters, an alphabetical scale
+    order, asymmetric weights, clipped normal-approximation intervals).
     """
     d = as_coding_data(data, categories=categories)
     if d.n_coders < 2:
