@@ -724,7 +724,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
                 confidence_level: float = 0.95, assurance: float = 0.80, missing: float = 0.0,
                 seed: int | None = None, replicates: int = 500, n_resamples: int = 500,
                 min_units: int = 20, max_units: int = 2000, corpus_size: int | None = None,
-                refine_steps: int = 3) -> Plan:
+                refine_steps: int = 3, progress: Any = None) -> Plan:
     """How many units must be coded by every coder so that alpha's lower bound clears a minimum.
 
     Parameters
@@ -790,6 +790,8 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
                                                           level, n_resamples, confidence_level)
             hits = int(np.sum(lower > minimum))
             results[n_units] = (hits, undefined)
+            if progress is not None:
+                progress(f"{n_units} units", min(1.0, len(results) / (9 + refine_steps)))
         return results[n_units][0] / replicates
 
     # Larger sizes are not simulated once one size is clearly past the target.

@@ -497,3 +497,28 @@ def test_demo_numbers_its_steps_and_excludes_coded_units(tmp_path, monkeypatch):
     assert f"{len(coded)} units coded in rounds 1 and 2 were excluded" in " ".join(res.stdout.split())
     _, rows = _read_sheet(tmp_path / "demo" / "sheets" / "amara.xlsx")
     assert rows[0][:2] == ("unit_id", "interview")
+
+
+def test_demo_json_prints_only_a_summary_of_its_outputs(tmp_path, monkeypatch):
+    import json
+    from pathlib import Path
+
+    import agree
+    import agree.cli.commands  # noqa: F401
+    import agree.report
+    from agree.cli.app import app
+
+    class FakeReport:
+        methods = "Methods paragraph."
+
+    monkeypatch.setattr(agree.report, "build_report", lambda *a, **k: FakeReport())
+    monkeypatch.setattr(agree.report, "write_report", lambda report, path: [Path(path)])
+    real_plan = agree.plan_sample
+    monkeypatch.setattr(agree, "plan_sample",
+                        lambda **k: real_plan(**{**k, "replicates": 60, "n_resamples": 60}))
+    res = CliRunner().invoke(app, ["demo", "--out", str(tmp_path / "demo"), "--boot", "50", "--format", "json"])
+    assert res.exit_code == 0, res.output
+    summary = json.loads(res.stdout)
+    assert set(summary["rounds"]) == {"round1", "round2"}
+    assert Path(summary["outputs"]["review"]).exists() and summary["drawn"] > 0
+    assert summary["rounds"]["round2"]["estimate"] > summary["rounds"]["round1"]["estimate"]

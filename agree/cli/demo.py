@@ -7,13 +7,15 @@ folder, named at the end.
 
 from __future__ import annotations
 
+import io
+from enum import Enum
 from pathlib import Path
 from typing import Annotated, Optional
 
 import typer
 from rich.rule import Rule
 
-from agree.cli.app import app, note, stdout
+from agree.cli.app import app, note, print_json, stdout
 from agree.cli.diagnose import _codes_table
 from agree.cli.plan import print_plan
 from agree.cli.reading import report_reading
@@ -45,6 +47,11 @@ class _Steps:
         stdout.print(Rule(f"{self.count}. {title}", align="left"))
 
 
+class DemoFormat(str, Enum):
+    table = "table"
+    json = "json"
+
+
 def _section(title: str) -> None:
     stdout.print(Rule(title, align="left"))
 
@@ -55,6 +62,9 @@ def demo(
     samples: Annotated[Optional[Path], typer.Option("--samples", help="Folder with the sample files.")] = None,
     boot: Annotated[int, typer.Option("--boot", help="Bootstrap replicates.")] = 2000,
     seed: Annotated[int, typer.Option("--seed", help="Seed for every random step.")] = 1,
+    output_format: Annotated[DemoFormat, typer.Option(
+        "--format", help="table: the tour as it runs; json: only a summary of the outputs at the end.")
+    ] = DemoFormat.table,
 ):
     """Run the whole loop on the bundled synthetic samples and write the outputs to a folder.
 
@@ -68,6 +78,10 @@ def demo(
 
     folder = _samples_folder(samples)
     out.mkdir(parents=True, exist_ok=True)
+    quiet_tour = output_format is DemoFormat.json
+    if quiet_tour:
+        saved, stdout.file = stdout.file, io.StringIO()  # the tour is not printed; the summary is
+    summary_json: dict = {"outputs": {}, "rounds": {}}
     codebook = folder / "codebook.csv"
     stdout.print("agree demo: synthetic interviews with volunteers of a neighbourhood repair café; "
                  "8-code codebook, three coders (amara, bastien, chen), two coding rounds. See samples/README.md.")
@@ -80,7 +94,9 @@ def demo(
         data = agree.read(folder / f"{name}.csv", codebook=codebook)
         report_reading(data)
         rounds[name] = data
-        print_score(agree.score(data, minimum=0.8, n_resamples=boot, seed=seed, cluster="interview"))
+        scored = agree.score(data, minimum=0.8, n_resamples=boot, seed=seed, cluster="interview")
+        print_score(scored)
+        summary_json["rounds"][name] = scored.coefficients["krippendorff_alpha"].to_dict()
 
     step("Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
     codes = agree.diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
@@ -93,6 +109,8 @@ def demo(
                                  inputs=[folder / "round1.csv", codebook], options={"source": "agree demo"},
                                  force=True)
     stdout.print(f"{summary.needing_review} units to reconcile, worst first: {review_path}", highlight=False)
+    summary_json["outputs"]["review"] = str(review_path)
+    summary_json["worst_codes"] = [str(c) for c in codes.to_frame()["code"].head(3)]
 
     step("Did round 2 beat round 1? (agree rounds samples/rounds_long.csv --codebook ...)")
     long = agree.read(folder / "rounds_long.csv", codebook=codebook, keep=["round"])
@@ -109,6 +127,7 @@ def demo(
     stdout.print("Methods paragraph (edit the bracketed parts):", highlight=False)
     stdout.print(plain(report.methods), highlight=False)
     stdout.print("Written: " + ", ".join(str(p) for p in written if p.suffix != ".png"), highlight=False)
+    summary_json["outputs"]["report"] = [str(p) for p in written if p.suffix != ".png"]
 
     step("How many units to double-code next time (agree plan --coders 3 --shares ... --expected 0.85)")
     plan = agree.plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
@@ -133,6 +152,13 @@ def demo(
                  f"{drawn.attrs['excluded']} units coded in rounds 1 and 2 were excluded. One workbook per "
                  f"coder in {sheets.folder}, with the interview column beside the unit id.", highlight=False)
 
+    summary_json["units_needed"] = plan.units_needed
+    summary_json["outputs"]["sheets"] = sheets.folder
+    summary_json["drawn"] = len(drawn)
+    if quiet_tour:
+        stdout.file = saved
+        print_json(summary_json)
+        return
     _section("Done")
     stdout.print(f"All outputs are in {out.resolve()}: review-round1.xlsx, report.html (open it in a browser), "
                  "report.md, report.docx, report.tex, sheets/.", highlight=False)

@@ -10,7 +10,7 @@ import typer
 from rich.table import Table
 from rich.text import Text
 
-from agree.cli.app import app, note, print_json, stdout
+from agree.cli.app import app, note, print_json, progress_bar, stdout
 from agree.model import AgreeError
 
 if TYPE_CHECKING:
@@ -73,10 +73,11 @@ def plan(
                          code="plot-format")
     from agree.planning import plan_sample, save_assurance_plot
 
-    result = plan_sample(coders=coders, expected=expected, minimum=minimum, categories=categories,
-                         shares=_shares(shares), rarest=rarest, level=level.value, confidence_level=ci,
-                         assurance=assurance, missing=missing, seed=seed, replicates=replicates,
-                         n_resamples=boot, max_units=max_units, corpus_size=corpus_size)
+    with progress_bar("plan") as tick:
+        result = plan_sample(coders=coders, expected=expected, minimum=minimum, categories=categories,
+                             shares=_shares(shares), rarest=rarest, level=level.value, confidence_level=ci,
+                             assurance=assurance, missing=missing, seed=seed, replicates=replicates,
+                             n_resamples=boot, max_units=max_units, corpus_size=corpus_size, progress=tick)
     if plot is not None:
         save_assurance_plot(result, plot)
         note(f"assurance curve written to {plot}")
