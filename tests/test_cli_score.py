@@ -330,3 +330,14 @@ def test_score_writes_no_files(tmp_path, monkeypatch):
         assert result.exit_code == 0, result.output
     assert snapshot(tmp_path) == before
     assert snapshot(SAMPLES) == samples_before
+
+
+def test_quiet_works_before_or_after_the_command(monkeypatch, capsys):
+    from agree.cli.app import STATE
+
+    for args in (["-q", "score", ROUND1, "--boot", "0"], ["score", ROUND1, "--boot", "0", "--quiet"]):
+        code, out, err = run_main(monkeypatch, capsys, args)
+        assert code == 0 and "Agreement:" in out and "read 120 units" not in err
+        STATE["quiet"] = False
+    code, out, err = run_main(monkeypatch, capsys, ["score", ROUND1, "--boot", "0"])
+    assert code == 0 and "read 120 units" in err

@@ -83,8 +83,11 @@ def main() -> None:
     """
     from agree.cli import commands  # noqa: F401  (registers the commands)
 
+    # --quiet and --debug are global; accept them after the command name too (agree score x.csv -q)
+    args = sys.argv[1:]
+    flags = [a for a in args if a in ("-q", "--quiet", "--debug")]
     try:
-        app(standalone_mode=True)
+        app(args=flags + [a for a in args if a not in flags], standalone_mode=True)
     except AgreeError as exc:
         if STATE["debug"]:
             raise
