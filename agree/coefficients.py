@@ -87,12 +87,14 @@ def agreement_weights(data: CodingData, weights: Any) -> tuple[np.ndarray, str |
 
 def _order_notes(data: CodingData, what: str) -> list[Note]:
     """The scale order matters for `what` but was only inferred by sorting text labels."""
-    if data.order != "alphabetical" or data.set_valued:
+    if data.order not in ("alphabetical", "codebook rows") or data.set_valued or data.is_numeric:
         return []
     shown = " < ".join(str(v) for v in data.values[:6]) + (" < ..." if len(data.values) > 6 else "")
-    return [Note("alphabetical-order", f"{what} uses the order of the categories, which was only inferred by "
-                 f"sorting the labels alphabetically ({shown}); pass them in scale order (categories=[...]) "
-                 "or read the data with a codebook that has an order column (--codebook).")]
+    how = ("only inferred by sorting the labels alphabetically" if data.order == "alphabetical" else
+           "taken from the order of the codebook's rows (it has no order column)")
+    return [Note("alphabetical-order" if data.order == "alphabetical" else "codebook-row-order",
+                 f"{what} uses the order of the categories, which was {how} ({shown}); pass them in scale "
+                 "order (categories=[...]) or give the codebook an order column (--codebook).")]
 
 
 def _weight_notes(w: np.ndarray) -> list[Note]:

@@ -1267,7 +1267,7 @@ class _Builder:
                           coders=tuple(self.coders), categories=tuple(categories), level=data_level,
                           set_valued=set_valued, text=text, columns=columns, codebook=codebook_map,
                           provenance=Provenance(sources=tuple(self.sources), source=src, row=row),
-                          order="given" if book is not None else
+                          order=("given" if book.ordered else "codebook rows") if book is not None else
                           "numeric" if all(isinstance(v, (int, float)) for v in values) else "alphabetical")
 
     def _check_unit_ids(self):

@@ -225,7 +225,8 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
     once = {}  # warnings that concern the data, not one coefficient: shown once
     for r in results.values():
         for w in r.warnings:
-            if w.code in ("few-clusters", "alphabetical-order", "asymmetric-weights", "interval-clipped"):
+            if w.code in ("few-clusters", "alphabetical-order", "codebook-row-order", "asymmetric-weights",
+                          "interval-clipped"):
                 once.setdefault(w.code, w)
     notes.extend(once.values())
     return notes

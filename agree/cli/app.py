@@ -75,19 +75,23 @@ def fail(message: str, code: int = 2) -> None:
     raise typer.Exit(code)
 
 
-def main() -> None:
-    """Console entry point: library errors become one line on stderr and exit code 2.
+def _is(exc: BaseException, name: str) -> bool:
+    """Whether `exc` is an instance of the (Typer-bundled) click exception class `name`."""
+    return any(cls.__name__ == name for cls in type(exc).__mro__)
 
-    Usage errors (unknown options, missing arguments) are reported by Typer itself, also
-    with exit code 2.
-    """
+
+def main() -> None:
+    """Console entry point: every error becomes one line on stderr, with exit code 2 for bad input
+    or usage (unknown options, values out of range) and no traceback unless --debug."""
     from agree.cli import commands  # noqa: F401  (registers the commands)
 
     # --quiet and --debug are global; accept them after the command name too (agree score x.csv -q)
     args = sys.argv[1:]
     flags = [a for a in args if a in ("-q", "--quiet", "--debug")]
+    args = flags + [a for a in args if a not in flags]
     try:
-        app(args=flags + [a for a in args if a not in flags], standalone_mode=True)
+        code = app(args=args, prog_name="agree", standalone_mode=False)
+        sys.exit(code if isinstance(code, int) else 0)
     except AgreeError as exc:
         if STATE["debug"]:
             raise
@@ -97,7 +101,20 @@ def main() -> None:
         sys.exit(2)
     except (KeyboardInterrupt, BrokenPipeError):
         sys.exit(130)
-    except Exception as exc:  # the unexpected: one line, the traceback with --debug
+    except Exception as exc:
+        if _is(exc, "NoArgsIsHelpError"):  # the help was shown
+            sys.exit(0)
+        if _is(exc, "Abort"):
+            stderr.print("aborted", highlight=False, markup=False)
+            sys.exit(1)
+        if _is(exc, "ClickException"):  # usage: unknown option, missing argument, value out of range
+            message = exc.format_message().rstrip(".")
+            known = {c.name for c in app.registered_commands} | {c.callback.__name__ for c in app.registered_commands}
+            command = next((a for a in args if not a.startswith("-")), "")
+            where = f"agree {command} --help" if command in known else "agree --help"
+            hint = " (a coefficient value such as 0.8, not 80)" if "'--min'" in message else ""
+            stderr.print(f"error: {message}{hint}; see '{where}'", highlight=False, markup=False)
+            sys.exit(getattr(exc, "exit_code", 2) or 2)
         if STATE["debug"]:
             raise
         stderr.print(f"error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",

@@ -7,7 +7,7 @@ folder, named at the end.
 
 from __future__ import annotations
 
-import io
+import contextlib
 from enum import Enum
 from pathlib import Path
 from typing import Annotated, Optional
@@ -70,18 +70,31 @@ def demo(
 
     Example: agree demo --out agree-demo
     """
-    import agree
-    from agree.format import plain
-    from agree.report import build_report, write_report
-    from agree.sampling import load_codebook_categories, read_unit_ids
-    from agree.rounds import compare_rounds
-
     folder = _samples_folder(samples)
     out.mkdir(parents=True, exist_ok=True)
     quiet_tour = output_format is DemoFormat.json
-    if quiet_tour:
-        saved, stdout.file = stdout.file, io.StringIO()  # the tour is not printed; the summary is
     summary_json: dict = {"outputs": {}, "rounds": {}}
+    with contextlib.ExitStack() as stack:
+        if quiet_tour:
+            stack.enter_context(stdout.capture())  # the tour is not printed; the summary is
+        _tour(folder, out, boot, seed, summary_json)
+    if quiet_tour:
+        print_json(summary_json)
+        return
+    _section("Done")
+    stdout.print(f"All outputs are in {out.resolve()}: review-round1.xlsx, report.html (open it in a browser), "
+                 "report.md, report.docx, report.tex, sheets/.", highlight=False)
+    note("The sample data are synthetic (samples/make_samples.py).")
+
+
+def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> None:
+    """The steps of the demo, printed as they run; headline results go into `summary_json`."""
+    import agree
+    from agree.format import format_value, plain
+    from agree.report import build_report, write_report
+    from agree.rounds import compare_rounds
+    from agree.sampling import load_codebook_categories, read_unit_ids
+
     codebook = folder / "codebook.csv"
     stdout.print("agree demo: synthetic interviews with volunteers of a neighbourhood repair café; "
                  "8-code codebook, three coders (amara, bastien, chen), two coding rounds. See samples/README.md.")
@@ -89,14 +102,20 @@ def demo(
     step = _Steps()
     rounds = {}
     for name in ("round1", "round2"):
-        step(f"Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8 "
-             "--cluster interview)")
+        step(f"Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8)")
         data = agree.read(folder / f"{name}.csv", codebook=codebook)
         report_reading(data)
         rounds[name] = data
-        scored = agree.score(data, minimum=0.8, n_resamples=boot, seed=seed, cluster="interview")
+        scored = agree.score(data, minimum=0.8, n_resamples=boot, seed=seed)
         print_score(scored)
         summary_json["rounds"][name] = scored.coefficients["krippendorff_alpha"].to_dict()
+        if name == "round2":
+            nested = agree.krippendorff_alpha(data, n_resamples=boot, seed=seed, cluster="interview")
+            stdout.print(f"The excerpts are nested in {len(set(data.columns['interview']))} interviews: with "
+                         f"--cluster interview whole interviews are resampled and alpha's interval widens to "
+                         f"[{format_value(nested.ci_low, digits=3)}, {format_value(nested.ci_high, digits=3)}] "
+                         "(the report below resamples units, as rounds_long.csv has no interview column).",
+                         highlight=False)
 
     step("Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
     codes = agree.diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
@@ -155,11 +174,3 @@ def demo(
     summary_json["units_needed"] = plan.units_needed
     summary_json["outputs"]["sheets"] = sheets.folder
     summary_json["drawn"] = len(drawn)
-    if quiet_tour:
-        stdout.file = saved
-        print_json(summary_json)
-        return
-    _section("Done")
-    stdout.print(f"All outputs are in {out.resolve()}: review-round1.xlsx, report.html (open it in a browser), "
-                 "report.md, report.docx, report.tex, sheets/.", highlight=False)
-    note("The sample data are synthetic (samples/make_samples.py).")

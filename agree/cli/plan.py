@@ -213,7 +213,7 @@ def sample(
     if written.context_columns:
         note(f"column(s) {', '.join(repr(c) for c in written.context_columns)} copied into every sheet "
              "for context (shaded; leave them as they are)")
-    note(f"read them back with: {score_command(written, stratify)}")
+    note(f"read them back with: {score_command(written, stratify, codebook)}")
 
 
 def sample_exclusion_note(drawn, files: list[str]) -> str:
@@ -227,8 +227,10 @@ def sample_exclusion_note(drawn, files: list[str]) -> str:
     return text
 
 
-def score_command(written, stratify: Optional[str]) -> str:
+def score_command(written, stratify: Optional[str], codebook: Optional[Path] = None) -> str:
     command = f"agree score {' '.join(written.files)}"
+    if codebook is not None:
+        command += f" --codebook {codebook}"  # keeps unused codes and the scale order
     if stratify:
         command += f" --keep {stratify} --cluster {stratify}"
     return command

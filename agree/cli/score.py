@@ -17,6 +17,7 @@ from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption,
                                SeedOption, TableFormat)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.format import format_interval, format_value
+from agree.model import AgreeError
 from agree.results import display_name
 from agree.scoring import ScoreResult, score as run_score
 
@@ -56,6 +57,11 @@ def score(
         result = run_score(data, level=level.value if level else None, minimum=minimum, n_resamples=boot,
                            seed=seed, confidence_level=ci, ci_method=ci_method.value, cluster=cluster,
                            progress=scaled(tick, 0.3, 1.0))
+    if result.units_used == 0:
+        raise AgreeError(f"no unit was coded by two or more coders ({result.units_read} units, "
+                         f"{result.values_read} values read, {result.values_missing} empty cells)",
+                         hint="fill in the coding sheets, or check the layout detected (--layout)",
+                         code="no-pairable-units")
     if output_format is TableFormat.json:
         print_json(result.to_dict())
     elif output_format is TableFormat.csv:
@@ -112,7 +118,8 @@ def print_score(result: ScoreResult) -> None:
     boot = (f"{result.n_resamples} bootstrap replicates over {over} ({result.ci_method}), seed {result.seed}"
             if result.n_resamples else "no bootstrap; analytic intervals where published")
     se_rule = ("the bootstrap SD (published SEs assume independent units)" if result.resampled != "unit"
-               else "analytic where published, else the bootstrap SD")
+               else "analytic where published, else the bootstrap SD" if result.n_resamples
+               else "analytic where published, else none (no bootstrap)")
     stdout.print(f"Intervals: {boot}. SE: {se_rule}.", highlight=False)
     stdout.print(f"Units: {result.units_read} read, {result.units_used} used, {len(result.units_left_out)} left out "
                  f"(fewer than two coders). Values: {result.values_read} read, {result.values_missing} empty cells.",
