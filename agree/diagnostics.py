@@ -99,12 +99,15 @@ class CodeDiagnostics:
 
         - ``code``, ``status`` (one of "below minimum", "uncertain", "too rare",
           "undefined", "ok"; see Notes of :func:`diagnose_codes`), ``judged_on``
-          ("interval" or "estimate": what the status compares with the minimum),
+          ("interval": the one-sided lower confidence bound, or "estimate": what the status
+          compares with the minimum),
           ``reason`` (short, plain language), ``rank`` (1 = worst), ``explanation`` (longer
           text: the kappa paradox, why a code is undefined), ``paradox`` (bool).
         - ``alpha``, ``ci_low``, ``ci_high``: Krippendorff's alpha for the code against all
-          others (nominal alpha on ``data.presence(code)``) and its bootstrap interval;
-          ``p_below_min``: share of replicates below the minimum.
+          others (nominal alpha on ``data.presence(code)``) and its two-sided bootstrap
+          interval; ``lower_bound``: the one-sided lower confidence bound at the same level
+          (what the status compares with the minimum); ``p_below_min``: share of replicates
+          below the minimum.
         - ``specific_agreement`` (p_s) with ``specific_ci_low``, ``specific_ci_high``.
         - ``kappa`` and ``kappa_method`` ("cohen" for two coders, "fleiss" otherwise),
           ``percent_agreement`` (presence/absence agreement, mean over pairable units).
@@ -185,7 +188,7 @@ class CodeDiagnostics:
         summary = (f"Code diagnostics: {len(frame)} codes, {len(self.coders)} coders, "
                    f"{self.n_pairable_units} of {self.n_units} units pairable; "
                    f"overall α = {_display(self.alpha)} ({self.alpha_label}); {minimum}: {statuses}.")
-        shown = ["rank", "code", "status", "alpha", "ci_low", "ci_high", "specific_agreement",
+        shown = ["rank", "code", "status", "alpha", "ci_low", "ci_high", "lower_bound", "specific_agreement",
                  "kappa", "units_with_code", "top_confusion", "reason"]
         return notebook_html(summary, frame[shown], notes=[n.message for n in self.notes])
 
@@ -530,12 +533,13 @@ def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resampl
     `counts` times. With `clusters` (one label per row of `features`, which are then units),
     the items are the clusters: the features of their units summed, each drawn whole.
     `labels` name the statistics in the notes ("code 'X', α"). Returns (low, high,
-    p_below_min, BootstrapInfo, notes).
+    p_below_min, BootstrapInfo, notes, lower_bound), where ``lower_bound`` is the one-sided
+    lower confidence bound at `confidence_level` (the rule of ``agree score --min``).
     """
     k = len(estimates)
     nan = np.full(k, np.nan)
     if n_resamples <= 0 or features.shape[0] == 0:
-        return nan, nan.copy(), nan.copy(), None, []
+        return nan, nan.copy(), nan.copy(), None, [], nan.copy()
     rng, used_seed = make_rng(seed)
     notes: list[Note] = []
     unit = "unit"
@@ -555,7 +559,7 @@ def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resampl
     informative = np.any(items != 0, axis=1)
     jack = jackknife_values(items[informative], counts[informative], finish) if informative.any() else None
     weights = counts[informative]
-    low, high, below = nan.copy(), nan.copy(), nan.copy()
+    low, high, below, bound = nan.copy(), nan.copy(), nan.copy(), nan.copy()
     n_undefined = 0
     method_used = ci_method
     fallback = []
@@ -563,7 +567,7 @@ def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resampl
         iv = bootstrap_interval(float(estimates[j]), boot[:, j], confidence_level=confidence_level,
                                 method=ci_method, jack=None if jack is None else jack[:, j],
                                 jack_weights=weights, minimum=minimum)
-        low[j], high[j] = iv.low, iv.high
+        low[j], high[j], bound[j] = iv.low, iv.high, iv.lower_bound
         below[j] = np.nan if iv.p_below_min is None else iv.p_below_min
         n_undefined = max(n_undefined, iv.n_undefined)
         if iv.method != ci_method and np.isfinite(estimates[j]):
@@ -581,7 +585,7 @@ def _intervals(estimates: np.ndarray, features: np.ndarray, finish, *, n_resampl
     info = BootstrapInfo(replicates=n_resamples, seed=used_seed, method=method_used, unit=unit,
                          n_undefined=n_undefined)
     unique = {(n.code, n.message): n for n in notes}
-    return low, high, below, info, list(unique.values())
+    return low, high, below, info, list(unique.values()), bound
 
 
 # =========================================================================================
@@ -744,6 +748,11 @@ def _fleiss_binary(r: np.ndarray, m_u: np.ndarray):
     return kappa, p_bar
 
 
+def _pct_level(confidence_level: float) -> str:
+    """The confidence level for people: 0.95 -> "95%", 0.975 -> "97.5%"."""
+    return f"{100 * confidence_level:g}%"
+
+
 def _fmt_pct(x: float) -> str:
     return f"{100 * x:.0f}%"
 
@@ -824,10 +833,13 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
       `distance`, MASI by default) is recomputed after replacing k by c in every set.
     - status: "undefined" (nobody, or every value, has the code, or alpha is undefined),
       "too rare" (used on fewer than `min_units_per_code` pairable units), "below minimum"
-      (alpha < minimum), "uncertain" (alpha at or above the minimum, but the lower end of its
-      interval below it), "ok" (the lower end of the interval at or above the minimum).
-      This follows the advice to judge a coefficient by its interval, not its estimate
-      (Krippendorff 2004). Without an interval (``n_resamples=0``, or too few defined
+      (alpha < minimum), "uncertain" (alpha at or above the minimum, but its one-sided lower
+      confidence bound at `confidence_level` below it), "ok" (the one-sided lower bound at or
+      above the minimum). The one-sided bound is the bootstrap quantile at 1 - level (BCa-
+      adjusted like the interval; column ``lower_bound``), the same rule as the overall
+      decision of ``agree score --min``; it lies above the lower end of the two-sided
+      interval. This follows the advice to judge a coefficient by its interval, not its
+      estimate (Krippendorff 2004). Without an interval (``n_resamples=0``, or too few defined
       replicates) the estimate is compared with the minimum and the reason says so
       (``judged_on`` = "estimate"). Codes are ranked by status in the order of concern —
       below minimum, uncertain, too rare, undefined, ok — and by alpha within a status,
@@ -872,7 +884,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     point = finish(features.sum(axis=0))
     alpha_k, ps_k = point[:q], point[q:]
     names = [f"code '{c}', α" for c in cats] + [f"code '{c}', specific agreement" for c in cats]
-    low, high, below, boot_info, boot_notes = _intervals(
+    low, high, below, boot_info, boot_notes, bound = _intervals(
         point, features, finish, n_resamples=n_resamples, seed=seed,
         confidence_level=confidence_level, ci_method=ci_method, minimum=minimum,
         clusters=clusters, cluster_name=cluster_name, labels=names)
@@ -999,10 +1011,12 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
             k, cats, coders, alpha_k[k], kappa[k], percent[k], n_k[k], n, units_with[k], uses[:, k],
             flags[:, k], ratio[:, k], share[:, k], prevalence[k], bias[k], top_idx[k], top_share[k],
             has_top[k], omission[k], ps_k[k], minimum, min_units_per_code, data.set_valued,
-            ci_low=low[k], bootstrapped=boot_info is not None)
+            lower_bound=bound[k], bootstrapped=boot_info is not None,
+            confidence_level=confidence_level)
         row = {"code": cats[k], "status": status, "judged_on": judged_on,
                "reason": "; ".join(reason_parts), "rank": 0,
-               "alpha": alpha_k[k], "ci_low": low[k], "ci_high": high[k], "p_below_min": below[k],
+               "alpha": alpha_k[k], "ci_low": low[k], "ci_high": high[k], "lower_bound": bound[k],
+               "p_below_min": below[k],
                "specific_agreement": ps_k[k], "specific_ci_low": low[q + k],
                "specific_ci_high": high[q + k], "kappa": kappa[k], "kappa_method": kappa_method,
                "percent_agreement": percent[k], "prevalence_index": prevalence[k],
@@ -1028,7 +1042,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
     per_code.loc[order, "rank"] = np.arange(1, q + 1)
     per_code["rank"] = per_code["rank"].astype(int)
     if minimum is not None:
-        judged = ("the lower end of each code's interval" if boot_info is not None
+        judged = (f"each code's one-sided {_pct_level(confidence_level)} lower bound" if boot_info is not None
                   else "each code's estimate (no bootstrap, so no interval)")
         notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {minimum}, comparing "
                           f"{judged} with it (a convention; choose it before looking at the data)."))
@@ -1145,7 +1159,7 @@ def _merged_alpha(data: CodingData, o: np.ndarray | None, c: int, k: int,
 
 def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, flags, ratio, share,
            prevalence, bias, top, top_share, has_top, omission, ps, minimum, min_units, set_valued,
-           ci_low=np.nan, bootstrapped=False):
+           lower_bound=np.nan, bootstrapped=False, confidence_level=0.95):
     """Status, reason fragments, (paradox, explanation) and what was judged ("interval",
     "estimate" or "") for one code."""
     parts: list[str] = []
@@ -1174,16 +1188,18 @@ def _judge(k, cats, coders, alpha, kappa, percent, n_k, n, units_with, uses, fla
         parts.append("alpha is undefined")
     elif minimum is None:
         status = "ok"
-    elif np.isfinite(ci_low):
+    elif np.isfinite(lower_bound):
         judged_on = "interval"
+        level = _pct_level(confidence_level)
         if alpha < minimum:
             status = "below minimum"
-        elif ci_low >= minimum:
+        elif lower_bound >= minimum:
             status = "ok"
-            parts.append("the interval's lower end is at or above the minimum")
+            parts.append(f"the one-sided {level} lower bound is at or above the minimum")
         else:
             status = "uncertain"
-            parts.append("the estimate reaches the minimum but the interval reaches below it")
+            parts.append(f"the estimate reaches the minimum but its one-sided {level} lower bound "
+                         "is below it")
     else:
         judged_on = "estimate"
         why = "no bootstrap" if not bootstrapped else "no interval could be formed"
@@ -1355,7 +1371,7 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = 1
             features, counts = features[pat.inverse], None
         else:
             counts = pat.counts
-        low, high, _, boot_info, boot_notes = _intervals(
+        low, high, _, boot_info, boot_notes, _ = _intervals(
             without - alpha, features, finish, n_resamples=n_resamples, seed=seed,
             confidence_level=confidence_level, ci_method=ci_method, counts=counts,
             clusters=clusters, cluster_name=cluster_name, labels=names)

@@ -119,8 +119,8 @@ def landis_koch(value: float) -> str:
 
 def krippendorff_band(estimate: float, lower: float | None, minimum: float) -> str:
     """Where an α stands against the minimum and Krippendorff's .667: one of "reliable"
-    (interval's lower end at or above the minimum), "estimate-only" (the estimate reaches it,
-    the interval does not), "tentative" (.667 up to the minimum), "below", "undefined"."""
+    (`lower` at or above the minimum; the report passes the one-sided lower bound, as
+    ``agree score --min``), "estimate-only" (the estimate reaches it, the bound does not), "tentative" (.667 up to the minimum), "below", "undefined"."""
     if estimate is None or not math.isfinite(estimate):
         return "undefined"
     if estimate >= minimum:
@@ -131,8 +131,8 @@ def krippendorff_band(estimate: float, lower: float | None, minimum: float) -> s
 
 
 BAND_TEXT = {
-    "reliable": "meets the minimum (lower interval end at or above it)",
-    "estimate-only": "estimate at or above the minimum, interval reaches below it",
+    "reliable": "meets the minimum (one-sided lower bound at or above it)",
+    "estimate-only": "estimate at or above the minimum, one-sided lower bound below it",
     "tentative": "tentative (.667 up to the minimum)",
     "below": "below .667",
     "undefined": "undefined",
@@ -332,7 +332,8 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
         {round: data} mapping, None means the last full round's data.
     level : level of measurement ("nominal", "ordinal", "interval", "ratio"); default the data's.
     minimum : the minimum acceptable agreement. None (default) uses .800, Krippendorff's
-        convention, and the report says that it is the default.
+        convention; the settings line says that it was the default (the methods paragraph
+        states the minimum with a placeholder for the reason, as for a given one).
     n_resamples, seed, confidence_level : the bootstrap settings (recorded in the report).
     corpus_size : the number of units in the whole corpus, to state the share double-coded.
     consensus : a consensus file (path) or DataFrame with a "source" column (agreed, decided,
@@ -372,6 +373,10 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
         raise AgreeError(f"corpus size must be a positive number of units; got {corpus_size}",
                          code="corpus-size")
     rounds_result = None
+    if seed is None:
+        # one recorded seed for every part (coefficients, per-code diagnostics, rounds), so a
+        # round's per-code figures equal the per-code table of that round
+        seed = int(np.random.SeedSequence().generate_state(1)[0])
     round_opts = dict(level=level, minimum=minimum, n_resamples=n_resamples, seed=seed,
                       confidence_level=confidence_level, codebooks=codebooks, drift_round=drift_round,
                       cluster=cluster, progress=lambda step, done: tick(step, 0.2 * done))
@@ -453,7 +458,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
         coefficients=tuple(ordered), primary=primary, skipped=dict(scored.skipped),
         per_code=per_code, confused_pairs=pairs, confusion=confusion, code_use=code_use,
         consensus=cons, rounds=rounds_result, analysed_round=analysed_round, methods="",
-        interpretation=(), cautions=CAUTIONS, warnings=tuple(_dedupe(warnings)),
+        interpretation=(), cautions=cautions(ordered), warnings=tuple(_dedupe(warnings)),
         minimum_default=minimum_default, per_code_skipped=skipped_codes, cluster=cluster,
         n_clusters=n_clusters)
     report = replace(report, methods=methods_paragraph(report, set_valued=d.set_valued),
@@ -605,17 +610,33 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
 CAUTIONS = (
     "Conventions are not laws: the thresholds are conventions, not derived cut-offs (Landis and Koch "
     "call their bands arbitrary). Choose the minimum by the cost of drawing a wrong conclusion, and "
-    "judge it by the lower end of the interval (or the share of bootstrap resamples below it), not by "
-    "the point estimate alone (Krippendorff, 2004).",
+    "judge it by the one-sided lower confidence bound (or the share of bootstrap resamples below it), not "
+    "by the point estimate alone (Krippendorff, 2004).",
     "Kappa and skewed prevalence: when a code is very common or very rare, κ and α can be low although "
-    "the coders mostly agree, because chance agreement is high (Feinstein & Cicchetti, 1990). Gwet's AC1, "
-    "Brennan–Prediger and PABAK run higher on the same data, so the bands of one coefficient do not "
-    "carry over to another; read the per-code table beside the overall figure.",
+    "the coders mostly agree, because chance agreement is high (Feinstein & Cicchetti, 1990). The bands "
+    "of one coefficient do not carry over to another; read the per-code table beside the overall figure.",
     "Percent agreement alone overstates reliability: it counts the agreement expected by chance "
     "(Lombard, Snyder-Duch, & Bracken, 2002). Report it only next to a chance-corrected coefficient.",
     "Agreement describes these coders on units like these. It must be computed on the coders' "
     "independent codes, before any disagreement is resolved.",
 )
+
+
+
+def cautions(coefficients: Iterable[AgreementResult] = ()) -> tuple[str, ...]:
+    """The usual cautions; the prevalence caution names the coefficients less affected by
+    prevalence (Gwet's AC1/AC2, Brennan–Prediger, PABAK) only when the report shows them."""
+    shown = [coefficient_label(r.name) for r in coefficients if r.name in HIGH_RUNNING]
+    if not shown:
+        return CAUTIONS
+    verb = "it" if len(shown) == 1 else "they"
+    names = _join([lit(n) for n in shown])
+    extra = (f" {names}, also reported here, {'is' if len(shown) == 1 else 'are'} less affected by prevalence: "
+             f"{verb} can run well above κ and α on skewed codes, so a higher value there is not more "
+             "agreement.")
+    first, rest = CAUTIONS[1].split(" The bands", 1)
+    return (CAUTIONS[0], first + extra + " The bands" + rest) + CAUTIONS[2:]
+
 
 _NUMBER_WORDS = {2: "Two", 3: "Three", 4: "Four", 5: "Five", 6: "Six", 7: "Seven", 8: "Eight", 9: "Nine"}
 
@@ -652,6 +673,41 @@ def _symbol(name: str) -> str:
     return lit(coefficient_label(name))
 
 
+def _rounds_sample_text(report: Report, coders: str) -> list[str]:
+    """Sentences on the sample when coding ran in rounds: all rounds together (*N*), and the
+    round the figures describe (*n*), each with its share of the corpus, so the two counts
+    cannot be confused; and whether the rounds coded different units."""
+    from agree.rounds import round_name
+
+    s = report.sample
+    rounds = report.rounds
+    k = len(rounds.rounds)
+    total = s.units_double_coded if s.units_double_coded is not None else sum(r.n_units for r in rounds.rounds)
+    names = _join([lit(r.round) for r in rounds.rounds])
+    out = [f"{coders} ([[who the coders were and how they were trained]]) coded the units "
+           "([[describe the coding unit]]) [[independently of each other: confirm]] in "
+           f"{k} rounds ({names}), from [[the codebook version of each round]]."]
+    whole = f"Over {k} rounds, *N* = {format_value(total, 'count')} units were double-coded"
+    if s.corpus_size:
+        whole += (f" ({format_value(total / s.corpus_size, 'percent')} of the "
+                  f"{format_value(s.corpus_size, 'count')}-unit corpus)")
+    whole += ", selected [[how the units of each round were selected, e.g. at random]]"
+    part = f"*n* = {format_value(s.units_read, 'count')} units"
+    if s.corpus_size:
+        part += f" ({format_value(s.units_read / s.corpus_size, 'percent')} of the corpus)"
+    out.append(f"{whole}; the figures below describe {round_name(report.analysed_round)}, the last full round, "
+               f"{part}, and the rounds are compared in a separate table.")
+    shared = rounds.shared_units() if hasattr(rounds, "shared_units") else None
+    if shared == 0 and k > 1:
+        out.append("Different rounds coded different units, so a change in agreement between rounds mixes "
+                   "the revisions of the codebook with differences between the units coded.")
+    elif shared:
+        out.append(f"{format_value(shared, 'count')} unit{' was' if shared == 1 else 's were'} coded in more "
+                   "than one round; the other units differ between rounds, so a change in agreement between "
+                   "rounds mixes the revisions of the codebook with differences between the units coded.")
+    return out
+
+
 def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
     """The methods paragraph, in markup: facts from the data and settings, placeholders for the
     rest. Nothing is invented: what the tool cannot know stays a bracketed placeholder."""
@@ -659,24 +715,20 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
     digits = report.digits
     p: list[str] = []
     coders = _count_words(s.n_coders, "coder")
-    coded = s.units_read if s.units_double_coded is None else s.units_double_coded
-    p.append(f"{coders} ([[who the coders were and how they were trained]]) coded "
-             f"*N* = {format_value(coded, 'count')} units ([[describe the coding unit]]) "
-             "[[independently of each other: confirm]]")
-    if s.corpus_size:
-        p[-1] += (f", {format_value(s.share_of_corpus, 'percent')} of the "
-                  f"{format_value(s.corpus_size, 'count')} units in the corpus, selected "
-                  f"[[how the sample was selected, e.g. at random]]")
+    with_rounds = report.analysed_round is not None and report.rounds is not None
+    if with_rounds:
+        p.extend(_rounds_sample_text(report, coders))
     else:
-        p[-1] += ", selected [[how the sample was selected, e.g. at random, and what share of the corpus it is]]"
-    p[-1] += ". Coders worked from [[the codebook version]]."
-    if report.analysed_round is not None and report.rounds is not None:
-        from agree.rounds import round_name
-
-        names = _join([lit(r.round) for r in report.rounds.rounds])
-        p.append(f"Coding proceeded in {len(report.rounds.rounds)} rounds ({names}); the figures below "
-                 f"describe {round_name(report.analysed_round)} (*n* = {format_value(s.units_read, 'count')} "
-                 "units), the last full round, and the rounds are compared in a separate table.")
+        p.append(f"{coders} ([[who the coders were and how they were trained]]) coded "
+                 f"*N* = {format_value(s.units_read, 'count')} units ([[describe the coding unit]]) "
+                 "[[independently of each other: confirm]]")
+        if s.corpus_size:
+            p[-1] += (f", {format_value(s.share_of_corpus, 'percent')} of the "
+                      f"{format_value(s.corpus_size, 'count')} units in the corpus, selected "
+                      f"[[how the sample was selected, e.g. at random]]")
+        else:
+            p[-1] += ", selected [[how the sample was selected, e.g. at random, and what share of the corpus it is]]"
+        p[-1] += ". Coders worked from [[the codebook version]]."
     level = "sets of codes per unit" if set_valued else f"{report.level} data"
     p.append(f"The codes were analysed as {lit(level)}.")
     partial = ""
@@ -737,9 +789,9 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
     codes_clause = ("" if not report.per_code else
                     "; codes below it were [[what happened to them: dropped, merged or redefined]]")
     if report.minimum_default:
-        p.append(f"The minimum acceptable value was {threshold}, the default convention (Krippendorff, 2004) "
-                 "used when no other minimum is given; [[why this minimum suits the study]]"
-                 f"{codes_clause}.")
+        # that .800 was the tool's default belongs to the settings and notes, not to a paper
+        p.append(f"The minimum acceptable value was set at {threshold}, following Krippendorff's (2004) "
+                 f"convention, because [[why this minimum]]{codes_clause}.")
     else:
         p.append(f"The minimum acceptable value was set at {threshold} because [[why this minimum]]"
                  f"{codes_clause}.")
@@ -795,8 +847,8 @@ def interpretation(report: Report) -> tuple[str, ...]:
     digits = report.digits
     out = []
     minimum = format_value(report.minimum, "threshold")
-    here = (f"the minimum here is {minimum}, the default convention, since no other minimum was given "
-            "(--min)" if report.minimum_default else f"the minimum here is {minimum}")
+    # whether .800 was the tool's default is stated in the settings line, not in text for a paper
+    here = f"the minimum here is {minimum}"
     out.append("Convention used: Krippendorff (2004) advises relying on variables with α ≥ .800, drawing only "
                "tentative conclusions for .667 ≤ α < .800, and discarding variables below .667; "
                f"{here}. Kappa-type values are labelled with the bands of Landis and Koch (1977): "
@@ -804,13 +856,23 @@ def interpretation(report: Report) -> tuple[str, ...]:
                ".81–1.00 almost perfect.")
     prim = report.primary_result
     if prim is not None:
-        band = krippendorff_band(prim.estimate, prim.ci_low, report.minimum)
+        one_sided = prim.lower_bound is not None and math.isfinite(prim.lower_bound)
+        bound = prim.lower_bound if one_sided else prim.ci_low
+        band = krippendorff_band(prim.estimate, bound, report.minimum)
         sym = _symbol(prim.name)
+        level = f"{100 * prim.confidence_level:g}%"
         text = f"{lit(coefficient_label(prim.name))}: {_stat_markup(prim, digits)}. "
+        reached = (f"The one-sided {level} lower bound ({format_bound(bound)}) is at or above the minimum of "
+                   f"{minimum}." if one_sided else
+                   f"The whole interval lies at or above the minimum of {minimum}.")
+        short = (f"The estimate reaches the minimum of {minimum}, but its one-sided {level} lower bound "
+                 f"({format_bound(bound)}) is below it, so the data do not show with confidence that it is reached"
+                 if one_sided else
+                 f"The estimate reaches the minimum of {minimum}, but the interval extends below "
+                 "it, so the data do not show with confidence that it is reached")
         text += {
-            "reliable": f"The whole interval lies at or above the minimum of {minimum}.",
-            "estimate-only": (f"The estimate reaches the minimum of {minimum}, but the interval extends below "
-                              "it, so the data do not show with confidence that it is reached"),
+            "reliable": reached,
+            "estimate-only": short,
             "tentative": (f"This is below the minimum of {minimum} but at or above .667: by Krippendorff's "
                           "convention, enough for tentative conclusions only."),
             "below": ("This is below .667: by Krippendorff's convention the coding is not reliable enough to "
@@ -833,7 +895,7 @@ def interpretation(report: Report) -> tuple[str, ...]:
         if r.name in KAPPA_TYPE:
             rest.append(f"{label} {est} ({landis_koch(r.estimate)} by Landis & Koch)")
         elif r.name in HIGH_RUNNING:
-            rest.append(f"{label} {est} (can run well above κ on skewed codes; no band applied)")
+            rest.append(f"{label} {est} (can run well above κ and α on skewed codes; no band applied)")
         elif r.name == "percent_agreement":
             rest.append(f"{label} {est} (not corrected for chance)")
         else:
@@ -846,7 +908,8 @@ def interpretation(report: Report) -> tuple[str, ...]:
         for rec in report.per_code:
             groups.setdefault(str(rec.get("status")), []).append(str(rec.get("code")))
         order = [s for s in STATUS_TEXT if s in groups] + [s for s in groups if s not in STATUS_TEXT]
-        pieces = [f"{lit(s)} ({lit(STATUS_TEXT.get(s, s))}): " + ", ".join(f"‘{lit(c)}’" for c in groups[s])
+        texts = status_text(report.confidence_level)
+        pieces = [f"{lit(s)} ({lit(texts.get(s, s))}): " + ", ".join(f"‘{lit(c)}’" for c in groups[s])
                   for s in order]
         judged = any(rec.get("judged_on") == "estimate" for rec in report.per_code)
         tail = (" Without bootstrap intervals the statuses compare the estimates with the minimum."
@@ -861,11 +924,28 @@ def interpretation(report: Report) -> tuple[str, ...]:
 #: Plain meaning of each per-code status of `agree.diagnostics.diagnose_codes`, worst first.
 STATUS_TEXT = {
     "below minimum": "estimate below the minimum",
-    "uncertain": "estimate at or above the minimum, interval reaches below it",
+    "uncertain": "estimate at or above the minimum, one-sided 95% lower bound below it",
     "too rare": "used on too few units to judge",
     "undefined": "α undefined",
-    "ok": "lower end of the interval at or above the minimum",
+    "ok": "one-sided 95% lower bound at or above the minimum",
 }
+
+
+def status_text(confidence_level: float = 0.95) -> dict[str, str]:
+    """`STATUS_TEXT` at another confidence level (the one-sided bound's level is named)."""
+    level = f"{100 * confidence_level:g}%"
+    return {k: v.replace("95%", level) for k, v in STATUS_TEXT.items()}
+
+
+def format_bound(x: Any) -> str:
+    """A one-sided lower bound for display: three decimals, rounded *down*, so a bound below a
+    minimum such as .800 is never shown as reaching it (.7996 -> ``.799``)."""
+    if x is None or isinstance(x, str):
+        return format_value(x, "threshold")
+    v = float(x)
+    if not math.isfinite(v):
+        return "–"
+    return format_value(math.floor(v * 1000 + 1e-9) / 1000, "threshold")
 
 
 # ----------------------------------------------------------------------------------------
@@ -896,6 +976,23 @@ def _ci(low: Any, high: Any, digits: int, path: str) -> Cell:
     return Cell(format_interval(low, high, digits), (f"{path}.ci_low", f"{path}.ci_high"), True)
 
 
+def _se_note(results: Sequence[AgreementResult], level: str) -> str:
+    """Which *SE*s are analytic (and by which estimator) and which are the bootstrap standard
+    deviation, from each result's `se_method`."""
+    groups: dict[str, list[str]] = {}
+    for r in results:
+        if r.se is None or not math.isfinite(r.se):
+            continue
+        groups.setdefault(r.se_method or "method not recorded", []).append(lit(result_label(r, level)))
+    if not groups:
+        return "*SE*: none computed."
+    boot = {k: v for k, v in groups.items() if k.startswith("bootstrap")}
+    analytic = {k: v for k, v in groups.items() if not k.startswith("bootstrap")}
+    parts = [f"analytic for {_join(v)}, by {lit(k)}" for k, v in analytic.items()]
+    parts += [f"the {lit(k)} for {_join(v)}" for k, v in boot.items()]
+    return "*SE*: " + "; ".join(parts) + "."
+
+
 def report_tables(report: Report) -> list[Table]:
     """Every table of the report, with its numbers formatted once, for every format."""
     dg = report.digits
@@ -915,11 +1012,13 @@ def report_tables(report: Report) -> list[Table]:
         "coefficients", "Agreement coefficients",
         ("Coefficient", "Estimate", "*SE*", level, f"*P*(below {minimum})", "*n* units", "Interval"),
         tuple(rows),
-        note=(f"*P*(below {minimum}) is the share of bootstrap resamples below the minimum. *n* units: units "
+        note=(_se_note(report.coefficients, report.level) + " "
+              f"*P*(below {minimum}) is the share of bootstrap resamples below the minimum. *n* units: units "
               "entering the coefficient." + (f" Not computed: {skipped}." if skipped else ""))))
     if report.per_code:
         columns = report.per_code[0].keys()
-        spec = [("alpha", "α", "coefficient"), ("ci", level, None),
+        bound = f"One-sided {100 * report.confidence_level:g}% lower bound"
+        spec = [("alpha", "α", "coefficient"), ("ci", level, None), ("lower_bound", bound, "bound"),
                 ("p_below_min", f"*P*(below {minimum})", "probability"),
                 ("specific_agreement", "Specific agreement", "coefficient"), ("kappa", "κ", "coefficient"),
                 ("units_with_code", "Units with code", "count")]
@@ -932,6 +1031,8 @@ def report_tables(report: Report) -> list[Table]:
             for key, _, kind in spec:
                 if key == "ci":
                     row.append(_ci(rec.get("ci_low"), rec.get("ci_high"), dg, path))
+                elif kind == "bound":
+                    row.append(Cell(format_bound(rec.get(key)), (f"{path}.{key}",), True))
                 else:
                     row.append(_c(rec.get(key), kind, dg, f"{path}.{key}"))
             row += [Cell(lit(rec.get(c) or "")) for c in text_cols]
@@ -939,8 +1040,11 @@ def report_tables(report: Report) -> list[Table]:
         header = ("Code",) + tuple(h for _, h, _ in spec) + tuple(c.capitalize() for c in text_cols)
         tables.append(Table("per_code", "Agreement per code (each code as present or absent)", header,
                             tuple(rows), note="From the per-code diagnostics; α here is nominal α on the "
-                            "presence/absence recoding of each code. Status: " + "; ".join(
-                                f"{lit(k)}, {lit(v)}" for k, v in STATUS_TEXT.items()) + "."))
+                            "presence/absence recoding of each code. Status compares the one-sided "
+                            f"{100 * report.confidence_level:g}% lower bound with the minimum (the rule of "
+                            "the overall decision); bounds are rounded down to three decimals. Status: "
+                            + "; ".join(f"{lit(k)}, {lit(v)}" for k, v in
+                                        status_text(report.confidence_level).items()) + "."))
     if report.confused_pairs:
         recs = report.confused_pairs[:10]
         spec = [("count", "Count", "amount"), ("share", "Share of disagreement", "percent"),
@@ -990,32 +1094,39 @@ def rounds_tables(rounds: Any, dg: int, prefix: str = "") -> list[Table]:
     rows = []
     for i, r in enumerate(rounds.rounds):
         path = f"{pre}rounds.{i}"
-        below = [c for c, res in r.per_code.items() if res.defined and res.estimate < rounds.minimum]
+        below = [lit(c) for c in r.codes_below(rounds.minimum)]
+        below += [f"{lit(c)} (too rare)" for c in r.too_rare]
         rows.append((Cell(lit(r.round) + (" (drift check)" if r.drift else "")),
                      _c(r.n_units, "count", dg, f"{path}.n_units"),
                      _c(r.overall.n_units, "count", dg, f"{path}.overall.n_units"),
                      _c(r.overall.estimate, "coefficient", dg, f"{path}.overall.estimate"),
                      _ci(r.overall.ci_low, r.overall.ci_high, dg, f"{path}.overall"),
                      _c(r.overall.p_below_min, "probability", dg, f"{path}.overall.p_below_min"),
-                     Cell(", ".join(lit(c) for c in below) or "none")))
+                     Cell(", ".join(below) or "none")))
     out.append(Table("rounds", "Agreement per coding round",
                      ("Round", "Units", "*n* pairable", "α", level, f"*P*(below {minimum})",
                       f"Codes below {minimum}"), tuple(rows),
                      note=f"α: Krippendorff's α ({lit(rounds.level)}) over all codes; per code, α on the "
-                          "presence/absence recoding."))
+                          "presence/absence recoding, as in the per-code diagnostics with the same seed. "
+                          "Too rare: used on fewer than "
+                          f"{format_value(getattr(rounds, 'min_units_per_code', 5), 'count')} pairable units "
+                          "in the round, so not judged."))
     rows = []
     for i, ch in enumerate(rounds.changes):
         path = f"{pre}changes.{i}"
-        rows.append((Cell(f"{lit(ch.from_round)} → {lit(ch.to_round)}"), Cell(lit(ch.code or "all codes")),
+        rare = rounds._rare_mark(ch) if hasattr(rounds, "_rare_mark") else ""
+        rows.append((Cell(f"{lit(ch.from_round)} → {lit(ch.to_round)}"), Cell(lit(ch.code or "all codes") + rare),
                      _c(ch.difference, "coefficient", dg, f"{path}.difference"),
                      _ci(ch.ci_low, ch.ci_high, dg, path),
                      Cell("yes" if ch.beyond_noise else "no", (f"{path}.beyond_noise",))))
     if rows:
         out.append(Table("round_changes", "Change in agreement between consecutive rounds",
                          ("Rounds", "Code", "Difference in α", level, "Beyond sampling noise"), tuple(rows),
-                         note="Interval of the difference from independent unit resamples within each round; "
-                              "“beyond sampling noise” means the interval excludes 0. With many codes, "
-                              "some intervals exclude 0 by chance."))
+                         note="Interval of the difference from independent unit resamples within each round "
+                              "(other resamples than the intervals shown per round); “beyond sampling noise” "
+                              "means the interval excludes 0. With many codes, some intervals exclude 0 by "
+                              "chance. A code marked too rare was used on too few units in that round to "
+                              "judge, so its change says little."))
     if rounds.drift is not None:
         dr = rounds.drift
         path = f"{pre}drift"
@@ -1228,7 +1339,8 @@ def _notes(report: Report) -> list[str]:
 def _settings_line(report: Report) -> str:
     s = report.sample
     seed = "none drawn" if report.seed is None else str(report.seed)
-    return (f"Level: {lit(report.level)} · minimum {format_value(report.minimum, 'threshold')} · "
+    default = " (the default: no minimum was given)" if report.minimum_default else ""
+    return (f"Level: {lit(report.level)} · minimum {format_value(report.minimum, 'threshold')}{default} · "
             f"{report.confidence_level:.0%} intervals · {format_value(report.n_resamples, 'count')} bootstrap "
             f"resamples · seed {seed} · {format_value(s.units_read, 'count')} units, {s.n_coders} coders")
 

@@ -29,7 +29,7 @@ from __future__ import annotations
 import math
 import os
 import re
-from dataclasses import dataclass, replace as _replace
+from dataclasses import dataclass, field, replace as _replace
 from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
@@ -52,11 +52,25 @@ class RoundAgreement:
     per_code: Mapping[str, AgreementResult]
     drift: bool = False
     changed_codes: tuple[str, ...] = ()
+    code_status: Mapping[str, str] = field(default_factory=dict)
+    unit_ids: tuple[str, ...] = field(default=(), repr=False, compare=False)
+
+    @property
+    def too_rare(self) -> tuple[str, ...]:
+        """Codes used on too few pairable units in this round to judge (status "too rare" of
+        :func:`agree.diagnostics.diagnose_codes`, the same rule)."""
+        return tuple(c for c, s in self.code_status.items() if s == "too rare")
+
+    def codes_below(self, limit: float) -> list[str]:
+        """Codes with a defined α below `limit`, leaving out codes too rare to judge."""
+        rare = set(self.too_rare)
+        return [c for c, res in self.per_code.items() if res.defined and res.estimate < limit and c not in rare]
 
     def to_dict(self) -> dict[str, Any]:
         return _clean({"round": self.round, "n_units": self.n_units, "n_coders": self.n_coders,
                        "drift": self.drift, "overall": self.overall.to_dict(),
                        "per_code": {k: v.to_dict() for k, v in self.per_code.items()},
+                       "code_status": dict(self.code_status),
                        "changed_codes": list(self.changed_codes)})
 
 
@@ -175,6 +189,7 @@ class RoundsResult:
     warnings: tuple[Note, ...] = ()
     cluster: str | None = None
     n_clusters: Mapping[str, int] | None = None
+    min_units_per_code: int = 5
 
     @property
     def final_round(self) -> str:
@@ -211,23 +226,21 @@ class RoundsResult:
         per_code_changes = [ch for ch in self.changes if ch.code is not None and ch.beyond_noise]
         if per_code_changes:
             lines.append("Codes whose α changed beyond sampling noise: " + "; ".join(
-                f"‘{lit(ch.code)}’ {lit(ch.from_round)} → {lit(ch.to_round)} "
+                f"‘{lit(ch.code)}’{self._rare_mark(ch)} {lit(ch.from_round)} → {lit(ch.to_round)} "
                 f"{format_value(ch.difference, 'coefficient', digits)} "
                 f"{format_interval(ch.ci_low, ch.ci_high, digits)}" for ch in per_code_changes)
                 + " (with many codes, some such changes arise by chance).")
         final = self.round(self.final_round)
         previous = [r for r in self.rounds if not r.drift and r.round != final.round]
         before = previous[-1] if previous else None
-        low = [c for c, res in final.per_code.items() if res.defined and res.estimate < TENTATIVE]
-        mid = [c for c, res in final.per_code.items()
-               if res.defined and TENTATIVE <= res.estimate < self.minimum]
+        low = [c for c in final.codes_below(TENTATIVE)]
+        mid = [c for c in final.codes_below(self.minimum) if c not in low]
         minimum = format_value(self.minimum, "threshold")
         for codes, bound in ((low, ".667"), (mid, minimum)):
             if not codes:
                 continue
             limit = TENTATIVE if bound == ".667" else self.minimum
-            was = [before is not None and c in before.per_code and before.per_code[c].defined
-                   and before.per_code[c].estimate < limit for c in codes]
+            was = [before is not None and c in before.codes_below(limit) for c in codes]
             mark_new = before is not None and not all(was)
             words = [f"‘{lit(c)}’ ({format_value(final.per_code[c].estimate, 'coefficient', digits)}"
                      + (f"; not below it in {round_name(before.round)}" if mark_new and not w else "") + ")"
@@ -235,8 +248,14 @@ class RoundsResult:
             verb = "is" if len(codes) == 1 else "are"
             still = " still" if all(was) else ""
             lines.append(f"In {round_name(final.round)}, {_join(words)} {verb}{still} below {bound}.")
+        rare = final.too_rare
+        if rare:
+            lines.append(f"In {round_name(final.round)}, {_join([f'‘{lit(c)}’' for c in rare])} "
+                         f"{'was' if len(rare) == 1 else 'were'} used on too few units to judge (too rare: "
+                         f"fewer than {self.min_units_per_code} pairable units with the code).")
         if not low and not mid and final.per_code:
-            lines.append(f"In {round_name(final.round)}, every code with a defined α reached {minimum}.")
+            judged = " and used often enough to judge" if rare else ""
+            lines.append(f"In {round_name(final.round)}, every code with a defined α{judged} reached {minimum}.")
         for dc in self.definition_changes:
             since = f" since {round_name(dc.since_round)}" if dc.since_round else ""
             lines.append(f"‘{lit(dc.code)}’: {dc.kind} in {round_name(dc.round)}{since}; compare its α across "
@@ -251,6 +270,29 @@ class RoundsResult:
                          f"{format_value(dr.change.difference, 'coefficient', digits)} "
                          f"{format_interval(dr.change.ci_low, dr.change.ci_high, digits)}; {lit(dr.verdict)}.")
         return tuple(lines)
+
+    def _rare_mark(self, ch: "RoundChange") -> str:
+        """" (too rare in round 1)" when the change's code was too rare to judge in either round."""
+        if ch.code is None:
+            return ""
+        names = [r for r in (ch.from_round, ch.to_round) if ch.code in self.round(r).too_rare]
+        if not names:
+            return ""
+        return " (too rare in " + _join([round_name(r) for r in names]) + ")"
+
+    def shared_units(self) -> int | None:
+        """Units (by id) coded in more than one round; None when the unit ids are not known."""
+        if any(not r.unit_ids for r in self.rounds):
+            return None
+        seen: dict[str, int] = {}
+        for r in self.rounds:
+            for u in set(r.unit_ids):
+                seen[u] = seen.get(u, 0) + 1
+        return sum(1 for n in seen.values() if n > 1)
+
+    def code_status(self, round: str, code: str) -> str | None:
+        """The diagnostics status of `code` in `round` (None when not measured there)."""
+        return self.round(round).code_status.get(code)
 
     @property
     def summary(self) -> tuple[str, ...]:
@@ -268,13 +310,15 @@ class RoundsResult:
             for code, res in [(None, r.overall)] + list(r.per_code.items()):
                 rows.append({"round": r.round, "code": code, "estimate": res.estimate, "ci_low": res.ci_low,
                              "ci_high": res.ci_high, "p_below_min": res.p_below_min, "n_units": res.n_units,
-                             "drift": r.drift, "definition_changed": code in r.changed_codes})
+                             "drift": r.drift, "definition_changed": code in r.changed_codes,
+                             "status": None if code is None else r.code_status.get(code)})
         return pd.DataFrame(rows)
 
     def to_dict(self) -> dict[str, Any]:
         return _clean({
             "settings": {"level": self.level, "minimum": self.minimum, "confidence_level": self.confidence_level,
                          "n_resamples": self.n_resamples, "seed": self.seed, "cluster": self.cluster,
+                         "min_units_per_code": self.min_units_per_code,
                          "n_clusters": None if self.n_clusters is None else dict(self.n_clusters)},
             "codes": list(self.codes),
             "rounds": [r.to_dict() for r in self.rounds],
@@ -390,6 +434,22 @@ def difference_interval(from_replicates: np.ndarray, to_replicates: np.ndarray, 
     return float(low), float(high), float(np.mean(diff < 0))
 
 
+def _finite(x: Any) -> float | None:
+    return None if x is None or not math.isfinite(float(x)) else float(x)
+
+
+def _shown(independent: AgreementResult, row: Mapping[str, Any], diag: Any) -> AgreementResult:
+    """A code's α as shown for a round: estimate, interval, one-sided bound and share below
+    the minimum from `diagnose_codes` (with `seed`); the replicates kept for the differences
+    between rounds are the independent ones. The SE is left out: the interval shown and the
+    independent replicates come from different resamples."""
+    boot = diag.bootstrap
+    return _replace(independent, estimate=float(row["alpha"]), ci_low=_finite(row["ci_low"]),
+                    ci_high=_finite(row["ci_high"]), lower_bound=_finite(row["lower_bound"]),
+                    p_below_min=_finite(row["p_below_min"]), se=None, se_method=None,
+                    ci_method=boot.method if boot is not None else independent.ci_method, bootstrap=boot)
+
+
 def _load_codebook(spec: Any) -> dict[str, str]:
     from agree.codebook import Codebook, read_codebook
 
@@ -434,7 +494,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
                    minimum: float = 0.8, n_resamples: int = 2000, seed: int | None = None,
                    confidence_level: float = 0.95, codebooks: Mapping[str, Any] | None = None,
                    drift_round: str | None = None, round_column: str = "round", ci_method: str = "bca",
-                   cluster: str | None = None,
+                   cluster: str | None = None, min_units_per_code: int = 5,
                    progress: Callable[[str, float], None] | None = None) -> RoundsResult:
     """Agreement per coding round, changes between rounds, definition changes and drift.
 
@@ -454,6 +514,8 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
     cluster : the name of a kept per-unit column (e.g. the interview): within each round,
         whole groups are resampled instead of units (a note warns when a round has fewer
         than 20 groups).
+    min_units_per_code : a code used on fewer pairable units than this in a round is "too
+        rare" to judge there (the rule of :func:`agree.diagnostics.diagnose_codes`).
     progress : optional callback(step, fraction done).
 
     Returns
@@ -462,12 +524,20 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
 
     Notes
     -----
+    The figures shown for a round (overall and per code) are the ones a single analysis of
+    that round gives with `seed`: the overall α equals ``krippendorff_alpha(round, seed=seed)``
+    (as ``agree score``) and each code's α, interval, one-sided lower bound and status equal
+    ``diagnose_codes(round, seed=seed, ...)`` (all codes from one set of resamples, as in the
+    report's per-code table). The intervals of differences between rounds use other,
+    independent resamples, drawn with a seed derived from `seed` per round and code.
+
     Difference of α between independent rounds: α_b - α_a with the percentile interval of
     α*_b,i - α*_a,i, the replicates drawn independently in each round (units resampled with
     all their values, or whole clusters with `cluster`). Beyond sampling noise when the
     interval excludes 0.
     """
     from agree import krippendorff_alpha
+    from agree.diagnostics import diagnose_codes
 
     tick = progress or (lambda step, done: None)
     if isinstance(data_by_round, CodingData):
@@ -542,27 +612,36 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         step += 1
         tick(f"round {name}", step / total)
         per_code = {}
+        status: dict[str, str] = {}
         by_label = {str(c): c for c in d.categories}
+        # per code, the figures shown are diagnose_codes' with `seed` (one set of resamples for
+        # all codes, as the report's per-code table); differences use independent resamples
+        diag = diagnose_codes(d, minimum=minimum, n_resamples=n_resamples, seed=seed,
+                              confidence_level=confidence_level, min_units_per_code=min_units_per_code,
+                              ci_method=ci_method, cluster=groups) if by_label else None
+        rows = {} if diag is None else {str(rec["code"]): rec for rec in diag.per_code.to_dict("records")}
         for j, code in enumerate(code_list, start=1):
             if code in by_label:
                 binary = d.presence(by_label[code])
                 sj = _child_seed(seed, i, j)
-                per_code[code] = krippendorff_alpha(binary, level="nominal", seed=sj, cluster=groups, **opts)
+                independent = krippendorff_alpha(binary, level="nominal", seed=sj, cluster=groups, **opts)
                 if n_resamples:
-                    reps[(name, code)] = _replicates(per_code[code], n_resamples)
+                    reps[(name, code)] = _replicates(independent, n_resamples)
+                per_code[code] = _shown(independent, rows[code], diag)
+                status[code] = str(rows[code]["status"])
             step += 1
             tick(f"round {name}", step / total)
         measured[name] = set(per_code)
         results.append(RoundAgreement(round=name, n_units=d.n_units, n_coders=d.n_coders, overall=overall,
-                                      per_code=per_code, drift=name == drift_round))
+                                      per_code=per_code, drift=name == drift_round, code_status=status,
+                                      unit_ids=tuple(str(u) for u in d.unit_ids)))
 
     books = {str(k): _load_codebook(v) for k, v in (codebooks or {}).items()}
     definition_changes = _definition_changes(order, measured, books)
     changed = {}
     for dc in definition_changes:
         changed.setdefault(dc.round, []).append(dc.code)
-    results = [RoundAgreement(r.round, r.n_units, r.n_coders, r.overall, r.per_code, r.drift,
-                              tuple(changed.get(r.round, ()))) for r in results]
+    results = [_replace(r, changed_codes=tuple(changed.get(r.round, ()))) for r in results]
     by_name = {r.round: r for r in results}
 
     def change(a: str, b: str, code: str | None) -> RoundChange | None:
@@ -605,4 +684,4 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
                         level=("sets of codes (masi distance)" if set_valued else str(level)),
                         minimum=float(minimum), confidence_level=float(confidence_level),
                         n_resamples=int(n_resamples), seed=seed, warnings=tuple(warnings), cluster=cluster,
-                        n_clusters=n_clusters)
+                        n_clusters=n_clusters, min_units_per_code=int(min_units_per_code))

@@ -686,23 +686,27 @@ def multicode_diag():
     return diagnose_codes(_multicode(), n_resamples=1000, seed=5)
 
 
-def test_status_compares_the_lower_end_of_the_interval_with_the_minimum(multicode_diag):
+def test_status_compares_the_one_sided_lower_bound_with_the_minimum(multicode_diag):
     frame = multicode_diag.to_frame()
     assert set(frame.status) <= {"below minimum", "uncertain", "too rare", "undefined", "ok"}
+    assert "lower_bound" in frame.columns
     for r in frame.itertuples():
         if r.status in ("too rare", "undefined"):
             continue
         assert r.judged_on == "interval"
+        # the one-sided bound lies inside the two-sided interval
+        assert r.ci_low <= r.lower_bound <= r.ci_high
         if r.alpha < 0.8:
             assert r.status == "below minimum"
-        elif r.ci_low >= 0.8:
+        elif r.lower_bound >= 0.8:
             assert r.status == "ok"
+            assert "one-sided 95% lower bound is at or above" in r.reason
         else:
             assert r.status == "uncertain"
-            assert "interval reaches below" in r.reason
+            assert "one-sided 95% lower bound is below" in r.reason
     # the review's case: Conflict .84 with an interval reaching far below .8 is not "ok"
     conflict = frame.set_index("code").loc["Conflict"]
-    assert conflict.alpha >= 0.8 and conflict.ci_low < 0.8
+    assert conflict.alpha >= 0.8 and conflict.lower_bound < 0.8
     assert conflict.status == "uncertain"
     # ranked in order of concern
     order = ["below minimum", "uncertain", "too rare", "undefined", "ok"]
@@ -889,3 +893,64 @@ def test_notebook_display_escapes_text_and_shows_nan_as_dash():
     assert "<td>–</td>" in page and ">nan<" not in page.lower()   # no interval: en dashes
     coders = diagnose_coders(x, n_resamples=0)._repr_html_()
     assert "Coder diagnostics" in coders and "<table" in coders and ">nan<" not in coders.lower()
+
+
+def _binary_code(n_units: int, n_disagree: int) -> "pd.DataFrame":
+    """Two coders, one code 'k' against 'other': half the units 'k' by both, n_disagree split."""
+    a = ["k"] * (n_units // 2) + ["other"] * (n_units - n_units // 2)
+    b = list(a)
+    for i in range(n_disagree):
+        j = i if i % 2 == 0 else n_units - 1 - i
+        b[j] = "other" if a[j] == "k" else "k"
+    return pd.DataFrame({"A": a, "B": b})
+
+
+def test_status_uses_the_same_one_sided_rule_as_score_min():
+    # A code whose two-sided lower end is below the minimum while its one-sided bound (the rule
+    # of `agree score --min`) is above it must be "ok", not "uncertain"; and the bound is the
+    # same quantile score computes for alpha on the code's presence/absence recoding.
+    from agree import krippendorff_alpha
+    from agree.model import as_coding_data
+
+    found = False
+    for n, d in ((200, 13), (300, 22), (400, 30), (200, 6)):
+        data = as_coding_data(_binary_code(n, d))
+        diag = diagnose_codes(data, minimum=0.8, n_resamples=2000, seed=11, ci_method="percentile",
+                              min_units_per_code=1)
+        row = diag.per_code.set_index("code").loc["k"]
+        # one-sided 95% bound = 5% quantile of the same replicates; two-sided lower = 2.5%
+        assert row.ci_low <= row.lower_bound
+        if row.alpha >= 0.8:
+            assert row.status == ("ok" if row.lower_bound >= 0.8 else "uncertain")
+        if row.ci_low < 0.8 <= row.lower_bound:
+            found = True
+            assert row.status == "ok"
+        # score's decision on the same recoding, with percentile intervals, agrees on the side
+        res = krippendorff_alpha(data.presence("k"), n_resamples=2000, seed=11, ci_method="percentile",
+                                 minimum=0.8)
+        assert res.estimate == pytest.approx(row.alpha)
+        assert abs(res.lower_bound - row.lower_bound) < 0.03      # different resamples, same quantile
+    assert found, "no case between the two bounds: adjust the sizes"
+
+
+def test_lower_bound_is_the_quantile_at_one_minus_the_level():
+    # property: with percentile intervals the bound is the (1 - level) quantile of the
+    # replicates, between the two-sided lower end and the estimate for a symmetric bootstrap
+    data = _binary_code(120, 10)
+    for level in (0.9, 0.95):
+        diag = diagnose_codes(data, n_resamples=1500, seed=2, ci_method="percentile",
+                              confidence_level=level, min_units_per_code=1)
+        row = diag.per_code.set_index("code").loc["k"]
+        assert row.ci_low < row.lower_bound < row.ci_high
+        assert f"one-sided {100 * level:g}% lower bound" in row.reason
+
+
+def test_bounds_below_the_minimum_are_never_shown_as_reaching_it():
+    from agree.report import format_bound
+
+    assert format_bound(0.79977) == ".799"        # two decimals would print ".80"
+    assert format_bound(0.7999999) == ".799"
+    assert format_bound(0.8) == ".800"
+    assert format_bound(0.805) == ".805"
+    assert format_bound(-0.0123) == "−.013"       # rounded down, towards -inf
+    assert format_bound(float("nan")) == "–" and format_bound(None) == "–"

@@ -405,11 +405,18 @@ def test_methods_wording_of_the_share_below_and_the_default_minimum(sample_repor
     share = format_value(prim.p_below_min, "probability")
     assert f"a share of {share} of the bootstrap resamples fell below the minimum of .800" in text
     assert "probability that" not in text
-    assert "default convention (Krippendorff, 2004)" in text
+    # text to paste into a paper: no tool-speak about defaults, the reason left to the author
+    assert ("The minimum acceptable value was set at .800, following Krippendorff's (2004) convention, "
+            "because [why this minimum]") in text
+    assert "default" not in text and "no other minimum" not in text
+    assert not any("default" in p or "--min" in p for p in sample_report.to_dict()["interpretation"])
+    # the fact that it was the default stays in the settings (line and JSON)
     assert sample_report.minimum_default and sample_report.to_dict()["settings"]["minimum_default"]
+    from agree.report import _settings_line
+    assert "minimum .800 (the default: no minimum was given)" in _settings_line(sample_report)
     given = build_report(_sample_round2(), n_resamples=0, seed=1, minimum=0.8)
     assert not given.minimum_default
-    assert "default convention" not in given.to_dict()["methods"]
+    assert "default" not in _settings_line(given)
     assert "set at .800 because [why this minimum]" in given.to_dict()["methods"]
 
 
@@ -530,3 +537,82 @@ def test_notebook_html_escapes_and_dashes():
                                                              "n": [12.0], "k": [0.5]}))
     assert "a &lt;summary&gt; &amp; more" in page and "&lt;x&gt;" in page
     assert "<td>–</td>" in page and "<td>12</td>" in page and "<td>0.500</td>" in page
+
+
+def test_prevalence_caution_names_only_the_coefficients_shown(sample_report):
+    from agree import score
+    from agree.report import cautions
+
+    text = " ".join(sample_report.to_dict()["cautions"])
+    shown = {r.name for r in sample_report.coefficients}
+    assert "run higher on the same data" not in text
+    assert "can run well above κ and α on skewed codes" in text
+    for name, label in (("gwet_ac1", "Gwet's AC1"), ("brennan_prediger", "Brennan–Prediger"), ("pabak", "PABAK")):
+        assert (label in text) == (name in shown)
+    # with none of them shown, none is named
+    alpha_only = [r for r in sample_report.coefficients if r.name == "krippendorff_alpha"]
+    plain_text = " ".join(cautions(alpha_only))
+    assert not any(x in plain_text for x in ("AC1", "Brennan", "PABAK", "run well above"))
+    # two coders, two categories: PABAK is shown and named
+    data = pd.DataFrame({"A": ["y"] * 45 + ["n"] * 5, "B": ["y"] * 43 + ["n"] * 7})
+    res = score(data, n_resamples=0)
+    if "pabak" in res.coefficients:
+        assert "PABAK" in " ".join(cautions(res.coefficients.values()))
+
+
+def test_coefficients_table_note_says_which_se_is_analytic_and_which_bootstrap(sample_report):
+    from agree.report import _se_note, result_label
+
+    note = {t.key: t for t in report_tables(sample_report)}["coefficients"].note
+    for r in sample_report.coefficients:
+        if r.se is None:
+            continue
+        label = result_label(r, sample_report.level)
+        assert lit(label) in note
+        assert r.se_method in note
+    boot = [r for r in sample_report.coefficients if r.se_method and r.se_method.startswith("bootstrap")]
+    analytic = [r for r in sample_report.coefficients if r.se_method and not r.se_method.startswith("bootstrap")]
+    assert boot and analytic                  # α's SE is a bootstrap SD; the kappas' are analytic
+    assert "*SE*: analytic for" in note and "the bootstrap standard deviation for Krippendorff's α" in note
+    assert _se_note([], "nominal") == "*SE*: none computed."
+
+
+def test_per_code_table_shows_the_one_sided_bound_rounded_down(sample_report):
+    from agree.report import format_bound
+
+    table = {t.key: t for t in report_tables(sample_report)}["per_code"]
+    col = table.header.index("One-sided 95% lower bound")
+    for row, rec in zip(table.rows, sample_report.per_code):
+        assert row[col].text == format_bound(rec["lower_bound"])
+        if rec["lower_bound"] is not None and rec["lower_bound"] < sample_report.minimum:
+            assert float(row[col].text.replace("−", "-")) < sample_report.minimum
+        if rec["status"] == "ok":
+            assert rec["lower_bound"] >= sample_report.minimum
+        if rec["status"] == "uncertain":
+            assert rec["alpha"] >= sample_report.minimum > rec["lower_bound"]
+    assert "one-sided 95% lower bound" in table.note
+    assert "interval reaches below" not in table.note
+    assert "one-sided 95% lower bound" in " ".join(sample_report.to_dict()["interpretation"])
+
+
+def test_methods_paragraph_with_rounds_separates_all_rounds_from_the_round_described():
+    from agree.rounds import compare_rounds
+
+    rng = np.random.default_rng(8)
+    def part(ids):
+        codes = simulate_codes(rng, len(ids), 2, 3, alpha=0.7)
+        return from_table(as_labels(codes, ["x", "y", "z"]), coders=["a", "b"], unit_ids=ids,
+                          categories=["x", "y", "z"])
+    r1, r2 = part([f"u{i}" for i in range(40)]), part([f"u{i}" for i in range(40, 100)])
+    rep = build_report(None, rounds={"1": r1, "2": r2}, n_resamples=0, seed=1, corpus_size=400)
+    text = rep.to_dict()["methods"]
+    assert "Over 2 rounds, N = 100 units were double-coded (25.0% of the 400-unit corpus)" in text
+    assert "describe round 2, the last full round, n = 60 units (15.0% of the corpus)" in text
+    assert "Different rounds coded different units" in text
+    # overlapping unit ids: counted, not called different
+    r3 = part([f"u{i}" for i in range(30, 90)])
+    rep = build_report(None, rounds={"1": r1, "2": r3}, n_resamples=0, seed=1)
+    text = rep.to_dict()["methods"]
+    assert "Different rounds coded different units" not in text
+    assert "10 units were coded in more than one round" in text
+    assert "corpus" not in text.split("were double-coded")[1].split(";")[0]

@@ -194,8 +194,14 @@ def test_report_includes_rounds_when_the_data_have_them(sample_rounds):
     assert out["analysed_round"] == "2"
     assert out["sample"]["units_read"] == 150
     assert out["sample"]["units_double_coded"] == 270
-    assert "45.0% of the 600 units" in out["methods"]
-    assert "describe round 2 (n = 150 units)" in out["methods"]
+    # all rounds (N) and the round described (n), each with its share of the corpus
+    assert ("Over 2 rounds, N = 270 units were double-coded (45.0% of the 600-unit corpus)"
+            in out["methods"])
+    assert "describe round 2, the last full round, n = 150 units (25.0% of the corpus)" in out["methods"]
+    assert "45.0% of the 600 units in the corpus" not in out["methods"]
+    # the rounds of the sample coded different units: the paragraph says what that means
+    assert report.rounds.shared_units() == 0
+    assert "Different rounds coded different units" in out["methods"]
     assert out["rounds"]["final_round"] == "2"
     from agree.report import report_tables
     assert {"rounds", "round_changes"} <= {t.key for t in report_tables(report)}
@@ -327,3 +333,94 @@ def test_report_on_rounds_prints_the_interval_of_score_for_the_analysed_round(sa
     assert (alpha.ci_low, alpha.ci_high) == (scored.ci_low, scored.ci_high)
     assert (report.rounds.round("2").overall.ci_low, report.rounds.round("2").overall.ci_high) == \
         (scored.ci_low, scored.ci_high)
+
+
+def test_per_code_figures_shown_per_round_equal_diagnose_codes_with_the_seed(sample_rounds):
+    from agree.diagnostics import diagnose_codes
+    from agree.rounds import split_rounds
+
+    data, result = sample_rounds
+    for name, part in split_rounds(data).items():
+        diag = diagnose_codes(part, minimum=0.8, n_resamples=500, seed=11)
+        rows = diag.per_code.set_index(diag.per_code["code"].astype(str))
+        shown = result.round(name)
+        assert set(shown.per_code) == set(rows.index)
+        for code, res in shown.per_code.items():
+            row = rows.loc[code]
+            assert res.estimate == row.alpha
+            assert (res.ci_low, res.ci_high) == (row.ci_low, row.ci_high)
+            assert res.lower_bound == row.lower_bound and res.p_below_min == row.p_below_min
+            assert shown.code_status[code] == row.status
+    # the figure plots the same numbers
+    frame = result.to_frame()
+    first = frame[(frame["round"] == "1") & frame["code"].notna()].iloc[0]
+    assert first.estimate == result.round("1").per_code[first.code].estimate
+
+
+def test_differences_between_rounds_keep_independent_resamples(sample_rounds):
+    # the intervals of differences come from replicates with a seed derived per round and
+    # code (independent of the resamples shown), as before
+    from agree.rounds import _child_seed, split_rounds
+
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    code = result.codes[0]
+    reps = []
+    for i, name in enumerate(["1", "2"]):
+        j = list(result.codes).index(code) + 1
+        binary = parts[name].presence(code)
+        res = krippendorff_alpha(binary, level="nominal", seed=_child_seed(11, i, j), n_resamples=500,
+                                 minimum=0.8)
+        reps.append(res.replicates)
+    ch = next(c for c in result.changes if c.code == code)
+    low, high, _ = difference_interval(reps[0], reps[1], estimate=ch.difference, confidence_level=0.95)
+    assert (ch.ci_low, ch.ci_high) == pytest.approx((low, high), abs=1e-12)
+
+
+def test_report_per_code_table_equals_the_rounds_figures_of_that_round(sample_rounds):
+    data, _ = sample_rounds
+    report = build_report(data, n_resamples=300, seed=4)
+    final = report.rounds.round(report.analysed_round)
+    for rec in report.per_code:
+        res = final.per_code[str(rec["code"])]
+        assert res.estimate == pytest.approx(rec["alpha"], abs=0)
+        assert (res.ci_low, res.ci_high) == (rec["ci_low"], rec["ci_high"])
+        assert final.code_status[str(rec["code"])] == rec["status"]
+    # without a seed one is drawn and shared by both
+    drawn = build_report(data, n_resamples=100)
+    final = drawn.rounds.round(drawn.analysed_round)
+    rec = drawn.per_code[0]
+    assert final.per_code[str(rec["code"])].ci_low == rec["ci_low"]
+    assert drawn.rounds.seed == drawn.seed
+
+
+def _rare_rounds():
+    # code 'Rare' is used on 2 shared units in round 1 and 3 in round 2: too rare (< 5)
+    rng = np.random.default_rng(5)
+    out = {}
+    for name, k in (("1", 2), ("2", 3)):
+        a = list(rng.choice(["X", "Y"], 60))
+        b = [v if rng.random() < 0.9 else ("Y" if v == "X" else "X") for v in a]
+        for u in range(k):
+            a[u] = "Rare"
+        b[0] = "Rare"
+        out[name] = from_table(np.array([a, b], dtype=object).T, coders=["a", "b"], categories=["X", "Y", "Rare"])
+    return out
+
+
+def test_too_rare_codes_are_marked_in_changes_and_below_lists():
+    from agree.report import rounds_tables
+
+    result = compare_rounds(_rare_rounds(), n_resamples=200, seed=3, minimum=0.8)
+    for r in result.rounds:
+        assert r.code_status["Rare"] == "too rare"
+        assert "Rare" in r.too_rare and "Rare" not in r.codes_below(0.8)
+    tables = {t.key: t for t in rounds_tables(result, 2)}
+    below = [row[-1].text for row in tables["rounds"].rows]
+    assert all("Rare (too rare)" in cell for cell in below)
+    change = [row[1].text for row in tables["round_changes"].rows if row[1].text.startswith("Rare")]
+    assert change == ["Rare (too rare in round 1 and round 2)"]
+    summary = " ".join(result.summary)
+    assert "‘Rare’ was used on too few units to judge" in summary
+    assert not any("Rare" in line and "below" in line for line in result.summary)
+    assert result.to_dict()["rounds"][0]["code_status"]["Rare"] == "too rare"

@@ -90,7 +90,7 @@ def demo(
 def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> None:
     """The steps of the demo, printed as they run; headline results go into `summary_json`."""
     import agree
-    from agree.format import format_value, plain
+    from agree.format import format_interval, plain
     from agree.report import build_report, write_report
     from agree.rounds import compare_rounds
     from agree.sampling import load_codebook_categories, read_unit_ids
@@ -111,11 +111,12 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
         summary_json["rounds"][name] = scored.coefficients["krippendorff_alpha"].to_dict()
         if name == "round2":
             nested = agree.krippendorff_alpha(data, n_resamples=boot, seed=seed, cluster="interview")
+            alpha = scored.coefficients["krippendorff_alpha"]
             stdout.print(f"The excerpts are nested in {len(set(data.columns['interview']))} interviews: with "
-                         f"--cluster interview whole interviews are resampled and alpha's interval widens to "
-                         f"[{format_value(nested.ci_low, digits=3)}, {format_value(nested.ci_high, digits=3)}] "
-                         "(the report below resamples units, as rounds_long.csv has no interview column).",
-                         highlight=False)
+                         f"--cluster interview whole interviews are resampled and alpha's interval is "
+                         f"{format_interval(nested.ci_low, nested.ci_high, 3)} instead of "
+                         f"{format_interval(alpha.ci_low, alpha.ci_high, 3)} (the report below resamples units, "
+                         "as rounds_long.csv has no interview column).", highlight=False)
 
     step("Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
     codes = agree.diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)

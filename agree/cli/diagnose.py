@@ -16,6 +16,7 @@ from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOpt
                                TableFormat)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.format import format_interval, format_value
+from agree.report import format_bound
 
 if TYPE_CHECKING:
     from agree.diagnostics import CodeDiagnostics, CoderDiagnostics
@@ -90,7 +91,8 @@ def codes_command(
     """Which codes drive disagreement: per-code alpha, specific agreement, confusions, unequal use.
 
     Codes are listed worst first, each with a status and a short reason. A code is "ok" when
-    the lower end of its interval reaches the minimum, "uncertain" when only the estimate does.
+    its one-sided 95% lower confidence bound reaches the minimum (the rule of `agree score
+    --min`), "uncertain" when only the estimate does.
 
     Example: agree codes samples/round1.csv --codebook samples/codebook.csv --cluster interview
 
@@ -120,15 +122,17 @@ def _codes_table(result: "CodeDiagnostics", top: int) -> None:
     table.add_column("code", min_width=8)
     table.add_column("status", min_width=9)
     kappa = "Cohen's κ" if len(result.coders) == 2 else "Fleiss' κ"
-    for name in ["α", level, "specific agreement", kappa]:
+    bound = f"one-sided {100 * result.confidence_level:g}% lower bound"
+    for name in ["α", level, "bound†", "specific agreement", kappa]:
         table.add_column(name, justify="right", no_wrap=True)
     table.add_column("reason", ratio=1, min_width=20)
     for row in frame.itertuples(index=False):
         table.add_row(str(row.rank), str(row.code), row.status, _num(row.alpha),
-                      format_interval(row.ci_low, row.ci_high, DIGITS),
+                      format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound),
                       _num(row.specific_agreement), _num(row.kappa), row.reason)
     stdout.print(table)
-    judged = ("ok: the interval's lower end reaches the minimum; uncertain: only the estimate does"
+    judged = (f"ok: the {bound} reaches the minimum (as for agree score --min); uncertain: only the "
+              f"estimate does; † bound: the {bound}, rounded down to 3 decimals"
               if result.bootstrap is not None else
               "no bootstrap (--boot 0): statuses compare the estimate, not an interval, with the minimum")
     note(f"status — {judged}")
