@@ -64,6 +64,21 @@ def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
     return text.replace("-", "\u2212")
 
 
+def format_bound(x: Any, minimum: float | None = None) -> str:
+    """A one-sided lower bound for display: three decimals, rounded down where rounding to the
+    nearest would reach `minimum`, so a bound below the minimum is never shown as reaching it
+    (.7996 -> ``.799`` with minimum .8; without a minimum always rounded down)."""
+    if x is None or isinstance(x, str):
+        return format_value(x, "threshold")
+    v = float(x)
+    if not math.isfinite(v):
+        return "–"
+    nearest = round(v, 3)
+    if minimum is None or (v < minimum <= nearest):
+        return format_value(math.floor(v * 1000 + 1e-9) / 1000, "threshold")
+    return format_value(nearest, "threshold")
+
+
 def format_interval(low: Any, high: Any, digits: int = 2) -> str:
     """``[.79, .88]``; an en dash when there is no interval."""
     if low is None or high is None or not (math.isfinite(float(low)) and math.isfinite(float(high))):

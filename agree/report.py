@@ -41,7 +41,8 @@ import numpy as np
 import pandas as pd
 
 from agree.files import atomic_write_bytes
-from agree.format import format_interval, format_value, lit, notebook_html, plain, spans  # noqa: F401 (re-exported)
+from agree.format import (format_bound, format_interval, format_value, lit, notebook_html,  # noqa: F401
+                          plain, spans)
 from agree.model import AgreeError, CodingData, as_coding_data
 from agree.results import AgreementResult, Note, _clean
 
@@ -862,11 +863,11 @@ def interpretation(report: Report) -> tuple[str, ...]:
         sym = _symbol(prim.name)
         level = f"{100 * prim.confidence_level:g}%"
         text = f"{lit(coefficient_label(prim.name))}: {_stat_markup(prim, digits)}. "
-        reached = (f"The one-sided {level} lower bound ({format_bound(bound)}) is at or above the minimum of "
+        reached = (f"The one-sided {level} lower bound ({format_bound(bound, report.minimum)}) is at or above the minimum of "
                    f"{minimum}." if one_sided else
                    f"The whole interval lies at or above the minimum of {minimum}.")
         short = (f"The estimate reaches the minimum of {minimum}, but its one-sided {level} lower bound "
-                 f"({format_bound(bound)}) is below it, so the data do not show with confidence that it is reached"
+                 f"({format_bound(bound, report.minimum)}) is below it, so the data do not show with confidence that it is reached"
                  if one_sided else
                  f"The estimate reaches the minimum of {minimum}, but the interval extends below "
                  "it, so the data do not show with confidence that it is reached")
@@ -935,17 +936,6 @@ def status_text(confidence_level: float = 0.95) -> dict[str, str]:
     """`STATUS_TEXT` at another confidence level (the one-sided bound's level is named)."""
     level = f"{100 * confidence_level:g}%"
     return {k: v.replace("95%", level) for k, v in STATUS_TEXT.items()}
-
-
-def format_bound(x: Any) -> str:
-    """A one-sided lower bound for display: three decimals, rounded *down*, so a bound below a
-    minimum such as .800 is never shown as reaching it (.7996 -> ``.799``)."""
-    if x is None or isinstance(x, str):
-        return format_value(x, "threshold")
-    v = float(x)
-    if not math.isfinite(v):
-        return "–"
-    return format_value(math.floor(v * 1000 + 1e-9) / 1000, "threshold")
 
 
 # ----------------------------------------------------------------------------------------
@@ -1032,7 +1022,7 @@ def report_tables(report: Report) -> list[Table]:
                 if key == "ci":
                     row.append(_ci(rec.get("ci_low"), rec.get("ci_high"), dg, path))
                 elif kind == "bound":
-                    row.append(Cell(format_bound(rec.get(key)), (f"{path}.{key}",), True))
+                    row.append(Cell(format_bound(rec.get(key), report.minimum), (f"{path}.{key}",), True))
                 else:
                     row.append(_c(rec.get(key), kind, dg, f"{path}.{key}"))
             row += [Cell(lit(rec.get(c) or "")) for c in text_cols]
@@ -1042,7 +1032,8 @@ def report_tables(report: Report) -> list[Table]:
                             tuple(rows), note="From the per-code diagnostics; α here is nominal α on the "
                             "presence/absence recoding of each code. Status compares the one-sided "
                             f"{100 * report.confidence_level:g}% lower bound with the minimum (the rule of "
-                            "the overall decision); bounds are rounded down to three decimals. Status: "
+                            "the overall decision); bounds are shown to three decimals, rounded down where rounding would "
+                            "reach the minimum. Status: "
                             + "; ".join(f"{lit(k)}, {lit(v)}" for k, v in
                                         status_text(report.confidence_level).items()) + "."))
     if report.confused_pairs:

@@ -209,3 +209,20 @@ def test_help_examples_use_bundled_samples():
             for token in example.split():
                 if token.startswith("samples/"):
                     assert (SAMPLES.parent / token).exists(), (command, token)
+
+
+def test_codes_table_shows_the_one_sided_bound_and_says_so():
+    result = run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "500", "--seed", "3"])
+    assert result.exit_code == 0, result.output
+    assert "bound†" in result.stdout
+    assert "one-sided 95% lower bound" in result.stderr
+    assert "rounded down where rounding would reach the minimum" in result.stderr
+    assert "interval's lower end" not in result.stderr
+    data = json.loads(run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "500", "--seed", "3",
+                           "--format", "json"]).stdout)
+    for c in data["codes"]:
+        assert "lower_bound" in c
+        if c["status"] == "ok":
+            assert c["lower_bound"] >= 0.8
+        elif c["status"] == "uncertain":
+            assert c["alpha"] >= 0.8 > c["lower_bound"]

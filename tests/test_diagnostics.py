@@ -946,11 +946,18 @@ def test_lower_bound_is_the_quantile_at_one_minus_the_level():
 
 
 def test_bounds_below_the_minimum_are_never_shown_as_reaching_it():
-    from agree.report import format_bound
+    from agree.format import format_bound
 
-    assert format_bound(0.79977) == ".799"        # two decimals would print ".80"
-    assert format_bound(0.7999999) == ".799"
-    assert format_bound(0.8) == ".800"
-    assert format_bound(0.805) == ".805"
-    assert format_bound(-0.0123) == "−.013"       # rounded down, towards -inf
+    assert format_bound(0.79977, 0.8) == ".799"        # two decimals would print ".80"
+    assert format_bound(0.7999999, 0.8) == ".799"
+    assert format_bound(0.8, 0.8) == ".800"
+    assert format_bound(0.8056, 0.8) == ".806"         # away from the minimum: nearest
+    assert format_bound(0.5726, 0.8) == ".573"
+    assert format_bound(0.79977) == ".799"             # no minimum given: always down
+    assert format_bound(-0.0123) == "−.013"            # down, towards -inf
     assert format_bound(float("nan")) == "–" and format_bound(None) == "–"
+    # property: never shown at or above a minimum the bound does not reach
+    rng = np.random.default_rng(0)
+    for v in rng.uniform(0.79, 0.81, 2000):
+        shown = float(format_bound(v, 0.8))
+        assert (shown >= 0.8) == (v >= 0.8) and abs(shown - v) < 0.001

@@ -578,12 +578,12 @@ def test_coefficients_table_note_says_which_se_is_analytic_and_which_bootstrap(s
 
 
 def test_per_code_table_shows_the_one_sided_bound_rounded_down(sample_report):
-    from agree.report import format_bound
+    from agree.format import format_bound
 
     table = {t.key: t for t in report_tables(sample_report)}["per_code"]
     col = table.header.index("One-sided 95% lower bound")
     for row, rec in zip(table.rows, sample_report.per_code):
-        assert row[col].text == format_bound(rec["lower_bound"])
+        assert row[col].text == format_bound(rec["lower_bound"], sample_report.minimum)
         if rec["lower_bound"] is not None and rec["lower_bound"] < sample_report.minimum:
             assert float(row[col].text.replace("−", "-")) < sample_report.minimum
         if rec["status"] == "ok":

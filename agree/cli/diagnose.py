@@ -16,7 +16,7 @@ from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOpt
                                TableFormat)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.format import format_interval, format_value
-from agree.report import format_bound
+from agree.format import format_bound
 
 if TYPE_CHECKING:
     from agree.diagnostics import CodeDiagnostics, CoderDiagnostics
@@ -128,11 +128,11 @@ def _codes_table(result: "CodeDiagnostics", top: int) -> None:
     table.add_column("reason", ratio=1, min_width=20)
     for row in frame.itertuples(index=False):
         table.add_row(str(row.rank), str(row.code), row.status, _num(row.alpha),
-                      format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound),
+                      format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound, result.minimum),
                       _num(row.specific_agreement), _num(row.kappa), row.reason)
     stdout.print(table)
     judged = (f"ok: the {bound} reaches the minimum (as for agree score --min); uncertain: only the "
-              f"estimate does; † bound: the {bound}, rounded down to 3 decimals"
+              f"estimate does; † bound: the {bound} (3 decimals, rounded down where rounding would reach the minimum)"
               if result.bootstrap is not None else
               "no bootstrap (--boot 0): statuses compare the estimate, not an interval, with the minimum")
     note(f"status — {judged}")

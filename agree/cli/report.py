@@ -280,7 +280,7 @@ def _print_rounds(result: Any) -> None:
                    f"Codes below {minimum}"):
         table.add_column(header, justify="left" if header in ("Round", f"Codes below {minimum}") else "right")
     for r in result.rounds:
-        below = [c for c, res in r.per_code.items() if res.defined and res.estimate < result.minimum]
+        below = r.codes_below(result.minimum) + [f"{c} (too rare)" for c in r.too_rare]
         table.add_row(r.round + (" (drift)" if r.drift else ""), format_value(r.n_units, "count"),
                       format_value(r.overall.estimate), format_interval(r.overall.ci_low, r.overall.ci_high),
                       format_value(r.overall.p_below_min, "probability"), ", ".join(below) or "none")
@@ -294,6 +294,7 @@ def _print_rounds(result: Any) -> None:
         for r in result.rounds:
             res = r.per_code.get(code)
             cells.append("–" if res is None else f"{format_value(res.estimate)} {format_interval(res.ci_low, res.ci_high)}"
+                         + (" (too rare)" if code in r.too_rare else "")
                          + (" *" if code in r.changed_codes else ""))
         codes.add_row(code, *cells)
     stdout.print(codes)
