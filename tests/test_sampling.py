@@ -466,16 +466,12 @@ def test_cli_sample_help_example_uses_bundled_files(tmp_path):
     assert run.exit_code == 0, run.output
 
 
-def test_demo_numbers_its_steps_and_excludes_coded_units(tmp_path, monkeypatch):
-    """The demo's sections are numbered 1, 2, 3, ... once each, and its next sample leaves out
-    the units of rounds 1 and 2. The report and the plan are stubbed (tested elsewhere)."""
-    import re
+def _stub_report_and_plan(monkeypatch):
+    """The demo with the report stubbed and a small plan (both are tested on their own)."""
     from pathlib import Path
 
     import agree
-    import agree.cli.commands  # noqa: F401
     import agree.report
-    from agree.cli.app import app
 
     class FakeReport:
         methods = "Methods paragraph."
@@ -485,6 +481,18 @@ def test_demo_numbers_its_steps_and_excludes_coded_units(tmp_path, monkeypatch):
     real_plan = agree.plan_sample
     monkeypatch.setattr(agree, "plan_sample",
                         lambda **k: real_plan(**{**k, "replicates": 60, "n_resamples": 60}))
+
+
+def test_demo_numbers_its_steps_and_excludes_coded_units(tmp_path, monkeypatch):
+    """The demo's sections are numbered 1, 2, 3, ... once each, and its next sample leaves out
+    the units of rounds 1 and 2. The report and the plan are stubbed (tested elsewhere)."""
+    import re
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    _stub_report_and_plan(monkeypatch)
     res = CliRunner().invoke(app, ["demo", "--out", str(tmp_path / "demo"), "--boot", "50"],
                              terminal_width=200)
     assert res.exit_code == 0, res.output
@@ -503,19 +511,10 @@ def test_demo_json_prints_only_a_summary_of_its_outputs(tmp_path, monkeypatch):
     import json
     from pathlib import Path
 
-    import agree
     import agree.cli.commands  # noqa: F401
-    import agree.report
     from agree.cli.app import app
 
-    class FakeReport:
-        methods = "Methods paragraph."
-
-    monkeypatch.setattr(agree.report, "build_report", lambda *a, **k: FakeReport())
-    monkeypatch.setattr(agree.report, "write_report", lambda report, path: [Path(path)])
-    real_plan = agree.plan_sample
-    monkeypatch.setattr(agree, "plan_sample",
-                        lambda **k: real_plan(**{**k, "replicates": 60, "n_resamples": 60}))
+    _stub_report_and_plan(monkeypatch)
     res = CliRunner().invoke(app, ["demo", "--out", str(tmp_path / "demo"), "--boot", "50", "--format", "json"])
     assert res.exit_code == 0, res.output
     summary = json.loads(res.stdout)
