@@ -298,6 +298,9 @@ def _print_rounds(result: Any) -> None:
                          + (" *" if code in r.changed_codes else ""))
         codes.add_row(code, *cells)
     stdout.print(codes)
+    if str(result.level).split()[0] in ("ordinal", "interval", "ratio"):
+        note("caution: on a rating scale each point is not a code; the per-point presence/absence α above is of "
+             "limited use: judge the scale by the overall α")
     if result.definition_changes:
         stdout.print("* definition changed since the code was last measured", highlight=False, markup=False)
     for line in result.summary:
