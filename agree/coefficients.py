@@ -33,6 +33,7 @@ Wilson, E. B. (1927). Probable inference. JASA, 22(158), 209-212.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from dataclasses import replace as _replace
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -771,15 +772,7 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
                   undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
     notes = _order_notes(d, "The ordinal metric") if label == "ordinal" else []
     res = _run(stat, d, level=label, weights=None, notes=notes, **_options(locals()))
-    return _with_alpha_details(res, d, delta)
-
-
-def _with_alpha_details(res: AgreementResult, d: CodingData, delta) -> AgreementResult:
-    from dataclasses import replace as _replace
-
-    details = dict(res.details)
-    details["pairable_values"] = float(res.n_values)
-    return _replace(res, details=details)
+    return _replace(res, details={**res.details, "pairable_values": float(res.n_values)})
 
 
 def coincidence_matrix(data: Any, *, categories: Sequence[Any] | None = None) -> pd.DataFrame:
@@ -905,8 +898,6 @@ def fleiss_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
 
 def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> AgreementResult:
     """Per-category kappa and the Fleiss-Nee-Landis null variance (constant raters only)."""
-    from dataclasses import replace as _replace
-
     if weights is not None or not np.isfinite(res.estimate):
         return res
     r = (d.codes >= 0).sum(axis=1)
@@ -976,8 +967,6 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
                          f"{d.n_coders} coders, so the coders rotate",
                          hint="use krippendorff_alpha, fleiss_kappa or gwet_ac1, which allow rotating coders",
                          code="rotating")
-    from dataclasses import replace as _replace
-
     stat = _Conger(name="conger_kappa", ordered=True, m=d.n_coders, V=len(d.values),
                    undefined_reason="no pairable unit, or no expected disagreement (p_e = 1)")
     res = _run(stat, d, level=None, weights=None, **_options(locals()))
@@ -1020,7 +1009,6 @@ def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
     name = "gwet_ac1" if weights is None else "gwet_ac2"
     res = _pi_type(d, name, "ac", weights, _options(locals()))
     if res.defined and len(np.unique(d.codes[d.codes >= 0])) == 1:
-        from dataclasses import replace as _replace
         res = _replace(res, warnings=res.warnings + (Note("no-variation", "Every value is the same category: "
                        "AC1 is defined here but kappa and alpha are not; the data show no variation."),))
     return res
@@ -1039,8 +1027,6 @@ def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_leve
     category, d: both the second), with κ = (PABAK - PI² + BI²)/(1 - PI² + BI²).
     Report them beside kappa, not instead of it.
     """
-    from dataclasses import replace as _replace
-
     d = _prepare(data, categories)
     if len(d.values) != 2:
         raise AgreeError(f"PABAK is for a binary code (two categories); the data have {len(d.values)}",
