@@ -56,7 +56,7 @@ def compress(codes: np.ndarray, n_values: int, *, ordered: bool, keep_inverse: b
     """Group the units of a (N, m) codes table into distinct patterns (see `_compress`);
     a read-only table compressed recently is not compressed again."""
     codes = np.asarray(codes)
-    if codes.flags.writeable:
+    if codes.flags.writeable or codes.base is not None:  # only arrays nobody can change are remembered
         return _compress(codes, n_values, ordered=ordered, keep_inverse=keep_inverse)
     key = (id(codes), n_values, ordered, keep_inverse)
     hit = _RECENT.get(key)
