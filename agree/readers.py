@@ -81,11 +81,11 @@ WORKBOOK_EXTENSIONS = {".xlsx", ".xlsm"}
 PARQUET_EXTENSIONS = {".parquet", ".pq"}
 
 UNIT_NAMES = ("unit", "unit_id", "unitid", "item", "item_id", "excerpt_id", "segment_id", "id",
-              "segment")
+              "segment", "case_id", "answer_id", "response_id")
 CODER_NAMES = ("coder", "coder_id", "coder_name", "rater", "rater_id", "annotator", "judge")
 CODE_NAMES = ("code", "codes", "label", "labels", "category", "value", "rating")
 TEXT_NAMES = ("text", "excerpt", "segment", "quote", "content", "unit_text", "excerpt_text",
-              "segment_text")
+              "segment_text", "answer", "passage", "statement")
 # Per-unit columns that are never coders in a wide table: kept in `CodingData.columns`.
 KEEP_NAMES = ("round", "cluster", "document", "document_id", "doc", "doc_id", "group", "notes",
               "note", "comment", "comments", "memo", "interview", "interview_id", "participant",

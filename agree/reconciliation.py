@@ -60,7 +60,6 @@ DECISION = "decision"
 HOW = "how decided"
 WHO = "decided by"
 NOTES = "notes"
-# Consensus columns.
 
 HOW_CHOICES = ("discussion", "adjudicator", "majority")
 SET_SEPARATOR = "; "

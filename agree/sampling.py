@@ -34,12 +34,13 @@ import numpy as np
 import pandas as pd
 
 from agree.files import atomic_write_bytes
+from agree.readers import TEXT_NAMES, UNIT_NAMES
 from agree.model import AgreeError, cell_location, normalise_value
 
-ID_COLUMN_NAMES = ("unit_id", "unit", "id", "unit id", "unitid", "segment_id", "excerpt_id",
-                   "item_id", "case_id", "answer_id", "response_id")
-TEXT_COLUMN_NAMES = ("text", "excerpt", "content", "segment", "answer", "response", "quote",
-                     "passage", "statement")
+# The readers' names for the unit-id and text columns, so a corpus and its coding sheets agree;
+# "response" is a text column in a list of units but too ambiguous in coding data.
+ID_COLUMN_NAMES = ("unit_id",) + tuple(n for n in UNIT_NAMES if n != "unit_id")
+TEXT_COLUMN_NAMES = TEXT_NAMES + ("response",)
 SHEET_COLUMNS = ("unit_id", "text", "code", "notes")
 _BAD_NAME = re.compile(r'[\\/:*?"<>|\x00-\x1f]')
 
