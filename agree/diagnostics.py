@@ -57,7 +57,7 @@ from scipy.sparse.csgraph import connected_components
 from agree.format import format_value
 from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
 from agree.patterns import compress
-from agree.coefficients import alpha_from_coincidence, level_delta, set_delta
+from agree.coefficients import alpha_from_coincidence, krippendorff_alpha, level_delta, set_delta
 from agree.resampling import (bootstrap_interval, bootstrap_replicates, check_settings, cluster_features,
                               jackknife_values, make_rng)
 from agree.results import BootstrapInfo, Note, _clean
@@ -168,6 +168,8 @@ class CodeDiagnostics:
     cluster: str | None = None
     n_clusters: int | None = None
     level: str = "nominal"
+    alpha_ci_low: float | None = None     # two-sided bootstrap interval of the overall alpha
+    alpha_ci_high: float | None = None
 
     @property
     def alpha_label(self) -> str:
@@ -197,6 +199,8 @@ class CodeDiagnostics:
         ``marginal_homogeneity``, ``alpha``, settings and ``notes``."""
         return _clean({
             "alpha": self.alpha,
+            "alpha_ci_low": self.alpha_ci_low,
+            "alpha_ci_high": self.alpha_ci_high,
             "alpha_level": self.alpha_label,
             "distance": self.distance,
             "level": self.level,
@@ -1046,8 +1050,16 @@ def diagnose_codes(data: Any, *, minimum: float | None = 0.8, n_resamples: int =
                   else "each code's estimate (no bootstrap, so no interval)")
         notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {minimum}, comparing "
                           f"{judged} with it (a convention; choose it before looking at the data)."))
+    overall_ci = (None, None)
+    if n_resamples:  # the same figure and interval as krippendorff_alpha / agree score with this seed
+        overall = krippendorff_alpha(data, level="nominal", distance=distance if data.set_valued else None,
+                                     n_resamples=n_resamples, seed=boot_info.seed if boot_info else seed,
+                                     confidence_level=confidence_level,
+                                     ci_method=ci_method, cluster=clusters)
+        overall_ci = (overall.ci_low, overall.ci_high)
     return CodeDiagnostics(per_code=per_code, confused_pairs=pairs, usage=usage,
                            marginal_homogeneity=_clean(homogeneity), alpha=overall_alpha,
+                           alpha_ci_low=overall_ci[0], alpha_ci_high=overall_ci[1],
                            coders=tuple(coders), n_units=data.n_units,
                            n_pairable_units=n_pairable_units, set_valued=data.set_valued,
                            minimum=None if minimum is None else float(minimum),

@@ -19,6 +19,8 @@ from statsmodels.stats.contingency_tables import SquareTable, cochrans_q, mcnema
 from statsmodels.stats.inter_rater import fleiss_kappa as sm_fleiss_kappa
 from statsmodels.stats.multitest import multipletests
 
+import agree
+
 from agree.diagnostics import (_holm, confusion_table, diagnose_codes, diagnose_coders,
                                stuart_maxwell)
 from agree.model import AgreeError, from_table
@@ -961,3 +963,16 @@ def test_bounds_below_the_minimum_are_never_shown_as_reaching_it():
     for v in rng.uniform(0.79, 0.81, 2000):
         shown = float(format_bound(v, 0.8))
         assert (shown >= 0.8) == (v >= 0.8) and abs(shown - v) < 0.001
+
+
+def test_overall_alpha_comes_with_the_same_interval_as_krippendorff_alpha():
+    from pathlib import Path
+
+    samples = Path(__file__).resolve().parents[1] / "samples"
+    data = agree.read(samples / "round1.csv", codebook=samples / "codebook.csv")
+    codes = agree.diagnose_codes(data, seed=3, n_resamples=400)
+    alpha = agree.krippendorff_alpha(data, seed=3, n_resamples=400)
+    assert (codes.alpha, codes.alpha_ci_low, codes.alpha_ci_high) == pytest.approx(
+        (alpha.estimate, alpha.ci_low, alpha.ci_high), abs=1e-12)
+    assert codes.to_dict()["alpha_ci_low"] == pytest.approx(alpha.ci_low)
+    assert agree.diagnose_codes(data, seed=3, n_resamples=0).alpha_ci_low is None

@@ -115,7 +115,9 @@ def codes_command(
 def _codes_table(result: "CodeDiagnostics", top: int) -> None:
     frame = result.to_frame()
     level = f"{result.confidence_level:.0%} CI"
-    stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {_num(result.alpha)}", highlight=False)
+    interval = ("" if result.alpha_ci_low is None else
+                f" {format_interval(result.alpha_ci_low, result.alpha_ci_high, DIGITS)}")
+    stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {_num(result.alpha)}{interval}", highlight=False)
     minimum = "none" if result.minimum is None else format_value(result.minimum, "threshold")
     table = Table(title=f"Codes, worst first (presence/absence α; minimum {minimum})")
     table.add_column("#", justify="right", no_wrap=True)
