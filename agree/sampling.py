@@ -84,35 +84,30 @@ def read_corpus(path: str | os.PathLike, *, sheet: str | int | None = None) -> p
 def detect_id_column(corpus: pd.DataFrame, id_col: str | None = None) -> str:
     """The unit-id column: `id_col` if given, else the first column whose name is a usual id
     name (unit_id, unit, id, ...; case and spaces ignored)."""
-    columns = [str(c) for c in corpus.columns]
-    if id_col is not None:
-        if id_col not in columns:
-            raise AgreeError(f"no column '{id_col}' in the list of units",
-                             hint=f"columns are: {', '.join(columns)}", code="no-id-column")
-        return id_col
-    norm = {c.strip().lower().replace(" ", "_"): c for c in columns}
-    for name in ID_COLUMN_NAMES:
-        key = name.replace(" ", "_")
-        if key in norm:
-            return norm[key]
-    raise AgreeError("could not find the unit-id column",
-                     hint=f"name it unit_id or pass --unit-col; columns are: {', '.join(columns)}",
-                     code="no-id-column")
+    found = _find_column(corpus, id_col, ID_COLUMN_NAMES, code="no-id-column")
+    if found is None:
+        columns = ", ".join(str(c) for c in corpus.columns)
+        raise AgreeError("could not find the unit-id column",
+                         hint=f"name it unit_id or pass --unit-col; columns are: {columns}", code="no-id-column")
+    return found
 
 
 def detect_text_column(corpus: pd.DataFrame, text_col: str | None = None) -> str | None:
     """The text column: `text_col` if given, else the first usual text name; None if none."""
+    return _find_column(corpus, text_col, TEXT_COLUMN_NAMES, code="no-text-column")
+
+
+def _find_column(corpus: pd.DataFrame, given: str | None, names: Sequence[str], *, code: str) -> str | None:
+    """`given` if it is a column (else an error), or the first column named like one of `names`
+    (case and spaces ignored), or None."""
     columns = [str(c) for c in corpus.columns]
-    if text_col is not None:
-        if text_col not in columns:
-            raise AgreeError(f"no column '{text_col}' in the list of units",
-                             hint=f"columns are: {', '.join(columns)}", code="no-text-column")
-        return text_col
-    norm = {c.strip().lower(): c for c in columns}
-    for name in TEXT_COLUMN_NAMES:
-        if name in norm:
-            return norm[name]
-    return None
+    if given is not None:
+        if given not in columns:
+            raise AgreeError(f"no column '{given}' in the list of units",
+                             hint=f"columns are: {', '.join(columns)}", code=code)
+        return given
+    norm = {c.strip().lower().replace(" ", "_"): c for c in columns}
+    return next((norm[n.replace(" ", "_")] for n in names if n.replace(" ", "_") in norm), None)
 
 
 def _row_where(corpus: pd.DataFrame, position: int, column: str) -> str:
@@ -565,8 +560,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     CodingSheets
     """
     names = _check_coders(coders)
-    id_col = id_col or sample.attrs.get("id_col") or detect_id_column(sample)
-    id_col = detect_id_column(sample, id_col)
+    id_col = detect_id_column(sample, id_col or sample.attrs.get("id_col"))
     text_col = detect_text_column(sample, text_col)
     _unit_keys(sample, id_col)
     context_cols = _context_columns(sample, keep, id_col, text_col)
