@@ -726,7 +726,8 @@ def _documented(*specific: str):
 def _prepare(data: Any, categories: Any, *, single: bool = True) -> CodingData:
     d = as_coding_data(data, categories=categories)
     if d.n_coders < 2:
-        raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}", code="one-coder")
+        raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}",
+                         hint="check the coder columns, or the layout detected", code="one-coder")
     if single and d.set_valued:
         raise AgreeError("this coefficient needs one code per unit and coder; these data have sets of codes",
                          hint="use krippendorff_alpha (set distances) or analyse each code as present/absent",
@@ -740,11 +741,10 @@ def _options(kw: dict) -> dict:
             "cluster": kw.get("cluster")}
 
 
-def _check_q(d: CodingData, name: str) -> list[Note]:
+def _check_q(d: CodingData, name: str) -> None:
     if len(d.values) < 2:
         raise AgreeError(f"{name} needs at least two categories; the data have {len(d.values)}",
                          hint="pass the codebook's full category list with categories=", code="q")
-    return []
 
 
 @_documented("level")
@@ -764,9 +764,7 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
     expected disagreement. No analytic standard error is standard; the interval is the
     unit bootstrap (Hughes 2022 on why not the pair-resampling bootstrap).
     """
-    d = as_coding_data(data, categories=categories)
-    if d.n_coders < 2:
-        raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}", code="one-coder")
+    d = _prepare(data, categories, single=False)
     delta, label = distance_matrix(d, level, distance)
     stat = _Alpha(name="krippendorff_alpha", delta=delta, V=len(d.values),
                   undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
@@ -806,9 +804,7 @@ def percent_agreement(data: Any, *, weights: Any = None, categories: Sequence[An
     coded alike (Wilson interval when no bootstrap is asked). Not chance-corrected: never
     report it alone (Lombard, Snyder-Duch & Bracken 2002). Sets of codes agree when equal.
     """
-    d = as_coding_data(data, categories=categories)
-    if d.n_coders < 2:
-        raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}", code="one-coder")
+    d = _prepare(data, categories, single=False)
     w, label = agreement_weights(d, weights)
     stat = _PercentAgreement(name="percent_agreement", w=w, undefined_reason="no unit has two or more values")
     return _run(stat, d, level=None, weights=label, **_options(locals()))

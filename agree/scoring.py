@@ -9,7 +9,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from agree import coefficients as coef
-from agree.model import LEVELS, AgreeError, CodingData, as_coding_data
+from agree.model import LEVELS, AgreeError, CodingData
 from agree.results import AgreementResult, Note, _clean, display_name
 
 FEW_UNITS = 30  # common practice: below this, intervals are wide and conventions shaky
@@ -133,10 +133,7 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
     coefficients; and data-wide notes from the coefficients (few clusters, an alphabetical scale
     order, asymmetric weights, clipped normal-approximation intervals).
     """
-    d = as_coding_data(data, categories=categories)
-    if d.n_coders < 2:
-        raise AgreeError(f"agreement needs at least two coders; the data have {d.n_coders}",
-                         hint="check the coder columns, or the layout detected", code="one-coder")
+    d = coef._prepare(data, categories, single=False)
     level = level or d.level or "nominal"
     if level not in LEVELS:
         raise AgreeError(f"level must be one of {', '.join(LEVELS)}; got '{level}'", code="level")

@@ -70,11 +70,6 @@ def print_json(obj: Any) -> None:
     sys.stdout.write(json.dumps(obj, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
 
 
-def fail(message: str, code: int = 2) -> None:
-    stderr.print(f"error: {message}", highlight=False, markup=False)
-    raise typer.Exit(code)
-
-
 def _is(exc: BaseException, name: str) -> bool:
     """Whether `exc` is an instance of the (Typer-bundled) click exception class `name`."""
     return any(cls.__name__ == name for cls in type(exc).__mro__)
