@@ -1,6 +1,6 @@
 """agree: measure, diagnose, reconcile and report agreement between coders of qualitative data.
 
-The layers, ground floor first: the data model (`agree.model`) -> readers and codebooks ->
+The layers, ground floor first: the data model (`agree.core.model`) -> readers and codebooks ->
 value patterns and coefficients -> resampling and planning -> diagnostics and rounds ->
 reconciliation and reports -> the command line (`agree.cli`).
 
@@ -12,27 +12,37 @@ line start quickly.
 from importlib import import_module
 from typing import Any
 
-from agree.coefficients import (brennan_prediger, cohen_kappa, coincidence_matrix, conger_kappa,
-                                fleiss_kappa, gwet_ac1, krippendorff_alpha, pabak, percent_agreement,
-                                scott_pi)
-from agree.codebook import Codebook, read_codebook
-from agree.model import AgreeError, CodingData, from_table
-from agree.readers import read
-from agree.results import AgreementResult, BootstrapInfo, Note
-from agree.scoring import ScoreResult, score
+from agree.core.constants import VERSION
+from agree.core.model import AgreeError, CodingData, from_table
+from agree.core.results import AgreementResult, BootstrapInfo, Note
+from agree.io.codebook import Codebook, read_codebook
+from agree.io.readers import read
+from agree.stats.coefficients import (
+    brennan_prediger,
+    cohen_kappa,
+    coincidence_matrix,
+    conger_kappa,
+    fleiss_kappa,
+    gwet_ac1,
+    krippendorff_alpha,
+    pabak,
+    percent_agreement,
+    scott_pi,
+)
+from agree.stats.scoring import ScoreResult, score
 
-__version__ = "0.1.0"
+__version__ = VERSION
 
 _LAZY = {
-    "agree.diagnostics": ("CodeDiagnostics", "CoderDiagnostics", "confusion_table", "diagnose_codes",
+    "agree.analysis.diagnostics": ("CodeDiagnostics", "CoderDiagnostics", "confusion_table", "diagnose_codes",
                           "diagnose_coders"),
-    "agree.format": ("decision_sentence",),
-    "agree.planning": ("Plan", "plan_sample"),
-    "agree.report": ("Report", "build_report", "write_report"),
-    "agree.rounds": ("RoundsResult", "compare_rounds"),
-    "agree.reconciliation": ("Consensus", "ReviewSummary", "reconcile", "review_table", "write_consensus",
+    "agree.core.format": ("decision_sentence",),
+    "agree.analysis.planning": ("Plan", "plan_sample"),
+    "agree.output.report": ("Report", "build_report", "write_report"),
+    "agree.analysis.rounds": ("RoundsResult", "compare_rounds"),
+    "agree.output.reconciliation": ("Consensus", "ReviewSummary", "reconcile", "review_table", "write_consensus",
                              "write_review"),
-    "agree.sampling": ("draw_sample", "read_unit_ids", "write_coding_sheets"),
+    "agree.analysis.sampling": ("draw_sample", "read_unit_ids", "write_coding_sheets"),
 }
 _WHERE = {name: module for module, names in _LAZY.items() for name in names}
 

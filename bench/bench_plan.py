@@ -2,7 +2,7 @@
 
 Target: a default plan (R = 500 simulated studies, B = 500 bootstrap resamples per study) in
 under about ten seconds, so the command feels interactive. Each case runs the library call
-`agree.planning.plan_sample` in this process; `--cli` also times the whole command in a fresh
+`agree.analysis.planning.plan_sample` in this process; `--cli` also times the whole command in a fresh
 process (interpreter start and imports included).
 
 Options: --repeat N (median of N runs), --quick (R = B = 200), --cli, --out FILE (JSON).
@@ -20,7 +20,7 @@ import sys
 import time
 from pathlib import Path
 
-from agree.planning import plan_sample
+from agree.analysis.planning import plan_sample
 
 CASES = {
     "default: 2 coders, 4 equal categories, expected .90, min .80": dict(

@@ -37,7 +37,7 @@ PY = sys.executable
 
 def _timed(fn, repeat):
     """Median wall time of `fn` over `repeat` calls, each from cold (no compressed patterns kept)."""
-    from agree.patterns import _RECENT
+    from agree.stats.patterns import _RECENT
 
     times = []
     value = None
@@ -82,7 +82,7 @@ def _codes(n_units, n_coders, n_cat, seed, agree_share=0.7):
 
 
 def _coding_data(x):
-    from agree.model import CodingData
+    from agree.core.model import CodingData
 
     n, m = x.shape
     return CodingData(codes=x, values=tuple(range(int(x.max()) + 1)),

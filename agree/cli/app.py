@@ -10,7 +10,7 @@ from typing import Any, Iterator
 import typer
 from rich.console import Console
 
-from agree.model import AgreeError
+from agree.core.model import AgreeError
 
 app = typer.Typer(
     name="agree",

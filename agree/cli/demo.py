@@ -16,11 +16,11 @@ import typer
 from rich.rule import Rule
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.diagnose import _codes_table
+from agree.cli.diagnose import print_codes
 from agree.cli.plan import print_plan
 from agree.cli.reading import report_reading
 from agree.cli.score import print_score
-from agree.model import AgreeError
+from agree.core.model import AgreeError
 
 
 def _samples_folder(given: Path | None) -> Path:
@@ -89,11 +89,16 @@ def demo(
 
 def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> None:
     """The steps of the demo, printed as they run; headline results go into `summary_json`."""
-    import agree
-    from agree.format import format_interval, plain
-    from agree.report import build_report, write_report
-    from agree.rounds import compare_rounds
-    from agree.sampling import load_codebook_categories, read_unit_ids
+    from agree.analysis.diagnostics import diagnose_codes
+    from agree.analysis.planning import plan_sample
+    from agree.analysis.rounds import compare_rounds
+    from agree.analysis.sampling import draw_sample, load_codebook_categories, read_unit_ids, write_coding_sheets
+    from agree.core.format import format_interval, plain
+    from agree.io.readers import read
+    from agree.output.reconciliation import write_review
+    from agree.output.report import build_report, write_report
+    from agree.stats.coefficients import krippendorff_alpha
+    from agree.stats.scoring import score
 
     codebook = folder / "codebook.csv"
     stdout.print("agree demo: synthetic interviews with volunteers of a neighbourhood repair café; "
@@ -103,14 +108,14 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     rounds = {}
     for name in ("round1", "round2"):
         step(f"Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8)")
-        data = agree.read(folder / f"{name}.csv", codebook=codebook)
+        data = read(folder / f"{name}.csv", codebook=codebook)
         report_reading(data)
         rounds[name] = data
-        scored = agree.score(data, minimum=0.8, n_resamples=boot, seed=seed)
+        scored = score(data, minimum=0.8, n_resamples=boot, seed=seed)
         print_score(scored)
         summary_json["rounds"][name] = scored.coefficients["krippendorff_alpha"].to_dict()
         if name == "round2":
-            nested = agree.krippendorff_alpha(data, n_resamples=boot, seed=seed, cluster="interview")
+            nested = krippendorff_alpha(data, n_resamples=boot, seed=seed, cluster="interview")
             alpha = scored.coefficients["krippendorff_alpha"]
             stdout.print(f"The excerpts are nested in {len(set(data.columns['interview']))} interviews: with "
                          f"--cluster interview whole interviews are resampled and alpha's interval is "
@@ -119,13 +124,13 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
                          "as rounds_long.csv has no interview column).", highlight=False)
 
     step("Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
-    codes = agree.diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
-    _codes_table(codes, top=8)
+    codes = diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
+    print_codes(codes, top=8)
 
     step("Review workbook for the round-1 disagreements (agree disagreements samples/round1.csv "
          "--codebook samples/codebook.csv -o review-round1.xlsx)")
     review_path = out / "review-round1.xlsx"
-    summary = agree.write_review(rounds["round1"], review_path, format="xlsx",
+    summary = write_review(rounds["round1"], review_path, format="xlsx",
                                  inputs=[folder / "round1.csv", codebook], options={"source": "agree demo"},
                                  force=True)
     stdout.print(f"{summary.needing_review} units to reconcile, worst first: {review_path}", highlight=False)
@@ -133,7 +138,7 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     summary_json["worst_codes"] = [str(c) for c in codes.to_frame()["code"].head(3)]
 
     step("Did round 2 beat round 1? (agree rounds samples/rounds_long.csv --codebook ...)")
-    long = agree.read(folder / "rounds_long.csv", codebook=codebook, keep=["round"])
+    long = read(folder / "rounds_long.csv", codebook=codebook, keep=["round"])
     report_reading(long)
     compared = compare_rounds(long, minimum=0.8, n_resamples=boot, seed=seed)
     for line in compared.summary_markup():
@@ -150,7 +155,7 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     summary_json["outputs"]["report"] = [str(p) for p in written if p.suffix != ".png"]
 
     step("How many units to double-code next time (agree plan --coders 3 --shares ... --expected 0.85)")
-    plan = agree.plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
+    plan = plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
                              expected=0.85, minimum=0.8, seed=seed)
     print_plan(plan)
 
@@ -164,8 +169,8 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     n = int(plan.units_needed or 100)
     if n > available:
         note(f"the plan asks for {n} units but only {available} are not yet coded; drawing all {available}")
-    drawn = agree.draw_sample(corpus, min(n, available), stratify="interview", seed=seed, exclude=already)
-    sheets = agree.write_coding_sheets(drawn, out / "sheets", coders=["amara", "bastien", "chen"],
+    drawn = draw_sample(corpus, min(n, available), stratify="interview", seed=seed, exclude=already)
+    sheets = write_coding_sheets(drawn, out / "sheets", coders=["amara", "bastien", "chen"],
                                        codebook=load_codebook_categories(codebook), shuffle=True, seed=seed,
                                        force=True)
     stdout.print(f"{len(drawn)} units drawn (stratified by interview) from the {available} not yet coded; "

@@ -12,14 +12,12 @@ import typer
 from rich.table import Table
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOption, MinOption, SeedOption,
-                               TableFormat)
+from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOption, MinOption, SeedOption, TableFormat
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
-from agree.format import format_interval, format_value
-from agree.format import format_bound
+from agree.core.format import format_bound, format_interval, format_value
 
 if TYPE_CHECKING:
-    from agree.diagnostics import CodeDiagnostics, CoderDiagnostics
+    from agree.analysis.diagnostics import CodeDiagnostics, CoderDiagnostics
 
 
 MinUnitsOption = Annotated[int, typer.Option("--min-units", help="A code used on fewer shared units "
@@ -99,7 +97,7 @@ def codes_command(
     Example: agree codes samples/multicode.xlsx --distance masi --min 0.8 --boot 2000 --seed 1
     """
     data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
-    from agree.diagnostics import diagnose_codes
+    from agree.analysis.diagnostics import diagnose_codes
 
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
                             min_units_per_code=min_units, distance=distance.value, cluster=cluster)
@@ -109,10 +107,10 @@ def codes_command(
     elif output is TableFormat.csv:
         sys.stdout.write(result.to_frame().to_csv(index=False))
     else:
-        _codes_table(result, top)
+        print_codes(result, top)
 
 
-def _codes_table(result: "CodeDiagnostics", top: int) -> None:
+def print_codes(result: "CodeDiagnostics", top: int) -> None:
     frame = result.to_frame()
     level = f"{result.confidence_level:.0%} CI"
     interval = ("" if result.alpha_ci_low is None else
@@ -197,7 +195,7 @@ def coders_command(
     Example: agree coders samples/ratings.csv --codebook samples/ratings_codebook.csv --boot 2000 --seed 1
     """
     data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
-    from agree.diagnostics import diagnose_coders
+    from agree.analysis.diagnostics import diagnose_coders
 
     result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,
                              seed=seed, distance=distance.value, cluster=cluster)

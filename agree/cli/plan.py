@@ -11,10 +11,10 @@ from rich.table import Table
 from rich.text import Text
 
 from agree.cli.app import app, note, print_json, progress_bar, stdout
-from agree.model import AgreeError
+from agree.core.model import AgreeError
 
 if TYPE_CHECKING:
-    from agree.planning import Plan
+    from agree.analysis.planning import Plan
 
 
 class OutputFormat(str, Enum):
@@ -71,7 +71,8 @@ def plan(
     if plot is not None and plot.suffix.lower() != ".png":
         raise AgreeError(f"--plot writes a PNG file; got '{plot.name}'", hint="name it e.g. assurance.png",
                          code="plot-format")
-    from agree.planning import plan_sample, save_assurance_plot
+    from agree.analysis.planning import plan_sample
+    from agree.output.plots import assurance_figure, save_figure
 
     with progress_bar("plan") as tick:
         result = plan_sample(coders=coders, expected=expected, minimum=minimum, categories=categories,
@@ -79,7 +80,7 @@ def plan(
                              assurance=assurance, missing=missing, seed=seed, replicates=replicates,
                              n_resamples=boot, max_units=max_units, corpus_size=corpus_size, progress=tick)
     if plot is not None:
-        save_assurance_plot(result, plot)
+        save_figure(assurance_figure(result), plot, dpi=120)
         note(f"assurance curve written to {plot}")
     if output_format is OutputFormat.json:
         print_json(result.to_dict())
@@ -167,8 +168,13 @@ def sample(
 
     Example: agree sample samples/corpus.csv -n 120 --stratify interview --coders amara,bastien --codebook samples/codebook.csv --exclude samples/round1.csv --exclude samples/round2.csv -o sheets/
     """
-    from agree.sampling import (draw_sample, load_codebook_categories, read_corpus, read_unit_ids,
-                                write_coding_sheets)
+    from agree.analysis.sampling import (
+        draw_sample,
+        load_codebook_categories,
+        read_corpus,
+        read_unit_ids,
+        write_coding_sheets,
+    )
 
     frame = read_corpus(corpus, sheet=sheet)
     exclude_files = list(exclude or [])

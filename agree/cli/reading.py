@@ -18,8 +18,8 @@ from typing import Annotated, Any, Optional, Sequence
 import typer
 
 from agree.cli.app import note
-from agree.model import CodingData
-from agree.readers import read
+from agree.core.model import CodingData
+from agree.io.readers import read
 
 
 class Layout(str, Enum):

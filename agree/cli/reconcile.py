@@ -11,7 +11,7 @@ from rich.table import Table
 
 from agree.cli.app import app, note, print_json, stdout
 from agree.cli.reading import CodebookOption, Files, LevelOption, load_data, reading_options
-from agree.model import AgreeError
+from agree.core.model import AgreeError
 
 
 class ReviewFormat(str, Enum):
@@ -108,7 +108,7 @@ def disagreements(
     options = _recorded({**reading, "include_agreed": include_agreed})
     options["sep"] = reading["sep"]
     inputs = list(files) + ([codebook] if codebook else [])
-    from agree.reconciliation import write_review
+    from agree.output.reconciliation import write_review
 
     summary = write_review(data, output, format=file_format, inputs=inputs, options=options,
                            include_agreed=include_agreed, force=force)
@@ -180,7 +180,7 @@ def reconcile_command(
     reading = {**reading, **_reading(codebook=codebook, level=level)}
     data = load_data(files, **reading)
     file_format, shown = _split_format(format, summary_format)
-    from agree.reconciliation import reconcile, unresolved_listing, write_consensus
+    from agree.output.reconciliation import reconcile, unresolved_listing, write_consensus
 
     consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority)
     inputs = [review_file, *files] + ([codebook] if codebook else [])

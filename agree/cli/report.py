@@ -12,8 +12,8 @@ from rich.table import Table
 from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
 from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, MinOption, SeedOption
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
-from agree.files import atomic_write_bytes, check_output
-from agree.model import AgreeError
+from agree.core.files import check_output
+from agree.core.model import AgreeError
 
 
 class OutputFormat(str, Enum):
@@ -130,8 +130,8 @@ def report(
 
     Example: agree report samples/round1.csv samples/round2.csv --round-files --codebook samples/codebook.csv -o report.md
     """
-    from agree.report import build_report, write_report
-    from agree.rounds import compare_rounds
+    from agree.analysis.rounds import compare_rounds
+    from agree.output.report import build_report, write_report
 
     if output.suffix.lower() not in (".html", ".htm", ".md", ".markdown", ".docx", ".tex"):
         raise AgreeError(f"cannot tell the report format from '{output.name}'",
@@ -184,9 +184,8 @@ def report(
 
 
 def _print_coefficients(result: Any) -> None:
-    from agree.format import format_interval, format_value
-    from agree.format import plain
-    from agree.report import result_label
+    from agree.core.format import format_interval, format_value, plain
+    from agree.output.report import result_label
 
     table = Table(title=result.title, title_justify="left")
     for header in ("Coefficient", "Estimate", "SE", f"{result.confidence_level:.0%} CI",
@@ -229,7 +228,7 @@ def rounds(
 
     Example: agree rounds samples/rounds_long.csv --round-column round --codebook samples/codebook.csv
     """
-    from agree.rounds import compare_rounds
+    from agree.analysis.rounds import compare_rounds
 
     books = parse_codebooks(codebooks)
     if plot is not None:
@@ -253,7 +252,9 @@ def rounds(
         groups = ", ".join(f"{k}: {v}" for k, v in (result.n_clusters or {}).items())
         note(f"intervals: whole {result.cluster} groups resampled within each round ({groups} groups)")
     if plot is not None:
-        _write_plot(result, plot)
+        from agree.output.plots import rounds_trend_figure, save_figure
+
+        save_figure(rounds_trend_figure(result), plot)
         note(f"wrote {plot}")
     if output_format is OutputFormat.json:
         print_json(result.to_dict())
@@ -261,18 +262,8 @@ def rounds(
     _print_rounds(result)
 
 
-def _write_plot(result: Any, path: Path) -> None:
-    import io
-
-
-    buffer = io.BytesIO()
-    result.trend_figure().savefig(buffer, format=path.suffix.lower().lstrip("."), dpi=150, bbox_inches="tight",
-                                  facecolor="white")
-    atomic_write_bytes(path, buffer.getvalue())
-
-
 def _print_rounds(result: Any) -> None:
-    from agree.format import format_interval, format_value
+    from agree.core.format import format_interval, format_value
 
     minimum = format_value(result.minimum, "threshold")
     table = Table(title=f"Agreement per round (Krippendorff's α, {result.level})", title_justify="left")

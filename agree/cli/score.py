@@ -13,13 +13,22 @@ import typer
 from rich.table import Table
 
 from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
-from agree.cli.options import (DEFAULT_BOOT, DEFAULT_SEED, BootOption, CIOption, FormatOption, MinOption,
-                               SeedOption, TableFormat)
+from agree.cli.options import (
+    DEFAULT_BOOT,
+    DEFAULT_SEED,
+    BootOption,
+    CIOption,
+    FormatOption,
+    MinOption,
+    SeedOption,
+    TableFormat,
+)
 from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
-from agree.format import format_interval, format_value
-from agree.model import AgreeError
-from agree.results import display_name
-from agree.scoring import ScoreResult, score as run_score
+from agree.core.format import format_interval, format_value
+from agree.core.model import AgreeError
+from agree.core.results import display_name
+from agree.stats.scoring import ScoreResult
+from agree.stats.scoring import score as run_score
 
 
 class CIMethod(str, Enum):

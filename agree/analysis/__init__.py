@@ -1,0 +1,1 @@
+"""Diagnostics, rounds, planning and sampling. Imports core, io and stats."""

@@ -1,0 +1,226 @@
+"""Number and text formatting shared by the CLI and every report format, so numbers never disagree.
+
+Report text is written in a small markup: ``*italic*`` for statistical symbols and
+``[[placeholder]]`` for what the author must fill in; `lit` escapes user text (code names,
+file names) so it is never read as markup.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+import re
+from typing import TYPE_CHECKING, Any, Sequence
+
+import numpy as np
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from agree.core.results import AgreementResult
+
+
+def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
+    """Format one number for display, the same way everywhere.
+
+    kind
+        "coefficient": bounded by 1, no leading zero (APA), ``digits`` decimals: ``.84``, ``−.12``.
+        "probability": no leading zero, 3 decimals, ``< .001`` below that.
+        "threshold": no leading zero, 3 decimals (``.800``, ``.667``).
+        "se" / "number": leading zero, ``digits`` decimals.
+        "count": integer with thousands separators; "amount": the same, one decimal if fractional.
+        "percent": a share (0..1) as a percentage with one decimal.
+    Missing, None and NaN give an en dash. Negative numbers use the minus sign (U+2212).
+    """
+    if x is None or isinstance(x, str) and not x:
+        return "–"
+    if isinstance(x, str):
+        return x
+    if isinstance(x, (bool, np.bool_)):
+        return "yes" if x else "no"
+    v = float(x)
+    if not math.isfinite(v):
+        return "–"
+    if kind == "count":
+        return f"{int(round(v)):,}"
+    if kind == "amount":
+        return f"{int(v):,}" if v.is_integer() else f"{v:,.1f}"
+    if kind == "percent":
+        return f"{100 * v:.1f}%"
+    if kind == "probability":
+        if 0 < v < 0.001:
+            return "< .001"
+        text = f"{v:.3f}"
+    elif kind == "threshold":
+        text = f"{v:.3f}"
+    elif kind in ("se", "number", "coefficient"):
+        text = f"{v:.{digits}f}"
+    else:
+        raise ValueError(f"unknown kind {kind!r}")
+    if text.startswith("-") and float(text) == 0:
+        text = text[1:]
+    if kind in ("coefficient", "probability", "threshold"):
+        text = re.sub(r"^(-?)0\.", r"\1.", text)
+    return text.replace("-", "\u2212")
+
+
+def format_bound(x: Any, minimum: float | None = None) -> str:
+    """A one-sided lower bound for display: three decimals, rounded down where rounding to the
+    nearest would reach `minimum`, so a bound below the minimum is never shown as reaching it
+    (.7996 -> ``.799`` with minimum .8; without a minimum always rounded down)."""
+    if x is None or isinstance(x, str):
+        return format_value(x, "threshold")
+    v = float(x)
+    if not math.isfinite(v):
+        return "–"
+    nearest = round(v, 3)
+    if minimum is None or (v < minimum <= nearest):
+        return format_value(math.floor(v * 1000 + 1e-9) / 1000, "threshold")
+    return format_value(nearest, "threshold")
+
+
+def format_interval(low: Any, high: Any, digits: int = 2) -> str:
+    """``[.79, .88]``; an en dash when there is no interval."""
+    if low is None or high is None or not (math.isfinite(float(low)) and math.isfinite(float(high))):
+        return "–"
+    return f"[{format_value(low, 'coefficient', digits)}, {format_value(high, 'coefficient', digits)}]"
+
+
+def lit(text: Any) -> str:
+    """Escape user text (code names, file names) so it is never read as markup."""
+    return str(text).replace("\\", "\\\\").replace("*", "\\*").replace("[", "\\[")
+
+
+def spans(markup: str) -> list[tuple[str, str]]:
+    """Split markup into (kind, text) pieces: kind is "text", "italic" or "placeholder"."""
+    out: list[tuple[str, str]] = []
+    buf: list[str] = []
+    kind = "text"
+    i = 0
+
+    def flush(new_kind: str) -> None:
+        nonlocal kind
+        if buf:
+            out.append((kind, "".join(buf)))
+            buf.clear()
+        kind = new_kind
+
+    while i < len(markup):
+        ch = markup[i]
+        if ch == "\\" and i + 1 < len(markup):
+            buf.append(markup[i + 1])
+            i += 2
+            continue
+        if ch == "*" and kind in ("text", "italic"):
+            flush("italic" if kind == "text" else "text")
+        elif markup.startswith("[[", i) and kind == "text":
+            flush("placeholder")
+            i += 1
+        elif markup.startswith("]]", i) and kind == "placeholder":
+            buf[:0] = ["["]
+            buf.append("]")
+            flush("text")
+            i += 1
+        else:
+            buf.append(ch)
+        i += 1
+    flush("text")
+    return out
+
+
+def plain(markup: str) -> str:
+    """Markup as plain text (placeholders keep their brackets)."""
+    return "".join(text for _, text in spans(markup))
+
+
+def _notebook_cell(v: Any, counts: bool = False) -> str:
+    if isinstance(v, (frozenset, set)):
+        return "; ".join(sorted(str(x) for x in v)) or "–"
+    if isinstance(v, (bool, np.bool_)):
+        return "yes" if v else "no"
+    if isinstance(v, (int, np.integer)):
+        return f"{int(v):,}"
+    if isinstance(v, (float, np.floating)):
+        if not math.isfinite(float(v)):
+            return "–"
+        if counts:
+            return f"{int(v):,}"
+        return format_value(v, "number", 3)
+    if v is None or (isinstance(v, str) and not v):
+        return "–"
+    return str(v)
+
+
+def notebook_html(summary: str, frame: "pd.DataFrame", *, notes: Sequence[str] = (),
+                  max_rows: int = 60) -> str:
+    """A result for a notebook: one summary line and its main table (an HTML fragment).
+
+    All text is HTML-escaped; missing values and NaN show as an en dash; numbers get three
+    decimals (whole counts none). Long tables show their first and last rows."""
+    shown = frame.astype(object).copy()
+    for j in range(frame.shape[1]):
+        column = frame.iloc[:, j]
+        finite = column[np.isfinite(column)] if column.dtype.kind in "fiu" else column.iloc[:0]
+        counts = bool(len(finite) and (finite == np.round(finite)).all() and (finite.abs() > 1).any())
+        shown.iloc[:, j] = [_notebook_cell(v, counts) for v in column]
+    table = shown.to_html(index=False, escape=True, na_rep="–", max_rows=max_rows,
+                          border=0, classes="agree-table")
+    notes_html = "".join(f"<p><small>{html.escape(str(n))}</small></p>" for n in notes)
+    return f'<div class="agree-result"><p>{html.escape(summary)}</p>\n{table}\n{notes_html}</div>'
+
+
+# -- the decision against a minimum ------------------------------------------------------
+
+_DISPLAY_NAMES = {
+    "krippendorff_alpha": "alpha", "cohen_kappa": "kappa", "fleiss_kappa": "Fleiss' kappa",
+    "conger_kappa": "Conger's kappa", "scott_pi": "pi", "gwet_ac1": "AC1", "gwet_ac2": "AC2",
+    "brennan_prediger": "Brennan-Prediger kappa", "pabak": "PABAK",
+    "percent_agreement": "percent agreement",
+}
+
+
+def percent_label(level: float) -> str:
+    """0.95 -> '95%', 0.975 -> '97.5%'."""
+    return f"{round(level * 100, 4):g}%"
+
+
+def _apa(x: float, digits: int) -> str:
+    """A bounded coefficient without the leading zero (APA): .84, -.12, 1.00."""
+    text = f"{x:.{digits}f}"
+    if text.startswith("0."):
+        return text[1:]
+    if text.startswith("-0."):
+        return "-" + text[2:]
+    return text
+
+
+def decision_sentence(result: "AgreementResult", minimum: float, confidence_level: float | None = None,
+                      *, digits: int = 2) -> str:
+    """Whether a coefficient's lower confidence bound clears a minimum, as one sentence.
+
+    Uses the one-sided lower bound (`result.lower_bound`) when there is one, else the lower end
+    of the two-sided interval, and says which. "Clears" means strictly above the minimum. When
+    rounding would show the bound and the minimum as equal, more digits are shown.
+
+    Examples: "alpha = .84; the one-sided 95% lower bound .80 clears the minimum .80" (with
+    ``digits=2`` and a bound of .803 this becomes "... lower bound .803 clears the minimum .800").
+    """
+    name = _DISPLAY_NAMES.get(result.name, result.name.replace("_", " "))
+    level = result.confidence_level if confidence_level is None else confidence_level
+    estimate = result.estimate
+    if estimate is None or not math.isfinite(estimate):
+        return f"{name} is undefined, so it cannot be compared with the minimum {_apa(minimum, digits)}"
+    if result.lower_bound is not None and math.isfinite(result.lower_bound):
+        bound, kind = result.lower_bound, f"the one-sided {percent_label(level)} lower bound"
+    elif result.ci_low is not None and math.isfinite(result.ci_low):
+        bound, kind = result.ci_low, f"the lower end of the two-sided {percent_label(level)} interval"
+    else:
+        return (f"{name} = {_apa(estimate, digits)}; no confidence bound is available, so the minimum "
+                f"{_apa(minimum, digits)} cannot be tested")
+    clears = bound > minimum
+    shown = digits
+    while shown < 4 and bound != minimum and _apa(bound, shown) == _apa(minimum, shown):
+        shown += 1
+    verb = "clears" if clears else "does not clear"
+    return (f"{name} = {_apa(estimate, shown)}; {kind} {_apa(bound, shown)} {verb} the minimum "
+            f"{_apa(minimum, shown)}")

@@ -1,0 +1,385 @@
+"""The data model: one validated object between the importers and the maths.
+
+`CodingData` holds a units x coders table of integer codes. Each code is an index into
+`values` (the distinct values a coder can give: codebook categories, numbers, or sets of
+codes); -1 means the coder did not code the unit. Everything a reader knows about where a
+value came from (file, sheet, row, column) is kept in `provenance`, so an error or a
+reconciliation row can point at the cell.
+
+Missing means "this coder did not code this unit". A coder who coded a unit and applied no
+code gives the empty set in set-valued data, and 0 in a presence/absence recoding.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Any, Iterable, Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+
+LEVELS = ("nominal", "ordinal", "interval", "ratio")
+MISSING = -1
+
+# Columns of the consensus file `agree reconcile` writes (readers refuse to score it as coding data).
+CONSENSUS_FINAL = "final code"
+CONSENSUS_SOURCE = "source"
+CONSENSUS_SOURCES = ("agreed", "decided", "majority", "unresolved", "single coder", "not coded")
+
+
+class AgreeError(ValueError):
+    """Bad input or an impossible request. The message is one line meant for the user.
+
+    Parameters
+    ----------
+    message : the problem, in one sentence.
+    hint : what to do about it.
+    where : the location, e.g. ``"coding.xlsx, sheet 'Round 1', row 14, column 'coder_b'"``.
+    code : a stable machine-readable code such as ``"unknown-code"``.
+    """
+
+    def __init__(self, message: str, *, hint: str | None = None, where: str | None = None,
+                 code: str = "bad-input", problems: Sequence["AgreeError"] = ()):
+        self.message = message
+        self.hint = hint
+        self.where = where
+        self.code = code
+        self.problems = tuple(problems)
+        super().__init__(self.one_line())
+
+    def one_line(self) -> str:
+        text = f"{self.where}: {self.message}" if self.where else self.message
+        if self.hint:
+            text += f" (hint: {self.hint})"
+        return text
+
+
+def cell_location(file: str | None, sheet: str | None = None, row: int | None = None,
+                  column: str | None = None) -> str:
+    """Format a cell location the way every error message names it."""
+    parts = []
+    if file:
+        parts.append(str(file))
+    if sheet:
+        parts.append(f"sheet '{sheet}'")
+    if row is not None and row >= 0:
+        parts.append(f"row {row}")
+    if column is not None:
+        parts.append(f"column '{column}'")
+    return ", ".join(parts)
+
+
+@dataclass(frozen=True)
+class Provenance:
+    """Where each value came from.
+
+    `sources` lists (file, sheet, column) triples; `source` and `row` are (N, m) int arrays:
+    the index into `sources` and the spreadsheet row (1-based, as a spreadsheet counts it,
+    header included) of each value, -1 where unknown or missing.
+    """
+
+    sources: tuple[tuple[str | None, str | None, str | None], ...]
+    source: np.ndarray
+    row: np.ndarray
+
+    def where(self, unit: int, coder: int) -> str:
+        s = int(self.source[unit, coder])
+        if s < 0:
+            return ""
+        file, sheet, column = self.sources[s]
+        return cell_location(file, sheet, int(self.row[unit, coder]), column)
+
+
+@dataclass(frozen=True)
+class ReadReport:
+    """What a reader detected and did: shown to the user as one line plus notes."""
+
+    detected: str = ""
+    files: tuple[str, ...] = ()
+    units_read: int = 0
+    values_read: int = 0
+    values_missing: int = 0
+    notes: tuple[str, ...] = ()
+    left_out: tuple[str, ...] = ()
+    checksums: Mapping[str, str] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "detected": self.detected,
+            "files": list(self.files),
+            "units_read": self.units_read,
+            "values_read": self.values_read,
+            "values_missing": self.values_missing,
+            "notes": list(self.notes),
+            "left_out": list(self.left_out),
+            "checksums": dict(self.checksums),
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class CodingData:
+    """Units x coders codes, validated.
+
+    Attributes
+    ----------
+    codes : (N, m) int32 array; -1 for missing, otherwise an index into `values`.
+    values : the distinct values codes refer to, in scale order. For categorical data these
+        are the codebook categories (unused ones included, since q matters for some
+        coefficients); for numeric data the sorted numbers; for set-valued data frozensets of
+        categories.
+    unit_ids : (N,) array of unit identifiers (str).
+    coders : coder names, one per column of `codes`.
+    categories : the codebook's categories (for set-valued data, the single codes).
+    level : the level of measurement the data were declared or detected as.
+    set_valued : True when a unit can carry several codes from one coder.
+    text : optional (N,) array of unit text.
+    columns : other per-unit columns kept from the input (e.g. a round or a cluster column).
+    codebook : optional mapping category -> description.
+    provenance : optional map from each value back to its cell.
+    report : what the reader detected and did.
+    """
+
+    codes: np.ndarray
+    values: tuple
+    unit_ids: np.ndarray
+    coders: tuple[str, ...]
+    categories: tuple = ()
+    level: str = "nominal"
+    set_valued: bool = False
+    text: np.ndarray | None = None
+    columns: Mapping[str, np.ndarray] = field(default_factory=dict)
+    codebook: Mapping[Any, str] | None = None
+    provenance: Provenance | None = None
+    report: ReadReport | None = None
+    order: str = "given"  # how `values` were ordered: "given" (codebook, categories), "numeric", "alphabetical"
+
+    def __post_init__(self):
+        codes = np.asarray(self.codes)
+        if codes.ndim != 2:
+            raise AgreeError("coding data must be a units x coders table", code="shape")
+        if codes.dtype != np.int32 or codes.flags.writeable:
+            # a private read-only copy: the data cannot change under a computed result
+            codes = codes.astype(np.int32, copy=True)
+            codes.setflags(write=False)
+            object.__setattr__(self, "codes", codes)
+        if len(self.coders) != codes.shape[1]:
+            raise AgreeError("one coder name is needed per column", code="shape")
+        if len(self.unit_ids) != codes.shape[0]:
+            raise AgreeError("one unit id is needed per row", code="shape")
+        if codes.size and (codes.max(initial=-1) >= len(self.values) or codes.min(initial=0) < -1):
+            raise AgreeError("a code refers to no value", code="shape")
+        if not self.categories:
+            cats = self.values
+            if self.set_valued:
+                cats = tuple(sorted({c for s in self.values for c in s}, key=value_sort_key))
+            object.__setattr__(self, "categories", tuple(cats))
+
+    # -- shape -------------------------------------------------------------------------
+    @property
+    def n_units(self) -> int:
+        return int(self.codes.shape[0])
+
+    @property
+    def n_coders(self) -> int:
+        return int(self.codes.shape[1])
+
+    @property
+    def observed(self) -> np.ndarray:
+        """(N, m) bool: True where the coder coded the unit."""
+        return self.codes >= 0
+
+    @property
+    def values_per_unit(self) -> np.ndarray:
+        return self.observed.sum(axis=1)
+
+    @property
+    def scores(self) -> np.ndarray:
+        """Numeric score of each value: the number itself for numeric values, else its rank 1..V."""
+        try:
+            return np.array([float(v) for v in self.values], dtype=float)
+        except (TypeError, ValueError):
+            return np.arange(1, len(self.values) + 1, dtype=float)
+
+    @property
+    def is_numeric(self) -> bool:
+        if self.set_valued:
+            return False
+        try:
+            [float(v) for v in self.values]
+        except (TypeError, ValueError):
+            return False
+        return True
+
+    # -- derived data ------------------------------------------------------------------
+    def labels(self) -> pd.DataFrame:
+        """The codes as a units x coders DataFrame of values (None for missing)."""
+        lookup = np.array(list(self.values) + [None], dtype=object)
+        return pd.DataFrame(lookup[self.codes], index=pd.Index(self.unit_ids, name="unit"),
+                            columns=list(self.coders), dtype=object)
+
+    def subset(self, units: np.ndarray | slice | None = None,
+               coders: Sequence[int] | None = None) -> "CodingData":
+        """A new CodingData with some units (bool mask or indices) and/or coders."""
+        u = slice(None) if units is None else units
+        c = list(range(self.n_coders)) if coders is None else [
+            self.coders.index(x) if isinstance(x, str) else int(x) for x in coders]
+        prov = None
+        if self.provenance is not None:
+            prov = replace(self.provenance, source=self.provenance.source[u][:, c],
+                           row=self.provenance.row[u][:, c])
+        return replace(
+            self,
+            codes=self.codes[u][:, c],
+            unit_ids=self.unit_ids[u],
+            coders=tuple(self.coders[i] for i in c),
+            text=None if self.text is None else self.text[u],
+            columns={k: v[u] for k, v in self.columns.items()},
+            provenance=prov,
+        )
+
+    def presence(self, category: Any) -> "CodingData":
+        """Binary recoding for one category: 1 if the coder applied it, 0 if they coded the
+        unit without it, missing if they did not code the unit."""
+        if category not in self.categories:
+            raise AgreeError(f"'{category}' is not a category of these data", code="unknown-code")
+        if self.set_valued:
+            has = np.array([category in s for s in self.values] + [False])
+        else:
+            has = np.array([v == category for v in self.values] + [False])
+        binary = has[self.codes].astype(np.int32)
+        binary[self.codes < 0] = MISSING
+        return replace(self, codes=binary, values=(0, 1), categories=(0, 1), set_valued=False,
+                       level="nominal")
+
+    def merge(self, groups: Mapping[Any, Any]) -> "CodingData":
+        """Relabel categories (e.g. merge two confused codes): `groups` maps old -> new label."""
+        if self.set_valued:
+            raise AgreeError("merging categories applies to single-code data", code="set-valued")
+        new_labels = [groups.get(v, v) for v in self.values]
+        new_values = tuple(dict.fromkeys(new_labels))
+        index = np.array([new_values.index(x) for x in new_labels] + [MISSING], dtype=np.int32)
+        return replace(self, codes=index[self.codes], values=new_values, categories=new_values)
+
+    def with_level(self, level: str) -> "CodingData":
+        return replace(self, level=level)
+
+
+def value_sort_key(v: Any):
+    if isinstance(v, frozenset):
+        return (2, len(v), tuple(sorted(map(str, v))))
+    if isinstance(v, (int, float, np.integer, np.floating)):
+        return (0, float(v), "")
+    return (1, 0.0, str(v))
+
+
+def value_label(v: Any) -> str:
+    """A value as text for tables and messages: a set of codes joined with '; ' ("(none)" when empty)."""
+    if isinstance(v, frozenset):
+        return "; ".join(sorted(map(str, v))) or "(none)"
+    return str(v)
+
+
+def normalise_value(v: Any) -> Any:
+    """One canonical form per value: numbers that are whole become int (so 1 and 1.0 are
+    the same code), other numbers float, text stripped of nothing (readers trim on request).
+    Returns None for missing."""
+    if v is None:
+        return None
+    if isinstance(v, float) and np.isnan(v):
+        return None
+    if isinstance(v, (bool, np.bool_)):
+        return int(v)
+    if isinstance(v, (int, np.integer)):
+        return int(v)
+    if isinstance(v, (float, np.floating)):
+        f = float(v)
+        return int(f) if f.is_integer() else f
+    if isinstance(v, (set, frozenset, list, tuple)):  # several codes (lists come from str.split)
+        return frozenset(x for x in (normalise_value(x) for x in v) if x is not None)
+    if isinstance(v, str):
+        if v == "":
+            return None
+        return v
+    if v is pd.NA or v is pd.NaT:
+        return None
+    return v
+
+
+def from_table(table: Any, *, coders: Sequence[str] | None = None,
+               unit_ids: Sequence[Any] | None = None, categories: Sequence[Any] | None = None,
+               level: str | None = None) -> CodingData:
+    """Build CodingData from a units x coders array, list of rows or DataFrame.
+
+    Missing values are None, NaN or empty strings. Values that are sets (or frozensets) make
+    set-valued data. `categories` fixes the category list and order (unused categories
+    included); by default the sorted observed values.
+    """
+    if isinstance(table, CodingData):
+        return table
+    if isinstance(table, pd.DataFrame):
+        frame = table
+        coders = list(coders) if coders is not None else [str(c) for c in frame.columns]
+        unit_ids = list(unit_ids) if unit_ids is not None else [str(i) for i in frame.index]
+        raw = frame.to_numpy(dtype=object)
+    else:
+        raw = np.asarray(table, dtype=object)
+        if raw.ndim != 2:
+            raise AgreeError("coding data must be two-dimensional: units in rows, coders in columns",
+                             code="shape")
+        coders = list(coders) if coders is not None else [f"coder_{i + 1}" for i in range(raw.shape[1])]
+        unit_ids = list(unit_ids) if unit_ids is not None else [str(i + 1) for i in range(raw.shape[0])]
+    flat = [normalise_value(v) for v in raw.ravel()]
+    set_valued = any(isinstance(v, frozenset) for v in flat)
+    if set_valued:
+        flat = [v if v is None or isinstance(v, frozenset) else frozenset([v]) for v in flat]
+    observed = {v for v in flat if v is not None}
+    if categories is not None:
+        cats = tuple(normalise_value(c) for c in categories)
+        if len(set(cats)) != len(cats):
+            twice = sorted({str(c) for c in cats if cats.count(c) > 1})
+            raise AgreeError(f"categories listed twice: {', '.join(twice)}", code="categories")
+        known = set(cats)
+        unknown = ({c for s in observed for c in s} if set_valued else observed) - known
+        if unknown:
+            bad = sorted(map(str, unknown))[:5]
+            raise AgreeError(f"values not among the categories: {', '.join(bad)}",
+                             hint="add them to the category list or fix the data", code="unknown-code")
+        values = tuple(sorted(observed, key=value_sort_key)) if set_valued else cats
+    else:
+        values = tuple(sorted(observed, key=value_sort_key))
+        cats = None
+    index = {v: i for i, v in enumerate(values)}
+    codes = np.array([MISSING if v is None else index[v] for v in flat], dtype=np.int32)
+    codes = codes.reshape(raw.shape)
+    numeric = all(isinstance(v, (int, float)) for v in values)
+    data = CodingData(codes=codes, values=values, unit_ids=np.array(unit_ids, dtype=object),
+                      coders=tuple(str(c) for c in coders), categories=tuple(cats or ()),
+                      set_valued=set_valued, level=level or ("nominal"),
+                      order="given" if categories is not None else "numeric" if numeric else "alphabetical")
+    if level is not None and level not in LEVELS and not set_valued:
+        raise AgreeError(f"level must be one of {', '.join(LEVELS)}; got '{level}'", code="level")
+    return data
+
+
+def as_coding_data(data: Any, *, categories: Sequence[Any] | None = None) -> CodingData:
+    """Accept CodingData, a DataFrame or an array; with `categories` re-index CodingData."""
+    if isinstance(data, CodingData):
+        if categories is None:
+            return data
+        return reindex_categories(data, categories)
+    return from_table(data, categories=categories)
+
+
+def reindex_categories(data: CodingData, categories: Iterable[Any]) -> CodingData:
+    """Re-express codes over a given category list (which must contain every observed value)."""
+    cats = tuple(normalise_value(c) for c in categories)
+    if data.set_valued:
+        return replace(data, categories=cats, order="given")
+    pos = {v: i for i, v in enumerate(cats)}
+    used = set(np.unique(data.codes[data.codes >= 0]).tolist())
+    missing = [data.values[i] for i in used if data.values[i] not in pos]
+    if missing:
+        raise AgreeError(f"values not among the categories: {', '.join(map(str, missing[:5]))}",
+                         code="unknown-code")
+    mapping = np.array([pos.get(v, 0) for v in data.values] + [MISSING], dtype=np.int32)
+    return replace(data, codes=mapping[data.codes], values=cats, categories=cats, order="given")

@@ -1,0 +1,161 @@
+"""Result types. One frozen type for every coefficient; nothing here prints or rounds."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+# Plain-text names of the coefficients, for messages and tables (reports add Greek symbols).
+DISPLAY_NAMES = {
+    "percent_agreement": "percent agreement",
+    "cohen_kappa": "Cohen's kappa",
+    "weighted_kappa_linear": "weighted kappa (linear weights)",
+    "weighted_kappa_quadratic": "weighted kappa (quadratic weights)",
+    "weighted_kappa_custom": "weighted kappa (custom weights)",
+    "scott_pi": "Scott's pi",
+    "fleiss_kappa": "Fleiss' kappa",
+    "conger_kappa": "Conger's kappa",
+    "brennan_prediger": "Brennan-Prediger",
+    "gwet_ac1": "Gwet's AC1",
+    "gwet_ac2": "Gwet's AC2",
+    "pabak": "PABAK",
+    "krippendorff_alpha": "Krippendorff's alpha",
+}
+
+
+def display_name(name: str) -> str:
+    return DISPLAY_NAMES.get(name, name.replace("_", " "))
+
+
+@dataclass(frozen=True)
+class Note:
+    """A machine-readable warning: a stable `code` and one plain sentence."""
+
+    code: str
+    message: str
+
+    def to_dict(self) -> dict[str, str]:
+        return {"code": self.code, "message": self.message}
+
+
+@dataclass(frozen=True)
+class BootstrapInfo:
+    """How an interval was resampled, recorded so it can be reported and repeated."""
+
+    replicates: int
+    seed: int | None
+    method: str              # "bca" or "percentile"
+    unit: str = "unit"       # "unit", or "cluster:<column>" when whole groups were resampled
+    n_undefined: int = 0     # replicates where the coefficient was undefined (left out)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"replicates": self.replicates, "seed": self.seed, "method": self.method,
+                "unit": self.unit, "n_undefined": self.n_undefined}
+
+
+def json_safe(x: Any) -> Any:
+    """JSON-safe: NaN and inf become None, numpy scalars become Python numbers."""
+    if x is None:
+        return None
+    if hasattr(x, "item") and not isinstance(x, (list, dict, str)):
+        try:
+            x = x.item()
+        except (ValueError, AttributeError):
+            pass
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    if isinstance(x, dict):
+        return {str(k): json_safe(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [json_safe(v) for v in x]
+    return x
+
+
+@dataclass(frozen=True)
+class AgreementResult:
+    """The result of every agreement coefficient.
+
+    `estimate` is NaN (with a warning saying why) when the coefficient is undefined.
+    `se` is the analytic standard error where a published estimator exists (`se_method`
+    names it), otherwise the bootstrap standard deviation, otherwise None.
+    `ci_low`/`ci_high` is a two-sided interval at `confidence_level`, made by `ci_method`.
+    `lower_bound` is the one-sided lower confidence bound at the same level (bootstrap).
+    `p_below_min` is the share of bootstrap replicates below `minimum`; without a bootstrap,
+    where an analytic SE exists, it is the normal (or t) approximation P(θ < minimum).
+    Kappa-type results carry `z`, `p_value` (two-sided) and `p_value_one_sided` for
+    H0: no agreement beyond chance.
+    `replicates` holds the bootstrap values the interval was made from (not in `to_dict()`),
+    e.g. for intervals of differences computed from independent resamples.
+    """
+
+    name: str
+    estimate: float
+    se: float | None = None
+    ci_low: float | None = None
+    ci_high: float | None = None
+    confidence_level: float = 0.95
+    ci_method: str | None = None
+    se_method: str | None = None
+    n_units: int = 0
+    n_coders: int = 0
+    n_values: int = 0
+    n_categories: int = 0
+    level: str | None = None
+    weights: str | None = None
+    z: float | None = None
+    p_value: float | None = None
+    p_value_one_sided: float | None = None
+    minimum: float | None = None
+    p_below_min: float | None = None
+    lower_bound: float | None = None
+    bootstrap: BootstrapInfo | None = None
+    details: Mapping[str, Any] = field(default_factory=dict)
+    warnings: tuple[Note, ...] = ()
+    replicates: Any = field(default=None, repr=False, compare=False)  # the bootstrap θ* (B,), NaN if undefined
+
+    @property
+    def defined(self) -> bool:
+        return math.isfinite(self.estimate)
+
+    def to_dict(self) -> dict[str, Any]:
+        return json_safe({
+            "name": self.name,
+            "estimate": self.estimate,
+            "se": self.se,
+            "se_method": self.se_method,
+            "ci_low": self.ci_low,
+            "ci_high": self.ci_high,
+            "confidence_level": self.confidence_level,
+            "ci_method": self.ci_method,
+            "n_units": self.n_units,
+            "n_coders": self.n_coders,
+            "n_values": self.n_values,
+            "n_categories": self.n_categories,
+            "level": self.level,
+            "weights": self.weights,
+            "z": self.z,
+            "p_value": self.p_value,
+            "p_value_one_sided": self.p_value_one_sided,
+            "minimum": self.minimum,
+            "p_below_min": self.p_below_min,
+            "lower_bound": self.lower_bound,
+            "bootstrap": None if self.bootstrap is None else self.bootstrap.to_dict(),
+            "details": dict(self.details),
+            "warnings": [w.to_dict() for w in self.warnings],
+        })
+
+    def _repr_html_(self) -> str:
+        import pandas as pd
+
+        from agree.core.format import notebook_html
+
+        row = {"estimate": self.estimate, "se": self.se, "ci_low": self.ci_low, "ci_high": self.ci_high,
+               "n_units": self.n_units, "n_coders": self.n_coders}
+        if self.minimum is not None:
+            row.update(minimum=self.minimum, p_below_min=self.p_below_min, lower_bound=self.lower_bound)
+        how = [f"level {self.level}" if self.level else "", f"{self.weights} weights" if self.weights else "",
+               f"SE: {self.se_method}" if self.se_method else "",
+               f"{self.confidence_level:.0%} CI: {self.ci_method}" if self.ci_method else ""]
+        summary = display_name(self.name) + ": " + "; ".join(h for h in how if h)
+        return notebook_html(summary, pd.DataFrame([row]), notes=[w.message for w in self.warnings])

@@ -1,0 +1,1 @@
+"""Plots, workbooks, reports and reconciliation files. Imports every layer below."""

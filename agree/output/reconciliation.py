@@ -1,0 +1,1150 @@
+"""The reconciliation loop: list the disagreements, read the decisions back, write a consensus.
+
+Three steps, each a plain function:
+
+1. `review_table` / `write_review` list every unit the coders disagree on, worst first, as a
+   workbook (or CSV / Markdown) with empty decision columns to fill in.
+2. The team fills in the decision, how it was decided, who decided and why.
+3. `reconcile` reads the decisions back, checks them against the codebook and the data, and
+   returns a `Consensus`: one final code per unit of the input, each with its source. The
+   coders' independent codes are carried beside the final code and never changed;
+   agreement is always computed on the independent codes, never on reconciled ones.
+
+How units are classified (the same everywhere):
+
+- **needs review**: at least two coders coded the unit and they gave at least two different
+  values;
+- **agreed**: at least two coders coded the unit and all who did gave the same value (coders
+  who did not code the unit do not count against agreement);
+- **left out**: fewer than two coders coded the unit, so there is nothing to compare. Such
+  units are not in the review list; the workbook's "About this file" sheet names them. In the
+  consensus they still get their row: with one value, that value is kept with source
+  ``"single coder"``; with none, the final code is empty with source ``"not coded"``.
+
+Set-valued codes are written ``"a; b"``; the empty set (a coder who coded the unit and
+applied no code) is written ``"(none)"``, while a coder who did not code the unit gets an
+empty cell.
+
+Spreadsheet safety: text that a spreadsheet would run as a formula (starting with ``=``,
+``+``, ``-``, ``@``, a tab or a carriage return) stays text. In xlsx files such cells are
+typed as strings (with Excel's quote-prefix flag) and keep their text exactly. In CSV files
+they get one leading ``'``, and so does every text that already starts with ``'``;
+reading a CSV back removes exactly one leading ``'``.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import difflib
+import json
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+
+from agree.core.constants import VERSION
+from agree.core.files import atomic_write, check_output, sha256_file  # noqa: F401 (sha256_file re-exported)
+from agree.core.model import CONSENSUS_FINAL as FINAL
+from agree.core.model import CONSENSUS_SOURCE as SOURCE
+from agree.core.model import CONSENSUS_SOURCES as SOURCES
+from agree.core.model import AgreeError, CodingData, as_coding_data, cell_location, normalise_value, value_sort_key
+
+# Column headers of the review file. The workbook is read back by these names, so a team
+# can move or add columns freely.
+UNIT = "unit"
+TEXT = "text"
+STATUS = "status"
+CODES_INVOLVED = "codes involved"
+DEFINITIONS = "definitions"
+DECISION = "decision"
+HOW = "how decided"
+WHO = "decided by"
+NOTES = "notes"
+
+HOW_CHOICES = ("discussion", "adjudicator", "majority")
+SET_SEPARATOR = "; "
+NONE_LABEL = "(none)"
+REVIEW_SHEET = "Review"
+PAIRS_SHEET = "Confused pairs"
+ABOUT_SHEET = "About this file"
+LISTS_SHEET = "Lists"
+REVIEW_FORMATS = ("xlsx", "csv", "md")
+CONSENSUS_FORMATS = ("csv", "xlsx")
+
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+_LIST_LITERAL_LIMIT = 255  # Excel's limit on an inline list in a data-validation formula
+_UNRESOLVED_SHOWN = 20
+_LEFT_OUT_REASONS = {"single coder": "coded by one coder only", "not coded": "coded by no coder"}
+_INDEPENDENCE_NOTE = ("Agreement is computed on the coders' independent codes, never on "
+                      "reconciled ones.")
+
+
+# -- results -------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class ReviewSummary:
+    """What `write_review` wrote: counts that account for every unit read."""
+
+    path: str
+    format: str
+    units_read: int
+    agreed: int
+    needing_review: int
+    left_out: tuple[tuple[str, str], ...]  # (unit id, why)
+    rows_written: int
+    checksums: Mapping[str, str] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "path": self.path,
+            "format": self.format,
+            "units_read": self.units_read,
+            "agreed": self.agreed,
+            "needing_review": self.needing_review,
+            "left_out": len(self.left_out),
+            "left_out_units": [{"unit": u, "reason": r} for u, r in self.left_out],
+            "rows_written": self.rows_written,
+            "inputs": dict(self.checksums),
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class Consensus:
+    """One final code per unit, with where it came from.
+
+    Attributes
+    ----------
+    table : one row per unit of the input, in input order: ``unit``, the data's other
+        per-unit columns (e.g. ``interview``), ``text`` (when the data
+        have it), ``final code`` (the value itself, a frozenset for set-valued data, None when
+        there is none), ``source`` (one of ``SOURCES``), ``how decided``, ``decided by``,
+        ``notes``, then one column per coder with the coder's independent code.
+    units_read, agreed, decided, majority : unit counts by source.
+    unresolved : ids of units that still need a decision (written with an empty final code).
+    unresolved_rows : their rows in the review sheet, as the spreadsheet counts them (None
+        for a unit the review file does not list).
+    left_out : (unit id, why) for units fewer than two coders coded and nobody decided.
+    review : the review file read (or "review table" when the decisions came as a DataFrame).
+    notes : anything the user should know (e.g. a data file changed since the review).
+    """
+
+    table: pd.DataFrame
+    units_read: int
+    agreed: int
+    decided: int
+    majority: int
+    unresolved: tuple[str, ...]
+    left_out: tuple[tuple[str, str], ...]
+    review: str = "review table"
+    notes: tuple[str, ...] = ()
+    unresolved_rows: tuple[int | None, ...] = ()
+
+    def _repr_html_(self) -> str:
+        from agree.core.format import notebook_html
+
+        summary = (f"Consensus from {self.review}: {self.units_read} units read; {self.agreed} agreed, "
+                   f"{self.decided} decided, {self.majority} by majority, {len(self.unresolved)} "
+                   f"unresolved, {len(self.left_out)} left out (fewer than two coders).")
+        return notebook_html(summary, consensus_frame(self), notes=self.notes)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "review": self.review,
+            "units_read": self.units_read,
+            "agreed": self.agreed,
+            "decided": self.decided,
+            "majority": self.majority,
+            "unresolved": len(self.unresolved),
+            "unresolved_units": list(self.unresolved),
+            "unresolved_review_rows": list(self.unresolved_rows),
+            "left_out": len(self.left_out),
+            "left_out_units": [{"unit": u, "reason": r} for u, r in self.left_out],
+            "written": int(len(self.table)),
+            "notes": list(self.notes),
+        }
+
+
+# -- classifying units ---------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class _Status:
+    n_values: np.ndarray     # values per unit
+    distinct: np.ndarray     # distinct values per unit
+    spread: np.ndarray       # range of scores on ordinal and numeric scales, else 0
+
+    @property
+    def left_out(self) -> np.ndarray:
+        return self.n_values < 2
+
+    @property
+    def agreed(self) -> np.ndarray:
+        return (self.n_values >= 2) & (self.distinct == 1)
+
+    @property
+    def needs_review(self) -> np.ndarray:
+        return (self.n_values >= 2) & (self.distinct > 1)
+
+    def worst_first(self, mask: np.ndarray) -> np.ndarray:
+        """Indices of the units in `mask`, most distinct codes first, then widest spread,
+        ties in unit order."""
+        idx = np.nonzero(mask)[0]
+        order = np.lexsort((idx, -self.spread[idx], -self.distinct[idx]))
+        return idx[order]
+
+
+def _status(data: CodingData) -> _Status:
+    codes = data.codes
+    observed = codes >= 0
+    absent = len(data.values)
+    ordered = np.sort(np.where(observed, codes, absent), axis=1)
+    changes = (ordered[:, 1:] != ordered[:, :-1]) & (ordered[:, 1:] != absent)
+    distinct = (ordered[:, 0] != absent).astype(np.int64) + changes.sum(axis=1)
+    spread = np.zeros(data.n_units)
+    if data.level != "nominal" and not data.set_valued and data.n_units and data.values:
+        scores = np.where(observed, data.scores[np.where(observed, codes, 0)], np.nan)
+        with np.errstate(invalid="ignore"):
+            has = observed.any(axis=1)
+            spread[has] = np.nanmax(scores[has], axis=1) - np.nanmin(scores[has], axis=1)
+    return _Status(observed.sum(axis=1), distinct, spread)
+
+
+def _left_out(data: CodingData, status: _Status) -> tuple[tuple[str, str], ...]:
+    idx = np.nonzero(status.left_out)[0]
+    return tuple((str(data.unit_ids[i]),
+                  _LEFT_OUT_REASONS["single coder" if status.n_values[i] == 1 else "not coded"])
+                 for i in idx)
+
+
+# -- labels --------------------------------------------------------------------------------
+def _category_order(data: CodingData) -> dict[Any, int]:
+    return {c: i for i, c in enumerate(data.categories)}
+
+
+def _label(value: Any, order: Mapping[Any, int] | None = None) -> str:
+    """How a value is shown in a cell: sets as "a; b" in codebook order, "" for missing."""
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return ""
+    if isinstance(value, frozenset):
+        if not value:
+            return NONE_LABEL
+        order = order or {}
+        items = sorted(value, key=lambda c: (order.get(c, len(order)), value_sort_key(c)))
+        return SET_SEPARATOR.join(_label(c) for c in items)
+    if isinstance(value, float):
+        return repr(value)
+    return str(value)
+
+
+def _value_labels(data: CodingData) -> np.ndarray:
+    """Label of every value, with "" appended so that code -1 (missing) maps to ""."""
+    order = _category_order(data)
+    return np.array([_label(v, order) for v in data.values] + [""], dtype=object)
+
+
+def _coder_headers(coders: Sequence[str], reserved: Sequence[str]) -> list[str]:
+    """One column per coder, named after the coder unless that clashes with a fixed column."""
+    taken = {r.lower() for r in reserved}
+    headers = []
+    for coder in coders:
+        name = coder if coder.lower() not in taken else f"coder {coder}"
+        while name.lower() in taken:
+            name = f"coder {name}"
+        taken.add(name.lower())
+        headers.append(name)
+    return headers
+
+
+# -- the review table ----------------------------------------------------------------------
+def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
+    """The units that need reconciliation, worst first, as a table of text.
+
+    Parameters
+    ----------
+    data : CodingData, DataFrame or array (units x coders).
+    include_agreed : also list the agreed units (after the disagreements, with a ``status``
+        column), for teams that want to check every unit.
+
+    Returns
+    -------
+    DataFrame with columns ``unit``, the data's other per-unit columns for context (e.g.
+    ``interview``; renamed "<name> (data)" if the name clashes), ``text`` (when the data have
+    unit text), ``status``
+    (with `include_agreed`), one column per coder (the coder's code; empty when the coder
+    did not code the unit), ``codes involved``, ``definitions`` (when the codebook has
+    definitions), and the empty ``decision``, ``how decided``, ``decided by`` and ``notes``
+    columns to fill in. Every cell is text.
+
+    Notes
+    -----
+    Order: number of distinct codes given to the unit (descending), then, on ordinal and
+    numeric scales, the range of the scores given (max - min, descending), then unit order.
+    Units fewer than two coders coded are never listed (see the module notes). For
+    set-valued data "codes involved" are the codes some but not all of the unit's coders
+    applied; otherwise the distinct codes given.
+    """
+    data = as_coding_data(data)
+    status = _status(data)
+    mask = status.needs_review | (status.agreed if include_agreed else False)
+    rows = status.worst_first(mask)
+    labels = _value_labels(data)
+    reserved = [UNIT, TEXT, STATUS, CODES_INVOLVED, DEFINITIONS, DECISION, HOW, WHO, NOTES]
+    columns: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids[rows]]}
+    kept = _kept_headers(data, reserved)
+    for name, header in kept.items():
+        columns[header] = [_text(v) for v in np.asarray(data.columns[name], dtype=object)[rows]]
+    if data.text is not None:
+        columns[TEXT] = [_text(t) for t in data.text[rows]]
+    if include_agreed:
+        columns[STATUS] = np.where(status.needs_review[rows], "disagreement", "agreed").tolist()
+    for header, j in zip(_coder_headers(data.coders, reserved + list(kept.values())),
+                         range(data.n_coders)):
+        columns[header] = labels[data.codes[rows, j]].tolist()
+    involved = [_codes_involved(data, data.codes[i]) for i in rows]
+    order = _category_order(data)
+    columns[CODES_INVOLVED] = [SET_SEPARATOR.join(_label(c, order) for c in inv) for inv in involved]
+    if data.codebook:
+        columns[DEFINITIONS] = [_definitions(data.codebook, inv, order) for inv in involved]
+    for blank in (DECISION, HOW, WHO, NOTES):
+        columns[blank] = [""] * len(rows)
+    return pd.DataFrame(columns, dtype=object)
+
+
+def _kept_headers(data: CodingData, reserved: Sequence[str]) -> dict[str, str]:
+    """Headers for the data's other per-unit columns (e.g. an interview or round column),
+    shown for context. A name that clashes with a fixed column or a coder gets " (data)"."""
+    taken = {r.lower() for r in reserved} | {str(c).lower() for c in data.coders}
+    headers = {}
+    for name in data.columns or {}:
+        header = str(name)
+        while header.lower() in taken:
+            header = f"{header} (data)"
+        taken.add(header.lower())
+        headers[name] = header
+    return headers
+
+
+def _text(value: Any) -> str:
+    value = normalise_value(value) if not isinstance(value, str) else value
+    return "" if value is None else str(value)
+
+
+def _codes_involved(data: CodingData, unit_codes: np.ndarray) -> list[Any]:
+    given = [data.values[c] for c in np.unique(unit_codes[unit_codes >= 0])]
+    if not data.set_valued:
+        return given
+    if not given:
+        return []
+    disputed = frozenset().union(*given) - frozenset.intersection(*given)
+    order = _category_order(data)
+    return sorted(disputed, key=lambda c: (order.get(c, len(order)), value_sort_key(c)))
+
+
+def _definitions(codebook: Mapping[Any, str], involved: Sequence[Any],
+                 order: Mapping[Any, int]) -> str:
+    lines = [f"{_label(c, order)}: {codebook[c]}" for c in involved if codebook.get(c)]
+    return "\n".join(lines)
+
+
+# -- confused pairs ------------------------------------------------------------------------
+PAIR_UNITS = "units (one coder code 1, another code 2)"
+PAIRS_NOTE = ("The units column counts the units in which one coder gave code 1 and another coder gave "
+              "code 2 (for set-valued codes: one applied code 1 and not code 2, another code 2 "
+              "and not code 1). A unit counts once per pair, however many coders it had, so a "
+              "unit with three different codes counts for three pairs.")
+
+
+def _pair_units(data: CodingData) -> np.ndarray:
+    """(V, V) integer counts: units in which one coder gave value c and another value k.
+
+    Notes
+    -----
+    With presence G_uc = [some coder of unit u gave c], count_ck = Σ_u G_uc G_uk (c ≠ k), over
+    units with at least two values. For set-valued data X_uic = [coder i applied code c] and
+    count_ck = Σ_u [∃i: X_uic ¬X_uik] [∃j: X_ujk ¬X_ujc]. Unlike the coincidences o_ck (which
+    weigh each unit's pairs by 1 / (m_u - 1)), these are whole units.
+    """
+    codes = data.codes
+    pairable = (codes >= 0).sum(axis=1) >= 2
+    if data.set_valued:
+        cats = list(data.categories)
+        member = np.array([[c in v for c in cats] for v in data.values] + [[False] * len(cats)],
+                          dtype=bool).reshape(len(data.values) + 1, len(cats))
+        x = member[codes[pairable]]                                     # (N, m, C)
+        only = x[:, :, :, None] & ~x[:, :, None, :]                     # coder has c, not k
+        some = only.any(axis=1)                                         # (N, C, C)
+        both = some & np.swapaxes(some, 1, 2)
+        return both.sum(axis=0).astype(np.int64)
+    n_values = len(data.values)
+    given = np.zeros((int(pairable.sum()), n_values + 1), dtype=np.int64)
+    rows, cols = np.nonzero(codes[pairable] >= 0)
+    given[rows, codes[pairable][rows, cols]] = 1
+    given = given[:, :n_values]
+    counts = given.T @ given
+    np.fill_diagonal(counts, 0)
+    return counts
+
+
+def _confused_pairs(data: CodingData) -> pd.DataFrame:
+    """The pairs of codes the coders confused, most often first.
+
+    The `PAIR_UNITS` column is the number of units in which one coder gave code 1 and another
+    code 2 (a whole number; see `_pair_units`). With exactly two coders the two directions are shown
+    as well, from `agree.analysis.diagnostics.confusion_table` (they add up to ``units``). Set-valued
+    data are compared code by code.
+    """
+    from agree.analysis.diagnostics import confusion_table
+
+    order = _category_order(data)
+    labels = [_label(c, order) for c in (data.categories if data.set_valued else data.values)]
+    counts = _pair_units(data)
+    k, l = np.triu_indices(len(labels), 1)
+    units = counts[k, l]
+    keep = units > 0
+    k, l, units = k[keep], l[keep], units[keep]
+    rank = np.lexsort((l, k, -units))
+    k, l, units = k[rank], l[rank], units[rank]
+    names = np.array(labels, dtype=object)
+    frame = pd.DataFrame({"code 1": names[k].tolist(), "code 2": names[l].tolist(),
+                          PAIR_UNITS: [int(u) for u in units]})
+    if data.n_coders == 2:
+        a, b = data.coders
+        directed = confusion_table(data, directed=True).to_numpy()
+        frame[f"{a} says code 1, {b} says code 2"] = [int(round(v)) for v in directed[k, l]]
+        frame[f"{a} says code 2, {b} says code 1"] = [int(round(v)) for v in directed[l, k]]
+    return frame
+
+
+# -- writing files -------------------------------------------------------------------------
+def protect_text(text: str) -> str:
+    """Text as written to a CSV cell: one leading ``'`` when a spreadsheet would read the
+    text as a formula (or when it already starts with ``'``, so reading back is exact)."""
+    if text[:1] in _FORMULA_START or text[:1] == "'":
+        return "'" + text
+    return text
+
+
+def unprotect_text(text: str) -> str:
+    """Undo `protect_text`: remove exactly one leading ``'``."""
+    return text[1:] if text[:1] == "'" else text
+
+
+def _infer_format(path: Path, fmt: str | None, allowed: Sequence[str]) -> str:
+    if fmt is None:
+        fmt = path.suffix.lower().lstrip(".") or allowed[0]
+        if fmt == "markdown":
+            fmt = "md"
+    if fmt not in allowed:
+        raise AgreeError(f"cannot write '{fmt}' files here; choose one of {', '.join(allowed)}",
+                         hint="set the format explicitly or use a matching file suffix",
+                         code="format")
+    return fmt
+
+
+def _input_checksums(data: CodingData, inputs: Sequence[str | os.PathLike] | None) -> dict[str, str]:
+    known = dict(data.report.checksums) if data.report is not None else {}
+    files = list(inputs) if inputs is not None else list(data.report.files if data.report else ())
+    files += [f for f in known if f not in {str(x) for x in files}]
+    out = {}
+    for f in files:
+        key = str(f)
+        out[key] = known.get(key) or sha256_file(f)
+    return out
+
+
+
+
+def _now() -> str:
+    return _dt.datetime.now().astimezone().isoformat(timespec="seconds")
+
+
+def write_review(data: Any, path: str | os.PathLike, *, format: str | None = None,
+                 inputs: Sequence[str | os.PathLike] | None = None,
+                 options: Mapping[str, Any] | None = None, include_agreed: bool = False,
+                 force: bool = False) -> ReviewSummary:
+    """Write the review list as a workbook (or CSV / Markdown) to fill in.
+
+    Parameters
+    ----------
+    data : the coding data (CodingData, DataFrame or array).
+    path : the file to write. Written atomically; never an input file; an existing file only
+        with `force`.
+    format : "xlsx", "csv" or "md"; by default from the suffix of `path`.
+    inputs : the input files to record with their sha256 checksums (by default the files the
+        data were read from; checksums from ``data.report.checksums`` when present).
+    options : the options used, recorded in the workbook so the review can be traced.
+    include_agreed : also list agreed units (see `review_table`).
+    force : replace an existing output file.
+
+    Returns
+    -------
+    ReviewSummary
+
+    Notes
+    -----
+    The xlsx workbook has three sheets: "Review" (the list, with a drop-down of the
+    codebook's codes on the decision column and of discussion / adjudicator / majority on
+    "how decided"; frozen header and unit column; wrapped text), "Confused pairs" (which
+    codes were given to the same unit, with whole-unit counts and a note saying what they
+    count) and "About this file" (inputs with
+    checksums, date and time, agree version, options, and the number of units read, agreed,
+    needing review and left out, with the left-out units named).
+    """
+    data = as_coding_data(data)
+    out = Path(path)
+    fmt = _infer_format(out, format, REVIEW_FORMATS)
+    checksums = _input_checksums(data, inputs)
+    protected = set(checksums) | set(data.report.files if data.report else ())
+    check_output(out, sorted(protected), force=force)
+    table = review_table(data, include_agreed=include_agreed)
+    status = _status(data)
+    left_out = _left_out(data, status)
+    summary = ReviewSummary(path=str(out), format=fmt, units_read=data.n_units,
+                            agreed=int(status.agreed.sum()),
+                            needing_review=int(status.needs_review.sum()), left_out=left_out,
+                            rows_written=len(table), checksums=checksums)
+    if fmt == "xlsx":
+        about = _about_rows(data, summary, options)
+        writer = lambda tmp: _write_review_xlsx(tmp, data, table, _confused_pairs(data), about)  # noqa: E731
+    elif fmt == "csv":
+        writer = lambda tmp: _write_csv(tmp, table)  # noqa: E731
+    else:
+        writer = lambda tmp: _write_markdown(tmp, table, summary)  # noqa: E731
+    atomic_write(out, writer)
+    return summary
+
+
+def _about_rows(data: CodingData, summary: ReviewSummary,
+                options: Mapping[str, Any] | None) -> list[tuple[Any, Any]]:
+    rows: list[tuple[Any, Any]] = [
+        ("what", "Review list for reconciling disagreements between coders. " + _INDEPENDENCE_NOTE),
+        ("made with", f"agree {VERSION}"),
+        ("made at", _now()),
+        ("coders", SET_SEPARATOR.join(data.coders)),
+        ("level", data.level),
+        ("set-valued", "yes" if data.set_valued else "no"),
+        ("units read", summary.units_read),
+        ("units agreed", summary.agreed),
+        ("units needing review", summary.needing_review),
+        ("units left out (fewer than two coders)", len(summary.left_out)),
+        ("rows in the review sheet", summary.rows_written),
+    ]
+    for key, value in (options or {}).items():
+        if isinstance(value, os.PathLike):
+            value = os.fspath(value)
+        elif not (value is None or isinstance(value, (int, float, str))):
+            value = json.dumps(value, default=str, ensure_ascii=False)
+        rows.append((f"option {key}", value))
+    rows.append(("", ""))
+    rows.append(("input file", "sha256"))
+    rows.extend(summary.checksums.items())
+    if summary.left_out:
+        rows.append(("", ""))
+        rows.append(("left-out unit", "why"))
+        rows.extend(summary.left_out)
+    report = data.report
+    if report is not None and (report.left_out or report.notes):
+        rows.append(("", ""))
+        rows.append(("while reading", ""))
+        rows.extend(("left out", line) for line in report.left_out)
+        rows.extend(("note", line) for line in report.notes)
+    return rows
+
+
+def _write_csv(tmp: str, table: pd.DataFrame) -> None:
+    frame = table.map(lambda v: protect_text(v) if isinstance(v, str) else v)
+    frame.columns = [protect_text(str(c)) for c in table.columns]
+    frame.to_csv(tmp, index=False, encoding="utf-8", lineterminator="\n")
+
+
+def _md_cell(value: Any) -> str:
+    text = "" if value is None else str(value)
+    text = text.replace("\\", "\\\\").replace("|", "\\|")
+    return text.replace("\r\n", "<br>").replace("\n", "<br>").replace("\r", "<br>")
+
+
+def _write_markdown(tmp: str, table: pd.DataFrame, summary: ReviewSummary) -> None:
+    lines = [
+        "# Units to reconcile",
+        "",
+        f"{summary.needing_review} of {summary.units_read} units need review; "
+        f"{summary.agreed} agreed; {len(summary.left_out)} left out (fewer than two coders). "
+        + _INDEPENDENCE_NOTE,
+        "",
+        "| " + " | ".join(_md_cell(c) for c in table.columns) + " |",
+        "|" + "---|" * len(table.columns),
+    ]
+    for row in table.itertuples(index=False):
+        lines.append("| " + " | ".join(_md_cell(v) for v in row) + " |")
+    Path(tmp).write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+# -- xlsx ----------------------------------------------------------------------------------
+def _put(cell: Any, value: Any) -> None:
+    """Set a cell so that text always stays text (never a formula)."""
+    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+
+    if isinstance(value, str):
+        value = ILLEGAL_CHARACTERS_RE.sub("\ufffd", value)
+        cell.value = value
+        cell.data_type = "s"
+        if value[:1] in _FORMULA_START:
+            cell.quotePrefix = True
+    elif value is None or isinstance(value, (bool, np.bool_)):
+        cell.value = None if value is None else bool(value)
+    elif isinstance(value, (int, float, np.integer, np.floating)):
+        cell.value = value.item() if hasattr(value, "item") else value
+    else:
+        _put(cell, str(value))
+
+
+def _fill_sheet(ws: Any, header: Sequence[Any], rows: Sequence[Sequence[Any]], *,
+                max_width: int = 60, header_bold: bool = True) -> None:
+    from openpyxl.styles import Alignment, Font
+    from openpyxl.utils import get_column_letter
+
+    wrap = Alignment(wrap_text=True, vertical="top")
+    bold = Font(bold=True)
+    widths = [len(str(h)) for h in header]
+    for j, h in enumerate(header, start=1):
+        cell = ws.cell(row=1, column=j)
+        _put(cell, h)
+        cell.alignment = wrap
+        if header_bold:
+            cell.font = bold
+    for i, row in enumerate(rows, start=2):
+        for j, value in enumerate(row, start=1):
+            cell = ws.cell(row=i, column=j)
+            _put(cell, value)
+            cell.alignment = wrap
+            text = "" if value is None else str(value)
+            longest = max((len(line) for line in text.split("\n")), default=0)
+            widths[j - 1] = max(widths[j - 1], longest)
+    for j, width in enumerate(widths, start=1):
+        ws.column_dimensions[get_column_letter(j)].width = min(max(width + 2, 10), max_width)
+
+
+def _list_source(wb: Any, name: str, labels: Sequence[str], column: int) -> str:
+    """A data-validation list formula: inline when short and plain, else a hidden sheet range."""
+    from openpyxl.utils import get_column_letter
+
+    inline = '"' + ",".join(labels) + '"'
+    if len(inline) <= _LIST_LITERAL_LIMIT and not any("," in x or '"' in x for x in labels):
+        return inline
+    if LISTS_SHEET in wb.sheetnames:
+        ws = wb[LISTS_SHEET]
+    else:
+        ws = wb.create_sheet(LISTS_SHEET)
+        ws.sheet_state = "hidden"
+    _put(ws.cell(row=1, column=column), name)
+    for i, label in enumerate(labels, start=2):
+        _put(ws.cell(row=i, column=column), label)
+    letter = get_column_letter(column)
+    return f"'{LISTS_SHEET}'!${letter}$2:${letter}${len(labels) + 1}"
+
+
+def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: pd.DataFrame,
+                       about: list[tuple[Any, Any]]) -> None:
+    from openpyxl import Workbook
+    from openpyxl.comments import Comment
+    from openpyxl.styles import Font
+    from openpyxl.utils import get_column_letter
+    from openpyxl.worksheet.datavalidation import DataValidation
+
+    wb = Workbook()
+    ws = wb.active
+    ws.title = REVIEW_SHEET
+    header = list(table.columns)
+    _fill_sheet(ws, header, table.itertuples(index=False))
+    ws.freeze_panes = "B2"
+    last = max(len(table) + 1, 2)
+    if len(table):
+        ws.auto_filter.ref = f"A1:{get_column_letter(len(header))}{len(table) + 1}"
+
+    order = _category_order(data)
+    codes = [_label(c, order) for c in data.categories]
+    if data.set_valued:
+        codes.append(NONE_LABEL)
+    decision = get_column_letter(header.index(DECISION) + 1)
+    how = get_column_letter(header.index(HOW) + 1)
+    dv_codes = DataValidation(
+        type="list", formula1=_list_source(wb, "codes", codes, 1), allow_blank=True,
+        showDropDown=False, showErrorMessage=not data.set_valued, errorStyle="stop",
+        errorTitle="Not a code", error="Choose a code from the codebook.",
+        promptTitle="Decision", showInputMessage=True,
+        prompt=("Several codes: separate them with '; '." if data.set_valued
+                else "Choose the final code."))
+    dv_codes.add(f"{decision}2:{decision}{last}")
+    dv_how = DataValidation(type="list", formula1=_list_source(wb, "how", list(HOW_CHOICES), 2),
+                            allow_blank=True, showErrorMessage=True, errorTitle="How decided",
+                            error="Choose discussion, adjudicator or majority.")
+    dv_how.add(f"{how}2:{how}{last}")
+    ws.add_data_validation(dv_codes)
+    ws.add_data_validation(dv_how)
+    for column in (DECISION, HOW, WHO, NOTES):
+        letter = get_column_letter(header.index(column) + 1)
+        ws.column_dimensions[letter].width = max(ws.column_dimensions[letter].width or 0,
+                                                 30 if column == NOTES else 16)
+
+    pairs_ws = wb.create_sheet(PAIRS_SHEET, 1)
+    _fill_sheet(pairs_ws, list(pairs.columns), pairs.itertuples(index=False))
+    pairs_ws.freeze_panes = "A2"
+    units_header = pairs_ws.cell(row=1, column=list(pairs.columns).index(PAIR_UNITS) + 1)
+    units_header.comment = Comment(PAIRS_NOTE, "agree", width=320, height=120)
+    note_row = len(pairs) + 3
+    _put(pairs_ws.cell(row=note_row, column=1), "note: " + PAIRS_NOTE)
+    pairs_ws.cell(row=note_row, column=1).font = Font(italic=True)
+
+    about_ws = wb.create_sheet(ABOUT_SHEET, 2)
+    _fill_sheet(about_ws, ["item", "value"], about, max_width=90)
+    about_ws.freeze_panes = "A2"
+    wb.save(tmp)
+
+
+# -- reading decisions back ----------------------------------------------------------------
+@dataclass(frozen=True)
+class _ReviewRow:
+    row: int                 # as a spreadsheet counts it (header row 1)
+    unit: str | None
+    decision: Any
+    how: str
+    who: str
+    notes: str
+
+
+@dataclass(frozen=True)
+class _ReviewFile:
+    name: str
+    sheet: str | None
+    rows: tuple[_ReviewRow, ...]
+    checksums: Mapping[str, str]
+
+
+def _header_key(value: Any) -> str:
+    return str(value).strip().lower() if value is not None else ""
+
+
+def _cell_text(value: Any) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    if isinstance(value, float) and np.isnan(value):
+        return ""
+    return str(value).strip()
+
+
+def _unit_text(value: Any) -> str | None:
+    if value is None or (isinstance(value, str) and value == ""):
+        return None
+    if isinstance(value, float):
+        if np.isnan(value):
+            return None
+        if value.is_integer():
+            return str(int(value))
+    return str(value)
+
+
+def _rows_from_records(records: Sequence[Sequence[Any]], header: Sequence[Any], first_row: int,
+                       name: str, sheet: str | None) -> tuple[_ReviewRow, ...]:
+    keys = [_header_key(h) for h in header]
+    if UNIT not in keys or DECISION not in keys:
+        missing = [c for c in (UNIT, DECISION) if c not in keys]
+        raise AgreeError(f"no column named {' or '.join(repr(c) for c in missing)}",
+                         where=cell_location(name, sheet, 1),
+                         hint="the review file is read by its header names; restore them",
+                         code="review-columns")
+    pos = {k: keys.index(k) for k in (UNIT, DECISION, HOW, WHO, NOTES) if k in keys}
+
+    def get(record: Sequence[Any], key: str) -> Any:
+        return record[pos[key]] if key in pos and pos[key] < len(record) else None
+
+    rows = []
+    for offset, record in enumerate(records):
+        values = [get(record, k) for k in (UNIT, DECISION, HOW, WHO, NOTES)]
+        if all(v is None or (isinstance(v, str) and not v.strip()) for v in values):
+            continue
+        decision = values[1]
+        if isinstance(decision, str):
+            decision = decision.strip() or None
+        rows.append(_ReviewRow(row=first_row + offset, unit=_unit_text(values[0]), decision=decision,
+                               how=_cell_text(values[2]), who=_cell_text(values[3]),
+                               notes=_cell_text(values[4])))
+    return tuple(rows)
+
+
+def _read_review(review: Any) -> _ReviewFile:
+    if isinstance(review, pd.DataFrame):
+        records = review.astype(object).where(review.notna(), None).to_numpy().tolist()
+        return _ReviewFile("review table", None,
+                           _rows_from_records(records, list(review.columns), 2, "review table", None),
+                           {})
+    path = Path(review)
+    if not path.exists():
+        raise AgreeError(f"{path} does not exist", code="no-file")
+    suffix = path.suffix.lower()
+    if suffix in (".xlsx", ".xlsm"):
+        return _read_review_xlsx(path)
+    if suffix in (".csv", ".txt"):
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8-sig")
+        frame = frame.map(unprotect_text)
+        header = [unprotect_text(str(c)) for c in frame.columns]
+        return _ReviewFile(str(path), None,
+                           _rows_from_records(frame.to_numpy().tolist(), header, 2, str(path), None),
+                           {})
+    raise AgreeError(f"cannot read decisions from {path.name}",
+                     hint="fill in the xlsx (or csv) review file; Markdown is for reading only",
+                     code="format")
+
+
+def _read_review_xlsx(path: Path) -> _ReviewFile:
+    from openpyxl import load_workbook
+
+    try:
+        wb = load_workbook(path, read_only=True, data_only=True)
+    except Exception as exc:  # not a workbook, or damaged
+        raise AgreeError(f"cannot open {path} as a workbook: {exc}", code="bad-file") from exc
+    try:
+        names = sorted(wb.sheetnames, key=lambda s: s != REVIEW_SHEET)
+        for sheet in names:
+            ws = wb[sheet]
+            records = [list(r) for r in ws.iter_rows(values_only=True)]
+            for h, header in enumerate(records[:10]):
+                keys = {_header_key(v) for v in header}
+                if UNIT in keys and DECISION in keys:
+                    rows = _rows_from_records(records[h + 1:], header, h + 2, str(path), sheet)
+                    checksums = _recorded_checksums(wb) if ABOUT_SHEET in wb.sheetnames else {}
+                    return _ReviewFile(str(path), sheet, rows, checksums)
+    finally:
+        wb.close()
+    raise AgreeError(f"no sheet of {path} has the columns '{UNIT}' and '{DECISION}'",
+                     hint="the review sheet is found by its header names; restore them",
+                     code="review-columns")
+
+
+def _recorded_checksums(wb: Any) -> dict[str, str]:
+    out, inside = {}, False
+    for item, value, *_ in wb[ABOUT_SHEET].iter_rows(values_only=True, max_col=2):
+        if item == "input file" and value == "sha256":
+            inside = True
+        elif inside and item:
+            out[str(item)] = str(value)
+        elif inside:
+            break
+    return out
+
+
+class _DecisionParser:
+    """Turns a decision cell into a value of the data, or says why it cannot."""
+
+    def __init__(self, data: CodingData):
+        self.data = data
+        self.order = _category_order(data)
+        singles = list(data.categories) if data.set_valued else list(data.values) + [
+            c for c in data.categories if c not in set(data.values)]
+        self.by_label = {_label(c, self.order): c for c in singles}
+
+    def known(self) -> list[str]:
+        return list(self.by_label) + ([NONE_LABEL] if self.data.set_valued else [])
+
+    def one(self, raw: Any) -> Any:
+        if not isinstance(raw, str):
+            value = normalise_value(raw)
+            if value in self.by_label.values():
+                return value
+            raw = _label(value)
+        text = raw.strip()
+        if text in self.by_label:
+            return self.by_label[text]
+        number = _as_number(text)
+        if number is not None and number in self.by_label.values():
+            return number
+        raise KeyError(text)
+
+    def parse(self, raw: Any) -> Any:
+        if not self.data.set_valued:
+            return self.one(raw)
+        if isinstance(raw, str) and raw.strip() == NONE_LABEL:
+            return frozenset()
+        parts = [p for p in str(raw).split(";") if p.strip()] if isinstance(raw, str) else [raw]
+        return frozenset(self.one(p) for p in parts)
+
+    def hint(self, text: str) -> str:
+        known = self.known()
+        folded = [k for k in known if k.casefold() == text.casefold()]
+        close = folded or difflib.get_close_matches(text, known, n=1, cutoff=0.0)
+        shown = ", ".join(known[:12]) + (", ..." if len(known) > 12 else "")
+        if close:
+            return f"did you mean '{close[0]}'? The codes are: {shown}"
+        return f"the codes are: {shown}"
+
+
+def _as_number(text: str) -> Any:
+    try:
+        return normalise_value(float(text))
+    except ValueError:
+        return None
+
+
+def _listed(items: Sequence[str], limit: int = _UNRESOLVED_SHOWN) -> str:
+    shown = ", ".join(items[:limit])
+    return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
+
+
+def unresolved_listing(units: Sequence[str], rows: Sequence[int | None],
+                       limit: int = _UNRESOLVED_SHOWN) -> str:
+    """Unit ids with their review-sheet rows (as the spreadsheet counts them), in sheet order:
+    "'u4' (row 3), 'u9' (row 7) and 12 more"."""
+    pairs = sorted(zip(units, rows), key=lambda p: (p[1] is None, p[1] or 0))   # down the sheet
+    items = [f"'{u}'" + (f" (row {r})" if r is not None else "") for u, r in pairs]
+    return _listed(items, limit)
+
+
+def _rows_text(rows: Sequence[int]) -> str:
+    return ("row " if len(rows) == 1 else "rows ") + ", ".join(str(r) for r in rows)
+
+
+def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
+              majority: bool = False) -> Consensus:
+    """Read the decisions back and give every unit one final code.
+
+    Parameters
+    ----------
+    data : the same coding data the review list was made from.
+    review : the filled-in review file (xlsx or csv, found by header names) or a DataFrame
+        like `review_table` returns.
+    allow_unresolved : keep units that still need a decision, with source "unresolved" and
+        an empty final code, instead of raising.
+    majority : give an undecided unit the value a strict majority (more than half) of its
+        coders gave, with source "majority", where one exists.
+
+    Returns
+    -------
+    Consensus
+        Every unit of `data` exactly once, in input order. Agreed units keep their code,
+        decided units take the decision (a decision also overrides an agreed code, when the
+        review list included agreed units), then the majority rule (if asked), then
+        "unresolved"; units fewer than two coders coded keep their single value ("single
+        coder") or none ("not coded"). The coders' independent codes are carried beside the
+        final code and never changed. Compute agreement on `data`, never on the consensus.
+
+    Raises
+    ------
+    AgreeError
+        "review-mismatch" when the review file does not match the data (a unit needing
+        review missing, an id not in the data, a duplicated row), "unknown-code" for a
+        decision that is not a code (with the file, sheet, row and column), "unknown-method"
+        for a "how decided" outside discussion/adjudicator/majority, "unresolved" when units
+        still need a decision and `allow_unresolved` is False. All problems are collected
+        into one error.
+    """
+    data = as_coding_data(data)
+    source = _read_review(review)
+    status = _status(data)
+    index = {str(u): i for i, u in enumerate(data.unit_ids)}
+    parser = _DecisionParser(data)
+
+    problems: list[AgreeError] = []
+    seen: dict[str, list[int]] = {}
+    unknown_ids: list[tuple[str, int]] = []
+    empty_ids: list[int] = []
+    decided: dict[int, tuple[Any, _ReviewRow]] = {}
+    annotations: dict[int, _ReviewRow] = {}
+    for row in source.rows:
+        if row.unit is None:
+            empty_ids.append(row.row)
+            continue
+        seen.setdefault(row.unit, []).append(row.row)
+        if row.unit not in index:
+            unknown_ids.append((row.unit, row.row))
+            continue
+        where = lambda column: cell_location(source.name, source.sheet, row.row, column)  # noqa: E731
+        if row.how and row.how.lower() not in HOW_CHOICES:
+            problems.append(AgreeError(f"'{row.how}' is not a way of deciding", where=where(HOW),
+                                       hint="use discussion, adjudicator or majority",
+                                       code="unknown-method"))
+        u = index[row.unit]
+        annotations[u] = row
+        if row.decision is None:
+            continue
+        try:
+            decided[u] = (parser.parse(row.decision), row)
+        except KeyError as exc:
+            text = str(exc.args[0])
+            problems.append(AgreeError(f"the decision '{text}' for unit '{row.unit}' is not a code",
+                                       where=where(DECISION), hint=parser.hint(text),
+                                       code="unknown-code"))
+
+    mismatch = _mismatch(data, status, seen, unknown_ids, empty_ids, source)
+    if mismatch is not None:
+        problems.insert(0, mismatch)
+    if problems:
+        first = problems[0]
+        if len(problems) == 1:
+            raise first
+        raise AgreeError(first.message + f" (and {len(problems) - 1} more problems)",
+                         hint=first.hint, where=first.where, code=first.code, problems=problems)
+    return _build_consensus(data, status, decided, annotations, source, allow_unresolved, majority)
+
+
+def _mismatch(data: CodingData, status: _Status, seen: Mapping[str, list[int]],
+              unknown_ids: Sequence[tuple[str, int]], empty_ids: Sequence[int],
+              source: _ReviewFile) -> AgreeError | None:
+    parts = []
+    if unknown_ids:
+        parts.append("ids not in the data: " + "; ".join(f"'{u}' (row {r})" for u, r in unknown_ids))
+    duplicated = [(u, rows) for u, rows in seen.items() if len(rows) > 1]
+    if duplicated:
+        parts.append("ids listed more than once: "
+                     + "; ".join(f"'{u}' ({_rows_text(rows)})" for u, rows in duplicated))
+    if empty_ids:
+        parts.append(f"rows without a unit id: {_rows_text(list(empty_ids))}")
+    needed = [str(data.unit_ids[i]) for i in np.nonzero(status.needs_review)[0]
+              if str(data.unit_ids[i]) not in seen]
+    if needed:
+        parts.append("units needing review missing from the file: "
+                     + ", ".join(f"'{u}'" for u in needed))
+    if not parts:
+        return None
+    return AgreeError("the review file does not match the data: " + "; ".join(parts),
+                      where=cell_location(source.name, source.sheet),
+                      hint="restore the unit ids as written (one row per unit), or make a new "
+                           "review file from these data",
+                      code="review-mismatch")
+
+
+def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tuple[Any, _ReviewRow]],
+                     annotations: Mapping[int, _ReviewRow], source: _ReviewFile,
+                     allow_unresolved: bool, majority: bool) -> Consensus:
+    n = data.n_units
+    values = np.array(list(data.values) + [None], dtype=object)
+    first_value = values[np.where(data.codes >= 0, data.codes, -1).max(axis=1, initial=-1)]
+    final = np.where(status.agreed | (status.n_values == 1), first_value, None)
+    origin = np.full(n, "unresolved", dtype=object)
+    origin[status.agreed] = "agreed"
+    origin[status.left_out & (status.n_values == 1)] = "single coder"
+    origin[status.left_out & (status.n_values == 0)] = "not coded"
+
+    if decided:
+        rows = np.fromiter(decided, dtype=np.int64)
+        final[rows] = [decided[i][0] for i in decided]
+        origin[rows] = "decided"
+    how = np.full(n, "", dtype=object)
+    who = np.full(n, "", dtype=object)
+    notes = np.full(n, "", dtype=object)
+    for u, row in annotations.items():
+        how[u], who[u], notes[u] = row.how.lower(), row.who, row.notes
+
+    if majority:
+        undecided = np.nonzero(origin == "unresolved")[0]
+        winner = _strict_majority(data, undecided)
+        has = winner >= 0
+        final[undecided[has]] = values[winner[has]]
+        origin[undecided[has]] = "majority"
+        how[undecided[has]] = "majority"
+
+    open_units = np.nonzero(origin == "unresolved")[0]
+    unresolved = tuple(str(u) for u in data.unit_ids[open_units])
+    unresolved_rows = tuple(annotations[u].row if u in annotations else None for u in open_units)
+    if unresolved and not allow_unresolved:
+        n_open = len(unresolved)
+        verb = "unit still needs" if n_open == 1 else "units still need"
+        where = cell_location(source.name, source.sheet) if source.sheet else source.name
+        raise AgreeError(f"{n_open} {verb} a decision: {unresolved_listing(unresolved, unresolved_rows)}",
+                         where=where, code="unresolved",
+                         hint="fill in the decision column, or use --allow-unresolved "
+                              "(allow_unresolved=True) to write them with an empty final code"
+                              + ("" if majority else ", or --majority to take a strict majority"))
+
+    table: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids]}
+    for name, header in _kept_headers(data, [UNIT, TEXT, FINAL, SOURCE, HOW, WHO, NOTES]).items():
+        table[header] = [_text(v) for v in np.asarray(data.columns[name], dtype=object)]
+    if data.text is not None:
+        table[TEXT] = [_text(t) for t in data.text]
+    table.update({FINAL: final.tolist(), SOURCE: origin.tolist(), HOW: how.tolist(),
+                  WHO: who.tolist(), NOTES: notes.tolist()})
+    for j, header in enumerate(_coder_headers(data.coders, list(table))):
+        table[header] = values[data.codes[:, j]].tolist()
+    counts = {s: int((origin == s).sum()) for s in SOURCES}
+    left = tuple((str(data.unit_ids[i]), _LEFT_OUT_REASONS[origin[i]])
+                 for i in np.nonzero(np.isin(origin, list(_LEFT_OUT_REASONS)))[0])
+    return Consensus(table=pd.DataFrame(table, dtype=object), units_read=n,
+                     agreed=counts["agreed"], decided=counts["decided"],
+                     majority=counts["majority"], unresolved=unresolved, left_out=left,
+                     review=source.name, notes=_changed_inputs(data, source),
+                     unresolved_rows=unresolved_rows)
+
+
+def _strict_majority(data: CodingData, units: np.ndarray) -> np.ndarray:
+    """For each unit, the value index more than half of its coders gave, else -1."""
+    if not len(units):
+        return np.zeros(0, dtype=np.int64)
+    codes = data.codes[units]
+    counts = np.zeros((len(units), len(data.values)), dtype=np.int64)
+    rows, cols = np.nonzero(codes >= 0)
+    np.add.at(counts, (rows, codes[rows, cols]), 1)
+    best = counts.argmax(axis=1)
+    n = (codes >= 0).sum(axis=1)
+    return np.where(2 * counts[np.arange(len(units)), best] > n, best, -1)
+
+
+def _changed_inputs(data: CodingData, source: _ReviewFile) -> tuple[str, ...]:
+    if not source.checksums or data.report is None or not data.report.checksums:
+        return ()
+    now = {Path(f).name: s for f, s in data.report.checksums.items()}
+    notes = []
+    for f, recorded in source.checksums.items():
+        current = now.get(Path(f).name)
+        if current is not None and current != recorded:
+            notes.append(f"{f} has changed since the review file was made (sha256 differs)")
+    return tuple(notes)
+
+
+# -- writing the consensus -----------------------------------------------------------------
+def consensus_frame(consensus: Consensus, data: CodingData | None = None) -> pd.DataFrame:
+    """The consensus table as text, the way it is written (sets as "a; b")."""
+    order = _category_order(data) if data is not None else None
+    return consensus.table.map(lambda v: _label(v, order) if not isinstance(v, str) else v)
+
+
+def write_consensus(consensus: Consensus, path: str | os.PathLike, *, format: str | None = None,
+                    inputs: Sequence[str | os.PathLike] = (), force: bool = False,
+                    data: CodingData | None = None) -> Path:
+    """Write the consensus as CSV or xlsx, atomically.
+
+    Parameters
+    ----------
+    consensus : what `reconcile` returned.
+    path : the output file; never one of `inputs` (give the review file and the data files);
+        an existing file is replaced only with `force`.
+    format : "csv" or "xlsx"; by default from the suffix.
+    data : the coding data, used to write set-valued codes in codebook order.
+
+    Notes
+    -----
+    CSV cells that a spreadsheet would run as a formula get one leading ``'`` (see the
+    module notes); xlsx cells are typed as text instead.
+    """
+    out = Path(path)
+    fmt = _infer_format(out, format, CONSENSUS_FORMATS)
+    protected = list(inputs)
+    if consensus.review and Path(consensus.review).exists():
+        protected.append(consensus.review)
+    check_output(out, protected, force=force)
+    frame = consensus_frame(consensus, data)
+    if fmt == "csv":
+        atomic_write(out, lambda tmp: _write_csv(tmp, frame))
+    else:
+        atomic_write(out, lambda tmp: _write_consensus_xlsx(tmp, frame))
+    return out
+
+
+def _write_consensus_xlsx(tmp: str, frame: pd.DataFrame) -> None:
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "Consensus"
+    _fill_sheet(ws, list(frame.columns), frame.itertuples(index=False))
+    ws.freeze_panes = "B2"
+    wb.save(tmp)

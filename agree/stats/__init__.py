@@ -1,0 +1,1 @@
+"""Value patterns, shared kernels, resampling, the coefficients and `score`. Imports core."""

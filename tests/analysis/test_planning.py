@@ -1,0 +1,443 @@
+"""Planning the reliability sample (agree.analysis.planning).
+
+Oracles: the `krippendorff` package for the vectorised alpha; the closed-form worked values in
+METHODS 8.1 and 8.3 (computed from the formulas as recalled there, from memory); the exact
+population alpha of the simulation model; properties (reproducibility, monotonicity).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import krippendorff
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from agree.analysis.planning import (
+    _alpha_from_counts,
+    _bootstrap_lower_bounds,
+    _build_model,
+    _latent_pair_probabilities,
+    _lower_quantile,
+    _nominal_pair_probabilities,
+    _pattern_coincidences,
+    _pattern_counts,
+    _pattern_ids,
+    _population_alpha,
+    decision_sentence,
+    donner_eliasziw_units,
+    krippendorff_minimum_units,
+    plan_sample,
+    resolve_shares,
+)
+from agree.core.model import AgreeError
+from agree.core.results import AgreementResult
+from agree.output.plots import assurance_figure, save_figure
+from agree.stats.coefficients import alpha_from_coincidence, ordinal_delta
+
+FAST = dict(replicates=100, n_resamples=100)
+
+
+def _reference_alpha(codes: np.ndarray, q: int, level: str) -> float:
+    data = np.where(codes < 0, np.nan, codes).T.astype(float)
+    return krippendorff.alpha(reliability_data=data, level_of_measurement=level,
+                              value_domain=list(range(q)))
+
+
+def _alpha_via_patterns(codes: np.ndarray, q: int, level: str) -> float:
+    ids, r = _pattern_ids(codes[None], q)
+    counts = _pattern_counts(ids, codes.shape[0], len(r))
+    return float(_alpha_from_counts(counts, _pattern_coincidences(r), level)[0])
+
+
+# -- the vectorised alpha against the krippendorff package --------------------------------
+
+@pytest.mark.parametrize("level", ["nominal", "ordinal", "interval"])
+@pytest.mark.parametrize("m,q,n,miss", [(2, 2, 40, 0.0), (3, 4, 120, 0.2), (5, 6, 75, 0.35),
+                                        (2, 7, 300, 0.1)])
+def test_pattern_alpha_matches_krippendorff_package(level, m, q, n, miss):
+    rng = np.random.default_rng(1000 * m + q)
+    shares = rng.dirichlet(np.ones(q) * 2)
+    model, _ = _build_model(level, shares, m, 0.6, miss)
+    for codes in model.simulate(rng, 3, n):
+        codes = codes.astype(np.int64)
+        assert _alpha_via_patterns(codes, q, level) == pytest.approx(_reference_alpha(codes, q, level),
+                                                                     abs=1e-10)
+
+
+def test_ordinal_without_delta_equals_delta_form():
+    # ordinal δ = (u_c - u_k)² with mid-rank scores u (METHODS 4.3): both routes agree
+    rng = np.random.default_rng(7)
+    o = rng.integers(0, 20, size=(50, 5, 5)).astype(float)
+    o = o + np.swapaxes(o, 1, 2)
+    delta = ordinal_delta(o.sum(axis=-1))
+    n_c = o.sum(axis=-1)
+    n = n_c.sum(axis=-1)
+    direct = 1 - (n - 1) * (o * delta).sum(axis=(1, 2)) / (n_c[:, :, None] * n_c[:, None, :] * delta).sum(axis=(1, 2))
+    np.testing.assert_allclose(alpha_from_coincidence(o, None), direct, rtol=1e-10, atol=1e-12)
+
+
+def test_undefined_alpha_is_nan():
+    codes = np.zeros((10, 2), dtype=np.int64)            # every value identical: D_e = 0
+    assert math.isnan(_alpha_via_patterns(codes, 3, "nominal"))
+    one_coder = np.full((10, 2), -1)
+    one_coder[:, 0] = 1                                    # no pairable unit
+    assert math.isnan(_alpha_via_patterns(one_coder, 3, "nominal"))
+
+
+def test_resampled_pattern_counts_equal_resampled_units():
+    # METHODS 12: a pattern-count replicate gives the value of the unit-level replicate
+    rng = np.random.default_rng(3)
+    model, _ = _build_model("nominal", np.array([0.5, 0.3, 0.2]), 3, 0.7, 0.2)
+    codes = model.simulate(rng, 1, 80)[0].astype(np.int64)
+    ids, r = _pattern_ids(codes[None], 3)
+    pick = rng.integers(0, 80, size=80)
+    counts = np.bincount(ids[0, pick], minlength=len(r))[None]
+    mine = _alpha_from_counts(counts, _pattern_coincidences(r), "nominal")[0]
+    assert mine == pytest.approx(_reference_alpha(codes[pick], 3, "nominal"), abs=1e-12)
+
+
+def test_lower_quantile_matches_numpy():
+    rng = np.random.default_rng(5)
+    x = rng.normal(size=(200, 30))
+    x[rng.random(x.shape) < 0.1] = np.nan
+    x[:, 3] = np.nan
+    got = _lower_quantile(x, 0.05)
+    want = np.array([np.nan if np.all(np.isnan(c)) else np.nanquantile(c, 0.05) for c in x.T])
+    np.testing.assert_allclose(got, want)
+
+
+def test_bootstrap_bounds_are_below_estimates_and_repeatable():
+    rng = np.random.default_rng(11)
+    model, _ = _build_model("nominal", np.array([0.6, 0.4]), 2, 0.8, 0.0)
+    ids, r = _pattern_ids(model.simulate(rng, 40, 150), 2)
+    coinc = _pattern_coincidences(r)
+    for n in (12, 150):                                    # the index path and the multinomial path
+        est, low, _ = _bootstrap_lower_bounds(5, ids, n, coinc, "nominal", 200, 0.95)
+        est2, low2, _ = _bootstrap_lower_bounds(5, ids, n, coinc, "nominal", 200, 0.95)
+        np.testing.assert_array_equal(low, low2)
+        ok = np.isfinite(low)
+        assert np.mean(low[ok] <= est[ok]) > 0.95
+
+
+# -- the simulation model reaches the expected agreement --------------------------------------
+
+@pytest.mark.parametrize("level", ["nominal", "ordinal", "interval"])
+@pytest.mark.parametrize("shares", [[0.25, 0.25, 0.25, 0.25], [0.6, 0.25, 0.1, 0.05]])
+def test_population_alpha_is_the_target(level, shares):
+    shares = np.array(shares)
+    _, pop = _build_model(level, shares, 3, 0.8, 0.0)
+    assert pop == pytest.approx(0.8, abs=1e-6)
+
+
+def test_nominal_population_alpha_is_theta_squared():
+    # METHODS 8.2: population alpha (and Scott's pi) is θ² for any m
+    shares = np.array([0.5, 0.3, 0.2])
+    for theta in (0.5, 0.8, 0.95):
+        assert _population_alpha(_nominal_pair_probabilities(shares, theta), "nominal") == \
+            pytest.approx(theta ** 2, abs=1e-12)
+
+
+def test_latent_pair_probabilities_are_a_distribution():
+    p = _latent_pair_probabilities(np.array([0.1, 0.2, 0.3, 0.4]), 0.7)
+    assert p.sum() == pytest.approx(1.0, abs=1e-8)
+    np.testing.assert_allclose(p, p.T, atol=1e-12)
+    np.testing.assert_allclose(p.sum(axis=1), [0.1, 0.2, 0.3, 0.4], atol=1e-8)
+
+
+@pytest.mark.parametrize("level", ["nominal", "ordinal", "interval"])
+def test_simulated_alpha_reaches_target_on_large_samples(level):
+    shares = np.array([0.5, 0.3, 0.15, 0.05])
+    model, _ = _build_model(level, shares, 3, 0.75, 0.1)
+    rng = np.random.default_rng(2024)
+    # mean of alpha over many simulated data sets, within Monte Carlo error
+    ids, r = _pattern_ids(model.simulate(rng, 400, 500), 4)
+    alphas = _alpha_from_counts(_pattern_counts(ids, 500, len(r)), _pattern_coincidences(r), level)
+    mc = alphas.std(ddof=1) / math.sqrt(len(alphas))
+    assert abs(alphas.mean() - 0.75) < 4 * mc + 0.002    # 0.002: alpha's small-sample bias
+    # and one big data set checked with the krippendorff package
+    big = model.simulate(rng, 1, 20000)[0].astype(np.int64)
+    assert _reference_alpha(big, 4, level) == pytest.approx(0.75, abs=0.015)
+
+
+# -- the planner -------------------------------------------------------------------------------
+
+def test_plan_is_reproducible_with_a_seed():
+    a = plan_sample(coders=2, categories=3, expected=0.9, seed=42, **FAST).to_dict()
+    b = plan_sample(coders=2, categories=3, expected=0.9, seed=42, **FAST).to_dict()
+    c = plan_sample(coders=2, categories=3, expected=0.9, seed=43, **FAST).to_dict()
+    assert a == b
+    assert a["curve"] != c["curve"]
+
+
+def test_plan_records_a_seed_when_none_given():
+    p = plan_sample(coders=2, categories=2, expected=0.9, seed=None, **FAST)
+    again = plan_sample(coders=2, categories=2, expected=0.9, seed=p.seed, **FAST)
+    assert again.to_dict()["curve"] == p.to_dict()["curve"]
+
+
+def test_more_units_more_assurance():
+    p = plan_sample(coders=2, categories=3, expected=0.9, minimum=0.8, seed=1, replicates=200,
+                    n_resamples=200)
+    smooth = [pt.smoothed for pt in p.curve]
+    raw = [pt.assurance for pt in p.curve]
+    assert all(b >= a for a, b in zip(smooth, smooth[1:]))
+    assert raw[-1] > raw[0] + 0.5
+    # raw points stay within a few Monte Carlo errors of the smooth curve
+    for pt in p.curve:
+        assert abs(pt.assurance - pt.smoothed) < 4 * max(pt.mc_error, 0.02)
+
+
+def test_higher_minimum_needs_more_units():
+    common = dict(coders=2, categories=3, expected=0.9, seed=3, **FAST)
+    low = plan_sample(minimum=0.7, **common).units_needed
+    high = plan_sample(minimum=0.8, **common).units_needed
+    assert low is not None and high is not None and high > low
+
+
+def test_units_needed_reaches_the_assurance():
+    p = plan_sample(coders=3, shares=[0.5, 0.3, 0.2], expected=0.85, minimum=0.7, seed=9, **FAST)
+    assert p.units_needed is not None
+    assert p.assurance_at_units_needed == pytest.approx(0.8, abs=0.02)
+    below = [pt for pt in p.curve if pt.units < p.units_needed]
+    assert all(pt.smoothed < 0.8 for pt in below)
+
+
+def test_plan_beyond_range_warns():
+    p = plan_sample(coders=2, categories=2, expected=0.82, minimum=0.8, seed=1, max_units=100, **FAST)
+    assert p.units_needed is None
+    assert "plan-beyond-range" in {w.code for w in p.warnings}
+    assert "plan-close-to-minimum" in {w.code for w in p.warnings}
+
+
+def test_plan_states_model_interval_and_sources():
+    p = plan_sample(coders=2, shares=[0.7, 0.3], expected=0.85, minimum=0.6, level="nominal",
+                    missing=0.1, seed=5, **FAST)
+    d = p.to_dict()
+    json.dumps(d, allow_nan=False)
+    for key in ("units_needed", "curve", "inputs", "model", "closed_forms", "rules_of_thumb",
+                "warnings", "seed", "replicates"):
+        assert key in d
+    assert set(d["curve"][0]) >= {"units", "assurance", "mc_error"}
+    assert "θ = sqrt(0.850)" in p.model and "missing completely at random" in p.model
+    assert "one-sided 95% percentile bound" in p.interval and "B = 100" in p.interval
+    names = [c["name"] for c in d["closed_forms"]]
+    assert any("Krippendorff" in n for n in names) and any("Donner" in n for n in names)
+    assert all(set(c) == {"name", "units", "source", "assumptions"} for c in d["closed_forms"])
+    # user-facing text cites the published sources; 'from memory' and internal section
+    # numbers stay in the code comments and these tests
+    for item in d["closed_forms"] + d["rules_of_thumb"]:
+        text = " ".join(str(v) for v in item.values())
+        assert "memory" not in text and "METHODS" not in text and "[" not in text
+    assert "Krippendorff (2004; 2013), Content Analysis" in d["closed_forms"][0]["source"]
+    assert "as given in Krippendorff (2004)" in d["closed_forms"][0]["source"]
+    assert ("Whether N counts units or values is not settled here: it is treated as units, which is "
+            "conservative") in d["closed_forms"][0]["assumptions"]
+    assert d["closed_forms"][0]["assumptions"].startswith("Assumes two coders;")
+    assert all("ignores the prevalence" in r["note"] for r in d["rules_of_thumb"])
+    mc = [pt["mc_error"] for pt in d["curve"]]
+    for pt, err in zip(d["curve"], mc):
+        assert err == pytest.approx(math.sqrt(pt["assurance"] * (1 - pt["assurance"]) / 100))
+
+
+def test_donner_eliasziw_only_for_two_coders_two_categories():
+    p = plan_sample(coders=3, shares=[0.7, 0.3], expected=0.9, seed=5, **FAST)
+    assert not any("Donner" in c.name for c in p.closed_forms)
+
+
+def test_ordinal_plan_states_latent_model():
+    p = plan_sample(coders=2, categories=4, expected=0.9, level="ordinal", seed=2, **FAST)
+    assert "latent normal" in p.model
+    assert p.population_alpha == pytest.approx(0.9, abs=1e-6)
+    assert 0.9 < p.details["latent_correlation"] < 1
+
+
+def test_rules_of_thumb_with_corpus_size():
+    p = plan_sample(coders=2, categories=2, expected=0.9, seed=1, corpus_size=1000, **FAST)
+    lombard, oconnor = p.rules_of_thumb
+    # Lombard et al. (2002): at least 50 units or 10% (common practice); O'Connor & Joffe (2020): 10-25%
+    assert lombard.units == 100
+    assert (oconnor.units, oconnor.units_high) == (100, 250)
+
+
+def test_plot_is_written(tmp_path):
+    p = plan_sample(coders=2, categories=2, expected=0.9, seed=1, **FAST)
+    out = tmp_path / "curve.png"
+    save_figure(assurance_figure(p), out)
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert [f.name for f in tmp_path.iterdir()] == ["curve.png"]
+
+
+# -- closed forms -------------------------------------------------------------------------------
+
+def test_donner_eliasziw_worked_value():
+    # METHODS 8.3, Donner & Eliasziw (1992), computed from the formula [from memory]:
+    # κ0 = 0.4, κ1 = 0.8, π = 0.3, one-sided 0.05, power 0.8 -> N = 38
+    n = donner_eliasziw_units(0.4, 0.8, 0.3, significance=0.05, power=0.8)
+    assert math.ceil(n) == 38
+    assert n == pytest.approx(37.5, abs=0.1)
+    assert donner_eliasziw_units(0.4, 0.8, 0.7) == pytest.approx(n)          # symmetric in π
+    assert donner_eliasziw_units(0.4, 0.8, 0.3, two_sided=True) > n
+
+
+# Krippendorff's minimum sample, METHODS 8.1 table (p = 0.05): computed from the formula as given,
+# from memory (Krippendorff 2004).
+KRIPPENDORFF_TABLE = [
+    (0.667, 0.5, 60), (0.667, 0.25, 81), (0.667, 0.10, 172), (0.667, 0.05, 330),
+    (0.800, 0.5, 103), (0.800, 0.25, 139), (0.800, 0.10, 294), (0.800, 0.05, 560),
+    (0.900, 0.5, 212), (0.900, 0.25, 283), (0.900, 0.10, 595), (0.900, 0.05, 1132),
+]
+
+
+@pytest.mark.parametrize("alpha_min,pc,units", KRIPPENDORFF_TABLE)
+def test_krippendorff_minimum_sample_table(alpha_min, pc, units):
+    assert math.ceil(krippendorff_minimum_units(alpha_min, pc, significance=0.05)) == units
+
+
+def test_plan_reports_krippendorff_value_from_rarest():
+    p = plan_sample(coders=2, categories=4, rarest=0.10, expected=0.95, minimum=0.8, seed=1, **FAST)
+    assert p.closed_forms[0].units == 294
+
+
+# -- inputs ---------------------------------------------------------------------------------------
+
+def test_resolve_shares():
+    np.testing.assert_allclose(resolve_shares(categories=4), [0.25] * 4)
+    np.testing.assert_allclose(resolve_shares(categories=3, rarest=0.1), [0.1, 0.45, 0.45])
+    np.testing.assert_allclose(resolve_shares(shares=[0.5, 0.5]), [0.5, 0.5])
+
+
+@pytest.mark.parametrize("kwargs,code", [
+    (dict(coders=2, shares=[0.5, 0.4], expected=0.9), "plan-shares"),
+    (dict(coders=2, shares=[0.5, 0.6, -0.1], expected=0.9), "plan-shares"),
+    (dict(coders=2, shares=[1.0], expected=0.9), "plan-shares"),
+    (dict(coders=2, categories=3, shares=[0.5, 0.5], expected=0.9), "plan-shares"),
+    (dict(coders=2, categories=4, rarest=0.3, expected=0.9), "plan-shares"),
+    (dict(coders=2, expected=0.9), "plan-shares"),
+    (dict(coders=2, categories=1, expected=0.9), "plan-shares"),
+    (dict(coders=2, categories=3, expected=0.8, minimum=0.8), "plan-expected-below-minimum"),
+    (dict(coders=2, categories=3, expected=0.7), "plan-expected-below-minimum"),
+    (dict(coders=1, categories=3, expected=0.9), "plan-coders"),
+    (dict(coders=2, categories=3, expected=1.0), "plan-expected"),
+    (dict(coders=2, categories=3, expected=0.9, level="ratio"), "plan-level"),
+    (dict(coders=2, categories=3, expected=0.9, confidence_level=1.2), "plan-ci"),
+    (dict(coders=2, categories=3, expected=0.9, assurance=1.0), "plan-assurance"),
+    (dict(coders=2, categories=3, expected=0.9, missing=0.95), "plan-missing"),
+    (dict(coders=2, categories=3, expected=0.9, replicates=10), "plan-replicates"),
+    (dict(coders=2, categories=3, expected=0.9, min_units=50, max_units=40), "plan-range"),
+])
+def test_bad_inputs_raise(kwargs, code):
+    with pytest.raises(AgreeError) as err:
+        plan_sample(**kwargs)
+    codes = {err.value.code} | {p.code for p in err.value.problems}
+    assert code in codes
+
+
+def test_several_problems_reported_together():
+    with pytest.raises(AgreeError) as err:
+        plan_sample(coders=1, categories=3, expected=0.9, assurance=2.0, level="ratio")
+    assert {p.code for p in err.value.problems} == {"plan-coders", "plan-assurance", "plan-level"}
+
+
+# -- decision text ----------------------------------------------------------------------------------
+
+def _result(estimate, lower=None, ci_low=None, level=0.95):
+    return AgreementResult(name="krippendorff_alpha", estimate=estimate, lower_bound=lower,
+                           ci_low=ci_low, confidence_level=level)
+
+
+def test_decision_sentence_clears():
+    text = decision_sentence(_result(0.84, lower=0.81), 0.8, 0.95)
+    assert text == "alpha = .84; the one-sided 95% lower bound .81 clears the minimum .80"
+
+
+def test_decision_sentence_does_not_clear():
+    text = decision_sentence(_result(0.84, lower=0.77), 0.8, 0.95)
+    assert text == "alpha = .84; the one-sided 95% lower bound .77 does not clear the minimum .80"
+
+
+def test_decision_sentence_shows_digits_that_decide():
+    text = decision_sentence(_result(0.84, lower=0.803), 0.8, 0.95)
+    assert "lower bound .803 clears the minimum .800" in text
+    text = decision_sentence(_result(0.84, lower=0.7996), 0.8, 0.95)
+    assert "does not clear" in text and ".7996" in text
+
+
+def test_decision_sentence_two_sided_fallback_and_undefined():
+    text = decision_sentence(_result(0.9, ci_low=0.85, level=0.9), 0.8)
+    assert "the lower end of the two-sided 90% interval .85 clears the minimum .80" in text
+    assert "undefined" in decision_sentence(_result(float("nan")), 0.8)
+    assert "no confidence bound" in decision_sentence(_result(0.9), 0.8)
+    neg = decision_sentence(_result(-0.12, lower=-0.3), 0.667, 0.95)
+    assert neg.startswith("alpha = -.12;") and ".67" in neg
+
+
+# -- CLI --------------------------------------------------------------------------------------------
+
+def test_cli_plan_json_equals_library():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    args = ["plan", "--coders", "2", "--shares", "0.6,0.4", "--expected", "0.9", "--min", "0.8",
+            "--seed", "4", "--replicates", "100", "--boot", "100", "--format", "json"]
+    out = CliRunner().invoke(app, args)
+    assert out.exit_code == 0, out.output
+    got = json.loads(out.stdout)
+    want = plan_sample(coders=2, shares=[0.6, 0.4], expected=0.9, minimum=0.8, seed=4, **FAST).to_dict()
+    assert "units_needed" in got
+    assert got == json.loads(json.dumps(want))
+
+
+def test_cli_plan_table_and_plot(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    png = tmp_path / "a.png"
+    out = CliRunner().invoke(app, ["plan", "--coders", "2", "--categories", "2", "--expected", "0.9",
+                                   "--replicates", "100", "--boot", "100", "--plot", str(png)])
+    assert out.exit_code == 0, out.output
+    assert "Units needed" in out.stdout and "Krippendorff (2004; 2013)" in out.stdout
+    assert "memory" not in out.stdout and "METHODS" not in out.stdout and "\\[" not in out.stdout
+    assert png.exists()
+
+
+def test_closed_form_says_it_assumes_two_coders_when_more_are_planned():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    p = plan_sample(coders=3, categories=4, expected=0.9, minimum=0.8, seed=1, **FAST)
+    krippendorff_form = p.closed_forms[0]
+    assert krippendorff_form.assumptions.startswith("Assumes two coders, while 3 are planned here")
+    assert "fewer units usually suffice" in krippendorff_form.assumptions
+    assert len(p.closed_forms) == 1                       # Donner-Eliasziw is for two coders only
+    out = CliRunner().invoke(app, ["plan", "--coders", "3", "--categories", "4", "--expected", "0.9",
+                                   "--replicates", "60", "--boot", "60"], terminal_width=300)
+    assert out.exit_code == 0, out.output
+    assert "Assumes two" in out.stdout and "3 are planned" in out.stdout   # cells wrap in the table
+
+
+def test_cli_plan_bad_input_exit_code_2():
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    agree_bin = Path(sys.executable).with_name("agree")
+    res = subprocess.run([str(agree_bin), "plan", "--coders", "2", "--shares", "0.5,0.4",
+                          "--expected", "0.9"], capture_output=True, text=True)
+    assert res.returncode == 2
+    assert res.stderr.startswith("error:") and "sum to 0.9" in res.stderr
+    assert "Traceback" not in res.stderr
+
+
+def test_plan_to_frame_and_notebook_display():
+    p = plan_sample(coders=2, categories=2, expected=0.9, seed=7, **FAST)
+    frame = p.to_frame()
+    assert list(frame.columns) == ["units", "assurance", "mc_error", "smoothed"]
+    assert frame["units"].tolist() == [pt.units for pt in p.curve]
+    # Monte Carlo error of a share: sqrt(P(1 - P)/R)
+    assert np.allclose(frame["mc_error"], np.sqrt(frame["assurance"] * (1 - frame["assurance"]) / p.replicates))
+    page = p._repr_html_()
+    assert page.startswith('<div class="agree-result"><p>Plan: ') and "<table" in page
+    assert ">nan<" not in page.lower()

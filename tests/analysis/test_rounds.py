@@ -1,0 +1,426 @@
+"""Coding rounds: per-round agreement, differences between rounds, definitions, drift.
+
+External checks: per-round and per-code α against the `krippendorff` package (reference
+library); the difference interval against a direct computation from the engine's own
+replicates (the definition in METHODS 7.1/7.2 applied to two independent samples, Efron &
+Tibshirani 1993, ch. 8); properties (identical rounds give a zero difference whose interval
+covers 0; a much better round is detected).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import krippendorff
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+import agree
+from agree import krippendorff_alpha
+from agree.analysis.rounds import compare_rounds, difference_interval, split_rounds
+from agree.core.model import AgreeError, from_table
+from agree.io.readers import read
+from agree.output.report import build_report
+from tests.conftest import as_labels, simulate_codes
+
+SAMPLES = Path(__file__).resolve().parents[2] / "samples"
+CODES = ["Belonging", "Skills learning", "Time pressure", "Burnout"]
+
+
+def _round(rng, n, alpha, missing=0.0):
+    codes = simulate_codes(rng, n, 3, len(CODES), alpha=alpha, missing=missing)
+    return from_table(as_labels(codes, CODES), coders=["a", "b", "c"], categories=CODES)
+
+
+def _reference_alpha(data):
+    matrix = np.where(data.codes.T >= 0, data.codes.T, np.nan).astype(float)
+    return krippendorff.alpha(reliability_data=matrix, level_of_measurement="nominal")
+
+
+@pytest.fixture(scope="module")
+def sample_rounds():
+    data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
+    return data, compare_rounds(data, n_resamples=500, seed=11)
+
+
+def test_replicates_are_those_behind_the_engine_interval():
+    rng = np.random.default_rng(3)
+    data = _round(rng, 90, 0.6, missing=0.1)
+    res = krippendorff_alpha(data, n_resamples=800, seed=42, ci_method="percentile")
+    reps = res.replicates
+    low, high = np.quantile(reps[np.isfinite(reps)], [0.025, 0.975])
+    assert (low, high) == pytest.approx((res.ci_low, res.ci_high), abs=1e-12)
+
+
+def test_per_round_alpha_matches_reference_library(sample_rounds):
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    assert [r.round for r in result.rounds] == ["1", "2"]
+    assert [r.n_units for r in result.rounds] == [120, 150]
+    for r in result.rounds:
+        d = parts[r.round]
+        assert r.overall.estimate == pytest.approx(_reference_alpha(d), abs=1e-12)
+        for code, res in r.per_code.items():
+            binary = d.presence(code)
+            if res.defined:
+                assert res.estimate == pytest.approx(_reference_alpha(binary), abs=1e-12)
+
+
+def test_round_files_give_the_same_result_as_a_round_column(sample_rounds):
+    _, from_column = sample_rounds
+    files = {name: read(SAMPLES / f"round{name}.csv", codebook=SAMPLES / "codebook.csv", keep=["interview"])
+             for name in ("1", "2")}
+    from_files = compare_rounds(files, n_resamples=500, seed=11)
+    assert [r.overall.estimate for r in from_files.rounds] == \
+        pytest.approx([r.overall.estimate for r in from_column.rounds], abs=1e-12)
+
+
+def test_difference_interval_from_independent_replicates(sample_rounds):
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    overall = [c for c in result.changes if c.code is None][0]
+    # the seeds are derived per round (round index, code index 0 = overall)
+    from agree.analysis.rounds import _child_seed
+
+    r1 = krippendorff_alpha(parts["1"], n_resamples=500, seed=_child_seed(11, 0, 0)).replicates
+    r2 = krippendorff_alpha(parts["2"], n_resamples=500, seed=_child_seed(11, 1, 0)).replicates
+    diff = r2 - r1
+    low, high = np.quantile(diff[np.isfinite(diff)], [0.025, 0.975])
+    assert (overall.ci_low, overall.ci_high) == pytest.approx((low, high), abs=1e-12)
+    assert overall.difference == pytest.approx(result.rounds[1].overall.estimate - result.rounds[0].overall.estimate)
+    # in the synthetic scenario round 2 used a sharper codebook: the rise is beyond noise
+    assert overall.beyond_noise and overall.ci_low > 0
+
+
+def test_identical_rounds_show_no_change():
+    rng = np.random.default_rng(5)
+    data = _round(rng, 120, 0.6)
+    result = compare_rounds({"r1": data, "r2": data}, n_resamples=1000, seed=2)
+    overall = [c for c in result.changes if c.code is None][0]
+    assert overall.difference == 0
+    assert overall.ci_low < 0 < overall.ci_high
+    assert not overall.beyond_noise
+    assert "within sampling noise" in " ".join(result.summary)
+
+
+def test_difference_interval_edge_cases():
+    assert difference_interval(np.array([np.nan, np.nan]), np.array([0.5, 0.6]), estimate=0.1,
+                               confidence_level=0.95) == (None, None, None)
+
+
+def test_codebook_changes_are_flagged():
+    rng = np.random.default_rng(8)
+    r1, r2, r3 = (_round(rng, 60, 0.7) for _ in range(3))
+    book1 = {c: f"definition of {c}" for c in CODES}
+    book2 = dict(book1, Burnout="exhaustion only, not time")
+    book3 = dict(book2, Belonging="definition   of Belonging")      # whitespace only: not a change
+    result = compare_rounds({"1": r1, "2": r2, "3": r3}, n_resamples=0, seed=1,
+                            codebooks={"1": book1, "2": book2, "3": book3})
+    changes = [(d.code, d.round, d.since_round, d.kind) for d in result.definition_changes]
+    assert changes == [("Burnout", "2", "1", "definition changed")]
+    assert result.round("2").changed_codes == ("Burnout",)
+    assert result.round("3").changed_codes == ()
+    assert any("‘Burnout’: definition changed in round 2 since round 1" in s for s in result.summary)
+
+
+def test_codebook_files(tmp_path):
+    rng = np.random.default_rng(9)
+    r1, r2 = _round(rng, 50, 0.7), _round(rng, 50, 0.7)
+    (tmp_path / "cb1.csv").write_text("code,description\n" + "".join(f"{c},old {c}\n" for c in CODES))
+    (tmp_path / "cb2.csv").write_text("code,description\n" + "".join(
+        f"{c},{'new' if c == 'Time pressure' else 'old'} {c}\n" for c in CODES))
+    result = compare_rounds({"1": r1, "2": r2}, n_resamples=0, seed=1,
+                            codebooks={"1": tmp_path / "cb1.csv", "2": tmp_path / "cb2.csv"})
+    assert [d.code for d in result.definition_changes] == ["Time pressure"]
+
+
+def test_drift_check_detects_a_drop():
+    rng = np.random.default_rng(10)
+    full1, full2 = _round(rng, 150, 0.85), _round(rng, 150, 0.9)
+    drift = _round(rng, 60, 0.3)
+    result = compare_rounds({"pilot": full1, "main": full2, "after split": drift}, n_resamples=1000, seed=4,
+                            drift_round="after split", minimum=0.8)
+    dr = result.drift
+    assert dr.reference == "main"
+    assert dr.drifted and dr.below_minimum and dr.change.ci_high < 0
+    assert result.final_round == "main"
+    # the drift round is checked, not compared as a round of its own
+    assert {(c.from_round, c.to_round) for c in result.changes} == {("pilot", "main")}
+    assert "dropped beyond sampling noise" in dr.verdict
+    assert any(s.startswith("Drift check: round after split") for s in result.summary)
+
+
+def test_summary_names_codes_still_below(sample_rounds):
+    _, result = sample_rounds
+    text = " ".join(result.summary)
+    assert "Round 2 reached α" in text
+    assert "still below .800" in text
+    for r in result.rounds:
+        assert f"α {r.overall.estimate:.2f}".replace("0.", ".") in text
+
+
+def test_errors():
+    rng = np.random.default_rng(1)
+    a, b = _round(rng, 30, 0.7), _round(rng, 30, 0.7)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds({"1": a, "2": b}, drift_round="3", n_resamples=0)
+    assert err.value.code == "drift-round"
+    with pytest.raises(AgreeError):
+        compare_rounds({"1": a, "2": b}, drift_round="1", n_resamples=0)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds({"1": a, "2": b}, codebooks={"9": {}}, n_resamples=0)
+    assert err.value.code == "codebook-round"
+    with pytest.raises(AgreeError) as err:
+        compare_rounds(a, n_resamples=0)
+    assert err.value.code == "round-column"
+
+
+def test_same_seed_same_result():
+    rng = np.random.default_rng(12)
+    parts = {"1": _round(rng, 40, 0.6), "2": _round(rng, 40, 0.7)}
+    one = compare_rounds(parts, n_resamples=300, seed=9).to_dict()
+    two = compare_rounds(parts, n_resamples=300, seed=9).to_dict()
+    assert one == two
+    json.dumps(one, allow_nan=False)
+
+
+def test_report_includes_rounds_when_the_data_have_them(sample_rounds):
+    data, _ = sample_rounds
+    report = build_report(data, n_resamples=300, seed=3, corpus_size=600)
+    out = report.to_dict()
+    assert out["analysed_round"] == "2"
+    assert out["sample"]["units_read"] == 150
+    assert out["sample"]["units_double_coded"] == 270
+    # all rounds (N) and the round described (n), each with its share of the corpus
+    assert ("Over 2 rounds, N = 270 units were double-coded (45.0% of the 600-unit corpus)"
+            in out["methods"])
+    assert "describe round 2, the last full round, n = 150 units (25.0% of the corpus)" in out["methods"]
+    assert "45.0% of the 600 units in the corpus" not in out["methods"]
+    # the rounds of the sample coded different units: the paragraph says what that means
+    assert report.rounds.shared_units() == 0
+    assert "Different rounds coded different units" in out["methods"]
+    assert out["rounds"]["final_round"] == "2"
+    from agree.output.report import report_tables
+    assert {"rounds", "round_changes"} <= {t.key for t in report_tables(report)}
+    assert "<table" in report.rounds._repr_html_()
+
+
+def test_trend_plot_fixed_axis(sample_rounds):
+    _, result = sample_rounds
+    from agree.output.plots import rounds_trend_figure
+    fig = rounds_trend_figure(result)
+    visible = [ax for ax in fig.axes if ax.get_visible()]
+    assert len(visible) == 1 + len(result.codes)
+    for ax in visible:
+        assert ax.get_ylim()[0] == pytest.approx(-0.2)
+        assert any(line.get_ydata()[0] == 0.8 for line in ax.get_lines() if line.get_linestyle() == "--")
+
+
+def _cli():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    return app
+
+
+def test_cli_rounds_json_equals_library(tmp_path, sample_rounds):
+    _, _ = sample_rounds
+    plot = tmp_path / "trend.png"
+    args = ["rounds", str(SAMPLES / "rounds_long.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
+            "--boot", "500", "--seed", "11", "--format", "json", "--plot", str(plot)]
+    result = CliRunner().invoke(_cli(), args)
+    assert result.exit_code == 0, result.output
+    data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
+    assert json.loads(result.stdout) == compare_rounds(data, n_resamples=500, seed=11).to_dict()
+    assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_cli_rounds_round_files_and_table(tmp_path):
+    args = ["rounds", str(SAMPLES / "round1.csv"), str(SAMPLES / "round2.csv"), "--round-files", "--keep",
+            "interview", "--codebook", str(SAMPLES / "codebook.csv"), "--boot", "200", "--seed", "1",
+            "--codebooks", f"round1={SAMPLES / 'codebook.csv'},round2={SAMPLES / 'codebook.csv'}"]
+    result = CliRunner().invoke(_cli(), args)
+    assert result.exit_code == 0, result.output
+    assert "Agreement per round" in result.stdout and "round2" in result.stdout
+    bad = CliRunner().invoke(_cli(), ["rounds", str(SAMPLES / "round1.csv"), "--codebooks", "nonsense"])
+    assert isinstance(bad.exception, AgreeError)
+
+
+# -- review fixes ----------------------------------------------------------------------------
+
+def _replicated_round(rng, n=50, copies=4):
+    base = _round(rng, n, 0.6)
+    labels = base.labels().to_numpy()
+    big = from_table(np.repeat(labels, copies, axis=0), coders=["a", "b", "c"], categories=CODES)
+    from dataclasses import replace
+    big = replace(big, columns={"doc": np.repeat([f"d{i}" for i in range(n)], copies)})
+    return base, big
+
+
+def test_rounds_resample_whole_clusters_within_each_round():
+    # Each unit copied four times within its group: resampling groups gives about the width
+    # of the original round; resampling the copies as if independent about half of it
+    # (Efron & Tibshirani 1993: resample the independent units).
+    rng = np.random.default_rng(11)
+    base1, big1 = _replicated_round(rng)
+    base2, big2 = _replicated_round(rng)
+    kw = dict(n_resamples=1500, seed=2, ci_method="percentile")
+    width = lambda r: r.overall.ci_high - r.overall.ci_low  # noqa: E731
+    plain_ = compare_rounds({"1": base1, "2": base2}, **kw)
+    units = compare_rounds({"1": big1, "2": big2}, **kw)
+    groups = compare_rounds({"1": big1, "2": big2}, cluster="doc", **kw)
+    for name in ("1", "2"):
+        assert width(groups.round(name)) == pytest.approx(width(plain_.round(name)), rel=0.25)
+        assert width(units.round(name)) < 0.75 * width(groups.round(name))
+        assert groups.round(name).overall.estimate == pytest.approx(units.round(name).overall.estimate)
+        assert groups.round(name).overall.bootstrap.unit == "cluster"
+    assert groups.cluster == "doc" and groups.n_clusters == {"1": 50, "2": 50}
+    assert groups.to_dict()["settings"]["cluster"] == "doc"
+    assert not any(w.code == "few-clusters" for w in groups.warnings)
+
+
+def test_rounds_warn_about_few_clusters_and_unknown_column():
+    parts = {"r1": read(SAMPLES / "round1.csv", keep=["interview"]),
+             "r2": read(SAMPLES / "round2.csv", keep=["interview"])}
+    result = compare_rounds(parts, cluster="interview", n_resamples=100, seed=1)
+    few = [w.message for w in result.warnings if w.code == "few-clusters"]
+    assert len(few) == 2 and all("12 interview groups" in m for m in few)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds(parts, cluster="nope", n_resamples=10)
+    assert err.value.code == "cluster"
+
+
+def test_cli_rounds_without_a_round_column_points_to_the_options():
+    import subprocess
+    import sys
+
+    exe = Path(sys.executable).parent / "agree"
+    proc = subprocess.run([str(exe), "rounds", str(SAMPLES / "round1.csv"), "--boot", "0"],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert "--round-column NAME" in proc.stderr and "--round-files" in proc.stderr
+    assert "no kept column" not in proc.stderr
+
+
+def test_cli_rounds_cluster():
+    result = CliRunner().invoke(_cli(), ["rounds", str(SAMPLES / "round1.csv"), str(SAMPLES / "round2.csv"),
+                                         "--round-files", "--cluster", "interview", "--boot", "100",
+                                         "--format", "json"])
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    assert printed["settings"]["cluster"] == "interview"
+    assert printed["settings"]["n_clusters"] == {"round1": 12, "round2": 12}
+    assert "12 interview groups" in result.stderr
+
+
+def test_each_round_shows_the_same_alpha_and_interval_as_score(sample_rounds):
+    # one figure per round whichever command prints it: same data, same seed, same interval
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    for name in ("1", "2"):
+        scored = agree.score(parts[name], n_resamples=500, seed=11).coefficients["krippendorff_alpha"]
+        shown = result.round(name).overall
+        assert (shown.estimate, shown.ci_low, shown.ci_high) == (scored.estimate, scored.ci_low, scored.ci_high)
+
+
+def test_report_on_rounds_prints_the_interval_of_score_for_the_analysed_round(sample_rounds):
+    data, _ = sample_rounds
+    report = build_report(data, n_resamples=300, seed=4)
+    alpha = report.primary_result
+    scored = agree.score(split_rounds(data)["2"], n_resamples=300, seed=4).coefficients["krippendorff_alpha"]
+    assert (alpha.ci_low, alpha.ci_high) == (scored.ci_low, scored.ci_high)
+    assert (report.rounds.round("2").overall.ci_low, report.rounds.round("2").overall.ci_high) == \
+        (scored.ci_low, scored.ci_high)
+
+
+def test_per_code_figures_shown_per_round_equal_diagnose_codes_with_the_seed(sample_rounds):
+    from agree.analysis.diagnostics import diagnose_codes
+    from agree.analysis.rounds import split_rounds
+
+    data, result = sample_rounds
+    for name, part in split_rounds(data).items():
+        diag = diagnose_codes(part, minimum=0.8, n_resamples=500, seed=11)
+        rows = diag.per_code.set_index(diag.per_code["code"].astype(str))
+        shown = result.round(name)
+        assert set(shown.per_code) == set(rows.index)
+        for code, res in shown.per_code.items():
+            row = rows.loc[code]
+            assert res.estimate == row.alpha
+            assert (res.ci_low, res.ci_high) == (row.ci_low, row.ci_high)
+            assert res.lower_bound == row.lower_bound and res.p_below_min == row.p_below_min
+            assert shown.code_status[code] == row.status
+    # the figure plots the same numbers
+    frame = result.to_frame()
+    first = frame[(frame["round"] == "1") & frame["code"].notna()].iloc[0]
+    assert first.estimate == result.round("1").per_code[first.code].estimate
+
+
+def test_differences_between_rounds_keep_independent_resamples(sample_rounds):
+    # the intervals of differences come from replicates with a seed derived per round and
+    # code (independent of the resamples shown), as before
+    from agree.analysis.rounds import _child_seed, split_rounds
+
+    data, result = sample_rounds
+    parts = split_rounds(data)
+    code = result.codes[0]
+    reps = []
+    for i, name in enumerate(["1", "2"]):
+        j = list(result.codes).index(code) + 1
+        binary = parts[name].presence(code)
+        res = krippendorff_alpha(binary, level="nominal", seed=_child_seed(11, i, j), n_resamples=500,
+                                 minimum=0.8)
+        reps.append(res.replicates)
+    ch = next(c for c in result.changes if c.code == code)
+    low, high, _ = difference_interval(reps[0], reps[1], estimate=ch.difference, confidence_level=0.95)
+    assert (ch.ci_low, ch.ci_high) == pytest.approx((low, high), abs=1e-12)
+
+
+def test_report_per_code_table_equals_the_rounds_figures_of_that_round(sample_rounds):
+    data, _ = sample_rounds
+    report = build_report(data, n_resamples=300, seed=4)
+    final = report.rounds.round(report.analysed_round)
+    for rec in report.per_code:
+        res = final.per_code[str(rec["code"])]
+        assert res.estimate == pytest.approx(rec["alpha"], abs=0)
+        assert (res.ci_low, res.ci_high) == (rec["ci_low"], rec["ci_high"])
+        assert final.code_status[str(rec["code"])] == rec["status"]
+    # without a seed one is drawn and shared by both
+    drawn = build_report(data, n_resamples=100)
+    final = drawn.rounds.round(drawn.analysed_round)
+    rec = drawn.per_code[0]
+    assert final.per_code[str(rec["code"])].ci_low == rec["ci_low"]
+    assert drawn.rounds.seed == drawn.seed
+
+
+def _rare_rounds():
+    # code 'Rare' is used on 2 shared units in round 1 and 3 in round 2: too rare (< 5)
+    rng = np.random.default_rng(5)
+    out = {}
+    for name, k in (("1", 2), ("2", 3)):
+        a = list(rng.choice(["X", "Y"], 60))
+        b = [v if rng.random() < 0.9 else ("Y" if v == "X" else "X") for v in a]
+        for u in range(k):
+            a[u] = "Rare"
+        b[0] = "Rare"
+        out[name] = from_table(np.array([a, b], dtype=object).T, coders=["a", "b"], categories=["X", "Y", "Rare"])
+    return out
+
+
+def test_too_rare_codes_are_marked_in_changes_and_below_lists():
+    from agree.output.report import rounds_tables
+
+    result = compare_rounds(_rare_rounds(), n_resamples=200, seed=3, minimum=0.8)
+    for r in result.rounds:
+        assert r.code_status["Rare"] == "too rare"
+        assert "Rare" in r.too_rare and "Rare" not in r.codes_below(0.8)
+    tables = {t.key: t for t in rounds_tables(result, 2)}
+    below = [row[-1].text for row in tables["rounds"].rows]
+    assert all("Rare (too rare)" in cell for cell in below)
+    change = [row[1].text for row in tables["round_changes"].rows if row[1].text.startswith("Rare")]
+    assert change == ["Rare (too rare in round 1 and round 2)"]
+    summary = " ".join(result.summary)
+    assert "‘Rare’ was used on too few units to judge" in summary
+    assert not any("Rare" in line and "below" in line for line in result.summary)
+    assert result.to_dict()["rounds"][0]["code_status"]["Rare"] == "too rare"

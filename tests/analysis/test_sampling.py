@@ -1,0 +1,529 @@
+"""Drawing the reliability sample and writing coding workbooks (agree.analysis.sampling).
+
+All corpora here are synthetic: invented unit ids, invented answers and invented groups.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import krippendorff
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from typer.testing import CliRunner
+
+from agree.analysis.sampling import (
+    draw_sample,
+    largest_remainder_allocation,
+    load_codebook_categories,
+    read_corpus,
+    read_unit_ids,
+    write_coding_sheets,
+)
+from agree.core.model import AgreeError
+
+CODES = ["praise", "complaint", "question"]
+
+
+def make_corpus(n=240, seed=0) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    return pd.DataFrame({
+        "unit_id": [f"u{i:04d}" for i in range(n)],
+        "text": [f"synthetic answer number {i} about the invented service" for i in range(n)],
+        "participant": rng.choice(["p1", "p2", "p3", "p4", "p5"], size=n, p=[0.4, 0.25, 0.2, 0.1, 0.05]),
+    })
+
+
+# -- allocation and draws ------------------------------------------------------------------------
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.integers(1, 60), min_size=1, max_size=12), st.data())
+def test_largest_remainder_is_within_one_unit(sizes, data):
+    total = sum(sizes)
+    n = data.draw(st.integers(1, total))
+    alloc = largest_remainder_allocation(sizes, n)
+    quota = n * np.array(sizes) / total
+    assert alloc.sum() == n
+    assert np.all(np.abs(alloc - quota) < 1)
+    assert np.all(alloc <= np.array(sizes))
+
+
+def test_stratified_draw_keeps_every_share_within_one_unit():
+    corpus = make_corpus()
+    sample = draw_sample(corpus, 50, stratify="participant", seed=3)
+    sizes = corpus["participant"].value_counts()
+    drawn = sample["participant"].value_counts()
+    for group, size in sizes.items():
+        assert abs(drawn.get(group, 0) - 50 * size / len(corpus)) < 1
+    assert sample.attrs["allocation"] == {g: int(drawn.get(g, 0)) for g in sample.attrs["allocation"]}
+
+
+def test_draw_is_reproducible_without_duplicates():
+    corpus = make_corpus()
+    a = draw_sample(corpus, 60, seed=11)
+    b = draw_sample(corpus, 60, seed=11)
+    c = draw_sample(corpus, 60, seed=12)
+    pd.testing.assert_frame_equal(a, b)
+    assert a["unit_id"].is_unique and len(a) == 60
+    assert list(a["unit_id"]) != list(c["unit_id"])
+    assert list(a["draw_order"]) == list(range(1, 61))
+    # corpus_row points back at the row of the sheet (header = row 1)
+    for uid, row in zip(a["unit_id"], a["corpus_row"]):
+        assert corpus["unit_id"].iloc[row - 2] == uid
+    assert a.attrs["seed"] == 11 and a.attrs["corpus_size"] == len(corpus)
+
+
+def test_whole_corpus_can_be_drawn():
+    corpus = make_corpus(30)
+    sample = draw_sample(corpus, 30, stratify="participant", seed=1)
+    assert set(sample["unit_id"]) == set(corpus["unit_id"])
+
+
+def test_seed_is_recorded_when_not_given():
+    corpus = make_corpus()
+    a = draw_sample(corpus, 20)
+    b = draw_sample(corpus, 20, seed=a.attrs["seed"])
+    assert list(a["unit_id"]) == list(b["unit_id"])
+
+
+def test_duplicate_and_blank_ids_are_errors_with_rows():
+    corpus = make_corpus(10)
+    corpus.loc[4, "unit_id"] = "u0001"
+    corpus.loc[7, "unit_id"] = "u0002"
+    corpus.loc[8, "unit_id"] = ""
+    with pytest.raises(AgreeError) as err:
+        draw_sample(corpus, 3, seed=1)
+    codes = [p.code for p in err.value.problems]
+    assert codes.count("duplicate-unit-id") == 2 and "blank-unit-id" in codes
+    assert "row 6" in err.value.problems[0].where          # 0-based 4 -> spreadsheet row 6
+
+
+def test_numeric_ids_one_and_one_point_zero_are_the_same():
+    corpus = pd.DataFrame({"id": [1, 2, 1.0], "text": ["a", "b", "c"]})
+    with pytest.raises(AgreeError) as err:
+        draw_sample(corpus, 1, seed=1)
+    assert err.value.code == "duplicate-unit-id"
+
+
+@pytest.mark.parametrize("kwargs,code", [
+    (dict(n=500), "sample-too-large"),
+    (dict(n=0), "sample-size"),
+    (dict(n=5, stratify="nope"), "no-stratify-column"),
+    (dict(n=5, id_col="nope"), "no-id-column"),
+])
+def test_bad_draws(kwargs, code):
+    with pytest.raises(AgreeError) as err:
+        draw_sample(make_corpus(), **kwargs)
+    assert err.value.code == code
+
+
+def test_id_column_must_be_found():
+    with pytest.raises(AgreeError) as err:
+        draw_sample(pd.DataFrame({"x": [1, 2]}), 1)
+    assert err.value.code == "no-id-column"
+
+
+# -- the workbooks --------------------------------------------------------------------------------
+
+def _read_sheet(path):
+    wb = openpyxl.load_workbook(path)
+    assert wb.sheetnames == ["coding"]
+    ws = wb["coding"]
+    rows = list(ws.iter_rows(values_only=True))
+    return ws, rows
+
+
+def test_workbooks_and_manifest(tmp_path):
+    corpus_file = tmp_path / "units.csv"
+    make_corpus().to_csv(corpus_file, index=False)
+    corpus = read_corpus(corpus_file)
+    sample = draw_sample(corpus, 25, stratify="participant", seed=5)
+    out = tmp_path / "sheets"
+    written = write_coding_sheets(sample, out, coders=["ana", "ben"], codebook=CODES)
+    assert sorted(p.name for p in out.iterdir()) == ["ana.xlsx", "ben.xlsx", "manifest.csv", "manifest.json"]
+    ws, rows = _read_sheet(out / "ana.xlsx")
+    # the stratify column follows the unit id, so the sheets can be scored by participant
+    assert rows[0] == ("unit_id", "participant", "text", "code", "notes")
+    assert len(rows) == 26 and all(r[3] is None and r[4] is None for r in rows[1:])
+    by_id = dict(zip(corpus["unit_id"], corpus["participant"]))
+    assert all(by_id[r[0]] == r[1] for r in rows[1:])
+    assert ws["B2"].fill.start_color.rgb.endswith("EDEDED") and ws["B1"].comment is not None
+    assert written.context_columns == ("participant",)
+    # not shuffled: corpus order, the same for every coder
+    _, rows_b = _read_sheet(out / "ben.xlsx")
+    assert [r[0] for r in rows[1:]] == [r[0] for r in rows_b[1:]] == sorted(r[0] for r in rows[1:])
+    dvs = ws.data_validations.dataValidation
+    assert len(dvs) == 1 and dvs[0].type == "list"
+    assert dvs[0].formula1 == '"praise,complaint,question"'
+    assert str(dvs[0].sqref) == "D2:D26"
+    assert written.drop_down == "inline list"
+
+    manifest = pd.read_csv(out / "manifest.csv", dtype=str)
+    assert list(manifest.columns) == ["unit_id", "stratum", "draw_order", "corpus_row"]
+    assert list(manifest["draw_order"].astype(int)) == list(range(1, 26))
+    assert set(manifest["unit_id"]) == set(sample["unit_id"])
+    meta = json.loads((out / "manifest.json").read_text())
+    assert meta["seed"] == 5 and meta["n"] == 25 and meta["stratify"] == "participant"
+    assert meta["corpus_checksum"] == hashlib.sha256(corpus_file.read_bytes()).hexdigest()
+    assert meta["date"] and meta["coders"] == ["ana", "ben"]
+
+
+def test_shuffle_gives_each_coder_an_order(tmp_path):
+    sample = draw_sample(make_corpus(), 40, seed=2)
+    write_coding_sheets(sample, tmp_path / "s", coders=["ana", "ben", "cai"], shuffle=True)
+    orders = [[r[0] for r in _read_sheet(tmp_path / "s" / f"{c}.xlsx")[1][1:]] for c in ("ana", "ben", "cai")]
+    assert all(sorted(o) == sorted(orders[0]) for o in orders)
+    assert orders[0] != orders[1] != orders[2]
+    write_coding_sheets(sample, tmp_path / "t", coders=["ana", "ben", "cai"], shuffle=True)
+    again = [r[0] for r in _read_sheet(tmp_path / "t" / "ana.xlsx")[1][1:]]
+    assert again == orders[0]                                  # reproducible from the seed
+
+
+def test_refuses_non_empty_folder_unless_forced(tmp_path):
+    sample = draw_sample(make_corpus(), 10, seed=2)
+    (tmp_path / "keep.txt").write_text("someone's notes")
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path, coders=["ana", "ben"])
+    assert err.value.code == "output-exists"
+    write_coding_sheets(sample, tmp_path, coders=["ana", "ben"], force=True)
+    assert (tmp_path / "keep.txt").read_text() == "someone's notes"
+    assert (tmp_path / "ana.xlsx").exists()
+
+
+def test_never_overwrites_the_corpus(tmp_path):
+    corpus_file = tmp_path / "ana.xlsx"
+    make_corpus(20).to_excel(corpus_file, index=False)
+    before = corpus_file.read_bytes()
+    sample = draw_sample(read_corpus(corpus_file), 5, seed=1)
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path, coders=["ana", "ben"], force=True)
+    assert err.value.code == "would-overwrite-corpus"
+    assert corpus_file.read_bytes() == before
+
+
+@pytest.mark.parametrize("coders,code", [(["ana"], "too-few-coders"), (["ana", "ANA"], "duplicate-coder"),
+                                         (["ana", "b/c"], "bad-coder-name"), (["ana", "manifest"], "bad-coder-name")])
+def test_bad_coder_names(tmp_path, coders, code):
+    sample = draw_sample(make_corpus(), 5, seed=1)
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path / "x", coders=coders)
+    assert code in {err.value.code} | {p.code for p in err.value.problems}
+
+
+def test_long_codebook_leaves_the_column_free(tmp_path):
+    sample = draw_sample(make_corpus(), 5, seed=1)
+    codebook = [f"category number {i} with a long name" for i in range(20)]
+    written = write_coding_sheets(sample, tmp_path / "x", coders=["ana", "ben"], codebook=codebook)
+    assert written.drop_down is None
+    ws, _ = _read_sheet(tmp_path / "x" / "ana.xlsx")
+    assert not ws.data_validations.dataValidation
+
+
+def test_codebook_files(tmp_path):
+    (tmp_path / "c.txt").write_text("praise\n\ncomplaint\n")
+    assert list(load_codebook_categories(tmp_path / "c.txt")) == ["praise", "complaint"]
+    pd.DataFrame({"Code": ["a", "b"], "Description": ["first", "second"]}).to_csv(tmp_path / "c.csv", index=False)
+    assert load_codebook_categories(tmp_path / "c.csv") == {"a": "first", "b": "second"}
+
+
+# -- round trip: sample -> fill in -> read -> alpha ---------------------------------------------------
+
+def test_sample_to_score_round_trip(tmp_path):
+    import agree
+    from agree.io.readers import read as readers_read
+
+    read = getattr(agree, "read", readers_read)     # agree.read once agree/__init__.py exports it
+    sample = draw_sample(make_corpus(), 30, seed=8)
+    out = tmp_path / "sheets"
+    write_coding_sheets(sample, out, coders=["ana", "ben", "cai"], codebook=CODES, shuffle=True)
+    rng = np.random.default_rng(8)
+    truth = {uid: CODES[rng.integers(3)] for uid in sample["unit_id"]}
+    filled = {}
+    for coder in ("ana", "ben", "cai"):
+        wb = openpyxl.load_workbook(out / f"{coder}.xlsx")
+        ws = wb["coding"]
+        filled[coder] = {}
+        code_at = [c.value for c in ws[1]].index("code")
+        for row in ws.iter_rows(min_row=2):
+            uid = row[0].value
+            code = truth[uid] if rng.random() < 0.8 else CODES[rng.integers(3)]
+            if coder == "cai" and rng.random() < 0.1:
+                code = None                                      # cai skipped a few units
+            row[code_at].value = code
+            filled[coder][uid] = code
+        wb.save(out / f"{coder}.xlsx")
+
+    data = read([out / "ana.xlsx", out / "ben.xlsx", out / "cai.xlsx"])
+    assert sorted(data.coders) == ["ana", "ben", "cai"]
+    assert data.n_units == 30
+    result = agree.krippendorff_alpha(data, n_resamples=0)
+    units = sorted(truth)
+    table = np.array([[np.nan if filled[c][u] is None else CODES.index(filled[c][u]) for u in units]
+                      for c in ("ana", "ben", "cai")], dtype=float)
+    want = krippendorff.alpha(reliability_data=table, level_of_measurement="nominal")
+    assert result.estimate == pytest.approx(want, abs=1e-12)
+
+
+# -- leaving out units already coded ------------------------------------------------------------
+
+def test_excluded_units_are_never_drawn_and_counted():
+    corpus = make_corpus(100)
+    done = [f"u{i:04d}" for i in range(0, 100, 3)] + ["not-in-corpus", " u0001 "]
+    sample = draw_sample(corpus, 40, seed=3, exclude=done)
+    excluded = {f"u{i:04d}" for i in range(0, 100, 3)} | {"u0001"}
+    assert not set(sample["unit_id"]) & excluded
+    assert sample.attrs["excluded"] == len(excluded) == 35
+    assert sample.attrs["exclude_given"] == 36 and sample.attrs["exclude_not_in_corpus"] == 1
+    for uid, row in zip(sample["unit_id"], sample["corpus_row"]):
+        assert corpus["unit_id"].iloc[row - 2] == uid        # rows still point into the full corpus
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.sets(st.integers(0, 119), max_size=80), st.data())
+def test_stratified_draw_with_exclusions_is_proportional_over_what_is_left(done, data):
+    corpus = make_corpus(120, seed=4)
+    left = corpus[~corpus.index.isin(sorted(done))]
+    n = data.draw(st.integers(1, len(left)))
+    ids = corpus["unit_id"].iloc[sorted(done)].tolist()
+    sample = draw_sample(corpus, n, stratify="participant", seed=9, exclude=ids)
+    assert len(sample) == n and sample["unit_id"].is_unique and not set(sample["unit_id"]) & set(ids)
+    sizes = left["participant"].value_counts()
+    drawn = sample["participant"].value_counts()
+    for group, size in sizes.items():
+        assert abs(drawn.get(group, 0) - n * size / len(left)) < 1
+    assert sample.attrs["strata_sizes"] == {g: int(sizes.get(g, 0)) for g in sample.attrs["strata_sizes"]}
+
+
+def test_numeric_ids_excluded_alike():
+    corpus = pd.DataFrame({"id": [1, 2, 3, 4], "text": list("abcd")})
+    sample = draw_sample(corpus, 2, seed=1, exclude=[" 1 ", 2.0])   # text "1" from a CSV, 2.0 from a workbook
+    assert sorted(sample["id"]) == [3, 4] and sample.attrs["excluded"] == 2
+
+
+def test_too_few_units_left_after_exclusion():
+    corpus = make_corpus(10)
+    with pytest.raises(AgreeError) as err:
+        draw_sample(corpus, 8, seed=1, exclude=corpus["unit_id"][:5])
+    assert err.value.code == "sample-too-large" and "excluding 5 already coded" in err.value.message
+    assert err.value.hint == "draw at most 5"
+
+
+def test_read_unit_ids_from_coding_files_and_lists(tmp_path):
+    # wide coding file with an excerpt_id column (as samples/round1.csv)
+    (tmp_path / "r1.csv").write_text("excerpt_id,interview,ann,bo\nE1,I1,a,b\nE2,I1,a,a\n")
+    # long file: one row per unit and coder, each id once
+    (tmp_path / "r2.csv").write_text("unit,coder,code\nE3,ann,a\nE3,bo,b\nE4,ann,a\n")
+    # workbook with one sheet per coder
+    with pd.ExcelWriter(tmp_path / "r3.xlsx") as xl:
+        pd.DataFrame({"unit_id": ["E5", 6], "code": ["a", "b"]}).to_excel(xl, sheet_name="ann", index=False)
+        pd.DataFrame({"unit_id": ["E5", 7.0], "code": ["a", "b"]}).to_excel(xl, sheet_name="bo", index=False)
+    (tmp_path / "done.txt").write_text("# coded in the pilot\nE8\n\n E9 \n")
+    ids = read_unit_ids([tmp_path / "r1.csv", tmp_path / "r2.csv", tmp_path / "r3.xlsx", tmp_path / "done.txt"])
+    assert ids == ("E1", "E2", "E3", "E4", "E5", "6", "7", "E8", "E9")
+    (tmp_path / "odd.csv").write_text("key,code\nE1,a\n")
+    assert read_unit_ids(tmp_path / "odd.csv", id_col="key") == ("E1",)
+    with pytest.raises(AgreeError) as err:
+        read_unit_ids(tmp_path / "odd.csv")
+    assert err.value.code == "no-id-column" and "odd.csv" in err.value.message
+
+
+def test_bundled_rounds_are_excluded_from_the_next_sample():
+    from pathlib import Path
+
+    samples = Path(__file__).resolve().parents[2] / "samples"
+    corpus = read_corpus(samples / "corpus.csv")
+    done = read_unit_ids([samples / "round1.csv", samples / "round2.csv"])
+    rounds = set(pd.read_csv(samples / "round1.csv")["excerpt_id"]) | set(pd.read_csv(samples / "round2.csv")["excerpt_id"])
+    assert set(done) == rounds
+    sample = draw_sample(corpus, 200, stratify="interview", seed=1, exclude=done)
+    assert not set(sample["unit_id"]) & rounds
+    assert sample.attrs["excluded"] == len(rounds) and sample.attrs["exclude_not_in_corpus"] == 0
+
+
+# -- context columns in the sheets --------------------------------------------------------------
+
+def test_keep_columns_follow_the_unit_id(tmp_path):
+    corpus = make_corpus(30)
+    corpus["site"] = ["north", "south", "east"] * 10
+    sample = draw_sample(corpus, 9, stratify="participant", seed=1)
+    written = write_coding_sheets(sample, tmp_path / "s", coders=["ana", "ben"], keep=["site", "participant"])
+    _, rows = _read_sheet(tmp_path / "s" / "ana.xlsx")
+    assert rows[0] == ("unit_id", "participant", "site", "text", "code", "notes")
+    assert written.context_columns == ("participant", "site")
+    meta = json.loads((tmp_path / "s" / "manifest.json").read_text())
+    assert meta["context_columns"] == ["participant", "site"]
+
+
+@pytest.mark.parametrize("keep,code", [(["nope"], "no-keep-column"), (["Code"], "column-clash")])
+def test_bad_keep_columns(tmp_path, keep, code):
+    corpus = make_corpus(10)
+    corpus["Code"] = "x"
+    sample = draw_sample(corpus, 3, seed=1)
+    with pytest.raises(AgreeError) as err:
+        write_coding_sheets(sample, tmp_path / "s", coders=["ana", "ben"], keep=keep)
+    assert err.value.code == code
+
+
+def test_filled_sheets_score_by_the_stratify_column(tmp_path):
+    """`agree score sheets/*.xlsx --keep participant --cluster participant` on the filled sheets."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    corpus = make_corpus(200, seed=2)
+    sample = draw_sample(corpus, 60, stratify="participant", seed=2)
+    out = tmp_path / "sheets"
+    write_coding_sheets(sample, out, coders=["ana", "ben"], codebook=CODES, shuffle=True)
+    rng = np.random.default_rng(2)
+    for coder in ("ana", "ben"):
+        wb = openpyxl.load_workbook(out / f"{coder}.xlsx")
+        ws = wb["coding"]
+        code_at = [c.value for c in ws[1]].index("code")
+        for row in ws.iter_rows(min_row=2):
+            row[code_at].value = CODES[(int(row[0].value[1:]) + (rng.random() < 0.2)) % 3]
+        wb.save(out / f"{coder}.xlsx")
+    agree_bin = Path(sys.executable).with_name("agree")
+    res = subprocess.run([str(agree_bin), "score", str(out / "ana.xlsx"), str(out / "ben.xlsx"),
+                          "--keep", "participant", "--cluster", "participant", "--boot", "200",
+                          "--format", "json"], capture_output=True, text=True)
+    assert res.returncode == 0, res.stderr
+    assert "participant" in res.stdout
+
+    import agree
+    from agree.io.readers import read as readers_read
+
+    data = getattr(agree, "read", readers_read)([out / "ana.xlsx", out / "ben.xlsx"], keep=["participant"])
+    groups = dict(zip(corpus["unit_id"], corpus["participant"]))
+    assert [str(g) for g in data.columns["participant"]] == [groups[u] for u in data.unit_ids]
+
+
+# -- CLI ---------------------------------------------------------------------------------------------
+
+def test_cli_sample(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.xlsx"
+    make_corpus(60).to_excel(corpus_file, index=False)
+    before = corpus_file.read_bytes()
+    (tmp_path / "codes.txt").write_text("\n".join(CODES))
+    args = ["sample", str(corpus_file), "-n", "12", "--stratify", "participant", "--coders", "ana,ben",
+            "--codebook", str(tmp_path / "codes.txt"), "-o", str(tmp_path / "sheets"), "--seed", "4",
+            "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["n"] == 12 and got["seed"] == 4 and len(got["files"]) == 2
+    assert got["drop_down"] == "inline list"
+    assert corpus_file.read_bytes() == before
+    again = CliRunner().invoke(app, args)
+    assert again.exit_code != 0                               # folder not empty
+    assert isinstance(again.exception, AgreeError) and again.exception.code == "output-exists"
+
+
+def test_cli_sample_excludes_and_keeps(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.csv"
+    make_corpus(60).to_csv(corpus_file, index=False)
+    (tmp_path / "round1.csv").write_text("unit_id,ana,ben\n" + "".join(f"u{i:04d},a,b\n" for i in range(20)))
+    (tmp_path / "more.txt").write_text("u0020\nu0021\nzzz\n")
+    args = ["sample", str(corpus_file), "-n", "30", "--stratify", "participant", "--coders", "ana,ben",
+            "-o", str(tmp_path / "sheets"), "--exclude", str(tmp_path / "round1.csv"),
+            "--exclude", str(tmp_path / "more.txt"), "--keep-col", "text", "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["excluded"] == 22 and got["exclude_not_in_corpus"] == 1
+    assert got["context_columns"] == ["participant"]          # the text column is there already
+    assert "excluded 22 units already coded" in res.stderr and "1 of those ids" in res.stderr
+    _, rows = _read_sheet(tmp_path / "sheets" / "ana.xlsx")
+    assert not {r[0] for r in rows[1:]} & {f"u{i:04d}" for i in range(22)}
+
+    table = CliRunner().invoke(app, args[:-2] + ["--force"])
+    assert table.exit_code == 0, table.output
+    assert "Already coded" in table.stdout and "--keep participant --cluster participant" in table.stderr
+
+
+def test_cli_sample_help_example_uses_bundled_files(tmp_path):
+    import shlex
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    root = Path(__file__).resolve().parents[2]
+    res = CliRunner().invoke(app, ["sample", "--help"], terminal_width=400)
+    flat = " ".join(res.stdout.split())
+    words = shlex.split(flat.split("Example: ", 1)[1].split(" ╭")[0])
+    assert words[:2] == ["agree", "sample"] and "--exclude" in words
+    for w in words:
+        if w.startswith("samples/"):
+            assert (root / w).is_file(), w
+    args = [str(root / w) if w.startswith("samples/") else w for w in words[1:]]
+    args[args.index("-o") + 1] = str(tmp_path / "sheets")
+    run = CliRunner().invoke(app, args)
+    assert run.exit_code == 0, run.output
+
+
+def _stub_report_and_plan(monkeypatch):
+    """The demo with the report stubbed and a small plan (both are tested on their own)."""
+    from pathlib import Path
+
+    import agree
+    import agree.output.report
+
+    class FakeReport:
+        methods = "Methods paragraph."
+
+    monkeypatch.setattr(agree.output.report, "build_report", lambda *a, **k: FakeReport())
+    monkeypatch.setattr(agree.output.report, "write_report", lambda report, path: [Path(path)])
+    real_plan = agree.plan_sample
+    monkeypatch.setattr(agree, "plan_sample",
+                        lambda **k: real_plan(**{**k, "replicates": 60, "n_resamples": 60}))
+
+
+def test_demo_numbers_its_steps_and_excludes_coded_units(tmp_path, monkeypatch):
+    """The demo's sections are numbered 1, 2, 3, ... once each, and its next sample leaves out
+    the units of rounds 1 and 2. The report and the plan are stubbed (tested elsewhere)."""
+    import re
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    _stub_report_and_plan(monkeypatch)
+    res = CliRunner().invoke(app, ["demo", "--out", str(tmp_path / "demo"), "--boot", "50"],
+                             terminal_width=200)
+    assert res.exit_code == 0, res.output
+    numbers = [int(m) for m in re.findall(r"^(\d+)\. ", res.stdout, flags=re.M)]
+    assert numbers == list(range(1, len(numbers) + 1)) and len(numbers) >= 7
+    root = Path(__file__).resolve().parents[2] / "samples"
+    coded = set(pd.read_csv(root / "round1.csv")["excerpt_id"]) | set(pd.read_csv(root / "round2.csv")["excerpt_id"])
+    manifest = pd.read_csv(tmp_path / "demo" / "sheets" / "manifest.csv", dtype=str)
+    assert len(manifest) > 0 and not set(manifest["unit_id"]) & coded
+    assert f"{len(coded)} units coded in rounds 1 and 2 were excluded" in " ".join(res.stdout.split())
+    _, rows = _read_sheet(tmp_path / "demo" / "sheets" / "amara.xlsx")
+    assert rows[0][:2] == ("unit_id", "interview")
+
+
+def test_demo_json_prints_only_a_summary_of_its_outputs(tmp_path, monkeypatch):
+    import json
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    _stub_report_and_plan(monkeypatch)
+    res = CliRunner().invoke(app, ["demo", "--out", str(tmp_path / "demo"), "--boot", "50", "--format", "json"])
+    assert res.exit_code == 0, res.output
+    summary = json.loads(res.stdout)
+    assert set(summary["rounds"]) == {"round1", "round2"}
+    assert Path(summary["outputs"]["review"]).exists() and summary["drawn"] > 0
+    assert summary["rounds"]["round2"]["estimate"] > summary["rounds"]["round1"]["estimate"]

@@ -1,0 +1,228 @@
+"""CLI tests for `agree codes` and `agree coders` (synthetic data)."""
+
+from __future__ import annotations
+
+import io
+import json
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+import agree.cli.commands  # noqa: F401  (registers the commands)
+from agree.analysis.diagnostics import diagnose_coders, diagnose_codes
+from agree.cli.app import app
+from agree.core.format import format_value
+from agree.core.model import from_table
+
+ROWS = [
+    ("1", "care", "care", "care"), ("2", "care", "blame", "care"), ("3", "blame", "blame", ""),
+    ("4", "anger", "care", "anger"), ("5", "care", "care", "care"), ("6", "blame", "blame", "blame"),
+    ("7", "anger", "anger", "care"), ("8", "care", "care", "blame"), ("9", "blame", "blame", "blame"),
+    ("10", "anger", "anger", "anger"), ("11", "care", "care", "care"), ("12", "blame", "care", "blame"),
+    ("13", "care", "care", "care"), ("14", "anger", "anger", "anger"), ("15", "blame", "care", "care"),
+]
+
+
+@pytest.fixture
+def coding_csv(tmp_path: Path) -> Path:
+    path = tmp_path / "coding.csv"
+    frame = pd.DataFrame(ROWS, columns=["unit", "amara", "ben", "chen"])
+    frame.to_csv(path, index=False)
+    return path
+
+
+def expected_data():
+    frame = pd.DataFrame(ROWS, columns=["unit", "amara", "ben", "chen"]).set_index("unit")
+    return from_table(frame)
+
+
+def run(args):
+    return CliRunner().invoke(app, args)
+
+
+def test_codes_json_equals_to_dict(coding_csv):
+    result = run(["codes", str(coding_csv), "--format", "json", "--boot", "200", "--seed", "3"])
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    library = diagnose_codes(expected_data(), n_resamples=200, seed=3).to_dict()
+    assert printed == json.loads(json.dumps(library))
+    assert printed["codes"][0]["rank"] == 1
+
+
+def test_codes_min_and_csv(coding_csv):
+    result = run(["codes", str(coding_csv), "--format", "csv", "--boot", "0", "--min", "0.5",
+                  "--min-units", "2"])
+    assert result.exit_code == 0, result.output
+    frame = pd.read_csv(io.StringIO(result.stdout))
+    library = diagnose_codes(expected_data(), n_resamples=0, minimum=0.5, min_units_per_code=2)
+    assert list(frame.code) == list(library.to_frame().code)
+    assert list(frame.status) == list(library.to_frame().status)
+    assert "uses_amara" in frame.columns
+
+
+def test_codes_table_shows_worst_first_and_notes(coding_csv):
+    result = run(["codes", str(coding_csv), "--boot", "100", "--seed", "1"])
+    assert result.exit_code == 0, result.output
+    first = diagnose_codes(expected_data(), n_resamples=0).to_frame().code[0]
+    out = result.stdout
+    assert "worst first" in out and "reason" in out
+    assert out.index(first) < out.index("Most confused pairs")
+    assert "read 15 units" in result.stderr          # the reading note goes to stderr
+    assert "resamples of units, seed 1" in result.stderr
+
+
+def test_coders_json_equals_to_dict(coding_csv):
+    result = run(["coders", str(coding_csv), "--format", "json", "--boot", "150", "--seed", "4"])
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    library = diagnose_coders(expected_data(), n_resamples=150, seed=4).to_dict()
+    assert printed == json.loads(json.dumps(library))
+
+
+def test_coders_table(coding_csv):
+    result = run(["coders", str(coding_csv), "--boot", "50", "--seed", "1"])
+    assert result.exit_code == 0, result.output
+    assert "left out" in result.stdout and "Pairs of coders" in result.stdout
+    assert "amara" in result.stdout
+
+
+def test_two_coders_show_directed_counts_and_stuart_maxwell(tmp_path):
+    path = tmp_path / "two.csv"
+    pd.DataFrame([r[:3] for r in ROWS], columns=["unit", "amara", "ben"]).to_csv(path, index=False)
+    result = run(["codes", str(path), "--boot", "0"])
+    assert result.exit_code == 0, result.output
+    assert "amara→ben" in result.stdout
+    assert "Stuart–Maxwell" in result.stdout
+
+
+def test_missing_file_is_one_line_and_exit_code_2(tmp_path):
+    agree_exe = Path(sys.executable).with_name("agree")
+    proc = subprocess.run([str(agree_exe), "codes", str(tmp_path / "none.csv")],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert proc.stderr.startswith("error:") and "Traceback" not in proc.stderr
+    assert len(proc.stderr.strip().splitlines()) == 1
+
+
+def test_help_has_examples():
+    for command in ("codes", "coders"):
+        result = run([command, "--help"])
+        assert result.exit_code == 0
+        assert "Example" in result.stdout and "--format" in result.stdout
+
+
+# -- review fixes ----------------------------------------------------------------------------
+
+SAMPLES = Path(__file__).resolve().parents[2] / "samples"
+
+
+def test_codes_overall_alpha_agrees_with_score_and_names_the_distance():
+    score = run(["score", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0"])
+    assert score.exit_code == 0, score.output
+    alpha = json.loads(score.stdout)["coefficients"]["krippendorff_alpha"]["estimate"]
+    codes = run(["codes", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0"])
+    assert codes.exit_code == 0, codes.output
+    printed = json.loads(codes.stdout)
+    assert printed["alpha"] == pytest.approx(alpha)
+    assert printed["distance"] == "masi"
+    table = run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "0"])
+    assert "masi distance" in table.stdout
+    assert format_value(alpha, "coefficient", 3) in table.stdout
+    jaccard = run(["codes", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0",
+                   "--distance", "jaccard"])
+    assert json.loads(jaccard.stdout)["distance"] == "jaccard"
+    assert json.loads(jaccard.stdout)["alpha"] != pytest.approx(alpha)
+
+
+def test_codes_status_follows_the_interval_on_the_sample():
+    result = run(["codes", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "1000"])
+    codes = {c["code"]: c for c in json.loads(result.stdout)["codes"]}
+    conflict = codes["Conflict"]
+    assert conflict["alpha"] >= 0.8 > conflict["ci_low"]
+    assert conflict["status"] == "uncertain"
+    table = run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "1000"])
+    assert "meets the minimum" not in table.stdout
+    assert "uncertain" in table.stdout
+
+
+def test_codes_table_is_apa_style_with_display_labels_and_coincidence_note():
+    result = run(["codes", str(SAMPLES / "round1.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
+                  "--boot", "200"])
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert not re.search(r"(?<![\d.])0\.\d{3}", out)      # no leading zero (APA, as in score)
+    assert re.search(r"(?<![\d.])\.\d{3}\b", out)          # three decimals, as in score's tables
+    assert "krippendorff_alpha" not in out and "p_s" not in out
+    assert "specific agreement" in out and "Fleiss' κ" in out
+    assert "coincidences" in out
+    assert "¹ coincidences" in result.stderr and "1/(m − 1)" in result.stderr
+    coders = run(["coders", str(SAMPLES / "round1.csv"), "--boot", "200"])
+    assert coders.exit_code == 0, coders.output
+    assert not re.search(r"(?<![\d.])0\.\d{3}", coders.stdout)
+    assert "Krippendorff's α" in coders.stdout and "Cohen's κ" in coders.stdout
+
+
+def test_codes_and_coders_resample_clusters():
+    for command in ("codes", "coders"):
+        result = run([command, str(SAMPLES / "round1.csv"), "--cluster", "interview", "--boot", "200",
+                      "--format", "json"])
+        assert result.exit_code == 0, result.output
+        printed = json.loads(result.stdout)
+        assert printed["bootstrap"]["unit"] == "cluster:interview"
+        assert printed["n_clusters"] == 12
+        assert "12 clusters (interview)" in result.stderr      # fewer than 20: a warning
+        table = run([command, str(SAMPLES / "round1.csv"), "--cluster", "interview", "--boot", "200"])
+        assert "whole interview groups (12 groups)" in table.stderr
+    bad = run(["codes", str(SAMPLES / "round1.csv"), "--cluster", "nope", "--boot", "10"])
+    assert bad.exit_code != 0 and "nope" in str(bad.exception)
+
+
+def test_codes_on_a_rating_scale_prints_a_caution():
+    result = run(["codes", str(SAMPLES / "ratings.csv"), "--codebook", str(SAMPLES / "ratings_codebook.csv"),
+                  "--boot", "0"])
+    assert result.exit_code == 0, result.output
+    assert "of limited use" in result.stderr and "rating scale" in result.stderr
+
+
+def test_codes_notes_name_the_code_and_paradox_is_filtered(tmp_path):
+    path = tmp_path / "rare.csv"
+    rows = [("u0", "rare", "x")] + [(f"u{i}", a, b) for i, (a, b) in
+                                    enumerate([("x", "x"), ("y", "y"), ("x", "y")] * 10, start=1)]
+    pd.DataFrame(rows, columns=["unit", "a", "b"]).to_csv(path, index=False)
+    result = run(["codes", str(path), "--boot", "300", "--min-units", "1"])
+    assert result.exit_code == 0, result.output
+    lines = [ln for ln in result.stderr.splitlines() if "bootstrap replicates were undefined" in ln]
+    assert lines and all("code '" in ln for ln in lines)
+
+
+def test_help_examples_use_bundled_samples():
+    for command in ("codes", "coders", "report", "rounds"):
+        text = run([command, "--help"]).stdout
+        examples = re.findall(r"Example: agree (.+)", text)
+        assert examples, command
+        for example in examples:
+            for token in example.split():
+                if token.startswith("samples/"):
+                    assert (SAMPLES.parent / token).exists(), (command, token)
+
+
+def test_codes_table_shows_the_one_sided_bound_and_says_so():
+    result = run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "500", "--seed", "3"])
+    assert result.exit_code == 0, result.output
+    assert "bound†" in result.stdout
+    assert "one-sided 95% lower bound" in result.stderr
+    assert "rounded down where rounding would reach the minimum" in result.stderr
+    assert "interval's lower end" not in result.stderr
+    data = json.loads(run(["codes", str(SAMPLES / "multicode.xlsx"), "--boot", "500", "--seed", "3",
+                           "--format", "json"]).stdout)
+    for c in data["codes"]:
+        assert "lower_bound" in c
+        if c["status"] == "ok":
+            assert c["lower_bound"] >= 0.8
+        elif c["status"] == "uncertain":
+            assert c["alpha"] >= 0.8 > c["lower_bound"]

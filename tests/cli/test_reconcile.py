@@ -1,0 +1,229 @@
+"""`agree disagreements` and `agree reconcile` end to end, through the console entry point
+(exit codes and stderr as a user sees them). All data are synthetic."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import sys
+from pathlib import Path
+
+import openpyxl
+import pandas as pd
+import pytest
+
+from agree.io.readers import read
+from agree.output.reconciliation import ABOUT_SHEET, REVIEW_SHEET, reconcile, unprotect_text
+
+DATA = ("unit,text,ann,bo,cy\n"
+        "=SUM(A1),café,pos,neg,neg\n"
+        "u2,Zürich,pos,pos,\n"
+        "u3,日本,neg,,\n"
+        "@here,x|y,pos,mixed,neg\n"
+        "-fine,+1,mixed,mixed,mixed\n")
+
+
+def run(capsys, *args):
+    """Run the console entry point in-process; return (exit code, stdout, stderr)."""
+    from agree.cli import main
+
+    argv = sys.argv
+    sys.argv = ["agree", *map(str, args)]
+    try:
+        main()
+        code = 0
+    except SystemExit as exc:
+        code = exc.code or 0
+    finally:
+        sys.argv = argv
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+@pytest.fixture
+def data_file(tmp_path):
+    path = tmp_path / "coding.csv"
+    path.write_text(DATA, encoding="utf-8")
+    return path
+
+
+def fill(path, decisions):
+    wb = openpyxl.load_workbook(path)
+    ws = wb[REVIEW_SHEET]
+    cols = {c.value: c.column for c in ws[1]}
+    for r in range(2, ws.max_row + 1):
+        unit = ws.cell(r, cols["unit"]).value
+        if unit in decisions:
+            ws.cell(r, cols["decision"]).value = decisions[unit]
+            ws.cell(r, cols["how decided"]).value = "discussion"
+    wb.save(path)
+
+
+def test_disagreements_then_reconcile(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    code, out, err = run(capsys, "disagreements", data_file, "-o", review, "--format", "json")
+    assert code == 0, err
+    summary = json.loads(out)
+    assert summary == {**summary, "units_read": 5, "agreed": 2, "needing_review": 2, "left_out": 1,
+                       "rows_written": 2}
+    assert summary["inputs"] == {str(data_file): hashlib.sha256(data_file.read_bytes()).hexdigest()}
+    assert "left out (fewer than two coders): u3" in err
+    about = {r[0]: r[1] for r in openpyxl.load_workbook(review)[ABOUT_SHEET].iter_rows(values_only=True)}
+    assert about[str(data_file)] == summary["inputs"][str(data_file)]
+
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    consensus = tmp_path / "consensus.csv"
+    code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus,
+                         "--summary-format", "json")
+    assert code == 0, err
+    # --format json prints exactly the library's to_dict()
+    expected = reconcile(read(data_file), review).to_dict()
+    assert json.loads(out) == expected
+    assert "independent codes" in err
+    back = pd.read_csv(consensus, dtype=str, keep_default_na=False).map(unprotect_text)
+    assert list(back["unit"]) == ["=SUM(A1)", "u2", "u3", "@here", "-fine"]
+    assert list(back["final code"]) == ["neg", "pos", "neg", "mixed", "mixed"]
+    assert list(back["source"]) == ["decided", "agreed", "single coder", "decided", "agreed"]
+    assert list(back["ann"]) == ["pos", "pos", "neg", "pos", "mixed"]
+
+
+def test_table_summary_and_data_after_review(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    assert run(capsys, "disagreements", data_file, "-o", review)[0] == 0
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    code, out, err = run(capsys, "reconcile", review, data_file, "-o", tmp_path / "c.xlsx")
+    assert code == 0, err
+    assert "decided" in out and "written" in out
+    assert (tmp_path / "c.xlsx").exists()
+
+
+@pytest.mark.parametrize("suffix", ["csv", "md"])
+def test_disagreements_other_formats(tmp_path, data_file, capsys, suffix):
+    out = tmp_path / f"review.{suffix}"
+    code, _, err = run(capsys, "disagreements", data_file, "-o", out)
+    assert code == 0, err
+    text = out.read_text(encoding="utf-8")
+    if suffix == "csv":
+        assert "'=SUM(A1)" in text and "'@here" in text
+    else:
+        assert "x\\|y" in text
+    forced = tmp_path / "plain.txt"
+    assert run(capsys, "disagreements", data_file, "-o", forced, "--format", suffix)[0] == 0
+
+
+def test_unresolved_exits_2_and_writes_nothing(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    fill(review, {"=SUM(A1)": "neg"})
+    consensus = tmp_path / "consensus.csv"
+    code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus)
+    assert code == 2
+    assert err.count("error:") == 1 and "@here" in err and "Traceback" not in err
+    assert not consensus.exists()
+    assert sorted(os.listdir(tmp_path)) == ["coding.csv", "review.xlsx"]
+
+    code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus,
+                         "--allow-unresolved", "--format", "json")
+    assert code == 0, err
+    assert json.loads(out)["unresolved_units"] == ["@here"]
+    back = pd.read_csv(consensus, dtype=str, keep_default_na=False).map(unprotect_text)
+    assert back.set_index("unit").loc["@here", "source"] == "unresolved"
+    assert back.set_index("unit").loc["@here", "final code"] == ""
+
+
+def test_unknown_decision_names_the_row(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    fill(review, {"=SUM(A1)": "negative", "@here": "mixed"})
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv")
+    assert code == 2
+    # '@here' (three different codes) comes first, so '=SUM(A1)' is on row 3
+    assert "sheet 'Review', row 3, column 'decision'" in err and "did you mean 'neg'" in err
+
+
+def test_refuses_to_overwrite_inputs(tmp_path, data_file, capsys):
+    before = data_file.read_bytes()
+    code, _, err = run(capsys, "disagreements", data_file, "-o", data_file, "--format", "csv",
+                       "--force")
+    assert code == 2 and "refusing to overwrite the input file" in err
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    review_bytes = review.read_bytes()
+    for target in (review, data_file):
+        code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", target,
+                           "--format", "csv", "--force")
+        assert code == 2 and "refusing to overwrite" in err
+    assert data_file.read_bytes() == before and review.read_bytes() == review_bytes
+
+
+def test_existing_output_needs_force(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    assert run(capsys, "disagreements", data_file, "-o", review)[0] == 0
+    code, _, err = run(capsys, "disagreements", data_file, "-o", review)
+    assert code == 2 and "--force" in err
+    assert run(capsys, "disagreements", data_file, "-o", review, "--force")[0] == 0
+    assert not [f for f in os.listdir(tmp_path) if f.endswith(".tmp")]
+
+
+def test_reconcile_needs_data(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    code, _, err = run(capsys, "reconcile", review, "-o", tmp_path / "c.csv")
+    assert code == 2 and "--data" in err
+
+
+def test_help_says_agreement_uses_independent_codes(capsys):
+    code, out, _ = run(capsys, "reconcile", "--help")
+    assert code == 0
+    flat = " ".join(out.split())
+    assert "computed on the coders' independent codes" in flat
+    assert "Example: agree reconcile review.xlsx" in flat
+    code, out, _ = run(capsys, "disagreements", "--help")
+    assert code == 0 and "Example: agree disagreements" in " ".join(out.split())
+
+
+def test_one_unresolved_unit_reads_as_one_and_names_its_row(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    units = [c.value for c in openpyxl.load_workbook(review)[REVIEW_SHEET]["A"]][1:]
+    fill(review, {"=SUM(A1)": "neg"})
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv")
+    assert code == 2
+    row = units.index("@here") + 2          # as the spreadsheet counts rows (header = row 1)
+    assert f"1 unit still needs a decision: '@here' (row {row})" in err
+    assert "units still need" not in err
+    assert "--allow-unresolved (allow_unresolved=True)" in err
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv",
+                       "--allow-unresolved")
+    assert code == 0 and f"1 unit written without a final code (unresolved): '@here' (row {row})" in err
+
+
+def _example(capsys, command):
+    code, out, _ = run(capsys, command, "--help")
+    assert code == 0
+    flat = " ".join(out.split())
+    return flat.split("Example: ", 1)[1].split(" Other ")[0].split(" ╭")[0].split()
+
+
+def test_help_examples_run_on_the_bundled_samples(tmp_path, capsys):
+    root = Path(__file__).resolve().parents[2]
+    made = []
+    for command in ("disagreements", "reconcile"):
+        words = _example(capsys, command)
+        assert words[:2] == ["agree", command]
+        for w in words:
+            if w.startswith("samples/"):
+                assert (root / w).is_file(), w
+        args = [str(root / w) if w.startswith("samples/") else
+                (str(tmp_path / w) if w.endswith((".xlsx", ".csv")) else w) for w in words[2:]]
+        if command == "reconcile":
+            args += ["--majority", "--allow-unresolved"]
+        code, _, err = run(capsys, command, *args)
+        assert code == 0, err
+        made.append(tmp_path / words[-1])
+    assert all(p.exists() for p in made)
+    # the bundled round-1 file has an interview column: the review list shows it beside the unit
+    ws = openpyxl.load_workbook(made[0])[REVIEW_SHEET]
+    assert [c.value for c in ws[1]][:2] == ["unit", "interview"]
