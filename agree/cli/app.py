@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import contextlib
 import json
+import math
 import sys
-from typing import Any, Iterator
+from typing import Any, Iterable, Iterator
 
 import typer
 from rich.console import Console
 
+from agree.core.format import format_value
 from agree.core.model import AgreeError
 
 app = typer.Typer(
@@ -68,6 +70,45 @@ def note(message: str) -> None:
 
 def print_json(obj: Any) -> None:
     sys.stdout.write(json.dumps(obj, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
+
+
+DIGITS = 3          # decimals of coefficients in the terminal's tables
+
+
+def coefficient(x: Any, digits: int = DIGITS) -> str:
+    """A coefficient in APA style (no leading zero), as in `agree score` and the report."""
+    return format_value(x, "coefficient", digits)
+
+
+def signed(x: Any, digits: int = DIGITS) -> str:
+    """A change of a coefficient with its sign (+.012, −.034)."""
+    text = format_value(x, "coefficient", digits)
+    return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
+
+
+def percent(x: Any) -> str:
+    """A share as a whole percentage; '–' when undefined."""
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "–"
+    return f"{100 * x:.0f}%"
+
+
+def print_notes(notes: Iterable[Any]) -> None:
+    """The library's typed notes, one line each on stderr."""
+    for n in notes:
+        note(f"note: {n.message}")
+
+
+def print_summary(title: str, rows: list[tuple[str, Any]]) -> None:
+    """A two-column table of counts (what, how many)."""
+    from rich.table import Table
+
+    table = Table(title=title, show_header=False)
+    table.add_column("what")
+    table.add_column("count", justify="right")
+    for label, value in rows:
+        table.add_row(label, str(value))
+    stdout.print(table)
 
 
 def _is(exc: BaseException, name: str) -> bool:

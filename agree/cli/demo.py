@@ -8,7 +8,6 @@ folder, named at the end.
 from __future__ import annotations
 
 import contextlib
-from enum import Enum
 from pathlib import Path
 from typing import Annotated, Optional
 
@@ -16,9 +15,9 @@ import typer
 from rich.rule import Rule
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.diagnose import print_codes
+from agree.cli.codes import print_codes
+from agree.cli.options import SummaryFormat, report_reading
 from agree.cli.plan import print_plan
-from agree.cli.reading import report_reading
 from agree.cli.score import print_score
 from agree.core.model import AgreeError
 
@@ -47,11 +46,6 @@ class _Steps:
         stdout.print(Rule(f"{self.count}. {title}", align="left"))
 
 
-class DemoFormat(str, Enum):
-    table = "table"
-    json = "json"
-
-
 def _section(title: str) -> None:
     stdout.print(Rule(title, align="left"))
 
@@ -62,9 +56,9 @@ def demo(
     samples: Annotated[Optional[Path], typer.Option("--samples", help="Folder with the sample files.")] = None,
     boot: Annotated[int, typer.Option("--boot", help="Bootstrap replicates.")] = 2000,
     seed: Annotated[int, typer.Option("--seed", help="Seed for every random step.")] = 1,
-    output_format: Annotated[DemoFormat, typer.Option(
+    output_format: Annotated[SummaryFormat, typer.Option(
         "--format", help="table: the tour as it runs; json: only a summary of the outputs at the end.")
-    ] = DemoFormat.table,
+    ] = SummaryFormat.table,
 ):
     """Run the whole loop on the bundled synthetic samples and write the outputs to a folder.
 
@@ -72,7 +66,7 @@ def demo(
     """
     folder = _samples_folder(samples)
     out.mkdir(parents=True, exist_ok=True)
-    quiet_tour = output_format is DemoFormat.json
+    quiet_tour = output_format is SummaryFormat.json
     summary_json: dict = {"outputs": {}, "rounds": {}}
     with contextlib.ExitStack() as stack:
         if quiet_tour:

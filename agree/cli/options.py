@@ -1,15 +1,31 @@
-"""Analysis options shared by several commands: one flag name and one help text each.
+"""Options shared by several commands, in one place: one flag name and one help text each.
 
-Defaults are the same everywhere: 2000 bootstrap replicates and seed 1, so every command
-repeats exactly unless told otherwise (the seed is printed with the results).
+Reading options (how the sheets are laid out) are added to a command by `@reading_options` and
+applied by `load_data`, e.g.::
+
+    @app.command()
+    @reading_options
+    def score(files: Files, level: LevelOption = None, codebook: CodebookOption = None, *, reading: dict):
+        data = load_data(files, codebook=codebook, level=level, **reading)
+
+Analysis options (`--min`, `--boot`, `--seed`, `--ci`, `--format`) have the same defaults
+everywhere: 2000 bootstrap replicates and seed 1, so every command repeats exactly unless told
+otherwise (the seed is printed with the results).
 """
 
 from __future__ import annotations
 
+import functools
+import inspect
 from enum import Enum
-from typing import Annotated, Optional
+from pathlib import Path
+from typing import Annotated, Any, Optional, Sequence
 
 import typer
+
+from agree.cli.app import note
+from agree.core.model import CodingData
+from agree.io.readers import read
 
 DEFAULT_BOOT = 2000
 DEFAULT_SEED = 1
@@ -19,6 +35,16 @@ class TableFormat(str, Enum):
     table = "table"
     json = "json"
     csv = "csv"
+
+
+class SummaryFormat(str, Enum):
+    table = "table"
+    json = "json"
+
+
+class SetDistance(str, Enum):
+    masi = "masi"
+    jaccard = "jaccard"
 
 
 MinOption = Annotated[Optional[float], typer.Option(
@@ -31,3 +57,170 @@ CIOption = Annotated[float, typer.Option("--ci", min=0.5, max=0.9999,
                                          help="Confidence level of the two-sided interval (e.g. 0.95).")]
 FormatOption = Annotated[TableFormat, typer.Option(
     "--format", help="table (readable), json (the library's to_dict()) or csv.")]
+ResultFormatOption = Annotated[SummaryFormat, typer.Option(
+    "--format", help="table: human-readable; json: the result's to_dict().")]
+DistanceOption = Annotated[SetDistance, typer.Option(
+    "--distance", help="Sets of codes per unit: distance between two coders' sets for the overall alpha "
+                       "(masi, the default as in `agree score`, or jaccard).")]
+
+# Rounds (agree rounds, agree report)
+RoundColumnOption = Annotated[Optional[str], typer.Option(
+    "--round-column", help="Per-unit column naming the round (default: 'round' when the data have one).")]
+RoundFilesOption = Annotated[bool, typer.Option(
+    "--round-files", help="Each file is one round, named by the file's stem, in the order given.")]
+CodebooksOption = Annotated[Optional[str], typer.Option(
+    "--codebooks", help="Codebook version per round, e.g. 'r1=cb1.csv,r2=cb2.csv': codes whose "
+                        "definition changed since they were last measured are flagged.")]
+DriftOption = Annotated[Optional[str], typer.Option(
+    "--drift-round", help="The round in which only a share of units is still double-coded: compared "
+                          "with the last full round (drift check).")]
+
+# Files written (agree disagreements, agree reconcile)
+OutputOption = Annotated[Path, typer.Option("--output", "-o", help="The file to write.",
+                                            show_default=False)]
+ForceOption = Annotated[bool, typer.Option("--force", help="Replace the output file if it exists "
+                                                            "(input files are never overwritten).")]
+SummaryOption = Annotated[SummaryFormat, typer.Option(
+    "--summary-format", help="How to print the summary on stdout: a table or JSON.")]
+
+
+# -- reading ----------------------------------------------------------------------------------
+
+
+class Layout(str, Enum):
+    wide = "wide"
+    long = "long"
+    per_coder = "per-coder"
+    presence = "presence"
+
+
+class Level(str, Enum):
+    nominal = "nominal"
+    ordinal = "ordinal"
+    interval = "interval"
+    ratio = "ratio"
+
+
+Files = Annotated[list[Path], typer.Argument(
+    help="Coding files (.csv, .tsv, .xlsx, .parquet). Several files: one per coder.",
+    show_default=False, metavar="FILE")]
+LayoutOption = Annotated[Optional[Layout], typer.Option(
+    "--layout", help="How the coding is laid out (detected when not given): wide = one column per "
+                     "coder; long = unit, coder, code columns; per-coder = one file or sheet per coder; "
+                     "presence = one 0/1 column per code.")]
+UnitOption = Annotated[Optional[str], typer.Option("--unit-col", help="Column with the unit ids.")]
+CoderOption = Annotated[Optional[list[str]], typer.Option(
+    "--coder-col", help="Long layout: the column with coder names. Wide layout: a coder column "
+                        "(repeat the option for each coder).")]
+CodeOption = Annotated[Optional[list[str]], typer.Option(
+    "--code-col", help="Column with the codes (presence layout: repeat for each 0/1 code column).")]
+TextOption = Annotated[Optional[str], typer.Option("--text-col", help="Column with the unit's text.")]
+SheetOption = Annotated[Optional[list[str]], typer.Option(
+    "--sheet", help="Worksheet to read (repeat for one sheet per coder). Default: every sheet with data.")]
+SepOption = Annotated[str, typer.Option(
+    "--sep", help="Separator between several codes in one cell (any such cell makes the whole data set "
+                  "sets of codes); '' never splits: each cell is one code.")]
+CodebookOption = Annotated[Optional[Path], typer.Option(
+    "--codebook", help="Codebook file (CSV/XLSX: code, optional order, optional description). "
+                       "Fixes the category order and keeps unused codes; unknown codes are errors.")]
+TrimOption = Annotated[bool, typer.Option("--trim", help="Strip spaces around codes and unit ids.")]
+CasefoldOption = Annotated[bool, typer.Option("--casefold", help="Compare codes ignoring upper/lower case.")]
+LevelOption = Annotated[Optional[Level], typer.Option(
+    "--level", help="Level of measurement. Default: ordinal if the codebook has an order, else nominal.")]
+KeepOption = Annotated[Optional[list[str]], typer.Option(
+    "--keep", help="Other per-unit column to keep (e.g. a round or document column); repeatable.")]
+ClusterOption = Annotated[Optional[str], typer.Option(
+    "--cluster", help="Column grouping the units (e.g. document); resampling keeps each group whole.")]
+
+
+# How to read the sheets: the options every command shares, added by `reading_options`.
+# (name of the command parameter, its type, its default, the `load_data` keyword)
+_READING = (
+    ("layout", LayoutOption, None, "layout"),
+    ("unit_col", UnitOption, None, "unit"),
+    ("coder_col", CoderOption, None, "coder"),
+    ("code_col", CodeOption, None, "code"),
+    ("text_col", TextOption, None, "text"),
+    ("sheet", SheetOption, None, "sheet"),
+    ("sep", SepOption, ";", "sep"),
+    ("trim", TrimOption, False, "trim"),
+    ("casefold", CasefoldOption, False, "casefold"),
+    ("keep", KeepOption, None, "keep"),
+)
+
+
+def reading_options(command):
+    """Add the shared reading options to a command; it receives them as ``reading``, a dict
+    of `load_data` keywords (``load_data(files, codebook=..., level=..., **reading)``)."""
+    signature = inspect.signature(command, eval_str=True)
+    own = [p for p in signature.parameters.values() if p.name != "reading"]
+    extra = [inspect.Parameter(name, inspect.Parameter.KEYWORD_ONLY, default=default, annotation=kind)
+             for name, kind, default, _ in _READING]
+
+    @functools.wraps(command)
+    def wrapper(*args, **kwargs):
+        reading = {key: _value(kwargs.pop(name)) for name, _, _, key in _READING}
+        return command(*args, reading=reading, **kwargs)
+
+    wrapper.__signature__ = signature.replace(parameters=own + extra)
+    return wrapper
+
+
+def _value(x: Any) -> Any:
+    return x.value if isinstance(x, Enum) else x
+
+
+def option_values(**options: Any) -> dict[str, Any]:
+    """The options as plain values (an Enum choice becomes its string)."""
+    return {k: _value(v) for k, v in options.items()}
+
+
+def split_format(fmt: Enum | None, summary: SummaryFormat) -> tuple[str | None, str]:
+    """`--format json` asks for the JSON summary; any other value is the file format."""
+    if fmt is not None and fmt.value == "json":
+        return None, "json"
+    return (fmt.value if fmt is not None else None), summary.value
+
+
+def _one_or_many(x: Sequence[str] | str | None) -> Any:
+    if x is None or isinstance(x, str):
+        return x
+    x = list(x)
+    if not x:
+        return None
+    return x[0] if len(x) == 1 else x
+
+
+def load_data(files: Sequence[Path], *, layout: Layout | str | None = None, unit: str | None = None,
+              coder: Sequence[str] | str | None = None, code: Sequence[str] | str | None = None,
+              text: str | None = None, sheet: Sequence[str] | str | None = None, sep: str = ";",
+              codebook: Path | None = None, trim: bool = False, casefold: bool = False,
+              level: Level | str | None = None, keep: Sequence[str] | None = (),
+              cluster: str | None = None) -> CodingData:
+    """Read the files with `agree.read` and tell the user (stderr) what was detected.
+
+    `cluster`, when given, is kept as a per-unit column like those in `keep`.
+    """
+    keep_cols = list(keep or ())
+    if cluster and cluster not in keep_cols:
+        keep_cols.append(cluster)
+    data = read(list(files), layout=_value(layout), unit=unit, coder=_one_or_many(coder),
+                code=_one_or_many(code),
+                text=text, sheet=_one_or_many(sheet), sep=sep or None, codebook=codebook, trim=trim,
+                casefold=casefold, level=_value(level), keep=tuple(keep_cols))
+    report_reading(data)
+    return data
+
+
+def report_reading(data: CodingData) -> None:
+    """The one-line detection report, the reading notes and what was left out, on stderr."""
+    report = data.report
+    if report is None:
+        return
+    note(f"read {report.units_read} units, {len(data.coders)} coders, {report.values_read} values "
+         f"({report.values_missing} missing): {report.detected}")
+    for line in report.notes:
+        # warning-level notes start with "warning:" and are shown as they are, so they stand out
+        note(line if line.startswith("warning:") else f"note: {line}")
+    for line in report.left_out:
+        note(f"left out: {line}")

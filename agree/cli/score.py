@@ -18,12 +18,17 @@ from agree.cli.options import (
     DEFAULT_SEED,
     BootOption,
     CIOption,
+    ClusterOption,
+    CodebookOption,
+    Files,
     FormatOption,
+    LevelOption,
     MinOption,
     SeedOption,
     TableFormat,
+    load_data,
+    reading_options,
 )
-from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
 from agree.core.format import format_interval, format_value
 from agree.core.model import AgreeError
 from agree.core.results import display_name

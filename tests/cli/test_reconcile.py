@@ -1,4 +1,4 @@
-"""`agree disagreements` and `agree reconcile` end to end, through the console entry point
+"""`agree reconcile` (after `agree disagreements`) end to end, through the console entry point
 (exit codes and stderr as a user sees them). All data are synthetic."""
 
 from __future__ import annotations
@@ -6,59 +6,15 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-import sys
 from pathlib import Path
 
 import openpyxl
 import pandas as pd
-import pytest
 
 from agree.io.readers import read
 from agree.output.reconciliation import ABOUT_SHEET, REVIEW_SHEET, reconcile, unprotect_text
-
-DATA = ("unit,text,ann,bo,cy\n"
-        "=SUM(A1),café,pos,neg,neg\n"
-        "u2,Zürich,pos,pos,\n"
-        "u3,日本,neg,,\n"
-        "@here,x|y,pos,mixed,neg\n"
-        "-fine,+1,mixed,mixed,mixed\n")
-
-
-def run(capsys, *args):
-    """Run the console entry point in-process; return (exit code, stdout, stderr)."""
-    from agree.cli import main
-
-    argv = sys.argv
-    sys.argv = ["agree", *map(str, args)]
-    try:
-        main()
-        code = 0
-    except SystemExit as exc:
-        code = exc.code or 0
-    finally:
-        sys.argv = argv
-    out = capsys.readouterr()
-    return code, out.out, out.err
-
-
-@pytest.fixture
-def data_file(tmp_path):
-    path = tmp_path / "coding.csv"
-    path.write_text(DATA, encoding="utf-8")
-    return path
-
-
-def fill(path, decisions):
-    wb = openpyxl.load_workbook(path)
-    ws = wb[REVIEW_SHEET]
-    cols = {c.value: c.column for c in ws[1]}
-    for r in range(2, ws.max_row + 1):
-        unit = ws.cell(r, cols["unit"]).value
-        if unit in decisions:
-            ws.cell(r, cols["decision"]).value = decisions[unit]
-            ws.cell(r, cols["how decided"]).value = "discussion"
-    wb.save(path)
-
+from tests.cli.conftest import fill
+from tests.cli.conftest import run_main as run
 
 def test_disagreements_then_reconcile(tmp_path, data_file, capsys):
     review = tmp_path / "review.xlsx"
@@ -96,20 +52,6 @@ def test_table_summary_and_data_after_review(tmp_path, data_file, capsys):
     assert code == 0, err
     assert "decided" in out and "written" in out
     assert (tmp_path / "c.xlsx").exists()
-
-
-@pytest.mark.parametrize("suffix", ["csv", "md"])
-def test_disagreements_other_formats(tmp_path, data_file, capsys, suffix):
-    out = tmp_path / f"review.{suffix}"
-    code, _, err = run(capsys, "disagreements", data_file, "-o", out)
-    assert code == 0, err
-    text = out.read_text(encoding="utf-8")
-    if suffix == "csv":
-        assert "'=SUM(A1)" in text and "'@here" in text
-    else:
-        assert "x\\|y" in text
-    forced = tmp_path / "plain.txt"
-    assert run(capsys, "disagreements", data_file, "-o", forced, "--format", suffix)[0] == 0
 
 
 def test_unresolved_exits_2_and_writes_nothing(tmp_path, data_file, capsys):
@@ -156,15 +98,6 @@ def test_refuses_to_overwrite_inputs(tmp_path, data_file, capsys):
                            "--format", "csv", "--force")
         assert code == 2 and "refusing to overwrite" in err
     assert data_file.read_bytes() == before and review.read_bytes() == review_bytes
-
-
-def test_existing_output_needs_force(tmp_path, data_file, capsys):
-    review = tmp_path / "review.xlsx"
-    assert run(capsys, "disagreements", data_file, "-o", review)[0] == 0
-    code, _, err = run(capsys, "disagreements", data_file, "-o", review)
-    assert code == 2 and "--force" in err
-    assert run(capsys, "disagreements", data_file, "-o", review, "--force")[0] == 0
-    assert not [f for f in os.listdir(tmp_path) if f.endswith(".tmp")]
 
 
 def test_reconcile_needs_data(tmp_path, data_file, capsys):

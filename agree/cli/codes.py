@@ -1,23 +1,35 @@
-"""`agree codes` and `agree coders`: which codes and which coders drive disagreement."""
+"""`agree codes`: which codes drive disagreement."""
 
 from __future__ import annotations
 
-import math
 import sys
-from enum import Enum
-from typing import TYPE_CHECKING, Annotated, Any
+from typing import TYPE_CHECKING, Annotated
 
-import pandas as pd
 import typer
 from rich.table import Table
 
-from agree.cli.app import app, note, print_json, stdout
-from agree.cli.options import DEFAULT_BOOT, DEFAULT_SEED, BootOption, FormatOption, MinOption, SeedOption, TableFormat
-from agree.cli.reading import ClusterOption, CodebookOption, Files, LevelOption, load_data, reading_options
+from agree.cli.app import DIGITS, app, coefficient, note, percent, print_json, print_notes, signed, stdout
+from agree.cli.options import (
+    DEFAULT_BOOT,
+    DEFAULT_SEED,
+    BootOption,
+    ClusterOption,
+    CodebookOption,
+    DistanceOption,
+    Files,
+    FormatOption,
+    LevelOption,
+    MinOption,
+    SeedOption,
+    SetDistance,
+    TableFormat,
+    load_data,
+    reading_options,
+)
 from agree.core.format import format_bound, format_interval, format_value
 
 if TYPE_CHECKING:
-    from agree.analysis.diagnostics import CodeDiagnostics, CoderDiagnostics
+    from agree.analysis.diagnostics import CodeDiagnostics
 
 
 MinUnitsOption = Annotated[int, typer.Option("--min-units", help="A code used on fewer shared units "
@@ -25,40 +37,7 @@ MinUnitsOption = Annotated[int, typer.Option("--min-units", help="A code used on
 TopOption = Annotated[int, typer.Option("--top", help="How many confused pairs to show in the table.")]
 
 
-class SetDistance(str, Enum):
-    masi = "masi"
-    jaccard = "jaccard"
-
-
-DistanceOption = Annotated[SetDistance, typer.Option(
-    "--distance", help="Sets of codes per unit: distance between two coders' sets for the overall alpha "
-                       "(masi, the default as in `agree score`, or jaccard).")]
-
-DIGITS = 3          # decimals in tables, as in `agree score`
-
-
-def _num(x: Any, digits: int = DIGITS) -> str:
-    """A coefficient in APA style (no leading zero), as in `agree score` and the report."""
-    return format_value(x, "coefficient", digits)
-
-
-def _signed(x: Any, digits: int = DIGITS) -> str:
-    text = format_value(x, "coefficient", digits)
-    return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
-
-
-def _pct(x: Any) -> str:
-    if x is None or (isinstance(x, float) and not math.isfinite(x)):
-        return "–"
-    return f"{100 * x:.0f}%"
-
-
-def _notes(notes) -> None:
-    for n in notes:
-        note(f"note: {n.message}")
-
-
-def _resampled(bootstrap, cluster: str | None, n_clusters: int | None) -> str:
+def resampling_note(bootstrap, cluster: str | None, n_clusters: int | None) -> str:
     """'bca intervals, 2,000 resamples of units, seed 1' (or of whole groups of a column)."""
     if cluster is not None:
         what = (f"whole {cluster} groups ({format_value(n_clusters, 'count')} groups)" if cluster != "cluster"
@@ -101,7 +80,7 @@ def codes_command(
 
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
                             min_units_per_code=min_units, distance=distance.value, cluster=cluster)
-    _notes(result.notes)
+    print_notes(result.notes)
     if output is TableFormat.json:
         print_json(result.to_dict())
     elif output is TableFormat.csv:
@@ -115,7 +94,7 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
     level = f"{result.confidence_level:.0%} CI"
     interval = ("" if result.alpha_ci_low is None else
                 f" {format_interval(result.alpha_ci_low, result.alpha_ci_high, DIGITS)}")
-    stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {_num(result.alpha)}{interval}", highlight=False)
+    stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {coefficient(result.alpha)}{interval}", highlight=False)
     minimum = "none" if result.minimum is None else format_value(result.minimum, "threshold")
     table = Table(title=f"Codes, worst first (presence/absence α; minimum {minimum})")
     table.add_column("#", justify="right", no_wrap=True)
@@ -127,9 +106,9 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
         table.add_column(name, justify="right", no_wrap=True)
     table.add_column("reason", ratio=1, min_width=20)
     for row in frame.itertuples(index=False):
-        table.add_row(str(row.rank), str(row.code), row.status, _num(row.alpha),
+        table.add_row(str(row.rank), str(row.code), row.status, coefficient(row.alpha),
                       format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound, result.minimum),
-                      _num(row.specific_agreement), _num(row.kappa), row.reason)
+                      coefficient(row.specific_agreement), coefficient(row.kappa), row.reason)
     stdout.print(table)
     judged = (f"ok: the {bound} reaches the minimum (as for agree score --min); uncertain: only the "
               f"estimate does; † bound: the {bound} (3 decimals, rounded down where rounding would reach the minimum)"
@@ -148,8 +127,8 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
             ptable.add_column(name, justify="left" if name == "codes" else "right",
                               min_width=len(name) if name.startswith("coinc") else None)
         for p in pairs.itertuples(index=False):
-            cells = [f"{p.code_a} / {p.code_b}", format_value(p.count, "number", 1), _pct(p.share),
-                     format_value(p.o_over_e, "number", 2), _num(p.alpha_if_merged), _signed(p.delta_alpha)]
+            cells = [f"{p.code_a} / {p.code_b}", format_value(p.count, "number", 1), percent(p.share),
+                     format_value(p.o_over_e, "number", 2), coefficient(p.alpha_if_merged), signed(p.delta_alpha)]
             if len(result.coders) == 2:
                 cells[2:2] = [format_value(p.a_to_b, "amount"), format_value(p.b_to_a, "amount")]
             ptable.add_row(*cells)
@@ -171,70 +150,4 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
         if row.paradox:
             note(f"note: {row.code}: {row.explanation}")
     if result.bootstrap is not None:
-        note(_resampled(result.bootstrap, result.cluster, result.n_clusters))
-
-
-@app.command("coders")
-@reading_options
-def coders_command(
-    files: Files,
-    boot: BootOption = DEFAULT_BOOT,
-    seed: SeedOption = DEFAULT_SEED,
-    distance: DistanceOption = SetDistance.masi,
-    cluster: ClusterOption = None,
-    output: FormatOption = TableFormat.table,
-    codebook: CodebookOption = None,
-    level: LevelOption = None,
-    *,
-    reading: dict,
-) -> None:
-    """Which coders drive disagreement: pairwise agreement, alpha without each coder, code use.
-
-    Example: agree coders samples/round1.csv --codebook samples/codebook.csv --cluster interview
-
-    Example: agree coders samples/ratings.csv --codebook samples/ratings_codebook.csv --boot 2000 --seed 1
-    """
-    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
-    from agree.analysis.diagnostics import diagnose_coders
-
-    result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,
-                             seed=seed, distance=distance.value, cluster=cluster)
-    _notes(result.notes)
-    if output is TableFormat.json:
-        print_json(result.to_dict())
-    elif output is TableFormat.csv:
-        sys.stdout.write(result.to_frame().to_csv(index=False))
-    else:
-        _coders_table(result)
-
-
-def _coders_table(result: "CoderDiagnostics") -> None:
-    stdout.print(f"Krippendorff's α ({result.level_label}), all coders: {_num(result.alpha)}", highlight=False)
-    ptable = Table(title="Pairs of coders")
-    for name in ["coder", "coder", "units", "% agreement", "Cohen's κ", "Krippendorff's α"]:
-        ptable.add_column(name, justify="left" if name == "coder" else "right")
-    for p in result.pairwise.itertuples(index=False):
-        ptable.add_row(p.coder_a, p.coder_b, format_value(p.n_units, "count"), _pct(p.percent_agreement),
-                       _num(p.kappa), _num(p.alpha))
-    stdout.print(ptable)
-    frame = result.to_frame()
-    if frame.alpha_without.notna().any():
-        level = f"{result.confidence_level:.0%} CI of change"
-        ltable = Table(title="Krippendorff's α with each coder left out (a positive change: the coder lowers it)")
-        for name in ["coder", "α without", "change", level]:
-            ltable.add_column(name, justify="left" if name == "coder" else "right")
-        for r in frame.sort_values("delta", ascending=False).itertuples(index=False):
-            interval = ("–" if not math.isfinite(r.delta_ci_low)
-                        else f"[{_signed(r.delta_ci_low)}, {_signed(r.delta_ci_high)}]")
-            ltable.add_row(r.coder, _num(r.alpha_without), _signed(r.delta), interval)
-        stdout.print(ltable)
-    use = result.code_use_table()
-    utable = Table(title="Share of each coder's units given each code")
-    utable.add_column("coder")
-    for code in use.columns:
-        utable.add_column(str(code), justify="right")
-    for coder, shares in use.iterrows():
-        utable.add_row(str(coder), *[_pct(float(v)) if pd.notna(v) else "–" for v in shares])
-    stdout.print(utable)
-    if result.bootstrap is not None:
-        note(_resampled(result.bootstrap, result.cluster, result.n_clusters))
+        note(resampling_note(result.bootstrap, result.cluster, result.n_clusters))

@@ -1,4 +1,4 @@
-"""CLI tests for `agree codes` and `agree coders` (synthetic data)."""
+"""CLI tests for `agree codes` (synthetic data)."""
 
 from __future__ import annotations
 
@@ -11,39 +11,10 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from typer.testing import CliRunner
 
-import agree.cli.commands  # noqa: F401  (registers the commands)
-from agree.analysis.diagnostics import diagnose_coders, diagnose_codes
-from agree.cli.app import app
+from agree.analysis.diagnostics import diagnose_codes
 from agree.core.format import format_value
-from agree.core.model import from_table
-
-ROWS = [
-    ("1", "care", "care", "care"), ("2", "care", "blame", "care"), ("3", "blame", "blame", ""),
-    ("4", "anger", "care", "anger"), ("5", "care", "care", "care"), ("6", "blame", "blame", "blame"),
-    ("7", "anger", "anger", "care"), ("8", "care", "care", "blame"), ("9", "blame", "blame", "blame"),
-    ("10", "anger", "anger", "anger"), ("11", "care", "care", "care"), ("12", "blame", "care", "blame"),
-    ("13", "care", "care", "care"), ("14", "anger", "anger", "anger"), ("15", "blame", "care", "care"),
-]
-
-
-@pytest.fixture
-def coding_csv(tmp_path: Path) -> Path:
-    path = tmp_path / "coding.csv"
-    frame = pd.DataFrame(ROWS, columns=["unit", "amara", "ben", "chen"])
-    frame.to_csv(path, index=False)
-    return path
-
-
-def expected_data():
-    frame = pd.DataFrame(ROWS, columns=["unit", "amara", "ben", "chen"]).set_index("unit")
-    return from_table(frame)
-
-
-def run(args):
-    return CliRunner().invoke(app, args)
-
+from tests.cli.conftest import ROWS, SAMPLES, expected_data, run
 
 def test_codes_json_equals_to_dict(coding_csv):
     result = run(["codes", str(coding_csv), "--format", "json", "--boot", "200", "--seed", "3"])
@@ -76,21 +47,6 @@ def test_codes_table_shows_worst_first_and_notes(coding_csv):
     assert "resamples of units, seed 1" in result.stderr
 
 
-def test_coders_json_equals_to_dict(coding_csv):
-    result = run(["coders", str(coding_csv), "--format", "json", "--boot", "150", "--seed", "4"])
-    assert result.exit_code == 0, result.output
-    printed = json.loads(result.stdout)
-    library = diagnose_coders(expected_data(), n_resamples=150, seed=4).to_dict()
-    assert printed == json.loads(json.dumps(library))
-
-
-def test_coders_table(coding_csv):
-    result = run(["coders", str(coding_csv), "--boot", "50", "--seed", "1"])
-    assert result.exit_code == 0, result.output
-    assert "left out" in result.stdout and "Pairs of coders" in result.stdout
-    assert "amara" in result.stdout
-
-
 def test_two_coders_show_directed_counts_and_stuart_maxwell(tmp_path):
     path = tmp_path / "two.csv"
     pd.DataFrame([r[:3] for r in ROWS], columns=["unit", "amara", "ben"]).to_csv(path, index=False)
@@ -109,17 +65,7 @@ def test_missing_file_is_one_line_and_exit_code_2(tmp_path):
     assert len(proc.stderr.strip().splitlines()) == 1
 
 
-def test_help_has_examples():
-    for command in ("codes", "coders"):
-        result = run([command, "--help"])
-        assert result.exit_code == 0
-        assert "Example" in result.stdout and "--format" in result.stdout
-
-
 # -- review fixes ----------------------------------------------------------------------------
-
-SAMPLES = Path(__file__).resolve().parents[2] / "samples"
-
 
 def test_codes_overall_alpha_agrees_with_score_and_names_the_distance():
     score = run(["score", str(SAMPLES / "multicode.xlsx"), "--format", "json", "--boot", "0"])
@@ -198,17 +144,6 @@ def test_codes_notes_name_the_code_and_paradox_is_filtered(tmp_path):
     assert result.exit_code == 0, result.output
     lines = [ln for ln in result.stderr.splitlines() if "bootstrap replicates were undefined" in ln]
     assert lines and all("code '" in ln for ln in lines)
-
-
-def test_help_examples_use_bundled_samples():
-    for command in ("codes", "coders", "report", "rounds"):
-        text = run([command, "--help"]).stdout
-        examples = re.findall(r"Example: agree (.+)", text)
-        assert examples, command
-        for example in examples:
-            for token in example.split():
-                if token.startswith("samples/"):
-                    assert (SAMPLES.parent / token).exists(), (command, token)
 
 
 def test_codes_table_shows_the_one_sided_bound_and_says_so():

@@ -1,0 +1,65 @@
+"""CLI tests for `agree plan`: JSON equals the library, the table and plot, one-line errors."""
+
+from __future__ import annotations
+
+import json
+
+from typer.testing import CliRunner
+
+from agree.analysis.planning import plan_sample
+from tests.analysis.test_planning import FAST
+
+
+def test_cli_plan_json_equals_library():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    args = ["plan", "--coders", "2", "--shares", "0.6,0.4", "--expected", "0.9", "--min", "0.8",
+            "--seed", "4", "--replicates", "100", "--boot", "100", "--format", "json"]
+    out = CliRunner().invoke(app, args)
+    assert out.exit_code == 0, out.output
+    got = json.loads(out.stdout)
+    want = plan_sample(coders=2, shares=[0.6, 0.4], expected=0.9, minimum=0.8, seed=4, **FAST).to_dict()
+    assert "units_needed" in got
+    assert got == json.loads(json.dumps(want))
+
+
+def test_cli_plan_table_and_plot(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    png = tmp_path / "a.png"
+    out = CliRunner().invoke(app, ["plan", "--coders", "2", "--categories", "2", "--expected", "0.9",
+                                   "--replicates", "100", "--boot", "100", "--plot", str(png)])
+    assert out.exit_code == 0, out.output
+    assert "Units needed" in out.stdout and "Krippendorff (2004; 2013)" in out.stdout
+    assert "memory" not in out.stdout and "METHODS" not in out.stdout and "\\[" not in out.stdout
+    assert png.exists()
+
+
+def test_closed_form_says_it_assumes_two_coders_when_more_are_planned():
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    p = plan_sample(coders=3, categories=4, expected=0.9, minimum=0.8, seed=1, **FAST)
+    krippendorff_form = p.closed_forms[0]
+    assert krippendorff_form.assumptions.startswith("Assumes two coders, while 3 are planned here")
+    assert "fewer units usually suffice" in krippendorff_form.assumptions
+    assert len(p.closed_forms) == 1                       # Donner-Eliasziw is for two coders only
+    out = CliRunner().invoke(app, ["plan", "--coders", "3", "--categories", "4", "--expected", "0.9",
+                                   "--replicates", "60", "--boot", "60"], terminal_width=300)
+    assert out.exit_code == 0, out.output
+    assert "Assumes two" in out.stdout and "3 are planned" in out.stdout   # cells wrap in the table
+
+
+def test_cli_plan_bad_input_exit_code_2():
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    agree_bin = Path(sys.executable).with_name("agree")
+    res = subprocess.run([str(agree_bin), "plan", "--coders", "2", "--shares", "0.5,0.4",
+                          "--expected", "0.9"], capture_output=True, text=True)
+    assert res.returncode == 2
+    assert res.stderr.startswith("error:") and "sum to 0.9" in res.stderr
+    assert "Traceback" not in res.stderr

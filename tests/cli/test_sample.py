@@ -1,0 +1,78 @@
+"""CLI tests for `agree sample`: the drawn sheets, exclusions, the help's example."""
+
+from __future__ import annotations
+
+import json
+
+from typer.testing import CliRunner
+
+from agree.core.model import AgreeError
+from tests.analysis.test_sampling import CODES, _read_sheet, make_corpus
+
+
+def test_cli_sample(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.xlsx"
+    make_corpus(60).to_excel(corpus_file, index=False)
+    before = corpus_file.read_bytes()
+    (tmp_path / "codes.txt").write_text("\n".join(CODES))
+    args = ["sample", str(corpus_file), "-n", "12", "--stratify", "participant", "--coders", "ana,ben",
+            "--codebook", str(tmp_path / "codes.txt"), "-o", str(tmp_path / "sheets"), "--seed", "4",
+            "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["n"] == 12 and got["seed"] == 4 and len(got["files"]) == 2
+    assert got["drop_down"] == "inline list"
+    assert corpus_file.read_bytes() == before
+    again = CliRunner().invoke(app, args)
+    assert again.exit_code != 0                               # folder not empty
+    assert isinstance(again.exception, AgreeError) and again.exception.code == "output-exists"
+
+
+def test_cli_sample_excludes_and_keeps(tmp_path):
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.csv"
+    make_corpus(60).to_csv(corpus_file, index=False)
+    (tmp_path / "round1.csv").write_text("unit_id,ana,ben\n" + "".join(f"u{i:04d},a,b\n" for i in range(20)))
+    (tmp_path / "more.txt").write_text("u0020\nu0021\nzzz\n")
+    args = ["sample", str(corpus_file), "-n", "30", "--stratify", "participant", "--coders", "ana,ben",
+            "-o", str(tmp_path / "sheets"), "--exclude", str(tmp_path / "round1.csv"),
+            "--exclude", str(tmp_path / "more.txt"), "--keep-col", "text", "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["excluded"] == 22 and got["exclude_not_in_corpus"] == 1
+    assert got["context_columns"] == ["participant"]          # the text column is there already
+    assert "excluded 22 units already coded" in res.stderr and "1 of those ids" in res.stderr
+    _, rows = _read_sheet(tmp_path / "sheets" / "ana.xlsx")
+    assert not {r[0] for r in rows[1:]} & {f"u{i:04d}" for i in range(22)}
+
+    table = CliRunner().invoke(app, args[:-2] + ["--force"])
+    assert table.exit_code == 0, table.output
+    assert "Already coded" in table.stdout and "--keep participant --cluster participant" in table.stderr
+
+
+def test_cli_sample_help_example_uses_bundled_files(tmp_path):
+    import shlex
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    root = Path(__file__).resolve().parents[2]
+    res = CliRunner().invoke(app, ["sample", "--help"], terminal_width=400)
+    flat = " ".join(res.stdout.split())
+    words = shlex.split(flat.split("Example: ", 1)[1].split(" ╭")[0])
+    assert words[:2] == ["agree", "sample"] and "--exclude" in words
+    for w in words:
+        if w.startswith("samples/"):
+            assert (root / w).is_file(), w
+    args = [str(root / w) if w.startswith("samples/") else w for w in words[1:]]
+    args[args.index("-o") + 1] = str(tmp_path / "sheets")
+    run = CliRunner().invoke(app, args)
+    assert run.exit_code == 0, run.output
