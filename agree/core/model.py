@@ -137,6 +137,10 @@ class CodingData:
     codebook : optional mapping category -> description.
     provenance : optional map from each value back to its cell.
     report : what the reader detected and did.
+    weights : optional (N,) int64 unit multiplicities: row u stands for `weights[u]` identical
+        units (same values, same cluster). None means one unit per row. The coefficients and
+        their bootstrap treat a row of weight w exactly as w identical rows; functions that need
+        one row per unit refuse weighted data (`require_unit_rows`).
     """
 
     codes: np.ndarray
@@ -152,6 +156,7 @@ class CodingData:
     provenance: Provenance | None = None
     report: ReadReport | None = None
     order: str = "given"  # how `values` were ordered: "given" (codebook, categories), "numeric", "alphabetical"
+    weights: np.ndarray | None = None
 
     def __post_init__(self):
         codes = np.asarray(self.codes)
@@ -168,6 +173,8 @@ class CodingData:
             raise AgreeError("one unit id is needed per row", code="shape")
         if codes.size and (codes.max(initial=-1) >= len(self.values) or codes.min(initial=0) < -1):
             raise AgreeError("a code refers to no value", code="shape")
+        if self.weights is not None:
+            object.__setattr__(self, "weights", _unit_weights(self.weights, codes.shape[0]))
         if not self.categories:
             cats = self.values
             if self.set_valued:
@@ -182,6 +189,15 @@ class CodingData:
     @property
     def n_coders(self) -> int:
         return int(self.codes.shape[1])
+
+    @property
+    def units_represented(self) -> int:
+        """How many units the rows stand for: the sum of `weights` (the number of rows when unweighted)."""
+        return self.n_units if self.weights is None else int(self.weights.sum())
+
+    def unit_weights(self) -> np.ndarray:
+        """(N,) int64 multiplicity of each row (ones when unweighted)."""
+        return np.ones(self.n_units, dtype=np.int64) if self.weights is None else self.weights
 
     @property
     def observed(self) -> np.ndarray:
@@ -235,6 +251,7 @@ class CodingData:
             text=None if self.text is None else self.text[u],
             columns={k: v[u] for k, v in self.columns.items()},
             provenance=prov,
+            weights=None if self.weights is None else self.weights[u],
         )
 
     def presence(self, category: Any) -> "CodingData":
@@ -262,6 +279,36 @@ class CodingData:
 
     def with_level(self, level: str) -> "CodingData":
         return replace(self, level=level)
+
+
+def _unit_weights(weights: Any, n: int) -> np.ndarray:
+    """Validated read-only (N,) int64 multiplicities: whole numbers of 1 or more."""
+    w = np.asarray(weights)
+    if w.shape != (n,):
+        raise AgreeError(f"unit weights: one per row is needed ({n}); got an array of shape {w.shape}",
+                         code="shape")
+    if w.dtype.kind == "f":
+        if not np.isfinite(w).all() or (w != np.round(w)).any():
+            raise AgreeError("unit weights must be whole numbers (how many identical units a row stands for)",
+                             code="shape")
+    elif w.dtype.kind not in "iu":
+        raise AgreeError("unit weights must be whole numbers (how many identical units a row stands for)",
+                         code="shape")
+    if n and w.min() < 1:
+        raise AgreeError("unit weights must be 1 or more (a row stands for at least one unit)", code="shape")
+    if w.dtype != np.int64 or w.flags.writeable:
+        w = w.astype(np.int64, copy=True)
+        w.setflags(write=False)
+    return w
+
+
+def require_unit_rows(data: CodingData, what: str) -> None:
+    """Refuse weighted data (rows standing for several units) where `what` needs one row per unit."""
+    if data.weights is not None:
+        raise AgreeError(f"{what} needs one row per unit, but these data are weighted: {data.n_units:,} rows "
+                         f"stand for {data.units_represented:,} units (e.g. positions of text compressed into "
+                         "runs)", hint="use the coefficients (score, krippendorff_alpha, ...), which accept "
+                         "weighted data, or build the data with one row per unit", code="weighted")
 
 
 def value_sort_key(v: Any):

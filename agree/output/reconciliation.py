@@ -50,7 +50,15 @@ from agree.core.files import atomic_write, check_output, sha256_file  # noqa: F4
 from agree.core.model import CONSENSUS_FINAL as FINAL
 from agree.core.model import CONSENSUS_SOURCE as SOURCE
 from agree.core.model import CONSENSUS_SOURCES as SOURCES
-from agree.core.model import AgreeError, CodingData, as_coding_data, cell_location, normalise_value, value_sort_key
+from agree.core.model import (
+    AgreeError,
+    CodingData,
+    as_coding_data,
+    cell_location,
+    normalise_value,
+    require_unit_rows,
+    value_sort_key,
+)
 
 # Column headers of the review file. The workbook is read back by these names, so a team
 # can move or add columns freely.
@@ -284,6 +292,7 @@ def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
     applied; otherwise the distinct codes given.
     """
     data = as_coding_data(data)
+    require_unit_rows(data, "the review table")
     status = _status(data)
     mask = status.needs_review | (status.agreed if include_agreed else False)
     rows = status.worst_first(mask)
@@ -491,6 +500,7 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
     needing review and left out, with the left-out units named).
     """
     data = as_coding_data(data)
+    require_unit_rows(data, "the review workbook")
     out = Path(path)
     fmt = _infer_format(out, format, REVIEW_FORMATS)
     checksums = _input_checksums(data, inputs)
@@ -939,6 +949,7 @@ def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
         into one error.
     """
     data = as_coding_data(data)
+    require_unit_rows(data, "reconciliation")
     source = _read_review(review)
     status = _status(data)
     index = {str(u): i for i, u in enumerate(data.unit_ids)}

@@ -43,7 +43,7 @@ import pandas as pd
 from agree.core.constants import VERSION
 from agree.core.files import atomic_write_bytes
 from agree.core.format import format_bound, format_interval, format_value, lit, notebook_html, plain, spans  # noqa: F401
-from agree.core.model import AgreeError, CodingData, as_coding_data
+from agree.core.model import AgreeError, CodingData, as_coding_data, require_unit_rows
 from agree.core.results import AgreementResult, Note, json_safe
 
 Progress = Callable[[str, float], None]
@@ -391,6 +391,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     if data is None:
         raise AgreeError("no data to report on", code="no-input")
     d = as_coding_data(data)
+    require_unit_rows(d, "the report")
     if d.n_units == 0 or not d.observed.any():
         raise AgreeError("no units to analyse" if d.n_units == 0 else
                          f"no units to analyse: none of the {d.n_units} units has a coded value",

@@ -41,12 +41,11 @@ import pandas as pd
 
 from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, value_label
 from agree.core.results import AgreementResult, BootstrapInfo, Note, display_name
-from agree.stats.patterns import Patterns, compress
+from agree.stats.patterns import Patterns, cluster_sums, compress
 from agree.stats.resampling import (
     bootstrap_interval,
     bootstrap_replicates,
     check_settings,
-    cluster_features,
     jackknife_values,
     make_rng,
     norm_cdf,
@@ -539,10 +538,12 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum,
                    ci_method=ci_method, seed=seed)
     codes = data.codes if mask is None else data.codes[mask]
+    unit_w = data.weights if mask is None or data.weights is None else data.weights[mask]
     clusters, unit_label = _resolve_clusters(data, cluster)
     if clusters is not None and mask is not None:
         clusters = clusters[mask]
-    pat = compress(codes, len(data.values), ordered=stat.ordered, keep_inverse=clusters is not None)
+    pat = compress(codes, len(data.values), ordered=stat.ordered, keep_inverse=clusters is not None,
+                   weights=unit_w)
     F = stat.features(pat)
     counts = pat.counts
     estimate = float(stat.finish((counts.astype(float) @ F)[None, :])[0]) if len(counts) else float("nan")
@@ -563,7 +564,7 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
     if n_resamples and n_resamples > 0 and len(counts) and np.isfinite(estimate):
         rng, used_seed = make_rng(seed)
         if clusters is not None:
-            items, n_items = cluster_features(F[pat.inverse], clusters)
+            items, n_items = cluster_sums(F, pat.inverse, clusters, unit_w)
             item_counts = np.ones(n_items, dtype=np.int64)
         else:
             items, item_counts = F, counts
@@ -784,7 +785,7 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
 def coincidence_matrix(data: Any, *, categories: Sequence[Any] | None = None) -> pd.DataFrame:
     """Krippendorff's coincidence matrix o_ck (values x values) over pairable units."""
     d = as_coding_data(data, categories=categories)
-    pat = compress(d.codes, len(d.values), ordered=False)
+    pat = compress(d.codes, len(d.values), ordered=False, weights=d.weights)
     R = pat.value_counts()
     r = R.sum(axis=1)
     scale = np.where(r >= 2, 1.0 / np.maximum(r - 1, 1), 0.0) * pat.counts
@@ -840,7 +841,7 @@ def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | N
                   undefined_reason="no unit coded by both coders, or no expected disagreement (p_e = 1)")
     notes = _weight_notes(w) + (_order_notes(d, f"{label.capitalize()} weighting") if isinstance(weights, str) else [])
     both = (d.codes >= 0).all(axis=1)
-    dropped = int((~both & ((d.codes >= 0).sum(axis=1) >= 1)).sum())
+    dropped = int(d.unit_weights()[~both & ((d.codes >= 0).sum(axis=1) >= 1)].sum())
     if dropped:
         notes.append(Note("complete-cases", f"{dropped} units coded by only one of the two coders were left "
                           "out (Cohen's kappa uses units both coded)."))
@@ -911,7 +912,8 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
                           "kappas and the null test of Fleiss, Nee & Landis (1979) are not given; the "
                           "estimate uses Gwet's (2014) generalisation."))
         return _replace(res, details=details, warnings=tuple(notes))
-    pat = compress(d.codes if used.all() else d.codes[used], len(d.values), ordered=False)
+    pat = compress(d.codes if used.all() else d.codes[used], len(d.values), ordered=False,
+                   weights=d.weights if d.weights is None or used.all() else d.weights[used])
     R = pat.value_counts()
     c = pat.counts.astype(float)
     N = c.sum()
@@ -957,11 +959,12 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     d = _prepare(data, categories)
     _check_q(d, "Conger's kappa")
     observed = d.codes >= 0
-    pairable = observed.sum(axis=1) >= 2
-    complete = observed.all(axis=1)
-    if d.n_coders > 2 and complete.sum() < 0.5 * max(pairable.sum(), 1):
+    uw = d.unit_weights()
+    pairable = int(uw[observed.sum(axis=1) >= 2].sum())
+    complete = int(uw[observed.all(axis=1)].sum())
+    if d.n_coders > 2 and complete < 0.5 * max(pairable, 1):
         raise AgreeError(f"Conger's kappa needs the same coders on (nearly) every unit; here only "
-                         f"{int(complete.sum())} of {int(pairable.sum())} pairable units were coded by all "
+                         f"{complete} of {pairable} pairable units were coded by all "
                          f"{d.n_coders} coders, so the coders rotate",
                          hint="use krippendorff_alpha, fleiss_kappa or gwet_ac1, which allow rotating coders",
                          code="rotating")
@@ -1035,12 +1038,13 @@ def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_leve
     if d.n_coders == 2:
         both = (d.codes >= 0).all(axis=1)
         c = d.codes[both]
-        n = len(c)
+        uw = d.unit_weights()[both]
+        n = int(uw.sum())
         if n:
-            a = np.sum((c[:, 0] == 0) & (c[:, 1] == 0))
-            dd = np.sum((c[:, 0] == 1) & (c[:, 1] == 1))
-            b = np.sum((c[:, 0] == 0) & (c[:, 1] == 1))
-            cc = np.sum((c[:, 0] == 1) & (c[:, 1] == 0))
+            a = np.sum(uw * ((c[:, 0] == 0) & (c[:, 1] == 0)))
+            dd = np.sum(uw * ((c[:, 0] == 1) & (c[:, 1] == 1)))
+            b = np.sum(uw * ((c[:, 0] == 0) & (c[:, 1] == 1)))
+            cc = np.sum(uw * ((c[:, 0] == 1) & (c[:, 1] == 0)))
             details["prevalence_index"] = float((a - dd) / n)
             details["bias_index"] = float((b - cc) / n)
             details["categories"] = [value_label(v) for v in d.values]

@@ -185,13 +185,14 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
     per_unit = observed.sum(axis=1)
     left = d.unit_ids[per_unit < 2]
     used = per_unit >= 2
-    warnings = _score_warnings(d, results, int(used.sum()))
+    uw = d.unit_weights()  # rows of weighted data stand for several units
+    warnings = _score_warnings(d, results, int(uw[used].sum()))
     rep = d.report.to_dict() if d.report is not None else None
     return ScoreResult(
-        coefficients=results, level=level_label, coders=d.coders, units_read=d.n_units,
-        units_used=int(used.sum()), units_left_out=tuple(str(u) for u in left),
-        values_read=int(observed.sum()), values_missing=int((~observed).sum()),
-        values_used=int(observed[used].sum()), n_categories=len(d.values),
+        coefficients=results, level=level_label, coders=d.coders, units_read=d.units_represented,
+        units_used=int(uw[used].sum()), units_left_out=tuple(str(u) for u in left),
+        values_read=int(uw @ observed.sum(axis=1)), values_missing=int(uw @ (~observed).sum(axis=1)),
+        values_used=int(uw[used] @ observed[used].sum(axis=1)), n_categories=len(d.values),
         categories=tuple(value_label(v) for v in d.values), n_resamples=int(n_resamples),
         seed=seed if n_resamples else None, ci_method=ci_method, confidence_level=confidence_level,
         minimum=minimum, resampled=f"cluster:{cluster}" if isinstance(cluster, str) else
@@ -207,7 +208,9 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
     pa = results.get("percent_agreement")
     chance = [results[k] for k in ("krippendorff_alpha", "cohen_kappa", "fleiss_kappa") if k in results]
     if not d.set_valued and d.codes.size:
-        shares = np.bincount(d.codes[d.codes >= 0], minlength=len(d.values)) / max((d.codes >= 0).sum(), 1)
+        seen = d.codes >= 0
+        row_w = np.broadcast_to(d.unit_weights()[:, None], d.codes.shape)
+        shares = np.bincount(d.codes[seen], weights=row_w[seen], minlength=len(d.values)) / max(row_w[seen].sum(), 1)
         top = float(shares.max()) if len(shares) else 0.0
         low_chance = [r for r in chance if r.defined and r.estimate < 0.67]
         if pa is not None and pa.defined and pa.estimate >= 0.8 and low_chance and top >= 0.6:
