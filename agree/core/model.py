@@ -127,7 +127,8 @@ class CodingData:
         are the codebook categories (unused ones included, since q matters for some
         coefficients); for numeric data the sorted numbers; for set-valued data frozensets of
         categories.
-    unit_ids : (N,) array of unit identifiers (str).
+    unit_ids : (N,) array of unit identifiers: text as read, or the row numbers 1..N (int) where
+        the input named no units.
     coders : coder names, one per column of `codes`.
     categories : the codebook's categories (for set-valued data, the single codes).
     level : the level of measurement the data were declared or detected as.
@@ -366,27 +367,35 @@ def from_table(table: Any, *, coders: Sequence[str] | None = None,
     if isinstance(table, pd.DataFrame):
         frame = table
         coders = list(coders) if coders is not None else [str(c) for c in frame.columns]
-        unit_ids = list(unit_ids) if unit_ids is not None else [str(i) for i in frame.index]
-        raw = frame.to_numpy(dtype=object)
+        if unit_ids is not None:
+            unit_ids = list(unit_ids)
+        else:  # the index names the units: whole numbers stay numbers (cheap), other labels become text
+            index = frame.index.to_numpy()
+            unit_ids = index if index.dtype.kind in "iu" else [str(i) for i in index]
+        numeric = frame.shape[1] > 0 and all(pd.api.types.is_numeric_dtype(t) for t in frame.dtypes)
+        raw = frame.to_numpy(dtype=float, na_value=np.nan) if numeric else frame.to_numpy(dtype=object)
     else:
-        raw = np.asarray(table, dtype=object)
+        raw = _as_cells(table)
         if raw.ndim != 2:
             raise AgreeError("coding data must be two-dimensional: units in rows, coders in columns",
                              code="shape")
         coders = list(coders) if coders is not None else [f"coder_{i + 1}" for i in range(raw.shape[1])]
-        unit_ids = list(unit_ids) if unit_ids is not None else [str(i + 1) for i in range(raw.shape[0])]
-    flat = [normalise_value(v) for v in raw.ravel()]
-    set_valued = any(isinstance(v, frozenset) for v in flat)
+        unit_ids = list(unit_ids) if unit_ids is not None else np.arange(1, raw.shape[0] + 1)
+    codes, observed = _encode_cells(raw, unit_ids, coders)
+    set_valued = any(isinstance(v, frozenset) for v in observed)
     if set_valued:
-        flat = [v if v is None or isinstance(v, frozenset) else frozenset([v]) for v in flat]
-    observed = {v for v in flat if v is not None}
+        as_set = [v if isinstance(v, frozenset) else frozenset([v]) for v in observed]
+        merged = tuple(dict.fromkeys(as_set))
+        position = {v: i for i, v in enumerate(merged)}
+        remap = np.array([position[v] for v in as_set] + [MISSING], dtype=np.int32)
+        codes, observed = remap[codes], merged
     if categories is not None:
         cats = tuple(normalise_value(c) for c in categories)
         if len(set(cats)) != len(cats):
             twice = sorted({str(c) for c in cats if cats.count(c) > 1})
             raise AgreeError(f"categories listed twice: {', '.join(twice)}", code="categories")
         known = set(cats)
-        unknown = ({c for s in observed for c in s} if set_valued else observed) - known
+        unknown = ({c for s in observed for c in s} if set_valued else set(observed)) - known
         if unknown:
             bad = sorted(map(str, unknown))[:5]
             raise AgreeError(f"values not among the categories: {', '.join(bad)}",
@@ -396,16 +405,62 @@ def from_table(table: Any, *, coders: Sequence[str] | None = None,
         values = tuple(sorted(observed, key=value_sort_key))
         cats = None
     index = {v: i for i, v in enumerate(values)}
-    codes = np.array([MISSING if v is None else index[v] for v in flat], dtype=np.int32)
-    codes = codes.reshape(raw.shape)
+    lookup = np.array([index[v] for v in observed] + [MISSING], dtype=np.int32)
+    codes = lookup[codes]
     numeric = all(isinstance(v, (int, float)) for v in values)
-    data = CodingData(codes=codes, values=values, unit_ids=np.array(unit_ids, dtype=object),
+    unit_ids = unit_ids if isinstance(unit_ids, np.ndarray) else np.array(unit_ids, dtype=object)
+    data = CodingData(codes=codes, values=values, unit_ids=unit_ids,
                       coders=tuple(str(c) for c in coders), categories=tuple(cats or ()),
                       set_valued=set_valued, level=level or ("nominal"),
                       order="given" if categories is not None else "numeric" if numeric else "alphabetical")
     if level is not None and level not in LEVELS and not set_valued:
         raise AgreeError(f"level must be one of {', '.join(LEVELS)}; got '{level}'", code="level")
     return data
+
+
+def _as_cells(table: Any) -> np.ndarray:
+    """A table as an array of cells: numeric arrays keep their dtype (the fast path), anything
+    else becomes an object array so that numbers and text keep their types."""
+    try:
+        cells = np.asarray(table)
+    except ValueError:  # ragged rows
+        cells = None
+    if cells is None or cells.dtype.kind not in "biuf":
+        cells = np.asarray(table, dtype=object)
+    return cells
+
+
+def _encode_cells(raw: np.ndarray, unit_ids: Sequence[Any], coders: Sequence[Any]) -> tuple[np.ndarray, tuple]:
+    """Each cell as an index into the distinct canonical values (`normalise_value`), MISSING (-1)
+    where empty: `(codes, values)` with codes shaped like `raw` and values in first-seen order.
+
+    Numeric arrays are encoded with `np.unique` and object arrays with `pd.factorize`, so only
+    the distinct values pass through Python, never every cell; cells whose values cannot be
+    hashed (lists of codes) are made hashable first. Non-finite numbers are refused, naming the
+    first cell that holds one."""
+    flat = raw.ravel()
+    if flat.dtype.kind in "biuf":
+        bad = np.isinf(flat) if flat.dtype.kind == "f" else np.zeros(flat.shape, dtype=bool)
+        cell_codes, uniques = pd.factorize(flat, use_na_sentinel=True)
+    else:
+        try:
+            cell_codes, uniques = pd.factorize(flat, use_na_sentinel=True)
+        except TypeError:  # unhashable cells (lists of codes): make them hashable, then factorize
+            flat = np.array([frozenset(v) if isinstance(v, (list, set)) else v for v in flat], dtype=object)
+            cell_codes, uniques = pd.factorize(flat, use_na_sentinel=True)
+        uniques = np.asarray(uniques, dtype=object)
+        bad_unique = np.array([isinstance(u, (float, np.floating)) and np.isinf(u) for u in uniques] + [False])
+        bad = bad_unique[cell_codes]
+    if bad.any():
+        row, col = divmod(int(np.flatnonzero(bad)[0]), raw.shape[1])
+        raise AgreeError(f"unit '{unit_ids[row]}', coder '{coders[col]}': {str(raw[row, col])!r} is not a finite "
+                         f"number ({int(bad.sum())} such cell(s))",
+                         hint="codes must be finite; use a blank for 'not coded'", code="non-finite")
+    canonical = [normalise_value(u) for u in uniques]
+    values = tuple(dict.fromkeys(v for v in canonical if v is not None))
+    position = {v: i for i, v in enumerate(values)}
+    remap = np.array([MISSING if v is None else position[v] for v in canonical] + [MISSING], dtype=np.int32)
+    return remap[cell_codes].reshape(raw.shape), values
 
 
 def as_coding_data(data: Any, *, categories: Sequence[Any] | None = None) -> CodingData:

@@ -686,7 +686,8 @@ _SPECIFIC = {
                 "        else ranks in category order); None for unweighted.\n    "),
     "level": ("level : {\"nominal\", \"ordinal\", \"interval\", \"ratio\"} or callable\n"
               "        Level of measurement, which sets the metric; a function f(c, k) >= 0 with\n"
-              "        f(c, c) = 0 gives a custom metric.\n"
+              "        f(c, c) = 0 gives a custom metric. By default the data's own level (read\n"
+              "        from the codebook or given to `read`; nominal for plain arrays).\n"
               "    distance : {\"masi\", \"jaccard\"}, optional\n"
               "        For sets of codes (several codes per unit and coder); MASI by default.\n    "),
 }
@@ -757,7 +758,7 @@ def _check_q(d: CodingData, name: str) -> None:
 
 
 @_documented("level")
-def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | None = None,
+def krippendorff_alpha(data: Any, *, level: Any = None, distance: str | None = None,
                        categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
                        n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
                        minimum: float | None = None, cluster: Any = None) -> AgreementResult:
@@ -774,7 +775,7 @@ def krippendorff_alpha(data: Any, *, level: Any = "nominal", distance: str | Non
     unit bootstrap (Hughes 2022 on why not the pair-resampling bootstrap).
     """
     d = _prepare(data, categories, single=False)
-    delta, label = distance_matrix(d, level, distance)
+    delta, label = distance_matrix(d, d.level if level is None else level, distance)
     stat = _Alpha(name="krippendorff_alpha", delta=delta, V=len(d.values),
                   undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
     notes = _order_notes(d, "The ordinal metric") if label == "ordinal" else []

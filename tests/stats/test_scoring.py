@@ -402,3 +402,20 @@ def test_notebook_view_names_coefficients_for_people_and_shows_the_decision(roun
     assert "Krippendorff&#x27;s alpha" in page or "Krippendorff's alpha" in page
     assert "krippendorff_alpha" not in page and "Decision:" in page and ">nan<" not in page.lower()
     assert "<table" in r.coefficients["krippendorff_alpha"]._repr_html_()
+
+
+def test_alpha_on_coding_data_uses_the_datas_level_unless_given():
+    """A coefficient called on CodingData read at the ordinal level computes ordinal alpha, as
+    `score` does; an explicit level still wins."""
+    from agree.core.model import from_table
+    from agree.stats.coefficients import krippendorff_alpha
+    from agree.stats.scoring import score
+
+    table = [[1, 2], [2, 2], [3, 1], [4, 4], [2, 3], [1, 1]]
+    ordinal = from_table(table, level="ordinal")
+    assert krippendorff_alpha(ordinal, n_resamples=0).level == "ordinal"
+    assert krippendorff_alpha(ordinal, n_resamples=0).estimate == pytest.approx(
+        krippendorff_alpha(from_table(table), level="ordinal", n_resamples=0).estimate)
+    assert krippendorff_alpha(ordinal, level="nominal", n_resamples=0).level == "nominal"
+    assert score(ordinal, n_resamples=0).coefficients["krippendorff_alpha"].estimate == pytest.approx(
+        krippendorff_alpha(ordinal, n_resamples=0).estimate)
