@@ -13,6 +13,8 @@ ratios measured in one run on the same data:
    (target: the bootstrap costs at most twice the point estimate).
 4. `agree score` on a long CSV of 3e6 rows (1e6 units x 3 coders) against reading that file
    with pandas' pyarrow engine, each in a fresh process (target: within 3x; memory under 2 GB).
+5. `agree --help` and `agree score --help` in a fresh process (target: under 0.3 s each;
+   `bench/bench_help.py` runs this row alone).
 
 Options: --quick (smaller sizes, for a smoke run), --repeat N, --out FILE (JSON).
 """
@@ -30,6 +32,8 @@ import time
 from pathlib import Path
 
 import numpy as np
+from bench_help import bench_help
+from bench_help import report as report_help
 
 HERE = Path(__file__).resolve().parent
 DATA = HERE / "data"
@@ -226,6 +230,9 @@ def main(argv=None):
     print(f"  pandas pyarrow read {s['pandas_pyarrow_read_s']:.2f}s  agree score {s['agree_score_s']:.2f}s  "
           f"ratio {s['ratio']:.2f}  peak {s['agree_score_peak_mb']:.0f} MB (pandas read {s['pandas_read_peak_mb']:.0f} MB)"
           f"  exit {s['exit_codes']}")
+    print("agree --help and agree score --help (fresh processes) ...", flush=True)
+    result["help"] = bench_help(max(a.repeat, 5))
+    report_help(result["help"])
     a.out.parent.mkdir(parents=True, exist_ok=True)
     a.out.write_text(json.dumps(result, indent=2))
     print(f"written {a.out}")

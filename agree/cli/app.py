@@ -11,8 +11,7 @@ from typing import Any, Iterable, Iterator
 import typer
 from rich.console import Console
 
-from agree.core.format import format_value
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 app = typer.Typer(
     name="agree",
@@ -77,12 +76,14 @@ DIGITS = 3          # decimals of coefficients in the terminal's tables
 
 def coefficient(x: Any, digits: int = DIGITS) -> str:
     """A coefficient in APA style (no leading zero), as in `agree score` and the report."""
+    from agree.core.format import format_value
+
     return format_value(x, "coefficient", digits)
 
 
 def signed(x: Any, digits: int = DIGITS) -> str:
     """A change of a coefficient with its sign (+.012, −.034)."""
-    text = format_value(x, "coefficient", digits)
+    text = coefficient(x, digits)
     return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
 
 
@@ -116,6 +117,21 @@ def _is(exc: BaseException, name: str) -> bool:
     return any(cls.__name__ == name for cls in type(exc).__mro__)
 
 
+def _run(args: list[str]) -> Any:
+    """Run the app on the arguments; `agree COMMAND --help` goes straight to the command.
+
+    Through the group, Typer would first validate the group's own unset --help flag with
+    pydantic, a tenth of a second spent on nothing in a help that should appear at once."""
+    import typer.main
+
+    group = typer.main.get_command(app)
+    words = [a for a in args if a not in ("-q", "--quiet", "--debug")]
+    if len(words) > 1 and words[0] in group.commands and "--help" in words[1:]:
+        return group.commands[words[0]].main(args=words[1:], prog_name=f"agree {words[0]}",
+                                             standalone_mode=False)
+    return app(args=args, prog_name="agree", standalone_mode=False)
+
+
 def main() -> None:
     """Console entry point: every error becomes one line on stderr, with exit code 2 for bad input
     or usage (unknown options, values out of range) and no traceback unless --debug."""
@@ -126,7 +142,7 @@ def main() -> None:
     flags = [a for a in args if a in ("-q", "--quiet", "--debug")]
     args = flags + [a for a in args if a not in flags]
     try:
-        code = app(args=args, prog_name="agree", standalone_mode=False)
+        code = _run(args)
         sys.exit(code if isinstance(code, int) else 0)
     except AgreeError as exc:
         if STATE["debug"]:

@@ -6,7 +6,6 @@ import math
 import sys
 from typing import TYPE_CHECKING
 
-import pandas as pd
 from rich.table import Table
 
 from agree.cli.app import app, coefficient, note, percent, print_json, print_notes, signed, stdout
@@ -27,7 +26,6 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
-from agree.core.format import format_value
 
 if TYPE_CHECKING:
     from agree.analysis.diagnostics import CoderDiagnostics
@@ -68,6 +66,10 @@ def coders_command(
 
 
 def _coders_table(result: "CoderDiagnostics") -> None:
+    import pandas as pd
+
+    from agree.core.format import format_value
+
     stdout.print(f"Krippendorff's α ({result.level_label}), all coders: {coefficient(result.alpha)}", highlight=False)
     ptable = Table(title="Pairs of coders")
     for name in ["coder", "coder", "units", "% agreement", "Cohen's κ", "Krippendorff's α"]:

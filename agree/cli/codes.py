@@ -26,7 +26,6 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
-from agree.core.format import format_bound, format_interval, format_value
 
 if TYPE_CHECKING:
     from agree.analysis.diagnostics import CodeDiagnostics
@@ -39,6 +38,8 @@ TopOption = Annotated[int, typer.Option("--top", help="How many confused pairs t
 
 def resampling_note(bootstrap, cluster: str | None, n_clusters: int | None) -> str:
     """'bca intervals, 2,000 resamples of units, seed 1' (or of whole groups of a column)."""
+    from agree.core.format import format_value
+
     if cluster is not None:
         what = (f"whole {cluster} groups ({format_value(n_clusters, 'count')} groups)" if cluster != "cluster"
                 else f"whole clusters ({format_value(n_clusters, 'count')})")
@@ -90,6 +91,8 @@ def codes_command(
 
 
 def print_codes(result: "CodeDiagnostics", top: int) -> None:
+    from agree.core.format import format_bound, format_interval, format_value
+
     frame = result.to_frame()
     level = f"{result.confidence_level:.0%} CI"
     interval = ("" if result.alpha_ci_low is None else

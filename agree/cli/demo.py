@@ -19,7 +19,7 @@ from agree.cli.codes import print_codes
 from agree.cli.options import SummaryFormat, report_reading
 from agree.cli.plan import print_plan
 from agree.cli.score import print_score
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 
 def _samples_folder(given: Path | None) -> Path:

@@ -19,13 +19,14 @@ import functools
 import inspect
 from enum import Enum
 from pathlib import Path
-from typing import Annotated, Any, Optional, Sequence
+from typing import TYPE_CHECKING, Annotated, Any, Optional, Sequence
 
 import typer
 
 from agree.cli.app import note
-from agree.core.model import CodingData
-from agree.io.readers import read
+
+if TYPE_CHECKING:
+    from agree.core.model import CodingData
 
 DEFAULT_BOOT = 2000
 DEFAULT_SEED = 1
@@ -201,6 +202,8 @@ def load_data(files: Sequence[Path], *, layout: Layout | str | None = None, unit
 
     `cluster`, when given, is kept as a per-unit column like those in `keep`.
     """
+    from agree.io.readers import read
+
     keep_cols = list(keep or ())
     if cluster and cluster not in keep_cols:
         keep_cols.append(cluster)

@@ -12,7 +12,7 @@ from rich.text import Text
 
 from agree.cli.app import app, note, print_json, progress_bar, stdout
 from agree.cli.options import SummaryFormat
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 if TYPE_CHECKING:
     from agree.analysis.planning import Plan

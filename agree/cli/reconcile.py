@@ -21,7 +21,7 @@ from agree.cli.options import (
     reading_options,
     split_format,
 )
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 
 class ConsensusFormat(str, Enum):

@@ -29,8 +29,7 @@ from agree.cli.options import (
     reading_options,
 )
 from agree.cli.rounds import parse_codebooks, read_rounds
-from agree.core.files import check_output
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 
 @app.command()
@@ -72,6 +71,7 @@ def report(
     Example: agree report samples/round1.csv samples/round2.csv --round-files --codebook samples/codebook.csv -o report.md
     """
     from agree.analysis.rounds import compare_rounds
+    from agree.core.files import check_output
     from agree.output.report import build_report, write_report
 
     if output.suffix.lower() not in (".html", ".htm", ".md", ".markdown", ".docx", ".tex"):

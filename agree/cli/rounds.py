@@ -29,8 +29,7 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
-from agree.core.files import check_output
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 
 def parse_codebooks(spec: str | None) -> dict[str, Path] | None:
@@ -118,6 +117,7 @@ def rounds(
     Example: agree rounds samples/rounds_long.csv --round-column round --codebook samples/codebook.csv
     """
     from agree.analysis.rounds import compare_rounds
+    from agree.core.files import check_output
 
     books = parse_codebooks(codebooks)
     if plot is not None:

@@ -7,7 +7,7 @@ import io
 import math
 import sys
 from enum import Enum
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 from rich.table import Table
@@ -29,11 +29,11 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
-from agree.core.format import format_interval, format_value
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 from agree.core.results import display_name
-from agree.stats.scoring import ScoreResult
-from agree.stats.scoring import score as run_score
+
+if TYPE_CHECKING:
+    from agree.stats.scoring import ScoreResult
 
 
 class CIMethod(str, Enum):
@@ -65,6 +65,8 @@ def score(
 
     Example: agree score samples/round2.csv --codebook samples/codebook.csv --keep interview --min 0.8
     """
+    from agree.stats.scoring import score as run_score
+
     with progress_bar("score") as tick:
         tick("reading", 0.0)
         data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
@@ -97,7 +99,7 @@ def _label(name: str, r, level: str) -> str:
     return label
 
 
-def score_csv(result: ScoreResult) -> str:
+def score_csv(result: "ScoreResult") -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["coefficient", "estimate", "se", "ci_low", "ci_high", "confidence_level", "ci_method",
@@ -109,7 +111,9 @@ def score_csv(result: ScoreResult) -> str:
     return buf.getvalue()
 
 
-def print_score(result: ScoreResult) -> None:
+def print_score(result: "ScoreResult") -> None:
+    from agree.core.format import format_interval, format_value
+
     pct = f"{result.confidence_level:.0%}"
     title = (f"Agreement: {result.units_used} units, {len(result.coders)} coders "
              f"({', '.join(result.coders)}), level {result.level}")
