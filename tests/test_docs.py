@@ -4,9 +4,10 @@ return value and sources (numpydoc sections)."""
 import pytest
 
 import agree
+from agree.core.registry import COEFFICIENTS as REGISTRY
 
-COEFFICIENTS = ["percent_agreement", "cohen_kappa", "scott_pi", "fleiss_kappa", "conger_kappa",
-                "brennan_prediger", "gwet_ac1", "pabak", "krippendorff_alpha"]
+# every public function that computes a registry row
+COEFFICIENTS = sorted({row.function for row in REGISTRY})
 
 
 @pytest.mark.parametrize("name", sorted(agree.__all__))
@@ -22,3 +23,7 @@ def test_coefficients_document_parameters_returns_notes_and_references(name):
     assert doc.index("Parameters") < doc.index("Returns") < doc.index("Notes") < doc.index("References")
     for parameter in ("data :", "categories :", "n_resamples :", "seed :", "minimum :", "cluster :"):
         assert parameter in doc, (name, parameter)
+    references = doc[doc.index("References\n"):]
+    for row in REGISTRY:                        # the sources of every result it computes
+        if row.function == name:
+            assert row.references and all(source in references for source in row.references), (name, row.name)

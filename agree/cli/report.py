@@ -134,7 +134,7 @@ def _print_coefficients(result: Any) -> None:
         table.add_column(header, justify="left" if header == "Coefficient" else "right")
     dg = result.digits
     for r in result.coefficients:
-        table.add_row(result_label(r, result.level), format_value(r.estimate, "coefficient", dg),
+        table.add_row(plain(result_label(r, result.level)), format_value(r.estimate, "coefficient", dg),
                       format_value(r.se, "se", dg), format_interval(r.ci_low, r.ci_high, dg),
                       format_value(r.p_below_min, "probability"), format_value(r.n_units, "count"))
     stdout.print(table)

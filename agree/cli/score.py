@@ -30,7 +30,7 @@ from agree.cli.options import (
     reading_options,
 )
 from agree.core.errors import AgreeError
-from agree.core.results import display_name
+from agree.core.registry import display_name, skipped_by_reason
 
 if TYPE_CHECKING:
     from agree.stats.scoring import ScoreResult
@@ -86,19 +86,6 @@ def score(
         print_score(result)
 
 
-def _label(name: str, r, level: str) -> str:
-    """The display name, saying "unweighted" where the level would allow weights."""
-    label = display_name(name)
-    label = label[0].upper() + label[1:]
-    if name == "krippendorff_alpha" and r.level:
-        return f"{label} ({r.level} metric)"
-    if r.weights and r.weights not in label:
-        return f"{label} ({r.weights} weights)"
-    if level in ("ordinal", "interval", "ratio") and r.weights is None and name != "percent_agreement":
-        label += " (unweighted)"
-    return label
-
-
 def score_csv(result: "ScoreResult") -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
@@ -112,7 +99,7 @@ def score_csv(result: "ScoreResult") -> str:
 
 
 def print_score(result: "ScoreResult") -> None:
-    from agree.core.format import format_interval, format_value
+    from agree.core.format import format_interval, format_value, result_label
 
     pct = f"{result.confidence_level:.0%}"
     title = (f"Agreement: {result.units_used} units, {len(result.coders)} coders "
@@ -124,9 +111,9 @@ def print_score(result: "ScoreResult") -> None:
     table.add_column(f"{pct} CI", justify="right")
     if result.minimum is not None:
         table.add_column(f"P(< {format_value(result.minimum, 'threshold')})", justify="right")
-    for name, r in result.coefficients.items():
+    for r in result.coefficients.values():
         ci = format_interval(r.ci_low, r.ci_high, 3)
-        row = [_label(name, r, result.level), format_value(r.estimate, digits=3), format_value(r.se, "se", 3), ci]
+        row = [result_label(r, result.level), format_value(r.estimate, digits=3), format_value(r.se, "se", 3), ci]
         if result.minimum is not None:
             row.append(format_value(r.p_below_min, "probability"))
         table.add_row(*row)
@@ -146,8 +133,8 @@ def print_score(result: "ScoreResult") -> None:
         shown = ", ".join(result.units_left_out[:10])
         more = f" and {len(result.units_left_out) - 10} more" if len(result.units_left_out) > 10 else ""
         stdout.print(f"Left out: {shown}{more}", highlight=False)
-    for name, reason in result.skipped.items():
-        stdout.print(f"Not computed – {display_name(name)}: {reason}", highlight=False)
+    for reason, names in skipped_by_reason(result.skipped).items():
+        stdout.print(f"Not computed – {', '.join(map(display_name, names))}: {reason}", highlight=False)
     decision = result.decision()
     if decision is not None:
         stdout.print(f"Decision: {decision['sentence']}.", highlight=False)

@@ -14,6 +14,8 @@ from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
+from agree.core.registry import ORDERED_LEVELS, coefficient
+
 if TYPE_CHECKING:
     import pandas as pd
 
@@ -133,6 +135,35 @@ def plain(markup: str) -> str:
     return "".join(text for _, text in spans(markup))
 
 
+def result_label(result: "AgreementResult", level: str | None = None, *, markup: bool = False,
+                 in_sentence: bool = False) -> str:
+    """A result's name with the choice behind it, in the same words in the CLI and every report.
+
+    The registry's display name (`markup=True`: its report label, with Greek symbols), then
+    alpha's metric ("(ordinal metric)", "(MASI distance)"), the weights ("(linear weights)")
+    or, for a coefficient computed without weights on ordered data (`level` ordinal, interval
+    or ratio), "(unweighted)". Capitalised unless `in_sentence`.
+    """
+    row = coefficient(result.name)
+    escape = lit if markup else str
+    if row is None:
+        name = escape(result.name.replace("_", " "))
+    else:
+        name = row.label if markup else row.display
+    qualifier = ""
+    if row is not None and row.family == "alpha":
+        if result.level in ("masi", "jaccard"):
+            qualifier = f"{'MASI' if result.level == 'masi' else 'Jaccard'} distance"
+        elif result.level:
+            qualifier = f"{result.level} metric"
+    elif result.weights and "weights" not in name:
+        qualifier = f"{result.weights} weights"
+    elif not result.weights and level in ORDERED_LEVELS:
+        qualifier = "unweighted"
+    text = name + (f" ({escape(qualifier)})" if qualifier else "")
+    return text if in_sentence else text[:1].upper() + text[1:]
+
+
 def _notebook_cell(v: Any, counts: bool = False) -> str:
     if isinstance(v, (frozenset, set)):
         return "; ".join(sorted(str(x) for x in v)) or "–"
@@ -171,13 +202,6 @@ def notebook_html(summary: str, frame: "pd.DataFrame", *, notes: Sequence[str] =
 
 # -- the decision against a minimum ------------------------------------------------------
 
-_DISPLAY_NAMES = {
-    "krippendorff_alpha": "alpha", "cohen_kappa": "kappa", "fleiss_kappa": "Fleiss' kappa",
-    "conger_kappa": "Conger's kappa", "scott_pi": "pi", "gwet_ac1": "AC1", "gwet_ac2": "AC2",
-    "brennan_prediger": "Brennan-Prediger kappa", "pabak": "PABAK",
-    "percent_agreement": "percent agreement",
-}
-
 
 def percent_label(level: float) -> str:
     """0.95 -> '95%', 0.975 -> '97.5%'."""
@@ -205,7 +229,8 @@ def decision_sentence(result: "AgreementResult", minimum: float, confidence_leve
     Examples: "alpha = .84; the one-sided 95% lower bound .80 clears the minimum .80" (with
     ``digits=2`` and a bound of .803 this becomes "... lower bound .803 clears the minimum .800").
     """
-    name = _DISPLAY_NAMES.get(result.name, result.name.replace("_", " "))
+    row = coefficient(result.name)
+    name = row.sentence_name if row is not None else result.name.replace("_", " ")
     level = result.confidence_level if confidence_level is None else confidence_level
     estimate = result.estimate
     if estimate is None or not math.isfinite(estimate):

@@ -6,26 +6,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
-# Plain-text names of the coefficients, for messages and tables (reports add Greek symbols).
-DISPLAY_NAMES = {
-    "percent_agreement": "percent agreement",
-    "cohen_kappa": "Cohen's kappa",
-    "weighted_kappa_linear": "weighted kappa (linear weights)",
-    "weighted_kappa_quadratic": "weighted kappa (quadratic weights)",
-    "weighted_kappa_custom": "weighted kappa (custom weights)",
-    "scott_pi": "Scott's pi",
-    "fleiss_kappa": "Fleiss' kappa",
-    "conger_kappa": "Conger's kappa",
-    "brennan_prediger": "Brennan-Prediger",
-    "gwet_ac1": "Gwet's AC1",
-    "gwet_ac2": "Gwet's AC2",
-    "pabak": "PABAK",
-    "krippendorff_alpha": "Krippendorff's alpha",
-}
-
-
-def display_name(name: str) -> str:
-    return DISPLAY_NAMES.get(name, name.replace("_", " "))
+from agree.core.registry import display_name
 
 
 @dataclass(frozen=True)

@@ -43,7 +43,9 @@ import pandas as pd
 from agree.core.constants import VERSION
 from agree.core.files import atomic_write_bytes
 from agree.core.format import format_bound, format_interval, format_value, lit, notebook_html, plain, spans  # noqa: F401
+from agree.core.format import result_label as format_result_label
 from agree.core.model import AgreeError, CodingData, as_coding_data, require_unit_rows
+from agree.core.registry import coefficient, family, skipped_by_reason
 from agree.core.results import AgreementResult, Note, json_safe
 
 Progress = Callable[[str, float], None]
@@ -59,26 +61,8 @@ PLACEHOLDER_NOTE = "Bracketed, highlighted text is for you to fill in; edit the 
 
 
 # ----------------------------------------------------------------------------------------
-# names of coefficients, in markup
+# names of coefficients, in markup: from the registry (agree.core.registry)
 
-COEFFICIENT_LABELS = {
-    "krippendorff_alpha": "Krippendorff's α",
-    "percent_agreement": "Percent agreement",
-    "cohen_kappa": "Cohen's κ",
-    "weighted_kappa_linear": "Cohen's weighted κ (linear weights)",
-    "weighted_kappa_quadratic": "Cohen's weighted κ (quadratic weights)",
-    "scott_pi": "Scott's π",
-    "fleiss_kappa": "Fleiss' κ",
-    "conger_kappa": "Conger's κ",
-    "light_kappa": "Light's κ",
-    "brennan_prediger": "Brennan–Prediger coefficient",
-    "gwet_ac1": "Gwet's AC1",
-    "gwet_ac2": "Gwet's AC2 (quadratic weights)",
-    "pabak": "PABAK",
-}
-KAPPA_TYPE = {"cohen_kappa", "weighted_kappa_linear", "weighted_kappa_quadratic", "scott_pi",
-              "fleiss_kappa", "conger_kappa", "light_kappa"}
-HIGH_RUNNING = {"gwet_ac1", "gwet_ac2", "brennan_prediger", "pabak"}
 INTERVAL_METHODS = {
     "bca": "bias-corrected and accelerated (BCa) bootstrap",
     "percentile": "percentile bootstrap",
@@ -89,23 +73,17 @@ INTERVAL_METHODS = {
 
 
 def coefficient_label(name: str, *, in_sentence: bool = False) -> str:
-    """The coefficient's name as a reader expects it ("Krippendorff's α")."""
-    label = COEFFICIENT_LABELS.get(name, name.replace("_", " ").capitalize())
-    if in_sentence and label.startswith("Percent"):
-        label = label.lower()
-    return label
+    """The coefficient's name as a reader expects it, in markup ("Krippendorff's α")."""
+    row = coefficient(name)
+    label = row.label if row is not None else lit(name.replace("_", " "))
+    return label if in_sentence else label[:1].upper() + label[1:]
 
 
 def result_label(result: AgreementResult, level: str = "nominal", *, in_sentence: bool = False) -> str:
-    """The coefficient's name with its weights, so the choice is never hidden: "(unweighted)"
-    for a coefficient computed without weights on ordered (ordinal, interval, ratio) data."""
-    label = coefficient_label(result.name, in_sentence=in_sentence)
-    if result.weights and "weights" not in label:
-        label += f" ({result.weights} weights)"
-    elif (not result.weights and level in ("ordinal", "interval", "ratio") and "weights" not in label
-          and result.name != "krippendorff_alpha"):
-        label += " (unweighted)"
-    return label
+    """The coefficient's name with alpha's metric or the weights, so the choice is never hidden
+    ("(unweighted)" for a coefficient computed without weights on ordinal, interval or ratio
+    data), in markup: the words of the CLI's name (`agree.core.format.result_label`)."""
+    return format_result_label(result, level, markup=True, in_sentence=in_sentence)
 
 
 def landis_koch(value: float) -> str:
@@ -628,11 +606,11 @@ CAUTIONS = (
 def cautions(coefficients: Iterable[AgreementResult] = ()) -> tuple[str, ...]:
     """The usual cautions; the prevalence caution names the coefficients less affected by
     prevalence (Gwet's AC1/AC2, Brennan–Prediger, PABAK) only when the report shows them."""
-    shown = [coefficient_label(r.name) for r in coefficients if r.name in HIGH_RUNNING]
+    shown = [coefficient_label(r.name) for r in coefficients if family(r.name) == "high-running"]
     if not shown:
         return CAUTIONS
     verb = "it" if len(shown) == 1 else "they"
-    names = _join([lit(n) for n in shown])
+    names = _join(shown)
     extra = (f" {names}, also reported here, {'is' if len(shown) == 1 else 'are'} less affected by prevalence: "
              f"{verb} can run well above κ and α on skewed codes, so a higher value there is not more "
              "agreement.")
@@ -662,17 +640,8 @@ def _stat_markup(r: AgreementResult, digits: int) -> str:
 
 
 def _symbol(name: str) -> str:
-    if "alpha" in name:
-        return "α"
-    if "kappa" in name:
-        return "κ"
-    if name == "scott_pi":
-        return "π"
-    if name.startswith("gwet_"):
-        return name[5:].upper()
-    if name == "percent_agreement":
-        return "*P*"
-    return lit(coefficient_label(name))
+    row = coefficient(name)
+    return row.markup_symbol if row is not None else coefficient_label(name)
 
 
 def _rounds_sample_text(report: Report, coders: str) -> list[str]:
@@ -756,9 +725,9 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
                           str(prim.level), f" ({lit(prim.level or 'set')} distance)")
         else:
             metric = f" ({lit(prim.level or report.level)} metric)"
-        coef_text = (f"Agreement was measured with {lit(coefficient_label(prim.name))}{metric}, chosen because "
+        coef_text = (f"Agreement was measured with {coefficient_label(prim.name, in_sentence=True)}{metric}, chosen because "
                      "[[why this coefficient]]")
-        others = [lit(result_label(r, report.level, in_sentence=True)) for r in report.coefficients[1:]]
+        others = [result_label(r, report.level, in_sentence=True) for r in report.coefficients[1:]]
         if others:
             coef_text += f"; {_join(others)} {'is' if len(others) == 1 else 'are'} reported alongside for comparison"
         p.append(coef_text + ".")
@@ -863,7 +832,7 @@ def interpretation(report: Report) -> tuple[str, ...]:
         band = krippendorff_band(prim.estimate, bound, report.minimum)
         sym = _symbol(prim.name)
         level = f"{100 * prim.confidence_level:g}%"
-        text = f"{lit(coefficient_label(prim.name))}: {_stat_markup(prim, digits)}. "
+        text = f"{coefficient_label(prim.name)}: {_stat_markup(prim, digits)}. "
         reached = (f"The one-sided {level} lower bound ({format_bound(bound, report.minimum)}) is at or above the minimum of "
                    f"{minimum}." if one_sided else
                    f"The whole interval lies at or above the minimum of {minimum}.")
@@ -893,12 +862,12 @@ def interpretation(report: Report) -> tuple[str, ...]:
         if r.name == report.primary or not r.defined:
             continue
         est = format_value(r.estimate, "coefficient", digits)
-        label = lit(result_label(r, report.level))
-        if r.name in KAPPA_TYPE:
+        label = result_label(r, report.level)
+        if family(r.name) == "kappa-type":
             rest.append(f"{label} {est} ({landis_koch(r.estimate)} by Landis & Koch)")
-        elif r.name in HIGH_RUNNING:
+        elif family(r.name) == "high-running":
             rest.append(f"{label} {est} (can run well above κ and α on skewed codes; no band applied)")
-        elif r.name == "percent_agreement":
+        elif family(r.name) == "percent":
             rest.append(f"{label} {est} (not corrected for chance)")
         else:
             rest.append(f"{label} {est}")
@@ -974,7 +943,7 @@ def _se_note(results: Sequence[AgreementResult], level: str) -> str:
     for r in results:
         if r.se is None or not math.isfinite(r.se):
             continue
-        groups.setdefault(r.se_method or "method not recorded", []).append(lit(result_label(r, level)))
+        groups.setdefault(r.se_method or "method not recorded", []).append(result_label(r, level))
     if not groups:
         return "*SE*: none computed."
     boot = {k: v for k, v in groups.items() if k.startswith("bootstrap")}
@@ -993,12 +962,13 @@ def report_tables(report: Report) -> list[Table]:
     rows = []
     for i, r in enumerate(report.coefficients):
         path = f"coefficients.{i}"
-        rows.append((Cell(lit(result_label(r, report.level))), _c(r.estimate, "coefficient", dg, f"{path}.estimate"),
+        rows.append((Cell(result_label(r, report.level)), _c(r.estimate, "coefficient", dg, f"{path}.estimate"),
                      _c(r.se, "se", dg, f"{path}.se"), _ci(r.ci_low, r.ci_high, dg, path),
                      _c(r.p_below_min, "probability", dg, f"{path}.p_below_min"),
                      _c(r.n_units, "count", dg, f"{path}.n_units"),
                      Cell(lit(INTERVAL_METHODS.get(r.ci_method or "", r.ci_method or "–")))))
-    skipped = "; ".join(f"{lit(coefficient_label(k))}: {lit(v)}" for k, v in report.skipped.items())
+    skipped = "; ".join(f"{_join([coefficient_label(k) for k in names])}: {lit(reason)}"
+                        for reason, names in skipped_by_reason(report.skipped).items())
     tables.append(Table(
         "coefficients", "Agreement coefficients",
         ("Coefficient", "Estimate", "*SE*", level, f"*P*(below {minimum})", "*n* units", "Interval"),

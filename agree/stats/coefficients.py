@@ -40,6 +40,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, value_label
+from agree.core.registry import references_for
 from agree.core.results import AgreementResult, BootstrapInfo, Note, display_name
 from agree.stats.patterns import Patterns, cluster_sums, compress
 from agree.stats.resampling import (
@@ -693,40 +694,15 @@ _SPECIFIC = {
 }
 
 
-_REFERENCES = {
-    "krippendorff_alpha": ["Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg School "
-                           "for Communication.", "Passonneau, R. (2006). Measuring agreement on set-valued items "
-                           "(MASI). LREC 2006."],
-    "percent_agreement": ["Fleiss, J. L. (1971). Measuring nominal scale agreement among many raters. Psychological "
-                          "Bulletin, 76(5), 378-382.", "Wilson, E. B. (1927). Probable inference. JASA, 22, 209-212."],
-    "cohen_kappa": ["Cohen, J. (1960). A coefficient of agreement for nominal scales. EPM, 20(1), 37-46.",
-                    "Cohen, J. (1968). Weighted kappa. Psychological Bulletin, 70(4), 213-220.",
-                    "Fleiss, J. L., Cohen, J., & Everitt, B. S. (1969). Large sample standard errors of kappa and "
-                    "weighted kappa. Psychological Bulletin, 72(5), 323-327."],
-    "scott_pi": ["Scott, W. A. (1955). Reliability of content analysis. Public Opinion Quarterly, 19(3), 321-325.",
-                 "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."],
-    "fleiss_kappa": ["Fleiss, J. L. (1971). Psychological Bulletin, 76(5), 378-382.",
-                     "Fleiss, J. L., Nee, J. C. M., & Landis, J. R. (1979). Psychological Bulletin, 86(5), 974-977.",
-                     "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."],
-    "conger_kappa": ["Conger, A. J. (1980). Integration and generalization of kappas for multiple raters. "
-                     "Psychological Bulletin, 88(2), 322-328."],
-    "brennan_prediger": ["Brennan, R. L., & Prediger, D. J. (1981). Coefficient kappa: Some uses, misuses, and "
-                         "alternatives. EPM, 41(3), 687-699."],
-    "gwet_ac1": ["Gwet, K. L. (2008). Computing inter-rater reliability and its variance in the presence of high "
-                 "agreement. BJMSP, 61, 29-48.", "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."],
-    "pabak": ["Byrt, T., Bishop, J., & Carlin, J. B. (1993). Bias, prevalence and kappa. Journal of Clinical "
-              "Epidemiology, 46(5), 423-429."],
-}
-
-
 def _documented(*specific: str):
     """Complete a coefficient's docstring with the parameters every coefficient shares (placed
-    before its Notes) and the return value."""
+    before its Notes), the return value, and the References of every result it computes (from
+    the registry, `agree.core.registry`)."""
     def decorate(func):
         params = _COMMON_PARAMETERS.format(specific="".join(_SPECIFIC[k] for k in specific))
         doc = func.__doc__ or ""
         head, sep, notes = doc.partition("\n    Notes\n")
-        refs = "".join(f"    {r}\n" for r in _REFERENCES.get(func.__name__, ()))
+        refs = "".join(f"    {r}\n" for r in references_for(func.__name__))
         refs = f"\n    References\n    ----------\n{refs}" if refs else ""
         func.__doc__ = head.rstrip() + "\n" + params + (sep + notes.rstrip() + "\n" if sep else "") + refs
         return func

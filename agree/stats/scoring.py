@@ -9,7 +9,8 @@ from typing import Any, Mapping
 import numpy as np
 
 from agree.core.model import LEVELS, AgreeError, CodingData, value_label
-from agree.core.results import AgreementResult, Note, display_name, json_safe
+from agree.core.registry import display_name, family, skipped_by_reason, standard_set
+from agree.core.results import AgreementResult, Note, json_safe
 from agree.stats import coefficients as coef
 
 FEW_UNITS = 30  # common practice: below this, intervals are wide and conventions shaky
@@ -91,8 +92,7 @@ class ScoreResult:
         return pd.DataFrame([{
             "coefficient": display_name(name), "estimate": r.estimate, "se": r.se, "ci_low": r.ci_low,
             "ci_high": r.ci_high, "p_below_min": r.p_below_min, "lower_bound": r.lower_bound,
-            "n_units": r.n_units, "weights": r.weights or ("" if name in ("krippendorff_alpha", "percent_agreement")
-                                                           else "unweighted"),
+            "n_units": r.n_units, "weights": r.weights or ("" if family(name) in ("alpha", "percent") else "unweighted"),
             "se_method": r.se_method, "ci_method": r.ci_method} for name, r in self.coefficients.items()])
 
     def _repr_html_(self) -> str:
@@ -103,7 +103,8 @@ class ScoreResult:
                    + (f" from {self.n_resamples} bootstrap replicates ({self.ci_method}, {self.resampled}), seed "
                       f"{self.seed}" if self.n_resamples else ", analytic"))
         notes = [w.message for w in self.warnings]
-        notes += [f"Not computed, {display_name(k)}: {v}" for k, v in self.skipped.items()]
+        notes += [f"Not computed, {', '.join(map(display_name, names))}: {reason}"
+                  for reason, names in skipped_by_reason(self.skipped).items()]
         decision = self.decision()
         if decision is not None:
             notes.insert(0, "Decision: " + decision["sentence"] + ".")
@@ -116,11 +117,14 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
           progress: Any = None) -> ScoreResult:
     """Compute every standard coefficient that fits the data and the level of measurement.
 
-    Nominal data: percent agreement, Cohen's kappa (two coders), Scott's pi, Fleiss',
-    Conger's kappa, Brennan-Prediger, Gwet's AC1 and Krippendorff's alpha. Ordinal,
-    interval and ratio data add linear and quadratic weighted kappa (two coders) and AC2
-    (quadratic weights), and alpha uses the level's metric. Sets of codes get percent
-    agreement (equal sets) and alpha with the MASI (default) or Jaccard distance.
+    The standard set is the registry's (`agree.core.registry.standard_set`). Nominal data:
+    percent agreement, Cohen's kappa (two coders), Scott's pi, Fleiss', Conger's and
+    Brennan–Prediger kappa, Gwet's AC1 and Krippendorff's alpha. Ordinal, interval and ratio
+    data add linear and quadratic weighted kappa (two coders) and AC2 (quadratic weights),
+    and alpha uses the level's metric. Sets of codes get percent agreement (equal sets) and
+    alpha with the MASI (default) or Jaccard distance. A coefficient the design rules out
+    (Cohen's and the weighted kappas beyond two coders, Conger's kappa with rotating coders,
+    fewer than two categories) is listed in `skipped` with the reason.
 
     Every coefficient uses the same seed, so the run repeats exactly. Units with fewer
     than two values are left out of every coefficient and named in the result.
@@ -147,39 +151,22 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
                 minimum=minimum, cluster=cluster)
     results: dict[str, AgreementResult] = {}
     skipped: dict[str, str] = {}
-
-    def attempt(name, fn, **kw):
+    # the registry's standard rows for this design; each names the function that computes it
+    design = {"level": "nominal" if d.set_valued else level, "distance": distance}
+    planned = standard_set(level, set_valued=d.set_valued)
+    for i, row in enumerate(planned):
         if progress is not None:
-            progress(name, len(results) / 11)
+            progress(row.name, i / len(planned))
+        kw = {**row.kwargs, **{k: design[k] for k in row.score_options}}
         try:
-            results[name] = fn(d, **opts, **kw)
+            results[row.name] = getattr(coef, row.function)(d, **opts, **kw)
         except AgreeError as exc:
-            if exc.code in {"two-coders", "set-valued", "q", "rotating", "binary"}:
-                skipped[name] = exc.message
-            else:
+            if exc.code not in row.refuses:
                 raise
-
-    attempt("percent_agreement", coef.percent_agreement)
+            skipped[row.name] = exc.message
     if d.set_valued:
-        attempt("krippendorff_alpha", coef.krippendorff_alpha, level="nominal", distance=distance)
         skipped["kappa family"] = ("kappa-type coefficients need one code per unit and coder; "
                                    "analyse each code as present/absent with `agree codes`")
-    else:
-        if d.n_coders == 2:
-            attempt("cohen_kappa", coef.cohen_kappa)
-        else:
-            skipped["cohen_kappa"] = f"Cohen's kappa compares exactly two coders; the data have {d.n_coders}"
-        attempt("scott_pi", coef.scott_pi)
-        attempt("fleiss_kappa", coef.fleiss_kappa)
-        attempt("conger_kappa", coef.conger_kappa)
-        attempt("brennan_prediger", coef.brennan_prediger)
-        attempt("gwet_ac1", coef.gwet_ac1)
-        attempt("krippendorff_alpha", coef.krippendorff_alpha, level=level)
-        if level != "nominal":
-            if d.n_coders == 2:
-                attempt("weighted_kappa_linear", coef.cohen_kappa, weights="linear")
-                attempt("weighted_kappa_quadratic", coef.cohen_kappa, weights="quadratic")
-            attempt("gwet_ac2", coef.gwet_ac1, weights="quadratic")
 
     observed = d.codes >= 0
     per_unit = observed.sum(axis=1)

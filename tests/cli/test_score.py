@@ -341,3 +341,27 @@ def test_quiet_works_before_or_after_the_command(monkeypatch, capsys):
         STATE["quiet"] = False
     code, out, err = run_main(monkeypatch, capsys, ["score", ROUND1, "--boot", "0"])
     assert code == 0 and "read 120 units" in err
+
+
+# -- one name per result ------------------------------------------------------------------------
+def test_score_table_and_report_name_each_coefficient_with_the_same_words(monkeypatch):
+    """`agree score` prints the words of the report's label (which writes κ for kappa, ...),
+    qualifiers included: metric, weights, "(unweighted)"."""
+    import numpy as np
+    from rich.console import Console
+
+    import agree.cli.score as score_command
+    from agree.output.report import result_label
+    from tests.core.test_registry import in_words
+
+    rng = np.random.default_rng(4)
+    ordinal_two = agree.from_table(rng.integers(1, 5, size=(40, 2)).astype(float), level="ordinal")
+    sets = agree.from_table([[{"a"}, {"a", "b"}], [{"b"}, {"b"}], [{"a", "c"}, {"c"}], [{"a"}, {"b"}]] * 6)
+    for data in (agree.read(ROUND1), agree.read(RATINGS, codebook=RATINGS_BOOK), ordinal_two, sets):
+        result = agree.score(data, n_resamples=0, seed=1)
+        console = Console(width=250, file=io.StringIO(), record=True)
+        monkeypatch.setattr(score_command, "stdout", console)
+        score_command.print_score(result)
+        cells = {line.split("│")[1].strip() for line in console.export_text().splitlines() if line.count("│") > 2}
+        for r in result.coefficients.values():
+            assert in_words(result_label(r, result.level)) in cells, (r.name, cells)
