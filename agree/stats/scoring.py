@@ -128,7 +128,7 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
 
     Every coefficient uses the same seed, so the run repeats exactly. Units with fewer
     than two values are left out of every coefficient and named in the result.
-    `progress`, if given, is called as progress(name, fraction_done) after each coefficient.
+    `progress`, if given, is called as progress(name, fraction_done) before each coefficient.
 
     Warnings (``warnings``): "few-units" below 30 units with two or more values (common practice);
     "prevalence-skew" when percent agreement is at least .80 while alpha, kappa or Fleiss' kappa
