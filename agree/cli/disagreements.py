@@ -13,13 +13,13 @@ from agree.cli.options import (
     Files,
     ForceOption,
     LevelOption,
+    OldSummaryOption,
     OutputOption,
-    SummaryFormat,
     SummaryOption,
     load_data,
     option_values,
     reading_options,
-    split_format,
+    summary_and_file_format,
 )
 
 
@@ -27,7 +27,6 @@ class ReviewFormat(str, Enum):
     xlsx = "xlsx"
     csv = "csv"
     md = "md"
-    json = "json"
 
 
 def _recorded(options: dict[str, Any]) -> dict[str, Any]:
@@ -41,14 +40,15 @@ def _recorded(options: dict[str, Any]) -> dict[str, Any]:
 def disagreements(
     files: Files,
     output: OutputOption,
-    format: Annotated[Optional[ReviewFormat], typer.Option(
-        "--format", help="File format: xlsx (default), csv or md; taken from the suffix of -o when "
-                         "not given. 'json' prints the summary as JSON instead of a table.")] = None,
+    file_format: Annotated[Optional[ReviewFormat], typer.Option(
+        "--file-format", help="Format of the file written: xlsx (default), csv or md; taken from the "
+                              "suffix of -o when not given.")] = None,
     include_agreed: Annotated[bool, typer.Option(
         "--include-agreed", help="Also list the units the coders agree on (after the disagreements).")
     ] = False,
     force: ForceOption = False,
-    summary_format: SummaryOption = SummaryFormat.table,
+    output_format: SummaryOption = None,
+    summary_format: OldSummaryOption = None,
     codebook: CodebookOption = None,
     level: LevelOption = None,
     *,
@@ -70,9 +70,10 @@ def disagreements(
 
     Other per-unit columns kept with --keep (e.g. --keep interview) are shown beside the unit.
     """
+    shown, file_format = summary_and_file_format(output_format, summary_format, file_format,
+                                                 [f.value for f in ReviewFormat])
     reading = {**reading, **option_values(codebook=codebook, level=level)}
     data = load_data(files, **reading)
-    file_format, shown = split_format(format, summary_format)
     options = _recorded({**reading, "include_agreed": include_agreed})
     options["sep"] = reading["sep"]
     inputs = list(files) + ([codebook] if codebook else [])

@@ -8,9 +8,13 @@ applied by `load_data`, e.g.::
     def score(files: Files, level: LevelOption = None, codebook: CodebookOption = None, *, reading: dict):
         data = load_data(files, codebook=codebook, level=level, **reading)
 
-Analysis options (`--min`, `--boot`, `--seed`, `--ci`, `--format`) have the same defaults
-everywhere: 2000 bootstrap replicates and seed 1, so every command repeats exactly unless told
-otherwise (the seed is printed with the results).
+Analysis options (`--min`, `--boot`, `--seed`, `--ci`) have the same defaults everywhere: 2000
+bootstrap replicates and seed 1, so every command repeats exactly unless told otherwise (the seed
+is printed with the results).
+
+`--format` means one thing in every command: how the result is printed on stdout (table, json,
+and csv where the result is a table of rows). A file a command writes takes its format from the
+suffix of `-o` (`--file-format` where the suffix may not say).
 """
 
 from __future__ import annotations
@@ -24,6 +28,7 @@ from typing import TYPE_CHECKING, Annotated, Any, Optional, Sequence
 import typer
 
 from agree.cli.app import note
+from agree.core.errors import AgreeError
 
 if TYPE_CHECKING:
     from agree.core.model import CodingData
@@ -57,9 +62,9 @@ SeedOption = Annotated[int, typer.Option("--seed", help="Seed of the bootstrap; 
 CIOption = Annotated[float, typer.Option("--ci", min=0.5, max=0.9999,
                                          help="Confidence level of the two-sided interval (e.g. 0.95).")]
 FormatOption = Annotated[TableFormat, typer.Option(
-    "--format", help="table (readable), json (the library's to_dict()) or csv.")]
+    "--format", help="How to print the result: table (readable), json (the library's to_dict()) or csv.")]
 ResultFormatOption = Annotated[SummaryFormat, typer.Option(
-    "--format", help="table: human-readable; json: the result's to_dict().")]
+    "--format", help="How to print the result: table (readable) or json (the library's to_dict()).")]
 DistanceOption = Annotated[SetDistance, typer.Option(
     "--distance", help="Sets of codes per unit: distance between two coders' sets for the overall alpha "
                        "(masi, the default as in `agree score`, or jaccard).")]
@@ -81,8 +86,11 @@ OutputOption = Annotated[Path, typer.Option("--output", "-o", help="The file to 
                                             show_default=False)]
 ForceOption = Annotated[bool, typer.Option("--force", help="Replace the output file if it exists "
                                                             "(input files are never overwritten).")]
-SummaryOption = Annotated[SummaryFormat, typer.Option(
-    "--summary-format", help="How to print the summary on stdout: a table or JSON.")]
+SummaryOption = Annotated[Optional[str], typer.Option(
+    "--format", metavar="<table|json>", show_default=False,
+    help="How to print the summary: table (readable) or json (the library's to_dict()).  [default: table]")]
+OldSummaryOption = Annotated[Optional[SummaryFormat], typer.Option(
+    "--summary-format", hidden=True, help="Deprecated: --format.")]
 
 
 # -- reading ----------------------------------------------------------------------------------
@@ -176,11 +184,27 @@ def option_values(**options: Any) -> dict[str, Any]:
     return {k: _value(v) for k, v in options.items()}
 
 
-def split_format(fmt: Enum | None, summary: SummaryFormat) -> tuple[str | None, str]:
-    """`--format json` asks for the JSON summary; any other value is the file format."""
-    if fmt is not None and fmt.value == "json":
-        return None, "json"
-    return (fmt.value if fmt is not None else None), summary.value
+def summary_and_file_format(printed: str | None, old_summary: SummaryFormat | None, file_format: Enum | None,
+                            file_formats: Sequence[str]) -> tuple[str, str | None]:
+    """How to print the summary ('table' or 'json') and the format of the file written (None: from
+    the suffix of -o), for the commands that write a file and print a summary.
+
+    Earlier versions printed by `--summary-format` and took the file's format from `--format`;
+    both still work, each with a one-line note."""
+    shown = "table"
+    file = None if file_format is None else file_format.value
+    if old_summary is not None:
+        note(f"note: --summary-format is deprecated; use --format {old_summary.value}")
+        shown = old_summary.value
+    if printed is None or printed in ("table", "json"):
+        return printed or shown, file
+    if printed in file_formats and file is None:
+        note(f"note: --format {printed} for the file is deprecated; use --file-format {printed} "
+             f"(--format now says how the summary is printed: table or json)")
+        return shown, printed
+    raise AgreeError(f"--format is how the summary is printed, table or json; got '{printed}'",
+                     hint=f"the file's format follows the suffix of -o, or --file-format {'|'.join(file_formats)}",
+                     code="bad-option")
 
 
 def _one_or_many(x: Sequence[str] | str | None) -> Any:

@@ -11,7 +11,7 @@ from rich.table import Table
 from rich.text import Text
 
 from agree.cli.app import app, note, print_json, progress_bar, stdout
-from agree.cli.options import SummaryFormat
+from agree.cli.options import ResultFormatOption, SummaryFormat
 from agree.core.errors import AgreeError
 
 if TYPE_CHECKING:
@@ -58,7 +58,7 @@ def plan(
     corpus_size: Annotated[Optional[int], typer.Option(
         "--corpus-size", help="Units in the whole study, for the percentage rules of thumb.")] = None,
     plot: Annotated[Optional[Path], typer.Option("--plot", help="Write the assurance curve to this PNG file.")] = None,
-    output_format: Annotated[SummaryFormat, typer.Option("--format", help="table or json.")] = SummaryFormat.table,
+    output_format: ResultFormatOption = SummaryFormat.table,
 ):
     """How many units to double-code: a Monte Carlo plan for Krippendorff's alpha.
 

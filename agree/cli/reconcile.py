@@ -13,13 +13,13 @@ from agree.cli.options import (
     CodebookOption,
     ForceOption,
     LevelOption,
+    OldSummaryOption,
     OutputOption,
-    SummaryFormat,
     SummaryOption,
     load_data,
     option_values,
     reading_options,
-    split_format,
+    summary_and_file_format,
 )
 from agree.core.errors import AgreeError
 
@@ -27,7 +27,6 @@ from agree.core.errors import AgreeError
 class ConsensusFormat(str, Enum):
     csv = "csv"
     xlsx = "xlsx"
-    json = "json"
 
 
 INDEPENDENT = ("Agreement is always computed on the coders' independent codes, never on "
@@ -51,11 +50,12 @@ def reconcile_command(
     majority: Annotated[bool, typer.Option(
         "--majority", help="Give an undecided unit the code a strict majority of its coders gave "
                            "(source 'majority'), where one exists.")] = False,
-    format: Annotated[Optional[ConsensusFormat], typer.Option(
-        "--format", help="File format: csv or xlsx, from the suffix of -o when not given. "
-                         "'json' prints the summary as JSON instead of a table.")] = None,
+    file_format: Annotated[Optional[ConsensusFormat], typer.Option(
+        "--file-format", help="Format of the file written: csv or xlsx, from the suffix of -o when "
+                              "not given.")] = None,
     force: ForceOption = False,
-    summary_format: SummaryOption = SummaryFormat.table,
+    output_format: SummaryOption = None,
+    summary_format: OldSummaryOption = None,
     codebook: CodebookOption = None,
     level: LevelOption = None,
     *,
@@ -83,9 +83,10 @@ def reconcile_command(
     if not files:
         raise AgreeError("no coding data given", hint="name the files the review was made from "
                          "with --data", code="no-input")
+    shown, file_format = summary_and_file_format(output_format, summary_format, file_format,
+                                                 [f.value for f in ConsensusFormat])
     reading = {**reading, **option_values(codebook=codebook, level=level)}
     data = load_data(files, **reading)
-    file_format, shown = split_format(format, summary_format)
     from agree.output.reconciliation import reconcile, unresolved_listing, write_consensus
 
     consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority)

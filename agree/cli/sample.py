@@ -10,7 +10,7 @@ from rich.table import Table
 from rich.text import Text
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.options import SummaryFormat
+from agree.cli.options import ResultFormatOption, SummaryFormat
 
 
 @app.command()
@@ -40,7 +40,7 @@ def sample(
     text_col: Annotated[Optional[str], typer.Option("--text-col", help="The text column, if not detected.")] = None,
     sheet: Annotated[Optional[str], typer.Option("--sheet", help="Worksheet of an .xlsx list of units.")] = None,
     force: Annotated[bool, typer.Option("--force", help="Write into a folder that is not empty.")] = False,
-    output_format: Annotated[SummaryFormat, typer.Option("--format", help="table or json.")] = SummaryFormat.table,
+    output_format: ResultFormatOption = SummaryFormat.table,
 ):
     """Draw the reliability sample and write one blank coding workbook per coder.
 

@@ -51,3 +51,14 @@ print(sorted({{m.split(".")[0] for m in sys.modules}} & set({HEAVY!r})))
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip().splitlines()[-1] == "[]"
     assert "Usage: agree score" in proc.stdout and "Usage: agree demo" in proc.stdout
+
+
+def test_format_is_one_word_in_every_command():
+    # --format says how the result is printed, in every command; the old --summary-format is hidden
+    from agree.cli.app import app
+
+    for command in [c.name or c.callback.__name__ for c in app.registered_commands]:
+        text = run([command, "--help"]).stdout
+        assert "--format" in text and "--summary-format" not in text, command
+        assert re.search(r"--format\s+<table\|json(\|csv)?>", text), command
+

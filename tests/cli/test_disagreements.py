@@ -3,6 +3,7 @@ user sees them). All data are synthetic."""
 
 from __future__ import annotations
 
+import json
 import os
 
 import pytest
@@ -31,3 +32,35 @@ def test_existing_output_needs_force(tmp_path, data_file, capsys):
     assert code == 2 and "--force" in err
     assert run(capsys, "disagreements", data_file, "-o", review, "--force")[0] == 0
     assert not [f for f in os.listdir(tmp_path) if f.endswith(".tmp")]
+
+
+def test_format_prints_the_summary_and_file_format_writes_the_file(tmp_path, data_file, capsys):
+    out = tmp_path / "review.txt"
+    code, printed, err = run(capsys, "disagreements", data_file, "-o", out, "--file-format", "csv",
+                             "--format", "json")
+    assert code == 0, err
+    assert json.loads(printed)["needing_review"] == 2 and "deprecated" not in err
+    assert out.read_text(encoding="utf-8").startswith("unit,")
+
+
+def test_old_format_flags_still_work_with_a_one_line_note(tmp_path, data_file, capsys):
+    # earlier versions: --summary-format for the printed summary, --format for the file
+    code, printed, err = run(capsys, "disagreements", data_file, "-o", tmp_path / "a.csv",
+                             "--summary-format", "json")
+    assert code == 0, err
+    assert json.loads(printed)["needing_review"] == 2
+    assert [line for line in err.splitlines() if "deprecated" in line] == [
+        "note: --summary-format is deprecated; use --format json"]
+    code, printed, err = run(capsys, "disagreements", data_file, "-o", tmp_path / "b.txt", "--format", "md")
+    assert code == 0, err
+    assert "--file-format md" in err and "deprecated" in err
+    assert (tmp_path / "b.txt").read_text(encoding="utf-8").startswith("# Units to reconcile")
+    assert "needing review" in printed                       # the table, as before
+
+
+def test_unknown_format_is_one_line_before_reading(tmp_path, capsys):
+    code, _, err = run(capsys, "disagreements", tmp_path / "missing.csv", "-o", tmp_path / "r.xlsx",
+                       "--format", "yaml")
+    assert code == 2
+    assert err.count("\n") == 1 and "table or json" in err and "--file-format" in err
+

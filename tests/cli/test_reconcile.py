@@ -160,3 +160,15 @@ def test_help_examples_run_on_the_bundled_samples(tmp_path, capsys):
     # the bundled round-1 file has an interview column: the review list shows it beside the unit
     ws = openpyxl.load_workbook(made[0])[REVIEW_SHEET]
     assert [c.value for c in ws[1]][:2] == ["unit", "interview"]
+
+
+def test_file_format_and_printed_format_are_two_options(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    run(capsys, "disagreements", data_file, "-o", review)
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    out = tmp_path / "consensus.txt"
+    code, printed, err = run(capsys, "reconcile", review, "--data", data_file, "-o", out,
+                             "--file-format", "csv", "--format", "json")
+    assert code == 0, err
+    assert json.loads(printed)["decided"] == 2 and "deprecated" not in err
+    assert out.read_text(encoding="utf-8").startswith("unit,")
