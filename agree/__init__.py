@@ -27,6 +27,8 @@ _EXPORTS = {
     "agree.core.format": ("decision_sentence",),
     "agree.io.codebook": ("Codebook", "read_codebook"),
     "agree.io.readers": ("read",),
+    "agree.io.spans": ("read_spans",),
+    "agree.io.refi": ("read_project",),
     "agree.stats.coefficients": ("brennan_prediger", "cohen_kappa", "coincidence_matrix", "conger_kappa",
                                  "fleiss_kappa", "gwet_ac1", "krippendorff_alpha", "pabak", "percent_agreement",
                                  "scott_pi"),

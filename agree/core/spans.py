@@ -16,11 +16,30 @@ from dataclasses import dataclass, field, replace
 from typing import Any, Sequence
 
 import numpy as np
+import pandas as pd
 
 from agree.core.model import AgreeError, ReadReport
 
 UNITS = ("character", "token")
 CODE_PATH_SEPARATOR = "/"
+
+
+def token_bounds(text: str) -> tuple[np.ndarray, np.ndarray]:
+    """Character offsets (start, end exclusive) of the tokens of `text`: maximal runs of
+    characters that are not whitespace (``str.isspace``), so punctuation sticks to its word.
+    Token offsets (`unit` "token") count these tokens from 0."""
+    codepoints = np.frombuffer(text.encode("utf-32-le"), dtype=np.uint32)
+    space = np.concatenate(([True], np.isin(codepoints, _SPACES), [True])).astype(np.int8)
+    edges = np.diff(space)
+    return np.flatnonzero(edges == -1).astype(np.int64), np.flatnonzero(edges == 1).astype(np.int64)
+
+
+# every code point for which str.isspace() is true (the last is U+3000, ideographic space)
+_SPACES = np.array([c for c in range(0x3001) if chr(c).isspace()], dtype=np.uint32)
+
+
+def _pick(values: tuple[str, ...] | None, index: Any) -> tuple[str, ...] | None:
+    return None if values is None else tuple(values[int(i)] for i in index)
 
 
 def _frozen(a: Any, dtype: Any) -> np.ndarray:
@@ -53,6 +72,9 @@ class SpanData:
     unit : "character" or "token".
     source_rows : optional (S,) int64, the row (span table) or -1, for messages.
     span_ids : optional (S,) object array of identifiers from the input (selection GUIDs).
+    document_guids, coder_guids, code_guids : optional identifiers of the documents, coders and
+        codes in the input (REFI-QDA source, user and code GUIDs, normalised), one per document,
+        coder and code; a writer uses them to put spans back where they came from.
     report : what the reader detected and did.
     """
 
@@ -74,6 +96,9 @@ class SpanData:
     span_ids: np.ndarray | None = None
     report: ReadReport | None = None
     notes: tuple[str, ...] = field(default=())
+    document_guids: tuple[str, ...] | None = None
+    coder_guids: tuple[str, ...] | None = None
+    code_guids: tuple[str, ...] | None = None
 
     def __post_init__(self):
         D, m, C = len(self.documents), len(self.coders), len(self.codes)
@@ -102,6 +127,12 @@ class SpanData:
             raise AgreeError("a code's parent refers to no code", code="shape")
         if self.source_rows is not None:
             object.__setattr__(self, "source_rows", _frozen(self.source_rows, np.int64))
+        for name, n in (("document_guids", D), ("coder_guids", m), ("code_guids", C)):
+            guids = getattr(self, name)
+            if guids is not None:
+                object.__setattr__(self, name, tuple(guids))
+                if len(guids) != n:
+                    raise AgreeError(f"`{name}` needs one identifier per {name.split('_')[0]}", code="shape")
 
     # -- shape -------------------------------------------------------------------------
     @property
@@ -142,7 +173,8 @@ class SpanData:
         new_index[keep_codes] = np.arange(len(keep_codes))
         parents = np.array([new_index[p] if p >= 0 else -1 for p in self.parents[keep_codes]], dtype=np.int64)
         code = new_index[ancestor[self.code]]
-        return self._with_spans(code=code, codes=tuple(self.codes[i] for i in keep_codes), parents=parents)
+        return self._with_spans(code=code, codes=tuple(self.codes[i] for i in keep_codes), parents=parents,
+                                code_guids=_pick(self.code_guids, keep_codes))
 
     def subset_documents(self, keep: np.ndarray | Sequence[bool]) -> "SpanData":
         """Only the documents where `keep` is True (a (D,) bool mask)."""
@@ -152,6 +184,7 @@ class SpanData:
         return replace(
             self, documents=tuple(d for d, k in zip(self.documents, keep) if k),
             texts=tuple(t for t, k in zip(self.texts, keep) if k), lengths=self.lengths[keep],
+            document_guids=_pick(self.document_guids, np.flatnonzero(keep)),
             coded=self.coded[keep], doc=new_index[self.doc[on]], coder=self.coder[on], code=self.code[on],
             start=self.start[on], end=self.end[on],
             source_rows=None if self.source_rows is None else self.source_rows[on],
@@ -165,19 +198,33 @@ class SpanData:
         on = new_index[self.coder] >= 0
         return replace(
             self, coders=tuple(self.coders[i] for i in index), coded=self.coded[:, index],
+            coder_guids=_pick(self.coder_guids, index),
             doc=self.doc[on], coder=new_index[self.coder[on]], code=self.code[on], start=self.start[on],
             end=self.end[on], source_rows=None if self.source_rows is None else self.source_rows[on],
             span_ids=None if self.span_ids is None else self.span_ids[on])
 
-    def _with_spans(self, *, code: np.ndarray, codes: tuple[str, ...], parents: np.ndarray) -> "SpanData":
+    def _with_spans(self, *, code: np.ndarray, codes: tuple[str, ...], parents: np.ndarray,
+                    code_guids: tuple[str, ...] | None) -> "SpanData":
         key = np.stack([self.doc, self.coder, code, self.start, self.end], axis=1)
         _, first = np.unique(key, axis=0, return_index=True)
         first = np.sort(first)
         return replace(
-            self, codes=codes, parents=parents, doc=self.doc[first], coder=self.coder[first], code=code[first],
+            self, codes=codes, parents=parents, code_guids=code_guids, doc=self.doc[first], coder=self.coder[first], code=code[first],
             start=self.start[first], end=self.end[first],
             source_rows=None if self.source_rows is None else self.source_rows[first],
             span_ids=None if self.span_ids is None else self.span_ids[first])
+
+    def table(self) -> pd.DataFrame:
+        """One row per coded span: document, coder, code (its path), start, end (end exclusive,
+        in `unit`s), sorted by document, coder, start, end and code."""
+        frame = pd.DataFrame({
+            "document": pd.Categorical.from_codes(self.doc, categories=pd.Index(self.documents, dtype=object)),
+            "coder": pd.Categorical.from_codes(self.coder, categories=pd.Index(self.coders, dtype=object)),
+            "code": pd.Categorical.from_codes(self.code, categories=pd.Index(self.codes, dtype=object)),
+            "start": self.start, "end": self.end})
+        order = np.lexsort((self.code, self.end, self.start, self.coder, self.doc))
+        frame = frame.iloc[order].reset_index(drop=True)
+        return frame.astype({"document": object, "coder": object, "code": object})
 
     def summary(self) -> str:
         return (f"{self.n_spans:,} coded spans by {self.n_coders} coders over {self.n_documents} documents, "
