@@ -37,10 +37,11 @@ _EXPORTS = {
                                    "diagnose_coders"),
     "agree.analysis.planning": ("Plan", "plan_sample"),
     "agree.analysis.rounds": ("RoundsResult", "compare_rounds"),
-    "agree.analysis.sampling": ("draw_sample", "read_unit_ids", "write_coding_sheets"),
+    "agree.analysis.sampling": ("draw_sample", "read_unit_ids"),
     "agree.output.report": ("Report", "build_report", "write_report"),
     "agree.output.reconciliation": ("Consensus", "ReviewSummary", "reconcile", "review_table", "write_consensus",
                                     "write_review"),
+    "agree.output.sheets": ("write_coding_sheets",),
 }
 _WHERE = {name: module for module, names in _EXPORTS.items() for name in names}
 

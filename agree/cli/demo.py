@@ -86,7 +86,8 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     from agree.analysis.diagnostics import diagnose_codes
     from agree.analysis.planning import plan_sample
     from agree.analysis.rounds import compare_rounds
-    from agree.analysis.sampling import draw_sample, load_codebook_categories, read_unit_ids, write_coding_sheets
+    from agree.analysis.sampling import draw_sample, load_codebook_categories, read_unit_ids
+    from agree.output.sheets import write_coding_sheets
     from agree.core.format import format_interval, plain
     from agree.io.readers import read
     from agree.output.reconciliation import write_review

@@ -66,7 +66,8 @@ from typing import Any, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from agree.core.files import sha256_file
+from agree.core.cells import PROTECTED_PATTERN
+from agree.core.files import record_input, sha256_file
 from agree.core.model import (
     LEVELS,
     MISSING,
@@ -200,6 +201,7 @@ def load_file(path: Path, *, sheet: Any, name: str, sheet_option: str = "--sheet
     if path.is_dir():
         raise AgreeError("this is a folder, not a file", where=name, hint="name the files inside it",
                          code="file-not-found")
+    record_input(path)       # an input of this run: no output of the run may replace it
     if path.stat().st_size == 0:
         raise AgreeError("the file is empty", where=name, hint="check that the file was saved",
                          code="empty-file")
@@ -313,6 +315,8 @@ def _load_text(path: Path, *, delimiter: str | None, name: str) -> _Loaded:
         raise AgreeError(f"cannot read the CSV: {msg}", where=name, code="bad-csv",
                          hint="check the delimiter and quoting (a text cell with the delimiter must "
                               "be quoted)") from None
+    if b"'" in data:
+        table = _unprotect(table)
     del data
     frame = table.to_pandas()
     del table
@@ -321,6 +325,17 @@ def _load_text(path: Path, *, delimiter: str | None, name: str) -> _Loaded:
     rows = np.arange(2, len(frame) + 2, dtype=np.int64)
     t = _finish_table(frame, header, rows, file=name, sheet=None, letters=False)
     return _Loaded([t], notes=notes, checksums={name: checksum})
+
+
+def _unprotect(table):
+    """Undo the formula protection of agree's CSV files (`agree.core.cells`): one ``'`` less in
+    cells that are ``'``s followed by ``= + - @``, a tab or a carriage return."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    return pa.table({name: pc.replace_substring_regex(table[name], pattern=PROTECTED_PATTERN,
+                                                      replacement=r"\1", max_replacements=1)
+                     for name in table.column_names})
 
 
 def _finish_table(frame: pd.DataFrame, header: list, rows: np.ndarray, *, file: str,

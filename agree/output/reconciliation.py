@@ -26,10 +26,10 @@ applied no code) is written ``"(none)"``, while a coder who did not code the uni
 empty cell.
 
 Spreadsheet safety: text that a spreadsheet would run as a formula (starting with ``=``,
-``+``, ``-``, ``@``, a tab or a carriage return) stays text. In xlsx files such cells are
-typed as strings (with Excel's quote-prefix flag) and keep their text exactly. In CSV files
-they get one leading ``'``, and so does every text that already starts with ``'``;
-reading a CSV back removes exactly one leading ``'``.
+``+``, ``-``, ``@``, a tab or a carriage return) stays text, by the rules every output of agree
+follows (`agree.core.cells`): in xlsx files such cells are typed as strings (with Excel's
+quote-prefix flag) and keep their text exactly; in CSV files they get one leading ``'``, which
+reading back removes.
 """
 
 from __future__ import annotations
@@ -46,7 +46,8 @@ import numpy as np
 import pandas as pd
 
 from agree.core.constants import VERSION
-from agree.core.files import atomic_write, check_output, sha256_file  # noqa: F401 (sha256_file re-exported)
+from agree.core.cells import frame_csv, protect_text, put_cell, unprotect_text  # noqa: F401 (re-exported)
+from agree.core.files import atomic_write, check_output, record_input, sha256_file  # noqa: F401
 from agree.core.model import CONSENSUS_FINAL as FINAL
 from agree.core.model import CONSENSUS_SOURCE as SOURCE
 from agree.core.model import CONSENSUS_SOURCES as SOURCES
@@ -82,7 +83,6 @@ LISTS_SHEET = "Lists"
 REVIEW_FORMATS = ("xlsx", "csv", "md")
 CONSENSUS_FORMATS = ("csv", "xlsx")
 
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _LIST_LITERAL_LIMIT = 255  # Excel's limit on an inline list in a data-validation formula
 _UNRESOLVED_SHOWN = 20
 _LEFT_OUT_REASONS = {"single coder": "coded by one coder only", "not coded": "coded by no coder"}
@@ -425,19 +425,6 @@ def _confused_pairs(data: CodingData) -> pd.DataFrame:
 
 
 # -- writing files -------------------------------------------------------------------------
-def protect_text(text: str) -> str:
-    """Text as written to a CSV cell: one leading ``'`` when a spreadsheet would read the
-    text as a formula (or when it already starts with ``'``, so reading back is exact)."""
-    if text[:1] in _FORMULA_START or text[:1] == "'":
-        return "'" + text
-    return text
-
-
-def unprotect_text(text: str) -> str:
-    """Undo `protect_text`: remove exactly one leading ``'``."""
-    return text[1:] if text[:1] == "'" else text
-
-
 def _infer_format(path: Path, fmt: str | None, allowed: Sequence[str]) -> str:
     if fmt is None:
         fmt = path.suffix.lower().lstrip(".") or allowed[0]
@@ -562,9 +549,7 @@ def _about_rows(data: CodingData, summary: ReviewSummary,
 
 
 def _write_csv(tmp: str, table: pd.DataFrame) -> None:
-    frame = table.map(lambda v: protect_text(v) if isinstance(v, str) else v)
-    frame.columns = [protect_text(str(c)) for c in table.columns]
-    frame.to_csv(tmp, index=False, encoding="utf-8", lineterminator="\n")
+    Path(tmp).write_bytes(frame_csv(table).encode("utf-8"))
 
 
 def _md_cell(value: Any) -> str:
@@ -590,24 +575,6 @@ def _write_markdown(tmp: str, table: pd.DataFrame, summary: ReviewSummary) -> No
 
 
 # -- xlsx ----------------------------------------------------------------------------------
-def _put(cell: Any, value: Any) -> None:
-    """Set a cell so that text always stays text (never a formula)."""
-    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
-
-    if isinstance(value, str):
-        value = ILLEGAL_CHARACTERS_RE.sub("\ufffd", value)
-        cell.value = value
-        cell.data_type = "s"
-        if value[:1] in _FORMULA_START:
-            cell.quotePrefix = True
-    elif value is None or isinstance(value, (bool, np.bool_)):
-        cell.value = None if value is None else bool(value)
-    elif isinstance(value, (int, float, np.integer, np.floating)):
-        cell.value = value.item() if hasattr(value, "item") else value
-    else:
-        _put(cell, str(value))
-
-
 def _fill_sheet(ws: Any, header: Sequence[Any], rows: Sequence[Sequence[Any]], *,
                 max_width: int = 60, header_bold: bool = True) -> None:
     from openpyxl.styles import Alignment, Font
@@ -618,14 +585,14 @@ def _fill_sheet(ws: Any, header: Sequence[Any], rows: Sequence[Sequence[Any]], *
     widths = [len(str(h)) for h in header]
     for j, h in enumerate(header, start=1):
         cell = ws.cell(row=1, column=j)
-        _put(cell, h)
+        put_cell(cell, h)
         cell.alignment = wrap
         if header_bold:
             cell.font = bold
     for i, row in enumerate(rows, start=2):
         for j, value in enumerate(row, start=1):
             cell = ws.cell(row=i, column=j)
-            _put(cell, value)
+            put_cell(cell, value)
             cell.alignment = wrap
             text = "" if value is None else str(value)
             longest = max((len(line) for line in text.split("\n")), default=0)
@@ -646,9 +613,9 @@ def _list_source(wb: Any, name: str, labels: Sequence[str], column: int) -> str:
     else:
         ws = wb.create_sheet(LISTS_SHEET)
         ws.sheet_state = "hidden"
-    _put(ws.cell(row=1, column=column), name)
+    put_cell(ws.cell(row=1, column=column), name)
     for i, label in enumerate(labels, start=2):
-        _put(ws.cell(row=i, column=column), label)
+        put_cell(ws.cell(row=i, column=column), label)
     letter = get_column_letter(column)
     return f"'{LISTS_SHEET}'!${letter}$2:${letter}${len(labels) + 1}"
 
@@ -702,7 +669,7 @@ def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: p
     units_header = pairs_ws.cell(row=1, column=list(pairs.columns).index(PAIR_UNITS) + 1)
     units_header.comment = Comment(PAIRS_NOTE, "agree", width=320, height=120)
     note_row = len(pairs) + 3
-    _put(pairs_ws.cell(row=note_row, column=1), "note: " + PAIRS_NOTE)
+    put_cell(pairs_ws.cell(row=note_row, column=1), "note: " + PAIRS_NOTE)
     pairs_ws.cell(row=note_row, column=1).font = Font(italic=True)
 
     about_ws = wb.create_sheet(ABOUT_SHEET, 2)
@@ -792,6 +759,7 @@ def _read_review(review: Any) -> _ReviewFile:
     path = Path(review)
     if not path.exists():
         raise AgreeError(f"{path} does not exist", code="no-file")
+    record_input(path)
     suffix = path.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
         return _read_review_xlsx(path)

@@ -22,9 +22,9 @@ from agree.analysis.sampling import (
     load_codebook_categories,
     read_corpus,
     read_unit_ids,
-    write_coding_sheets,
 )
 from agree.core.model import AgreeError
+from agree.output.sheets import write_coding_sheets
 
 CODES = ["praise", "complaint", "question"]
 
