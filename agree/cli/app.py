@@ -12,6 +12,7 @@ import typer
 from rich.console import Console
 
 from agree.core.errors import AgreeError
+from agree.core.files import run_scope
 
 app = typer.Typer(
     name="agree",
@@ -29,11 +30,14 @@ STATE = {"debug": False, "quiet": False}
 
 @app.callback()
 def _global(
+    ctx: typer.Context,
     debug: bool = typer.Option(False, "--debug", help="Show the full traceback on errors."),
     quiet: bool = typer.Option(False, "--quiet", "-q", help="Print no progress or notes on stderr."),
 ):
     STATE["debug"] = debug
     STATE["quiet"] = quiet
+    # one run per command: every file it reads is an input that none of its outputs may replace
+    ctx.with_resource(run_scope())
 
 
 @contextlib.contextmanager

@@ -26,6 +26,7 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
+from agree.core.cells import frame_csv
 
 if TYPE_CHECKING:
     from agree.analysis.diagnostics import CodeDiagnostics
@@ -85,7 +86,7 @@ def codes_command(
     if output is TableFormat.json:
         print_json(result.to_dict())
     elif output is TableFormat.csv:
-        sys.stdout.write(result.to_frame().to_csv(index=False))
+        sys.stdout.write(frame_csv(result.to_frame()))
     else:
         print_codes(result, top)
 

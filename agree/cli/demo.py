@@ -20,6 +20,7 @@ from agree.cli.options import SummaryFormat, report_reading
 from agree.cli.plan import print_plan
 from agree.cli.score import print_score
 from agree.core.errors import AgreeError
+from agree.core.files import make_folder
 
 
 def _samples_folder(given: Path | None) -> Path:
@@ -65,7 +66,7 @@ def demo(
     Example: agree demo --out agree-demo
     """
     folder = _samples_folder(samples)
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
     quiet_tour = output_format is SummaryFormat.json
     summary_json: dict = {"outputs": {}, "rounds": {}}
     with contextlib.ExitStack() as stack:
@@ -86,12 +87,12 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     from agree.analysis.diagnostics import diagnose_codes
     from agree.analysis.planning import plan_sample
     from agree.analysis.rounds import compare_rounds
-    from agree.analysis.sampling import draw_sample, load_codebook_categories, read_unit_ids
-    from agree.output.sheets import write_coding_sheets
+    from agree.analysis.sampling import draw_sample, load_codebook_categories, read_corpus, read_unit_ids
     from agree.core.format import format_interval, plain
     from agree.io.readers import read
     from agree.output.reconciliation import write_review
     from agree.output.report import build_report, write_report
+    from agree.output.sheets import write_coding_sheets
     from agree.stats.coefficients import krippendorff_alpha
     from agree.stats.scoring import score
 
@@ -156,9 +157,7 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
 
     step("Draw the next reliability sample, leaving out the units coded in rounds 1 and 2 "
          "(agree sample samples/corpus.csv ... --exclude samples/round1.csv --exclude samples/round2.csv)")
-    import pandas as pd
-
-    corpus = pd.read_csv(folder / "corpus.csv")
+    corpus = read_corpus(folder / "corpus.csv")
     already = read_unit_ids([folder / "round1.csv", folder / "round2.csv"])
     available = len(corpus) - int(corpus["unit_id"].astype(str).isin(already).sum())
     n = int(plan.units_needed or 100)

@@ -51,8 +51,8 @@ def sample(
         load_codebook_categories,
         read_corpus,
         read_unit_ids,
-        write_coding_sheets,
     )
+    from agree.output.sheets import write_coding_sheets
 
     frame = read_corpus(corpus, sheet=sheet)
     exclude_files = list(exclude or [])

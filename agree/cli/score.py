@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 import sys
 from enum import Enum
@@ -29,6 +27,7 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
+from agree.core.cells import csv_text
 from agree.core.errors import AgreeError
 from agree.core.registry import display_name, skipped_by_reason
 
@@ -87,15 +86,14 @@ def score(
 
 
 def score_csv(result: "ScoreResult") -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["coefficient", "estimate", "se", "ci_low", "ci_high", "confidence_level", "ci_method",
-                "p_below_min", "lower_bound", "n_units", "n_coders", "level", "weights"])
-    for name, r in result.coefficients.items():
-        w.writerow([name] + ["" if v is None or (isinstance(v, float) and not math.isfinite(v)) else v for v in
-                             (r.estimate, r.se, r.ci_low, r.ci_high, r.confidence_level, r.ci_method,
-                              r.p_below_min, r.lower_bound, r.n_units, r.n_coders, result.level, r.weights)])
-    return buf.getvalue()
+    """The coefficients as CSV, by agree's one CSV writer (`agree.core.cells`)."""
+    header = ["coefficient", "estimate", "se", "ci_low", "ci_high", "confidence_level", "ci_method",
+              "p_below_min", "lower_bound", "n_units", "n_coders", "level", "weights"]
+    rows = ([name] + [None if isinstance(v, float) and not math.isfinite(v) else v for v in
+                      (r.estimate, r.se, r.ci_low, r.ci_high, r.confidence_level, r.ci_method,
+                       r.p_below_min, r.lower_bound, r.n_units, r.n_coders, result.level, r.weights)]
+            for name, r in result.coefficients.items())
+    return csv_text(header, rows)
 
 
 def print_score(result: "ScoreResult") -> None:

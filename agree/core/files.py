@@ -32,7 +32,7 @@ import time
 from pathlib import Path
 from typing import Callable, Iterator, Sequence
 
-from agree.core.model import AgreeError
+from agree.core.errors import AgreeError
 
 _STARTED = time.time()      # when this process started writing: the default start of a run
 _TEMP = re.compile(r"\.(?P<name>.+)\.agree-(?P<pid>[0-9]+)-[A-Za-z0-9_]+\.tmp\Z")

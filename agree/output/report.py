@@ -41,7 +41,8 @@ import numpy as np
 import pandas as pd
 
 from agree.core.constants import VERSION
-from agree.core.files import atomic_write_bytes
+from agree.core.cells import unprotect_text
+from agree.core.files import atomic_write_bytes, make_folder, record_input
 from agree.core.format import format_bound, format_interval, format_value, lit, notebook_html, plain, spans  # noqa: F401
 from agree.core.format import result_label as format_result_label
 from agree.core.model import AgreeError, CodingData, as_coding_data, require_unit_rows
@@ -542,9 +543,10 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
         path = Path(consensus)
         if not path.exists():
             raise AgreeError(f"consensus file not found: {file}", code="file-not-found")
+        record_input(path)
         try:
             frame = pd.read_excel(path) if path.suffix.lower() in (".xlsx", ".xlsm") else \
-                pd.read_csv(path, dtype=str, keep_default_na=False)
+                pd.read_csv(path, dtype=str, keep_default_na=False).map(unprotect_text)
         except (ValueError, OSError) as exc:
             raise AgreeError(f"could not read the consensus file: {exc}", where=file, code="consensus") from exc
     elif isinstance(consensus, pd.DataFrame):
@@ -1549,8 +1551,7 @@ def write_report(report: Report, path: str | os.PathLike, *, figures: bool = Tru
         figs = report_figures(report) if figures else []
         fig_dir = f"{path.stem}-figures" if figs else None
         if figs:
-            folder = path.parent / fig_dir
-            folder.mkdir(exist_ok=True)
+            folder = make_folder(path.parent / fig_dir)
             for f in figs:
                 written.append(atomic_write_bytes(folder / f"{f.key}.png", f.png))
         render = render_markdown if fmt == "markdown" else render_latex

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 from typer.testing import CliRunner
 
-from tests.analysis.test_sampling import _read_sheet
+from tests.output.test_sheets import _read_sheet
 
 
 def _stub_report_and_plan(monkeypatch):

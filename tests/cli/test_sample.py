@@ -7,7 +7,8 @@ import json
 from typer.testing import CliRunner
 
 from agree.core.model import AgreeError
-from tests.analysis.test_sampling import CODES, _read_sheet, make_corpus
+from tests.analysis.test_sampling import CODES, make_corpus
+from tests.output.test_sheets import _read_sheet
 
 
 def test_cli_sample(tmp_path):
