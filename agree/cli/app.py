@@ -133,7 +133,7 @@ def _run(args: list[str]) -> Any:
     if len(words) > 1 and words[0] in group.commands and "--help" in words[1:]:
         return group.commands[words[0]].main(args=words[1:], prog_name=f"agree {words[0]}",
                                              standalone_mode=False)
-    return app(args=args, prog_name="agree", standalone_mode=False)
+    return group.main(args=args, prog_name="agree", standalone_mode=False)
 
 
 def main() -> None:
