@@ -190,9 +190,22 @@ def set_delta(name: str, values: Sequence[frozenset]) -> np.ndarray:
     """δ (V x V) between sets of codes: Jaccard or MASI distance."""
     if name not in SET_DISTANCES:
         raise AgreeError(f"distance for sets of codes must be 'jaccard' or 'masi'; got '{name}'", code="level")
-    f = SET_DISTANCES[name]
-    V = len(values)
-    return np.array([[f(a, b) for b in values] for a in values], dtype=float).reshape(V, V)
+    # vectorised over pairs of sets (same values as SET_DISTANCES): sets as rows of a membership matrix
+    members = sorted({c for v in values for c in v}, key=str)
+    where = {c: k for k, c in enumerate(members)}
+    M = np.zeros((len(values), len(members)))
+    for i, v in enumerate(values):  # a loop over the distinct sets
+        M[i, [where[c] for c in v]] = 1.0
+    size = M.sum(axis=1)
+    inter = M @ M.T
+    union = size[:, None] + size[None, :] - inter
+    jac = np.where(union > 0, inter / np.where(union > 0, union, 1.0), 1.0)
+    if name == "jaccard":
+        return 1.0 - jac
+    equal = (inter == size[:, None]) & (inter == size[None, :])
+    nested = (inter == np.minimum(size[:, None], size[None, :]))
+    mono = np.where(equal, 1.0, np.where(nested, 2 / 3, np.where(inter > 0, 1 / 3, 0.0)))
+    return 1.0 - jac * mono
 
 
 def _is_number(v: Any) -> bool:
@@ -300,7 +313,11 @@ class _Alpha(_Statistic):
         if self.delta is None:
             o = (R[:, :, None] * R[:, None, :] - R[:, :, None] * np.eye(self.V)[None]) * scale[:, None, None]
             return o.reshape(len(R), -1)
-        do = np.einsum("pc,ck,pk->p", R, self.delta, R) * scale
+        # Σ_ck r_pc δ_ck r_pk as a sum over the pattern's pairs of values: O(P m²), not O(P V²)
+        seen = pat.codes >= 0
+        c = np.where(seen, pat.codes, 0)
+        both = seen[:, :, None] & seen[:, None, :]
+        do = np.where(both, self.delta[c[:, :, None], c[:, None, :]], 0.0).sum(axis=(1, 2)) * scale
         return np.column_stack([R * pair[:, None], do])
 
     def finish(self, S):

@@ -150,5 +150,8 @@ def cluster_sums(features: np.ndarray, inverse: np.ndarray, clusters: np.ndarray
     counts = np.bincount(where, weights=None if weights is None else np.asarray(weights, float),
                          minlength=len(pairs))
     out = np.zeros((G, features.shape[1]))
-    np.add.at(out, pairs // P, features[pairs % P] * counts[:, None])
+    if len(pairs):
+        cl = pairs // P                                  # sorted, as `pairs` is
+        first = np.flatnonzero(np.r_[True, cl[1:] != cl[:-1]])
+        out[cl[first]] = np.add.reduceat(features[pairs % P] * counts[:, None], first, axis=0)
     return out, G
