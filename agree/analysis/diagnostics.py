@@ -55,7 +55,7 @@ from scipy import stats
 from scipy.sparse.csgraph import connected_components
 
 from agree.core.format import format_value
-from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, require_unit_rows
+from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, expand_weights
 from agree.core.results import BootstrapInfo, Note, json_safe
 from agree.stats.coefficients import alpha_from_coincidence, krippendorff_alpha, level_delta, set_delta
 from agree.stats.patterns import compress
@@ -345,7 +345,7 @@ def _nanmean(x) -> float:
 
 def _check(data: Any, allow_empty: bool = False) -> CodingData:
     data = as_coding_data(data)
-    require_unit_rows(data, "diagnostics")
+    data = expand_weights(data, "diagnostics")  # positions as units: one row per position (small data only)
     if data.n_coders < 2:
         raise AgreeError("diagnostics need at least two coders", code="too-few-coders",
                          hint="give one column per coder")

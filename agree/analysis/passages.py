@@ -36,6 +36,7 @@ from agree.core.model import AgreeError, CodingData, ReadReport, value_sort_key
 from agree.core.results import AgreementResult, Note, display_name, json_safe
 from agree.core.spans import SpanData
 from agree.stats import coefficients as coef
+from agree.stats.intervals import expand_ranges, overlap_pairs
 from agree.stats.unitizing import EXPERIMENTAL, unitizing_alpha
 
 SEGMENT_KINDS = ("paragraph", "sentence", "turn", "segment")
@@ -138,19 +139,6 @@ def _merge(key: np.ndarray, start: np.ndarray, end: np.ndarray, total: int):
     np.maximum.at(me, group, e)
     k = ms // span
     return k, ms - k * span, me - k * span
-
-
-def _overlap_pairs(seg_start: np.ndarray, seg_end: np.ndarray, iv_start: np.ndarray, iv_end: np.ndarray):
-    """Pairs (segment, interval, overlap length > 0) for disjoint segments sorted by start."""
-    lo = np.searchsorted(seg_end, iv_start, side="right")
-    hi = np.searchsorted(seg_start, iv_end, side="left")
-    n = np.maximum(hi - lo, 0)
-    iv = np.repeat(np.arange(len(iv_start)), n)
-    first = np.repeat(np.cumsum(n) - n, n)
-    seg = lo[iv] + (np.arange(int(n.sum())) - first)
-    overlap = np.minimum(seg_end[seg], iv_end[iv]) - np.maximum(seg_start[seg], iv_start[iv])
-    ok = overlap > 0
-    return seg[ok], iv[ok], overlap[ok]
 
 
 # =========================================================================================
@@ -391,12 +379,12 @@ def segment_units(spans: SpanData, *, by: str = "paragraph", segments: Any = Non
     key = sp.coder.astype(np.int64) * C + sp.code
     mk, ms, me = _merge(key, s_start, s_end, int(off[-1]))
     covered = np.zeros((N, m * C))
-    si, ii, ov = _overlap_pairs(g_start, g_end, ms, me)
+    si, ii, ov = overlap_pairs(g_start, g_end, ms, me)
     np.add.at(covered, (si, mk[ii]), ov)
     share_segment = covered / (g_end - g_start)[:, None]
     applies = (covered > 0) & (share_segment >= min_cover - 1e-12)
     if cover == "either":
-        si, ii, ov = _overlap_pairs(g_start, g_end, s_start, s_end)
+        si, ii, ov = overlap_pairs(g_start, g_end, s_start, s_end)
         inside = np.zeros((N, m * C))
         np.maximum.at(inside, (si, key[ii]), ov / (s_end - s_start)[ii])
         applies |= (inside > 0) & (inside >= min_cover - 1e-12)
@@ -629,10 +617,7 @@ def _found(code_a, start_a, end_a, code_b, start_b, end_b, threshold: float, tot
     reach = np.ceil(la / threshold).astype(np.int64)
     lo = np.searchsorted(kb, base + np.maximum(start_a - reach, 0), side="left")
     hi = np.searchsorted(kb, base + end_a, side="left")
-    n = np.maximum(hi - lo, 0)
-    ia = np.repeat(np.arange(len(code_a)), n)
-    first = np.repeat(np.cumsum(n) - n, n)
-    ib = lo[ia] + (np.arange(int(n.sum())) - first)
+    ia, ib = expand_ranges(lo, hi)
     inter = np.minimum(end_a[ia], eb[ib]) - np.maximum(start_a[ia], sb[ib])
     union = np.maximum(end_a[ia], eb[ib]) - np.minimum(start_a[ia], sb[ib])
     ok = (inter > 0) & (inter >= threshold * union - 1e-9)
@@ -838,3 +823,156 @@ def unitizing_agreement(spans: SpanData, *, coders: Sequence[int | str] | None =
                             per_code=per_code, documents=sp.documents, left_out=_left_out(sp),
                             units=f"{int(sp.lengths.sum()):,} {sp.unit}s in {sp.n_documents} documents",
                             notes=tuple(notes))
+
+
+# =========================================================================================
+# Reconciliation on spans (library side; the review workbook and the CLI use these tables)
+# =========================================================================================
+
+PASSAGE_MARK = ("\u27e6", "\u27e7")  # ⟦code⟧ ... ⟦/code⟧ around a coder's span in the marked text
+
+
+def _marked(text: str, begin: int, stop: int, marks: Sequence[tuple[int, int, str]]) -> str:
+    """text[begin:stop] with each (start, end, label) wrapped as ⟦label⟧...⟦/label⟧ (marks may nest or cross)."""
+    events = []
+    for s, e, label in marks:  # a loop over one coder's few spans in one passage
+        s, e = max(s, begin), min(e, stop)
+        if e > s:
+            events.append((s, 1, f"{PASSAGE_MARK[0]}{label}{PASSAGE_MARK[1]}"))
+            events.append((e, 0, f"{PASSAGE_MARK[0]}/{label}{PASSAGE_MARK[1]}"))
+    events.sort(key=lambda x: (x[0], x[1]))
+    out, at = [], begin
+    for pos, _, piece in events:
+        out.append(text[at:pos])
+        out.append(piece)
+        at = pos
+    out.append(text[at:stop])
+    return "".join(out)
+
+
+def disputed_passages(spans: SpanData, *, by: str = "paragraph", segments: Any = None,
+                      min_cover: float = DEFAULT_MIN_COVER, cover: str = "either", context: int = 80,
+                      include_agreed: bool = False, coders: Sequence[int | str] | None = None,
+                      documents: str = "all") -> pd.DataFrame:
+    """The passages the coders disagree on, as a table a review workbook can show.
+
+    Passages are the segments of view 1 (`segment_units`: paragraphs, sentences, turns or listed
+    segments, with the same cover rule); a passage is disputed when the coders' sets of codes
+    differ (coders who did not code the document are not counted).
+
+    Columns: passage (unit id), document, start, end, text (the passage with up to `context`
+    characters before and after, the passage itself between "»" and "«"), then per coder
+    "codes: <coder>" (the codes, "; "-joined, "(none)" for none, "" where not coded) and
+    "marked: <coder>" (the same text with that coder's spans marked ⟦code⟧...⟦/code⟧), and
+    "codes involved" (codes some but not all of the coders gave). One row per passage, in
+    document order; with `include_agreed`, agreed passages too (column "status").
+    """
+    d = segment_units(spans, by=by, segments=segments, min_cover=min_cover, cover=cover, coders=coders,
+                      documents=documents)
+    sp = restrict_documents(spans, coders=coders, documents=documents)
+    lab = d.labels()
+    observed = d.codes >= 0
+    first = np.where(observed.any(axis=1), d.codes.max(axis=1), -1)
+    same = np.all((d.codes == first[:, None]) | ~observed, axis=1)
+    disputed = ~same & (observed.sum(axis=1) >= 2)
+    keep = np.flatnonzero(disputed | include_agreed)
+    doc_index = {name: i for i, name in enumerate(sp.documents)}
+    rows = []
+    for u in keep:  # a loop over the passages shown to people (a review list)
+        doc = doc_index[d.columns["document"][u]]
+        text = sp.texts[doc] or ""
+        s, e = int(d.columns["start"][u]), int(d.columns["end"][u])
+        lo, hi = max(0, s - context), min(len(text), e + context)
+        row = {"passage": d.unit_ids[u], "document": sp.documents[doc], "start": s, "end": e,
+               "text": text[lo:s] + "»" + text[s:e] + "«" + text[e:hi]}
+        if include_agreed:
+            row["status"] = "disputed" if disputed[u] else "agreed"
+        sets = []
+        for i, coder in enumerate(sp.coders):  # a loop over coders
+            value = lab.iloc[u, i]
+            row[f"codes: {coder}"] = "" if value is None else ("; ".join(sorted(value)) or "(none)")
+            on = np.flatnonzero((sp.doc == doc) & (sp.coder == i) & (sp.start < hi) & (sp.end > lo))
+            row[f"marked: {coder}"] = _marked(text, lo, hi, [(int(sp.start[k]), int(sp.end[k]), sp.codes[sp.code[k]])
+                                                             for k in on])
+            if value is not None:
+                sets.append(value)
+        union = frozenset().union(*sets) if sets else frozenset()
+        common = frozenset.intersection(*sets) if sets else frozenset()
+        row["codes involved"] = "; ".join(sorted(union - common))
+        rows.append(row)
+    columns = ["passage", "document", "start", "end", "text"] + (["status"] if include_agreed else [])
+    columns += [f"{kind}: {c}" for c in sp.coders for kind in ("codes", "marked")] + ["codes involved"]
+    return pd.DataFrame(rows, columns=columns)
+
+
+def consensus_spans(units: CodingData, decisions: Mapping[str, Any] | pd.DataFrame, *,
+                    coder: str = "consensus", allow_undecided: bool = False) -> pd.DataFrame:
+    """Consensus spans from decisions on passages: per passage, the chosen codes become spans over
+    the passage.
+
+    Parameters
+    ----------
+    units : the view-1 CodingData the passages came from (`segment_units`), with its "document",
+        "start" and "end" columns.
+    decisions : {passage id: codes} (a set, list, or text "a; b"; empty or "(none)" for no code),
+        or a table with columns "passage" and "decision". Passages the coders agreed on keep their
+        agreed codes without a decision.
+    coder : the name of the consensus coder in the output.
+    allow_undecided : leave disputed passages without a decision out (listed in the "source"
+        column as nothing) instead of refusing.
+
+    Returns
+    -------
+    DataFrame with columns document, coder, code, start, end, passage, source ("agreed" or
+    "decided"), one row per passage and code, in document order: the table a span writer turns
+    into a span table or an added user of an exchange-format project.
+    """
+    if not units.set_valued or not {"document", "start", "end"} <= set(units.columns):
+        raise AgreeError("consensus spans need the passages of segments as units (segment_units)",
+                         code="consensus")
+    if isinstance(decisions, pd.DataFrame):
+        cols = {c.lower(): c for c in map(str, decisions.columns)}
+        if "passage" not in cols or "decision" not in cols:
+            raise AgreeError("the decision table needs the columns passage and decision", code="consensus")
+        decisions = dict(zip(decisions[cols["passage"]].astype(str), decisions[cols["decision"]]))
+    ids = [str(u) for u in units.unit_ids]
+    unknown = sorted(set(map(str, decisions)) - set(ids))
+    if unknown:
+        raise AgreeError(f"decisions for unknown passages: {', '.join(unknown[:5])}", code="consensus")
+    known = set(units.categories)
+
+    def parse(value: Any, passage: str) -> frozenset:
+        if value is None or (isinstance(value, float) and np.isnan(value)):
+            items: list = []
+        elif isinstance(value, str):
+            items = [] if value.strip() in ("", "(none)") else [x.strip() for x in value.split(";") if x.strip()]
+        else:
+            items = list(value)
+        bad = [x for x in items if x not in known]
+        if bad:
+            raise AgreeError(f"passage '{passage}': unknown code(s) {', '.join(map(str, bad))}",
+                             hint=f"codes: {', '.join(map(str, units.categories[:10]))}", code="unknown-code")
+        return frozenset(items)
+
+    rows, undecided = [], []
+    observed = units.codes >= 0
+    for u, passage in enumerate(ids):  # a loop over passages, to turn decisions into spans
+        given = {units.values[c] for c in units.codes[u][observed[u]]}
+        if passage in decisions:
+            chosen, source = parse(decisions[passage], passage), "decided"
+        elif len(given) == 1 and observed[u].sum() >= 2:
+            chosen, source = next(iter(given)), "agreed"
+        else:
+            undecided.append(passage)
+            continue
+        for code in sorted(chosen, key=str):
+            rows.append({"document": units.columns["document"][u], "coder": coder, "code": code,
+                         "start": int(units.columns["start"][u]), "end": int(units.columns["end"][u]),
+                         "passage": passage, "source": source})
+    position = {p: u for u, p in enumerate(ids)}
+    disputed_left = [p for p in undecided if observed[position[p]].sum() >= 2]
+    if disputed_left and not allow_undecided:
+        raise AgreeError(f"{len(disputed_left)} disputed passages have no decision: "
+                         f"{', '.join(disputed_left[:5])}{' ...' if len(disputed_left) > 5 else ''}",
+                         hint="decide them, or pass allow_undecided=True to leave them out", code="unresolved")
+    return pd.DataFrame(rows, columns=["document", "coder", "code", "start", "end", "passage", "source"])

@@ -263,6 +263,29 @@ def _unit_weights(weights: Any, n: int) -> np.ndarray:
     return w
 
 
+def expand_weights(data: CodingData, what: str, *, max_units: int = 200_000) -> CodingData:
+    """One row per unit: weighted rows repeated (ids "id#1", "id#2", ... for rows standing for
+    several units), for functions that need unit rows; refused above `max_units` units."""
+    if data.weights is None:
+        return data
+    total = data.units_represented
+    if total > max_units:
+        raise AgreeError(f"{what} needs one row per unit, and these data stand for {total:,} units (more than "
+                         f"{max_units:,}; e.g. every position of the compared text)",
+                         hint="compare fewer documents, or use segments (paragraphs, sentences, turns) as units",
+                         code="weighted")
+    w = data.weights
+    rep = np.repeat(np.arange(data.n_units), w)
+    rank = np.arange(total) - np.repeat(np.cumsum(w) - w, w) + 1
+    ids = np.asarray(data.unit_ids).astype(str)[rep]
+    ids = np.where(w[rep] > 1, np.char.add(np.char.add(ids, "#"), rank.astype(str)), ids).astype(object)
+    prov = None
+    if data.provenance is not None:
+        prov = replace(data.provenance, source=data.provenance.source[rep], row=data.provenance.row[rep])
+    return replace(data, codes=data.codes[rep], unit_ids=ids, text=None if data.text is None else data.text[rep],
+                   columns={k: np.asarray(v)[rep] for k, v in data.columns.items()}, provenance=prov, weights=None)
+
+
 def require_unit_rows(data: CodingData, what: str) -> None:
     """Refuse weighted data (rows standing for several units) where `what` needs one row per unit."""
     if data.weights is not None:

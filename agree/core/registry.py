@@ -48,6 +48,12 @@ FLEISS_NEE_LANDIS_1979 = "Fleiss, J. L., Nee, J. C. M., & Landis, J. R. (1979). 
 GWET_2008 = ("Gwet, K. L. (2008). Computing inter-rater reliability and its variance in the presence of high "
              "agreement. BJMSP, 61, 29-48.")
 GWET_2014 = "Gwet, K. L. (2014). Handbook of Inter-Rater Reliability (4th ed.)."
+KRIPPENDORFF_1995 = ("Krippendorff, K. (1995). On the reliability of unitizing continuous data. Sociological "
+                     "Methodology, 25, 47-76.")
+KRIPPENDORFF_2004 = ("Krippendorff, K. (2004). Content Analysis: An Introduction to Its Methodology (2nd ed.), "
+                     "ch. 12.")
+KMBW_2016 = ("Krippendorff, K., Mathet, Y., Bouvry, S., & Widlöcher, A. (2016). On the reliability of unitizing "
+             "textual continua: Further developments. Quality & Quantity, 50, 2347-2364.")
 KRIPPENDORFF_2011 = ("Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg School "
                      "for Communication.")
 PASSONNEAU_2006 = "Passonneau, R. (2006). Measuring agreement on set-valued items (MASI). LREC 2006."
@@ -66,7 +72,9 @@ class Coefficient:
         "Cohen's κ". Only the symbols may differ from `display`.
     family : interpretation family, a key of `FAMILIES`.
     references : the sources, as listed under References in the function's docstring.
-    function : the public function of `agree.stats.coefficients` that computes it.
+    function : the public function that computes it, in `module`.
+    module : where `function` lives: `agree.stats.coefficients`, or for coded spans
+        `agree.stats.unitizing` (data: SpanData).
     options : keyword arguments that make `function` compute this result, e.g. weights="quadratic".
     standard : whether `score` computes it.
     levels : the levels of measurement at which `score` computes it.
@@ -86,6 +94,7 @@ class Coefficient:
     references: tuple[str, ...]
     function: str
     options: tuple[tuple[str, Any], ...] = ()
+    module: str = "agree.stats.coefficients"
     standard: bool = True
     levels: tuple[str, ...] = ALL_LEVELS
     refuses: frozenset[str] = frozenset({"set-valued", "q"})
@@ -158,6 +167,12 @@ COEFFICIENTS: tuple[Coefficient, ...] = (
     Coefficient("pabak", "PABAK", "PABAK", "high-running", (BYRT_1993,), "pabak", standard=False, levels=(),
                 refuses=frozenset({"set-valued", "binary"}),
                 designs="a binary code (two categories), two or more coders"),
+    Coefficient("unitizing_alpha_experimental", "Krippendorff's alpha for unitizing (experimental)",
+                "Krippendorff's α for unitizing (experimental)", "alpha", (KRIPPENDORFF_1995, KRIPPENDORFF_2004,
+                                                                          KMBW_2016),
+                "unitizing_alpha", module="agree.stats.unitizing", standard=False, levels=(), refuses=frozenset(),
+                designs="coded spans (SpanData), every coder on every document; EXPERIMENTAL: partly from "
+                        "memory, not checked against a published worked example"),
 )
 
 BY_NAME: dict[str, Coefficient] = {c.name: c for c in COEFFICIENTS}

@@ -49,8 +49,10 @@ from typing import Any, Sequence
 import numpy as np
 
 from agree.core.model import AgreeError
+from agree.core.registry import references_for
 from agree.core.results import AgreementResult, BootstrapInfo, Note
 from agree.core.spans import SpanData
+from agree.stats.intervals import overlap_pairs
 from agree.stats.resampling import bootstrap_interval, check_settings, make_rng
 
 NAME = "unitizing_alpha_experimental"
@@ -130,18 +132,13 @@ def _code_sums(doc, coder, start, end, lengths: np.ndarray, m: int) -> _Sums:
             span = np.int64(lengths.max() + 1)
             ga_s, ga_e = ud[a] * span + us[a], ud[a] * span + ue[a]
             gb_s, gb_e = ud[b] * span + us[b], ud[b] * span + ue[b]
-            lo = np.searchsorted(gb_e, ga_s, side="right")
-            hi = np.searchsorted(gb_s, ga_e, side="left")
-            n = np.maximum(hi - lo, 0)
-            ia = np.repeat(np.arange(len(ga_s)), n)
-            first = np.repeat(np.cumsum(n) - n, n)
-            ib = lo[ia] + (np.arange(int(n.sum())) - first)
+            ib, ia, _ = overlap_pairs(gb_s, gb_e, ga_s, ga_e)
             # units of i and j that overlap: (b_g - b_h)² + (e_g - e_h)², once for the ordered pair (i, j)
             d2 = (ga_s[ia] - gb_s[ib]) ** 2 + (ga_e[ia] - gb_e[ib]) ** 2
             O += np.bincount(ud[a][ia], weights=d2.astype(float), minlength=D)
-            # a unit of i overlapping no unit of j lies inside a gap of j: l² from (i, j) here, and
-            # l² again from (j, i) as "gap containing a unit" -- counted for that pair below
-            lone = n == 0
+            # a unit of i overlapping no unit of j lies inside a gap of j: its l² counts for (i, j) as
+            # "unit inside a gap" and for (j, i) as "gap containing a unit", hence 2 l²
+            lone = np.bincount(ia, minlength=len(ga_s)) == 0
             O += 2 * np.bincount(ud[a][lone], weights=(ul[a][lone] ** 2).astype(float), minlength=D)
     gd, gl = _gaps(ud, uc, us, ue, lengths, m)
     T = np.zeros((D, D))
@@ -202,6 +199,17 @@ def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, conf
     "unitizing_alpha_experimental", carries the Note "experimental" and the method in
     details["method"]; intervals resample whole documents. See the module notes for what is
     reconstructed, what is recalled from memory and what is not implemented.
+
+    Parameters
+    ----------
+    spans : SpanData, every coder on every document.
+    codes : the codes to score (all by default).
+    confidence_level, n_resamples, ci_method, seed, minimum : as for every coefficient; the
+        bootstrap resamples whole documents.
+
+    Returns
+    -------
+    {code: AgreementResult}, and "(all codes)" when there are several codes.
     """
     check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum,
                    ci_method=ci_method, seed=seed)
@@ -262,3 +270,7 @@ def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, conf
             details={"method": METHOD, "experimental": True, "continuum_length": int(spans.lengths.sum()),
                      "documents": D, "units": n_units}, warnings=tuple(notes), replicates=reps)
     return out
+
+
+unitizing_alpha.__doc__ += "\n    References\n    ----------\n" + "".join(
+    f"    {r}\n" for r in references_for("unitizing_alpha"))

@@ -9,6 +9,8 @@ splitting a document where no span crosses changes no point estimate of view 2).
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import krippendorff
 import numpy as np
 import pandas as pd
@@ -55,6 +57,12 @@ def expanded_positions(sp: SpanData, k: int) -> np.ndarray:
         x[~sp.coded[d]] = np.nan
         cols.append(x)
     return np.concatenate(cols, axis=1)
+
+
+def table_rows(frame: pd.DataFrame, sp: SpanData):
+    """Each row of a per code and coder pair table with the coder and code indices."""
+    for _, row in frame.iterrows():
+        yield row, sp.coders.index(row.coder_a), sp.coders.index(row.coder_b), sp.codes.index(row.code)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -221,9 +229,7 @@ def test_span_matching_hand_example():
 def test_span_matching_equals_brute_force(seed):
     rng = np.random.default_rng(seed)
     sp = random_spans(rng, m=3, per=5)
-    got = P.span_matching(sp)
-    for _, row in got.iterrows():
-        a, b, k = sp.coders.index(row.coder_a), sp.coders.index(row.coder_b), sp.codes.index(row.code)
+    for row, a, b, k in table_rows(P.span_matching(sp), sp):
         def found(x, y):
             n = 0
             for s in np.flatnonzero((sp.coder == x) & (sp.code == k)):
@@ -243,9 +249,7 @@ def test_per_code_alpha_equals_krippendorff_package_on_expanded_positions(seed):
     m = int(rng.integers(2, 4))
     sp = random_spans(rng, m=m, C=2)
     if m == 3:   # one coder did not code one document: missing there, the document kept ("pairable")
-        sp = SpanData(**{**{f: getattr(sp, f) for f in ("documents", "texts", "lengths", "coders", "codes",
-                                                        "parents", "doc", "coder", "code", "start", "end")},
-                         "coded": np.array([[True, True, True], [True, False, True], [True, True, True]])})
+        sp = replace(sp, coded=np.array([[True, True, True], [True, False, True], [True, True, True]]))
     res = P.position_agreement(sp, n_resamples=0, documents="pairable")
     for k, code in enumerate(sp.codes):
         x = expanded_positions(sp, k)
@@ -257,10 +261,9 @@ def test_per_code_alpha_equals_krippendorff_package_on_expanded_positions(seed):
 def test_dice_equals_brute_force(seed):
     rng = np.random.default_rng(seed)
     sp = random_spans(rng, m=3, C=3)
-    got = P.positional_specific_agreement(sp)
-    for _, row in got.iterrows():
-        x = expanded_positions(sp, sp.codes.index(row.code))
-        a, b = x[sp.coders.index(row.coder_a)], x[sp.coders.index(row.coder_b)]
+    for row, i, j, k in table_rows(P.positional_specific_agreement(sp), sp):
+        x = expanded_positions(sp, k)
+        a, b = x[i], x[j]
         inter, total = np.sum((a == 1) & (b == 1)), np.sum(a == 1) + np.sum(b == 1)
         assert row.dice == pytest.approx(2 * inter / total) if total else np.isnan(row.dice)
 
@@ -374,3 +377,46 @@ def test_unitizing_view_is_labelled_experimental():
     assert "EXPERIMENTAL" in res.view and res.kind == "unitizing"
     assert {"view", "experimental"} <= {n.code for n in res.overall.warnings}
     assert "experimental" in {n.code for n in res.notes}
+
+
+# ---------------------------------------------------------------------------------------------
+# reconciliation on spans
+
+
+def test_disputed_passages_list_each_coders_codes_and_marked_text():
+    table = P.disputed_passages(seg_spans(), by="sentence", context=5)
+    assert table["passage"].tolist() == ["doc1:sentence 1", "doc1:sentence 2", "doc1:sentence 3"]
+    first = table.iloc[0]
+    assert (first["codes: A"], first["codes: B"], first["codes involved"]) == ("x", "x; y", "y")
+    assert first["text"] == "»One two three four.« Five"
+    assert first["marked: A"] == "⟦x⟧One two three four.⟦/x⟧ Five"
+    assert first["marked: B"] == "⟦x⟧One two three f⟦y⟧our.⟦/x⟧ ⟦/y⟧Five"   # B's y is [15, 20)
+    assert table.iloc[1]["codes: A"] == "(none)"
+    full = P.disputed_passages(seg_spans(), by="sentence", include_agreed=True)
+    assert full["status"].tolist() == ["disputed", "disputed", "disputed", "agreed"]
+
+
+def test_consensus_spans_from_decisions():
+    units = P.segment_units(seg_spans(), by="sentence")
+    decisions = pd.DataFrame({"passage": ["doc1:sentence 1", "doc1:sentence 2", "doc1:sentence 3"],
+                              "decision": ["x", "x; y", "(none)"]})
+    out = P.consensus_spans(units, decisions)
+    assert out[["code", "start", "end", "source"]].values.tolist() == [
+        ["x", 0, 19, "decided"], ["x", 20, 41, "decided"], ["y", 20, 41, "decided"]]
+    assert set(out["coder"]) == {"consensus"}
+    with pytest.raises(AgreeError) as err:
+        P.consensus_spans(units, {"doc1:sentence 1": {"x"}})
+    assert err.value.code == "unresolved" and "2 disputed passages" in str(err.value)
+    partial = P.consensus_spans(units, {"doc1:sentence 1": {"x"}}, allow_undecided=True)
+    assert partial["passage"].tolist() == ["doc1:sentence 1"]
+    with pytest.raises(AgreeError, match="unknown code"):
+        P.consensus_spans(units, {"doc1:sentence 1": "zzz"}, allow_undecided=True)
+
+
+def test_position_units_feed_the_diagnostics_when_small():
+    from agree.analysis.diagnostics import diagnose_codes
+
+    sp = make(["abcdefghij", "klmnopqrst"], [(0, 0, 0, 2, 6), (0, 1, 0, 3, 7), (1, 1, 1, 0, 4), (1, 0, 1, 0, 3)])
+    d = P.position_units(sp)
+    diag = diagnose_codes(d, n_resamples=0)
+    assert set(diag.to_frame()["code"]) >= {"x", "y"}

@@ -11,6 +11,8 @@ nothing, relabelling coders changes nothing, the result is flagged experimental 
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import krippendorff
 import numpy as np
 import pytest
@@ -117,9 +119,16 @@ def test_result_is_flagged_experimental_and_resamples_documents():
 
 def test_every_coder_must_have_coded_every_document():
     sp = spans_of([(0, 0, 0, 1, 3), (0, 1, 0, 1, 3)], [10, 10])
-    sp = SpanData(**{**{f: getattr(sp, f) for f in ("documents", "texts", "lengths", "coders", "codes", "parents",
-                                                    "doc", "coder", "code", "start", "end")},
-                     "coded": np.array([[True, True], [True, False]])})
+    sp = replace(sp, coded=np.array([[True, True], [True, False]]))
     with pytest.raises(AgreeError) as err:
         unitizing_alpha(sp)
     assert err.value.code == "documents"
+
+
+def test_docstring_lists_the_registry_sources():
+    from agree.core.registry import BY_NAME
+
+    doc = unitizing_alpha.__doc__
+    assert "Parameters\n" in doc and "Returns\n" in doc and "References\n" in doc
+    row = BY_NAME[NAME]
+    assert row.function == "unitizing_alpha" and all(source in doc for source in row.references)

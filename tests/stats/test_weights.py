@@ -12,6 +12,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import agree
@@ -129,14 +130,28 @@ def test_subset_keeps_the_weights_and_validation_refuses_bad_weights():
             replace(d, weights=bad)
 
 
-def test_functions_that_need_one_row_per_unit_refuse_weighted_data(tmp_path):
+def test_diagnostics_expand_small_weighted_data_and_refuse_huge():
     from agree.analysis.diagnostics import diagnose_codes, diagnose_coders
+
+    d = replace(agree.from_table([["a", "b"], ["a", "a"], ["b", "b"]] * 5), weights=np.arange(1, 16))
+    expanded = replace(d, codes=np.repeat(d.codes, d.weights, axis=0), unit_ids=np.repeat(d.unit_ids, d.weights),
+                       weights=None)
+    a = diagnose_codes(d, n_resamples=0).to_frame()
+    b = diagnose_codes(expanded, n_resamples=0).to_frame()
+    pd.testing.assert_frame_equal(a, b)
+    assert diagnose_coders(d, n_resamples=0).to_frame().equals(diagnose_coders(expanded, n_resamples=0).to_frame())
+    huge = replace(d, weights=np.full(15, 100_000))
+    with pytest.raises(AgreeError) as err:
+        diagnose_codes(huge)
+    assert err.value.code == "weighted" and "1,500,000 units" in str(err.value)
+
+
+def test_functions_that_need_one_row_per_unit_refuse_weighted_data(tmp_path):
     from agree.output.reconciliation import review_table, write_review
     from agree.output.report import build_report
 
     d = replace(agree.from_table([["a", "b"], ["a", "a"], ["b", "b"]] * 5), weights=np.arange(1, 16))
-    for call in (lambda: diagnose_codes(d), lambda: diagnose_coders(d), lambda: review_table(d),
-                 lambda: write_review(d, tmp_path / "r.xlsx"), lambda: build_report(d)):
+    for call in (lambda: review_table(d), lambda: write_review(d, tmp_path / "r.xlsx"), lambda: build_report(d)):
         with pytest.raises(AgreeError) as err:
             call()
         assert err.value.code == "weighted" and "one row per unit" in str(err.value)
