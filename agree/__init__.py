@@ -42,6 +42,8 @@ _EXPORTS = {
                                 "position_units", "positional_specific_agreement", "restrict_documents",
                                 "segment_agreement", "segment_units", "span_matching", "unitizing_agreement"),
     "agree.output.report": ("Report", "build_report", "write_report"),
+    "agree.output.refi": ("write_project",),
+    "agree.output.spans": ("write_spans",),
     "agree.output.reconciliation": ("Consensus", "ReviewSummary", "reconcile", "review_table", "write_consensus",
                                     "write_review"),
     "agree.output.sheets": ("write_coding_sheets",),

@@ -1114,16 +1114,17 @@ def write_consensus(consensus: Consensus, path: str | os.PathLike, *, format: st
     if fmt == "csv":
         atomic_write(out, lambda tmp: _write_csv(tmp, frame))
     else:
-        atomic_write(out, lambda tmp: _write_consensus_xlsx(tmp, frame))
+        atomic_write(out, lambda tmp: write_table_xlsx(tmp, frame, title="Consensus"))
     return out
 
 
-def _write_consensus_xlsx(tmp: str, frame: pd.DataFrame) -> None:
+def write_table_xlsx(tmp: str, frame: pd.DataFrame, *, title: str, freeze: str = "B2") -> None:
+    """A one-sheet workbook of `frame`: text stays text (never a formula), columns sized to fit."""
     from openpyxl import Workbook
 
     wb = Workbook()
     ws = wb.active
-    ws.title = "Consensus"
+    ws.title = title
     _fill_sheet(ws, list(frame.columns), frame.itertuples(index=False))
-    ws.freeze_panes = "B2"
+    ws.freeze_panes = freeze
     wb.save(tmp)

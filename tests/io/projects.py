@@ -168,3 +168,11 @@ def standard_qdpx(path: Path, **kw) -> Path:
 
 def span_rows(codings=CODINGS) -> list[dict]:
     return [dict(document=d, coder=c, code=k, start=s, end=e) for d, c, k, s, e in expected_rows(codings)]
+
+
+def text_folder(folder: Path) -> Path:
+    """The interviews as plain-text files named by document (UTF-8 bytes, line ends as written)."""
+    folder.mkdir(exist_ok=True)
+    for name, text in TEXTS.items():
+        (folder / f"{name}.txt").write_bytes(text.encode("utf-8"))
+    return folder

@@ -55,10 +55,7 @@ def test_the_emoji_and_crlf_are_one_and_two_code_points(tmp_path):
 
 
 def test_span_table_and_package_give_the_same_spans(tmp_path):
-    docs = tmp_path / "texts"
-    docs.mkdir()
-    for name, text in P.TEXTS.items():
-        (docs / f"{name}.txt").write_bytes(text.encode("utf-8"))
+    docs = P.text_folder(tmp_path / "texts")
     pd.DataFrame(P.span_rows()).to_csv(tmp_path / "spans.csv", index=False)
     table = read_spans(tmp_path / "spans.csv", documents_dir=docs)
     package = read_project(P.standard_qdpx(tmp_path / "bakery.qdpx"))

@@ -20,11 +20,7 @@ def rows(data):
 
 @pytest.fixture
 def texts(tmp_path):
-    folder = tmp_path / "texts"
-    folder.mkdir()
-    for name, text in P.TEXTS.items():
-        (folder / f"{name}.txt").write_bytes(text.encode("utf-8"))
-    return folder
+    return P.text_folder(tmp_path / "texts")
 
 
 def _table(tmp_path, records, name="spans.csv"):
