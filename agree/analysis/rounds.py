@@ -27,7 +27,6 @@ O'Connor, C., & Joffe, H. (2020). Intercoder reliability in qualitative research
 from __future__ import annotations
 
 import math
-import os
 import re
 from dataclasses import dataclass, field
 from dataclasses import replace as _replace
@@ -37,6 +36,7 @@ import numpy as np
 
 from agree.core.model import AgreeError, CodingData, as_coding_data
 from agree.core.results import AgreementResult, Note, json_safe
+from agree.io.codebook import as_codebook
 from agree.stats.resampling import check_settings
 
 TENTATIVE = 0.667
@@ -433,16 +433,8 @@ def _shown(independent: AgreementResult, row: Mapping[str, Any], diag: Any) -> A
 
 
 def _load_codebook(spec: Any) -> dict[str, str]:
-    from agree.io.codebook import Codebook, read_codebook
-
-    if isinstance(spec, (str, os.PathLike)):
-        spec = read_codebook(spec)
-    if isinstance(spec, Codebook):
-        return {str(c): _normal_text(spec.descriptions.get(c, "")) for c in spec.categories}
-    if isinstance(spec, Mapping):
-        return {str(k): _normal_text(v) for k, v in spec.items()}
-    raise AgreeError("a codebook per round must be a file, a Codebook or a {code: definition} mapping",
-                     code="codebook")
+    """{code: definition} of a round's codebook (a file, a Codebook or a mapping), spaces normalised."""
+    return {code: _normal_text(text) for code, text in as_codebook(spec).definitions().items()}
 
 
 def _normal_text(text: Any) -> str:

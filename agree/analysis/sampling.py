@@ -15,61 +15,26 @@ The coding workbooks and the manifest are written by `agree.output.sheets.write_
 from __future__ import annotations
 
 import hashlib
-import io
 import os
-from pathlib import Path
 from typing import Any, Iterable, Sequence
 
 import numpy as np
 import pandas as pd
 
-from agree.core.cells import unprotect_text
-from agree.core.files import record_input
 from agree.core.model import AgreeError, cell_location, normalise_value
-from agree.io.readers import TEXT_NAMES, UNIT_NAMES
+from agree.io.codebook import read_codebook
+from agree.io.columns import LIST_ID_NAMES, LIST_TEXT_NAMES, find_column
+from agree.io.lists import id_key as _id_key
+from agree.io.lists import read_corpus, read_unit_ids  # noqa: F401 (the sample command's readers, re-exported)
 
-# The readers' names for the unit-id and text columns, so a corpus and its coding sheets agree;
-# "response" is a text column in a list of units but too ambiguous in coding data.
-ID_COLUMN_NAMES = ("unit_id",) + tuple(n for n in UNIT_NAMES if n != "unit_id")
-TEXT_COLUMN_NAMES = TEXT_NAMES + ("response",)
+# The readers' names for the unit-id and text columns, so a corpus and its coding sheets agree.
+ID_COLUMN_NAMES = LIST_ID_NAMES
+TEXT_COLUMN_NAMES = LIST_TEXT_NAMES
 
 
 # ---------------------------------------------------------------------------------------
-# Reading the corpus
+# Columns of the list of units
 # ---------------------------------------------------------------------------------------
-
-def read_corpus(path: str | os.PathLike, *, sheet: str | int | None = None) -> pd.DataFrame:
-    """Read the full list of units from CSV or XLSX (all columns as text, nothing dropped).
-
-    The file's path and SHA-256 are kept in ``frame.attrs`` ("source", "checksum") so the
-    manifest can name them.
-    """
-    path = Path(path)
-    if not path.is_file():
-        raise AgreeError(f"no such file: {path}", code="no-file")
-    record_input(path)
-    data = path.read_bytes()
-    suffix = path.suffix.lower()
-    try:
-        if suffix in (".xlsx", ".xlsm"):
-            frame = pd.read_excel(io.BytesIO(data), sheet_name=0 if sheet is None else sheet,
-                                  dtype=object, engine="openpyxl")
-        elif suffix in (".csv", ".txt", ".tsv"):
-            frame = pd.read_csv(io.BytesIO(data), dtype=str, keep_default_na=False,
-                                sep="\t" if suffix == ".tsv" else None, engine="python",
-                                encoding="utf-8-sig")
-        else:
-            raise AgreeError(f"cannot read '{path.name}': the list of units must be CSV or XLSX",
-                             code="corpus-format")
-    except AgreeError:
-        raise
-    except Exception as exc:  # pandas/openpyxl parse errors become one line
-        raise AgreeError(f"could not read {path.name}: {exc}", code="corpus-unreadable") from exc
-    frame.attrs["source"] = str(path)
-    frame.attrs["sheet"] = None if sheet is None else str(sheet)
-    frame.attrs["checksum"] = hashlib.sha256(data).hexdigest()
-    return frame
-
 
 def detect_id_column(corpus: pd.DataFrame, id_col: str | None = None) -> str:
     """The unit-id column: `id_col` if given, else the first column whose name is a usual id
@@ -96,8 +61,7 @@ def _find_column(corpus: pd.DataFrame, given: str | None, names: Sequence[str], 
             raise AgreeError(f"no column '{given}' in the list of units",
                              hint=f"columns are: {', '.join(columns)}", code=code)
         return given
-    norm = {c.strip().lower().replace(" ", "_"): c for c in columns}
-    return next((norm[n.replace(" ", "_")] for n in names if n.replace(" ", "_") in norm), None)
+    return find_column(columns, names)
 
 
 def _row_where(corpus: pd.DataFrame, position: int, column: str) -> str:
@@ -253,117 +217,12 @@ def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
     return sample
 
 
-def _id_key(value: Any) -> str | None:
-    """A unit id as compared across files: trimmed, 1 and 1.0 alike; None when blank."""
-    v = normalise_value(value.strip() if isinstance(value, str) else value)
-    return None if v is None else str(v)
-
-
-def read_unit_ids(paths: str | os.PathLike | Sequence[str | os.PathLike], *,
-                  id_col: str | None = None) -> tuple[str, ...]:
-    """The unit ids found in files, e.g. the coding files of earlier rounds, to exclude them.
-
-    Parameters
-    ----------
-    paths : one file or several. A .txt file is a plain list, one id a line (blank lines and
-        lines starting with # skipped). A CSV or XLSX file (every sheet of a workbook) gives the
-        ids in its unit column: `id_col` when the file has that column, else the first column
-        with a usual id name (unit_id, unit, id, excerpt_id, ...). Long files, with one row
-        per unit and coder, give each id once.
-    id_col : the unit-id column's name, when it is not a usual one.
-
-    Returns
-    -------
-    tuple of str
-        The distinct ids, in order of first appearance.
-    """
-    if isinstance(paths, (str, os.PathLike)):
-        paths = [paths]
-    seen: dict[str, None] = {}
-    for raw in paths:
-        path = Path(raw)
-        if not path.is_file():
-            raise AgreeError(f"no such file: {path}", code="no-file")
-        record_input(path)
-        suffix = path.suffix.lower()
-        if suffix in (".txt", ".lst"):
-            for line in path.read_text(encoding="utf-8-sig").splitlines():
-                key = _id_key(line)
-                if key is not None and not key.startswith("#"):
-                    seen.setdefault(key, None)
-            continue
-        if suffix in (".xlsx", ".xlsm"):
-            try:
-                frames = list(pd.read_excel(path, sheet_name=None, dtype=object, engine="openpyxl").items())
-            except Exception as exc:
-                raise AgreeError(f"could not read {path.name}: {exc}", code="exclude-unreadable") from exc
-        elif suffix in (".csv", ".tsv"):
-            try:
-                frames = [(None, pd.read_csv(path, dtype=str, keep_default_na=False,
-                                             sep="\t" if suffix == ".tsv" else None, engine="python",
-                                             encoding="utf-8-sig").map(unprotect_text))]
-            except Exception as exc:
-                raise AgreeError(f"could not read {path.name}: {exc}", code="exclude-unreadable") from exc
-        else:
-            raise AgreeError(f"cannot read unit ids from '{path.name}'",
-                             hint="give a coding file (CSV or XLSX) or a .txt list, one id a line",
-                             code="exclude-format")
-        found = False
-        for sheet, frame in frames:
-            columns = [str(c) for c in frame.columns]
-            try:
-                column = detect_id_column(frame, id_col if id_col in columns else None)
-            except AgreeError:
-                continue
-            found = True
-            for value in frame[column].tolist():
-                key = _id_key(value)
-                if key is not None:
-                    seen.setdefault(key, None)
-        if not found:
-            raise AgreeError(f"could not find the unit-id column in {path.name}",
-                             hint="name it unit_id (or excerpt_id, id, ...), pass --unit-col, or give "
-                                  "a .txt list of ids", code="no-id-column")
-    return tuple(seen)
-
-
 def stratum_label(value: Any) -> str:
     v = normalise_value(value.strip() if isinstance(value, str) else value)
     return "(blank)" if v is None else str(v)
 
 
 def load_codebook_categories(path: str | os.PathLike) -> dict[str, str]:
-    """Categories (and descriptions where given) from a codebook file.
-
-    .txt: one category per line. .csv/.xlsx: the column named code/category/label (else the
-    first column), and description/definition (else none).
-    """
-    path = Path(path)
-    if not path.is_file():
-        raise AgreeError(f"no such file: {path}", code="no-file")
-    record_input(path)
-    suffix = path.suffix.lower()
-    if suffix in (".txt", ".md"):
-        lines = [ln.strip() for ln in path.read_text(encoding="utf-8-sig").splitlines()]
-        return {ln: "" for ln in lines if ln}
-    if suffix in (".csv", ".tsv"):
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, sep=None, engine="python",
-                            encoding="utf-8-sig")
-    elif suffix in (".xlsx", ".xlsm"):
-        frame = pd.read_excel(path, dtype=object, engine="openpyxl")
-    else:
-        raise AgreeError(f"cannot read the codebook '{path.name}': use TXT, CSV or XLSX",
-                         code="codebook-format")
-    lower = {str(c).strip().lower(): c for c in frame.columns}
-    code_col = next((lower[k] for k in ("code", "category", "label", "name") if k in lower),
-                    frame.columns[0])
-    desc_col = next((lower[k] for k in ("description", "definition", "meaning") if k in lower), None)
-    out: dict[str, str] = {}
-    for i, row in frame.iterrows():
-        value = normalise_value(row[code_col])
-        if value is None:
-            continue
-        out[str(value).strip()] = "" if desc_col is None or row[desc_col] is None else str(row[desc_col])
-    if not out:
-        raise AgreeError(f"the codebook '{path.name}' lists no categories", code="codebook-empty")
-    return out
+    """Categories (and descriptions, '' where none) from a codebook file, read by
+    `agree.io.codebook.read_codebook` (spaces around the codes trimmed)."""
+    return read_codebook(path, trim=True).definitions()

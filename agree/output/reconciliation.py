@@ -60,6 +60,7 @@ from agree.core.model import (
     require_unit_rows,
     value_sort_key,
 )
+from agree.io.lists import find_records
 
 # Column headers of the review file. The workbook is read back by these names, so a team
 # can move or add columns freely.
@@ -722,7 +723,7 @@ def _unit_text(value: Any) -> str | None:
     return str(value)
 
 
-def _rows_from_records(records: Sequence[Sequence[Any]], header: Sequence[Any], first_row: int,
+def _rows_from_records(records: Sequence[Sequence[Any]], header: Sequence[Any], rows: Sequence[int],
                        name: str, sheet: str | None) -> tuple[_ReviewRow, ...]:
     keys = [_header_key(h) for h in header]
     if UNIT not in keys or DECISION not in keys:
@@ -736,73 +737,45 @@ def _rows_from_records(records: Sequence[Sequence[Any]], header: Sequence[Any], 
     def get(record: Sequence[Any], key: str) -> Any:
         return record[pos[key]] if key in pos and pos[key] < len(record) else None
 
-    rows = []
-    for offset, record in enumerate(records):
+    out = []
+    for row, record in zip(rows, records):
         values = [get(record, k) for k in (UNIT, DECISION, HOW, WHO, NOTES)]
         if all(v is None or (isinstance(v, str) and not v.strip()) for v in values):
             continue
         decision = values[1]
         if isinstance(decision, str):
             decision = decision.strip() or None
-        rows.append(_ReviewRow(row=first_row + offset, unit=_unit_text(values[0]), decision=decision,
-                               how=_cell_text(values[2]), who=_cell_text(values[3]),
-                               notes=_cell_text(values[4])))
-    return tuple(rows)
+        out.append(_ReviewRow(row=row, unit=_unit_text(values[0]), decision=decision,
+                              how=_cell_text(values[2]), who=_cell_text(values[3]),
+                              notes=_cell_text(values[4])))
+    return tuple(out)
 
 
 def _read_review(review: Any) -> _ReviewFile:
+    """The decisions of a review file (any format the loaders read, found by its header names)
+    or of a DataFrame like `review_table` returns."""
     if isinstance(review, pd.DataFrame):
         records = review.astype(object).where(review.notna(), None).to_numpy().tolist()
+        rows = range(2, len(records) + 2)
         return _ReviewFile("review table", None,
-                           _rows_from_records(records, list(review.columns), 2, "review table", None),
+                           _rows_from_records(records, list(review.columns), rows, "review table", None),
                            {})
     path = Path(review)
-    if not path.exists():
-        raise AgreeError(f"{path} does not exist", code="no-file")
-    record_input(path)
-    suffix = path.suffix.lower()
-    if suffix in (".xlsx", ".xlsm"):
-        return _read_review_xlsx(path)
-    if suffix in (".csv", ".txt"):
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8-sig")
-        frame = frame.map(unprotect_text)
-        header = [unprotect_text(str(c)) for c in frame.columns]
-        return _ReviewFile(str(path), None,
-                           _rows_from_records(frame.to_numpy().tolist(), header, 2, str(path), None),
-                           {})
-    raise AgreeError(f"cannot read decisions from {path.name}",
-                     hint="fill in the xlsx (or csv) review file; Markdown is for reading only",
-                     code="format")
+    if path.suffix.lower() in (".md", ".markdown"):
+        raise AgreeError(f"cannot read decisions from {path.name}",
+                         hint="fill in the xlsx (or csv) review file; Markdown is for reading only",
+                         code="format")
+    found = find_records(path, columns=(UNIT, DECISION), prefer=REVIEW_SHEET, code="review-columns",
+                         hint="the review file is read by its header names; restore them")
+    rows = _rows_from_records(found.records, found.header, found.rows, found.file, found.sheet)
+    return _ReviewFile(found.file, found.sheet, rows, _recorded_checksums(found.sheets.get(ABOUT_SHEET, [])))
 
 
-def _read_review_xlsx(path: Path) -> _ReviewFile:
-    from openpyxl import load_workbook
-
-    try:
-        wb = load_workbook(path, read_only=True, data_only=True)
-    except Exception as exc:  # not a workbook, or damaged
-        raise AgreeError(f"cannot open {path} as a workbook: {exc}", code="bad-file") from exc
-    try:
-        names = sorted(wb.sheetnames, key=lambda s: s != REVIEW_SHEET)
-        for sheet in names:
-            ws = wb[sheet]
-            records = [list(r) for r in ws.iter_rows(values_only=True)]
-            for h, header in enumerate(records[:10]):
-                keys = {_header_key(v) for v in header}
-                if UNIT in keys and DECISION in keys:
-                    rows = _rows_from_records(records[h + 1:], header, h + 2, str(path), sheet)
-                    checksums = _recorded_checksums(wb) if ABOUT_SHEET in wb.sheetnames else {}
-                    return _ReviewFile(str(path), sheet, rows, checksums)
-    finally:
-        wb.close()
-    raise AgreeError(f"no sheet of {path} has the columns '{UNIT}' and '{DECISION}'",
-                     hint="the review sheet is found by its header names; restore them",
-                     code="review-columns")
-
-
-def _recorded_checksums(wb: Any) -> dict[str, str]:
+def _recorded_checksums(about: Sequence[Sequence[Any]]) -> dict[str, str]:
+    """The input checksums recorded on the "About this file" sheet (its records)."""
     out, inside = {}, False
-    for item, value, *_ in wb[ABOUT_SHEET].iter_rows(values_only=True, max_col=2):
+    for record in about:
+        item, value = (list(record) + [None, None])[:2]
         if item == "input file" and value == "sha256":
             inside = True
         elif inside and item:
@@ -889,8 +862,8 @@ def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
     Parameters
     ----------
     data : the same coding data the review list was made from.
-    review : the filled-in review file (xlsx or csv, found by header names) or a DataFrame
-        like `review_table` returns.
+    review : the filled-in review file (xlsx or csv, or any table format `agree.read` reads;
+        found by header names) or a DataFrame like `review_table` returns.
     allow_unresolved : keep units that still need a decision, with source "unresolved" and
         an empty final code, instead of raising.
     majority : give an undecided unit the value a strict majority (more than half) of its

@@ -41,13 +41,13 @@ import numpy as np
 import pandas as pd
 
 from agree.core.constants import VERSION
-from agree.core.cells import unprotect_text
-from agree.core.files import atomic_write_bytes, make_folder, record_input
+from agree.core.files import atomic_write_bytes, make_folder
 from agree.core.format import format_bound, format_interval, format_value, lit, notebook_html, plain, spans  # noqa: F401
 from agree.core.format import result_label as format_result_label
-from agree.core.model import AgreeError, CodingData, as_coding_data, require_unit_rows
+from agree.core.model import AgreeError, CodingData, as_coding_data, normalise_value, require_unit_rows
 from agree.core.registry import coefficient, family, skipped_by_reason
 from agree.core.results import AgreementResult, Note, json_safe
+from agree.io.lists import read_consensus
 
 Progress = Callable[[str, float], None]
 
@@ -531,7 +531,8 @@ def _sample(d: CodingData, corpus_size: int | None) -> SampleSummary:
 
 
 def summarise_consensus(consensus: Any, data: CodingData | None = None) -> ConsensusSummary:
-    """Counts by source of a consensus file (path), DataFrame or `agree.output.reconciliation.Consensus`.
+    """Counts by source of a consensus file (path; any table format `agree.read` reads), DataFrame
+    or `agree.output.reconciliation.Consensus`.
 
     The table needs a "source" column (agreed, decided, majority, unresolved, ...). A unit id
     column (the first column whose name contains "unit", else the first column) is matched
@@ -540,15 +541,7 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
     file = None
     if isinstance(consensus, (str, os.PathLike)):
         file = str(consensus)
-        path = Path(consensus)
-        if not path.exists():
-            raise AgreeError(f"consensus file not found: {file}", code="file-not-found")
-        record_input(path)
-        try:
-            frame = pd.read_excel(path) if path.suffix.lower() in (".xlsx", ".xlsm") else \
-                pd.read_csv(path, dtype=str, keep_default_na=False).map(unprotect_text)
-        except (ValueError, OSError) as exc:
-            raise AgreeError(f"could not read the consensus file: {exc}", where=file, code="consensus") from exc
+        frame = read_consensus(consensus)
     elif isinstance(consensus, pd.DataFrame):
         frame = consensus
     elif hasattr(consensus, "table") and isinstance(consensus.table, pd.DataFrame):
@@ -559,7 +552,7 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
     if "source" not in cols:
         raise AgreeError("the consensus table has no 'source' column", where=file,
                          hint="use the file written by `agree reconcile`", code="consensus")
-    sources = frame[cols["source"]].astype(str).str.strip()
+    sources = frame[cols["source"]].fillna("").astype(str).str.strip()
     by_source = {str(k): int(v) for k, v in sources.value_counts(sort=False).items()}
     by_method: dict[str, int] = {}
     without = 0
@@ -577,7 +570,7 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
     not_in_data = missing = 0
     unit_col = next((cols[c] for c in cols if "unit" in c), frame.columns[0])
     if data is not None:
-        ids = set(frame[unit_col].astype(str))
+        ids = {str(v) for v in map(normalise_value, frame[unit_col].tolist()) if v is not None}
         known = set(map(str, data.unit_ids))
         not_in_data, missing = len(ids - known), len(known - ids)
     return ConsensusSummary(n_units=int(len(frame)), by_source=by_source, units_not_in_data=not_in_data,
