@@ -74,6 +74,7 @@ def assemble(b: Build, *, book, level) -> dict[str, Any]:
     codes.reshape(-1)[key] = remap[value]
     row.reshape(-1)[key] = rows
     src.reshape(-1)[key] = source
+    codes.setflags(write=False)  # CodingData keeps this array as it is (no private copy needed)
     # a cell a coder left empty still has a known location
     text = _per_unit(b, "text", b.text_entries, unit_ids, table_maps) if b.text_entries else None
     columns = {name: _per_unit(b, name, entries, unit_ids, table_maps) for name, entries in b.extra.items()}
