@@ -56,7 +56,8 @@ import pandas as pd
 from agree.core.errors import AgreeError, cell_location
 from agree.core.model import ReadReport, normalise_value
 from agree.core.spans import CODE_PATH_SEPARATOR, UNITS, SpanData, token_bounds
-from agree.io.readers import CODER_NAMES, find_column, load_file
+from agree.io.columns import CODER_NAMES, find_column
+from agree.io.loaders import load_tables
 
 __all__ = ["read_spans", "assemble_spans", "decode_text", "code_tree", "SPAN_ENDS", "COVERAGES"]
 
@@ -299,8 +300,8 @@ def read_spans(path: str | os.PathLike, *, documents_dir: str | os.PathLike | No
     check_choice(unit, UNITS, "unit")
     check_choice(coverage, COVERAGES, "coverage")
     name = str(path)
-    loaded = load_file(Path(path), sheet=sheet, name=name)
-    first = loaded.tables[0]
+    tables, loaded = load_tables(Path(path), sheet=sheet, name=name)
+    first = tables[0]
     where = first.where(1)
     columns = list(first.frame.columns)
     taken: set[str] = set()
@@ -316,7 +317,7 @@ def read_spans(path: str | os.PathLike, *, documents_dir: str | os.PathLike | No
     excerpt_col = _find(columns, excerpt, (), "excerpt", where, taken, "excerpt=") if excerpt else \
         find_column(columns, EXCERPT_NAMES, taken | {text_col})
     plain = find_column(columns, ("text",), taken | {text_col, excerpt_col})
-    for t in loaded.tables[1:]:
+    for t in tables[1:]:
         missing = [c for c in [*roles.values(), text_col, excerpt_col] if c is not None and c not in t.frame.columns]
         if missing:
             raise AgreeError(f"the sheet has no column '{missing[0]}' (the first sheet has it)", where=t.where(1),
@@ -324,12 +325,12 @@ def read_spans(path: str | os.PathLike, *, documents_dir: str | os.PathLike | No
                              code="no-column")
 
     problems = Problems("span table")
-    frames = [t.frame for t in loaded.tables]
-    rows = np.concatenate([t.rows for t in loaded.tables])
-    table_of = np.concatenate([np.full(len(t.frame), i) for i, t in enumerate(loaded.tables)])
+    frames = [t.frame for t in tables]
+    rows = np.concatenate([t.rows for t in tables])
+    table_of = np.concatenate([np.full(len(t.frame), i) for i, t in enumerate(tables)])
 
     def place(i: int, column: str) -> str:
-        t = loaded.tables[int(table_of[i])]
+        t = tables[int(table_of[i])]
         return cell_location(t.file, t.sheet, int(rows[i]), column)
 
     def col(c: str) -> pd.Series:
