@@ -14,8 +14,10 @@ the numbering is the same as if the table were saved as a spreadsheet.
 
 Text files are decoded from UTF-8 (with or without a byte-order mark), UTF-16 (with one) or
 Windows-1252 (with a note), and their separator (comma, semicolon or tab) is detected from the
-header unless the suffix says (.tsv). Every cell of a text file is text as written; workbook and
-Parquet cells keep their types (numbers, dates).
+header unless the suffix says (.tsv). Every cell of a text file is text as written, with the
+formula protection of agree's own CSV files undone (`agree.core.cells`); workbook and Parquet
+cells keep their types (numbers, dates). Every file opened is recorded as an input of the run
+(`agree.core.files.record_input`), so no output of the run may replace it.
 """
 
 from __future__ import annotations
@@ -55,7 +57,7 @@ class Table:
     frame: pd.DataFrame  # columns are the (stripped) header names, values raw
     rows: np.ndarray  # spreadsheet row number of each frame row
     letters: bool = False  # spreadsheet column letters exist (workbooks)
-    kind: str = "text"  # the loader's kind: "text" cells are text as written
+    kind: str = "text"  # the loader's kind ("text": every cell is text)
 
     def where(self, row: int | None = None, column: str | None = None) -> str:
         return cell_location(self.file, self.sheet, row, column)

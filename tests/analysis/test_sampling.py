@@ -19,6 +19,10 @@ from agree.analysis.sampling import (
     read_unit_ids,
 )
 from agree.core.model import AgreeError
+from agree.io.codebook import read_codebook
+from tests.io.test_lists import FORMATS
+from tests.io.test_lists import codebook as lists_codebook
+from tests.io.test_lists import write as write_table
 
 CODES = ["praise", "complaint", "question"]
 
@@ -204,3 +208,25 @@ def test_bundled_rounds_are_excluded_from_the_next_sample():
     sample = draw_sample(corpus, 200, stratify="interview", seed=1, exclude=done)
     assert not set(sample["unit_id"]) & rounds
     assert sample.attrs["excluded"] == len(rounds) and sample.attrs["exclude_not_in_corpus"] == 0
+
+
+# -- the codebook: read by the one codebook reader, in every format -------------------------------
+@pytest.mark.parametrize("fmt", FORMATS)
+def test_codebook_categories_in_every_format(tmp_path, fmt):
+    # before: this reader failed on Windows-1252 and UTF-16 CSV files with an internal error, and
+    # refused Parquet files and unknown suffixes
+    frame = lists_codebook()
+    path = write_table(frame, tmp_path, fmt, stem="codebook")
+    assert load_codebook_categories(path) == dict(zip(frame["code"], frame["description"]))
+
+
+def test_sample_and_score_read_a_codebook_alike(tmp_path):
+    # before: the sample command's reader ignored the order column and merged repeated codes
+    path = tmp_path / "scale.csv"
+    pd.DataFrame({"label": ["high", "low", "mid"], "rank": [3, 1, 2]}).to_csv(path, index=False)
+    assert list(load_codebook_categories(path)) == [str(c) for c in read_codebook(path).categories] \
+        == ["low", "mid", "high"]
+    path.write_text("code\npraise\npraise\n")
+    with pytest.raises(AgreeError) as err:
+        load_codebook_categories(path)
+    assert err.value.code == "bad-codebook" and "row 3" in str(err.value)

@@ -77,3 +77,24 @@ def test_cli_sample_help_example_uses_bundled_files(tmp_path):
     args[args.index("-o") + 1] = str(tmp_path / "sheets")
     run = CliRunner().invoke(app, args)
     assert run.exit_code == 0, run.output
+
+
+def test_cli_sample_reads_its_lists_like_every_other_table(tmp_path):
+    # before: a codebook or --exclude list saved in Windows-1252 ended in an internal error, and a
+    # Parquet list of units was refused
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.parquet"
+    make_corpus(40).to_parquet(corpus_file, index=False)
+    (tmp_path / "codes.txt").write_bytes("praise\ncomplaint\nidée\n".encode("cp1252"))
+    (tmp_path / "done.txt").write_bytes("# déjà codés\nu0000\nu0001\n".encode("cp1252"))
+    args = ["sample", str(corpus_file), "-n", "10", "--coders", "ana,ben", "--codebook", str(tmp_path / "codes.txt"),
+            "--exclude", str(tmp_path / "done.txt"), "-o", str(tmp_path / "sheets"), "--seed", "2",
+            "--format", "json"]
+    res = CliRunner().invoke(app, args)
+    assert res.exit_code == 0, res.output
+    got = json.loads(res.stdout)
+    assert got["excluded"] == 2 and got["drop_down"] == "inline list"
+    _, rows = _read_sheet(tmp_path / "sheets" / "ana.xlsx")
+    assert len(rows) == 11 and not {r[0] for r in rows[1:]} & {"u0000", "u0001"}

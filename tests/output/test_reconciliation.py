@@ -36,6 +36,8 @@ from agree.output.reconciliation import (
     write_consensus,
     write_review,
 )
+from tests.io.test_lists import FORMATS
+from tests.io.test_lists import write as write_table
 
 TRICKY = ["=SUM(A1)", "-fine", "@here", "+1", "café", "Zürich", "日本", "\tpad", "'quoted"]
 
@@ -653,3 +655,57 @@ def test_consensus_from_a_dataframe_names_it_review_table_and_displays_in_a_note
     assert "Consensus from review table" in page and "<table" in page
     assert "&lt;i&gt;b&lt;/i&gt;" in page and "<i>b</i>" not in page
     assert "–" in page and "None" not in page      # missing codes shown as an en dash
+
+
+# -- review files in every format the loaders read ------------------------------------------------
+def review_data():
+    return from_table([["praise", "complaint"], ["idée", "idée"], ["complaint", "idée"]],
+                      coders=["ana", "ben"], unit_ids=["b1", "b2", "b3"])
+
+
+@pytest.mark.parametrize("fmt", FORMATS)
+def test_review_decisions_in_every_format(tmp_path, fmt):
+    # before: a review CSV saved by a spreadsheet with ';' as separator or in a legacy encoding
+    # failed (an internal error for the encoding); TSV, Parquet and other suffixes were refused
+    data = review_data()
+    table = review_table(data)
+    table["decision"] = ["praise", "idée"]
+    table["how decided"] = ["discussion", "adjudicator"]
+    path = write_table(table, tmp_path, fmt, stem="review")
+    final = reconcile(data, path)
+    assert final.table["final code"].tolist() == ["praise", "idée", "idée"]
+    assert final.table["source"].tolist() == ["decided", "agreed", "decided"]
+
+
+def test_review_csv_with_semicolons_from_a_spreadsheet(tmp_path):
+    data = review_data()
+    path = tmp_path / "review.csv"
+    path.write_bytes("unit;status;decision;how decided\nb1;needs review;praise;discussion\n"
+                     "b3;needs review;idée;discussion\n".encode("cp1252"))
+    assert reconcile(data, path).table["final code"].tolist() == ["praise", "idée", "idée"]
+
+
+def test_review_found_below_a_title_row(tmp_path):
+    data = review_data()
+    path = tmp_path / "review.xlsx"
+    table = review_table(data)
+    table["decision"] = ["praise", "idée"]
+    with pd.ExcelWriter(path) as xl:
+        pd.DataFrame([["Review of the library comments"]]).to_excel(xl, sheet_name="Review", index=False,
+                                                                    header=False)
+        table.to_excel(xl, sheet_name="Review", index=False, startrow=2)
+    assert reconcile(data, path).table["final code"].tolist() == ["praise", "idée", "idée"]
+
+
+def test_review_file_errors(tmp_path):
+    data = review_data()
+    empty = tmp_path / "review.csv"
+    empty.write_bytes(b"")
+    with pytest.raises(AgreeError) as err:       # before: an internal pandas error
+        reconcile(data, empty)
+    assert err.value.code == "empty-file" and "review.csv" in str(err.value)
+    other = tmp_path / "other.csv"
+    other.write_text("unit,verdict\nb1,praise\n")
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, other)
+    assert err.value.code == "review-columns" and "'decision'" in err.value.message

@@ -38,6 +38,8 @@ from agree.output.report import (
     write_report,
 )
 from tests.conftest import as_labels, simulate_codes
+from tests.io.test_lists import FORMATS, consensus
+from tests.io.test_lists import write as write_table
 
 SAMPLES = Path(__file__).resolve().parents[2] / "samples"
 SEED = 20240611
@@ -547,3 +549,24 @@ def test_methods_paragraph_with_rounds_separates_all_rounds_from_the_round_descr
     assert "Different rounds coded different units" not in text
     assert "10 units were coded in more than one round" in text
     assert "corpus" not in text.split("were double-coded")[1].split(";")[0]
+
+
+# -- consensus files in every format the loaders read --------------------------------------------
+@pytest.mark.parametrize("fmt", FORMATS)
+def test_consensus_in_every_format(tmp_path, fmt):
+    # before: a ';' separated, TSV, Parquet or UTF-16 consensus file had "no 'source' column" or
+    # could not be read
+    path = write_table(consensus(), tmp_path, fmt, stem="consensus")
+    data = from_table([["praise", "praise"], ["idée", "praise"], ["praise", "x"], ["a", "b"]],
+                      unit_ids=["b1", "b2", "-3", "b4"])
+    summary = summarise_consensus(path, data)
+    assert summary.by_source == {"agreed": 1, "decided": 1, "majority": 1, "unresolved": 1}
+    assert summary.by_method == {"discussion": 1} and summary.decided_without_method == 0
+    assert summary.units_not_in_data == 0 and summary.data_units_missing == 0
+
+
+def test_consensus_with_numeric_ids_in_a_workbook_matches_the_data(tmp_path):
+    path = tmp_path / "consensus.xlsx"
+    pd.DataFrame({"unit": [1, 2.0], "source": ["agreed", "agreed"]}).to_excel(path, index=False)
+    data = from_table([["a", "a"], ["b", "b"]], unit_ids=["1", "2"])
+    assert summarise_consensus(path, data).units_not_in_data == 0
