@@ -3,8 +3,10 @@
 Scenario (invented): a study of a neighbourhood repair café and community tool library.
 Volunteers, coordinators and visitors were interviewed; three coders (amara, bastien, chen)
 coded short excerpts with an 8-code codebook in two rounds, rated answers on a 1-5 scale, and
-two of them applied several codes per excerpt. Nothing here comes from real people: every
-sentence is composed from the templates below, every code is drawn from the model below.
+two of them applied several codes per excerpt. The three also highlighted coded passages in four
+whole transcripts (written as a span table and as a REFI-QDA project package). Nothing here comes
+from real people: every sentence is composed from the templates below, every code is drawn from
+the model below.
 
 Usage::
 
@@ -26,8 +28,11 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
+import re
 import sys
 import tempfile
+import uuid
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -358,6 +363,155 @@ def make_multicode(rng: np.random.Generator) -> dict[str, pd.DataFrame]:
     return sheets
 
 
+# -- coded passages (highlighted spans in whole transcripts) --------------------------------------
+# Four interview transcripts, coded by highlighting passages as coders do in analysis software.
+# The code book nests the codes under three themes; the spans are written both as a REFI-QDA
+# project package (passages.qdpx) and as a span table (passages_spans.csv + passages/*.txt).
+PASSAGE_THEMES = {
+    "Motivation": ("Belonging", "Skills learning"),
+    "Strain": ("Time pressure", "Burnout"),
+    "Organisation": ("Coordination", "Material resources"),
+}
+PASSAGE_CODES = tuple(f"{t}/{c}" for t, cs in PASSAGE_THEMES.items() for c in cs)
+PASSAGE_CODERS = ("amara", "bastien", "chen")
+PASSAGE_PEOPLE = (("T01", "Zoë"), ("T02", "Marek"), ("T03", "Inès"), ("T04", "Kofi"))
+QUESTIONS = ["What brought you to the repair café?", "How do the Saturday shifts work for you?",
+             "What happens when a repair goes wrong?", "Tell me about the tool library.",
+             "What would make it easier to keep going?", "How is the work organised?"]
+# planted: a passage in T03 with a character outside the Basic Multilingual Plane (positions
+# after it differ for software counting UTF-16 units), coded by chen only
+PASSAGE_EMOJI = ("Skills learning",
+                 "The first time I fixed a lamp myself I felt like a magician 🪄, naïve as that sounds.")
+PASSAGE_THETA = (0.85, 0.70, 0.82)  # P(a coder applies the passage's true code)
+PASSAGE_MISS = 0.08  # P(a coder leaves a codable passage unmarked)
+
+
+def make_passages(rng: np.random.Generator) -> tuple[dict[str, str], pd.DataFrame]:
+    """Transcripts (id -> text, '\\n' line ends) and the coded spans: one row per coder, code
+    and span (document, coder, code, start, end exclusive, in code points)."""
+    texts, records = {}, []
+    codes = [c.split("/")[1] for c in PASSAGE_CODES]
+    for doc, person in PASSAGE_PEOPLE:
+        text = ""
+        sentences = []  # (start, end, true code, planted)
+        for q in rng.permutation(len(QUESTIONS))[:5]:
+            text += f"Interviewer: {QUESTIONS[q]}\n{person}: "
+            for k in range(int(rng.integers(1, 3))):
+                code = codes[int(rng.integers(len(codes)))]
+                sentence = _sentence(code, rng, opener=False)
+                if k:
+                    text += " "
+                sentences.append((len(text), len(text) + len(sentence), code, False))
+                text += sentence
+            text += "\n"
+            if doc == "T03" and len(sentences) <= 2 and not any(s[3] for s in sentences):
+                code, sentence = PASSAGE_EMOJI
+                text += f"{person}: "
+                sentences.append((len(text), len(text) + len(sentence), code, True))
+                text += sentence + "\n"
+        texts[doc] = text
+        for start, end, code, planted in sentences:
+            words = [m.span() for m in _WORD.finditer(text, start, end)]
+            for c, coder in enumerate(PASSAGE_CODERS):
+                if planted and coder != "chen" or not planted and rng.random() < PASSAGE_MISS:
+                    continue
+                if rng.random() < PASSAGE_THETA[c]:
+                    given = code
+                elif coder == OVERUSER:
+                    given = OVERUSED
+                else:
+                    given = codes[int(rng.integers(len(codes)))]
+                # boundaries drift by whole words: coders highlight a little more or less
+                first = min(int(rng.choice([0, 0, 0, 1, 2])), len(words) - 1)
+                last = max(first, len(words) - 1 - int(rng.choice([0, 0, 0, 1, 2])))
+                s, e = words[first][0], words[last][1]
+                if rng.random() < 0.15 and s > 0:  # the speaker's name marked too
+                    s = text.rfind("\n", 0, s) + 1
+                theme = next(t for t, cs in PASSAGE_THEMES.items() if given in cs)
+                records.append((doc, coder, f"{theme}/{given}", s, e))
+                if rng.random() < 0.10:  # a second, theme-level code on the same span
+                    records.append((doc, coder, theme, s, e))
+    spans = pd.DataFrame(records, columns=["document", "coder", "code", "start", "end"])
+    spans = spans.drop_duplicates().sort_values(["document", "start", "coder", "code"], kind="stable")
+    spans["excerpt"] = [texts[d][s:e] for d, s, e in zip(spans["document"], spans["start"], spans["end"])]
+    return texts, spans.reset_index(drop=True)
+
+
+_WORD = re.compile(r"\S+")
+
+
+def _guid(rng: np.random.Generator) -> str:
+    return str(uuid.UUID(bytes=rng.bytes(16), version=4))
+
+
+def passages_project(texts: dict[str, str], spans: pd.DataFrame, rng: np.random.Generator,
+                     seed: int) -> dict[str, bytes]:
+    """The REFI-QDA package's entries: project.qde (namespace urn:QDA-XML:project:1.0) and one
+    plain-text file per transcript in sources/. Positions are code points, end exclusive."""
+    from xml.sax.saxutils import escape, quoteattr
+
+    users = {c: _guid(rng) for c in PASSAGE_CODERS}
+    themes = {t: _guid(rng) for t in PASSAGE_THEMES}
+    codes = {c: _guid(rng) for c in PASSAGE_CODES}
+    docs = {d: _guid(rng) for d in texts}
+    out = ['<?xml version="1.0" encoding="utf-8"?>',
+           f'<Project xmlns="urn:QDA-XML:project:1.0" name="Repair café passages (synthetic)" '
+           f'origin="agree samples/make_samples.py, seed {seed}">',
+           "<Users>" + "".join(f'<User guid="{g}" name="{c}"/>' for c, g in users.items()) + "</Users>",
+           "<CodeBook><Codes>"]
+    for theme, children in PASSAGE_THEMES.items():
+        inner = "".join(f'<Code guid="{codes[f"{theme}/{c}"]}" name={quoteattr(c)} isCodable="true"/>'
+                        for c in children)
+        out.append(f'<Code guid="{themes[theme]}" name="{theme}" isCodable="true">{inner}</Code>')
+    out.append("</Codes></CodeBook><Sources>")
+    entries = {}
+    for doc, text in texts.items():
+        out.append(f'<TextSource guid="{docs[doc]}" name="{doc}" plainTextPath="internal://{docs[doc]}.txt">')
+        rows = spans[spans["document"] == doc]
+        for (coder, start, end), group in rows.groupby(["coder", "start", "end"], sort=True):
+            sel = _guid(rng)
+            name = text[start:end]
+            name = name if len(name) <= 60 else name[:59] + "…"
+            out.append(f'<PlainTextSelection guid="{sel}" name={quoteattr(name)} startPosition="{start}" '
+                       f'endPosition="{end}" creatingUser="{users[coder]}">')
+            for code in group["code"]:
+                target = codes.get(code) or themes[code]
+                out.append(f'<Coding guid="{_guid(rng)}" creatingUser="{users[coder]}">'
+                           f'<CodeRef targetGUID="{target}"/></Coding>')
+            out.append("</PlainTextSelection>")
+        out.append("</TextSource>")
+        entries[f"sources/{docs[doc]}.txt"] = text.encode("utf-8")
+    out.append("</Sources>")
+    out.append(f"<Description>{escape('Synthetic: invented interview transcripts, not real people.')}"
+               "</Description></Project>")
+    return {"project.qde": ("\n".join(out) + "\n").encode("utf-8"), **entries}
+
+
+def _write_zip(entries: dict[str, bytes], path: Path) -> None:
+    def write(tmp):
+        with zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED) as z:
+            for name, data in entries.items():
+                info = zipfile.ZipInfo(name, date_time=(2024, 1, 1, 0, 0, 0))
+                info.compress_type = zipfile.ZIP_DEFLATED
+                z.writestr(info, data)
+    _write_atomic(path, write)
+
+
+def write_passages(outdir: Path, seed: int = SEED) -> list[Path]:
+    """The coded-passage samples: passages/*.txt, passages_spans.csv and passages.qdpx."""
+    text_rng, guid_rng = (np.random.default_rng(s) for s in np.random.SeedSequence([seed, 9]).spawn(2))
+    texts, spans = make_passages(text_rng)
+    folder = outdir / "passages"
+    folder.mkdir(parents=True, exist_ok=True)
+    written = []
+    for doc, text in texts.items():
+        _write_atomic(folder / f"{doc}.txt", lambda tmp, t=text: Path(tmp).write_bytes(t.encode("utf-8")))
+        written.append(folder / f"{doc}.txt")
+    _write_csv(spans, outdir / "passages_spans.csv")
+    _write_zip(passages_project(texts, spans, guid_rng, seed), outdir / "passages.qdpx")
+    return written + [outdir / "passages_spans.csv", outdir / "passages.qdpx"]
+
+
 # -- writing --------------------------------------------------------------------------------
 def _write_atomic(path: Path, write) -> None:
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
@@ -428,7 +582,7 @@ def write_samples(outdir: Path, seed: int = SEED) -> list[Path]:
         written.append(outdir / name)
     _write_workbook(make_multicode(multi_rng), outdir / "multicode.xlsx", seed)
     written.append(outdir / "multicode.xlsx")
-    return written
+    return written + write_passages(outdir, seed)
 
 
 def main(argv: list[str]) -> int:

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import importlib.util
 import sys
+import zipfile
 from itertools import combinations
 from pathlib import Path
 
@@ -19,7 +20,8 @@ ROOT = Path(__file__).resolve().parents[1]
 SAMPLES = ROOT / "samples"
 CSV_FILES = ("codebook.csv", "round1.csv", "round2.csv", "rounds_long.csv", "ratings.csv",
              "ratings_codebook.csv", "corpus.csv")
-ALL_FILES = CSV_FILES + ("multicode.xlsx",)
+PASSAGE_TEXTS = ("T01.txt", "T02.txt", "T03.txt", "T04.txt")
+ALL_FILES = CSV_FILES + ("multicode.xlsx",) + PASSAGE_TEXTS + ("passages_spans.csv", "passages.qdpx")
 
 
 def _load_script():
@@ -92,7 +94,8 @@ def test_script_runs_from_the_command_line(tmp_path):
     done = subprocess.run([sys.executable, str(SAMPLES / "make_samples.py"), str(tmp_path)],
                           capture_output=True, text=True, check=True)
     assert done.stderr == ""
-    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(ALL_FILES)
+    top = set(ALL_FILES) - set(PASSAGE_TEXTS) | {"passages"}
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(top)
 
 
 def _workbook_cells(path: Path) -> dict:
@@ -139,7 +142,7 @@ def test_readme_and_source_note_say_synthetic_and_quote_the_measured_alphas():
 
 
 def test_files_are_small():
-    assert sum((SAMPLES / n).stat().st_size for n in ALL_FILES) < 500_000
+    assert sum(p.stat().st_size for p in SAMPLES.rglob("*") if p.name in ALL_FILES) < 500_000
 
 
 def test_sizes_match_the_readme():
@@ -323,3 +326,49 @@ def test_multicode_workbook():
     jaccard = np.mean([len(x & y) / len(x | y) for x, y in zip(a, b)])
     assert 0.5 < jaccard < 0.9
     assert sum(ms.OVERUSED in s for s in b) > 1.5 * sum(ms.OVERUSED in s for s in a)
+
+
+# -- coded passages ---------------------------------------------------------------------------------
+PASSAGES = SAMPLES / "passages"
+
+
+def test_passages_are_reproducible(tmp_path):
+    ms.write_passages(tmp_path)
+    for name in [*PASSAGE_TEXTS, "passages_spans.csv"]:
+        sub = f"passages/{name}" if name.endswith(".txt") else name
+        assert (tmp_path / sub).read_bytes() == (SAMPLES / sub).read_bytes(), f"{name} differs: rerun the script"
+    with zipfile.ZipFile(tmp_path / "passages.qdpx") as a, zipfile.ZipFile(SAMPLES / "passages.qdpx") as b:
+        assert a.namelist() == b.namelist()
+        assert all(a.read(n) == b.read(n) for n in a.namelist())
+
+
+def test_passages_package_and_table_hold_the_same_spans_and_the_planted_structure():
+    from agree.io.refi import read_project
+    from agree.io.spans import read_spans
+
+    package = read_project(SAMPLES / "passages.qdpx")
+    table = read_spans(SAMPLES / "passages_spans.csv", documents_dir=PASSAGES)
+    rows = lambda d: sorted(map(tuple, d.table().itertuples(index=False, name=None)))  # noqa: E731
+    assert rows(package) == rows(table)
+    assert package.coders == ms.PASSAGE_CODERS and package.documents == tuple(d for d, _ in ms.PASSAGE_PEOPLE)
+    assert package.texts == table.texts
+    assert (package.depth() == 2).sum() == 6 and "Strain/Burnout" in package.codes  # nested codes
+    spans = pd.read_csv(SAMPLES / "passages_spans.csv")
+    texts = {p.stem: p.read_bytes().decode("utf-8") for p in PASSAGES.glob("*.txt")}
+    assert all(texts[d][s:e] == x for d, s, e, x in zip(spans.document, spans.start, spans.end, spans.excerpt))
+    assert any(not t.isascii() for t in texts.values()) and any(ord(c) > 0xFFFF for c in texts["T03"])
+    # the planted passage: coded by chen only
+    emoji = spans[spans.excerpt.str.contains("magician")]
+    assert set(emoji.coder) == {"chen"}
+    # overlapping spans of different coders that do not coincide
+    a = spans[(spans.document == "T01") & (spans.coder == "amara")]
+    b = spans[(spans.document == "T01") & (spans.coder == "bastien")]
+    assert any((s1 < e2) and (s2 < e1) and (s1, e1) != (s2, e2)
+               for s1, e1 in zip(a.start, a.end) for s2, e2 in zip(b.start, b.end))
+
+
+def test_passages_package_is_valid_against_the_project_schema():
+    xmlschema = pytest.importorskip("xmlschema")
+    schema = xmlschema.XMLSchema10(str(ROOT / "tests" / "io" / "schemas" / "Project-mrt2019.xsd"))
+    with zipfile.ZipFile(SAMPLES / "passages.qdpx") as z:
+        schema.validate(z.read("project.qde").decode("utf-8"))

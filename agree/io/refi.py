@@ -74,6 +74,7 @@ from agree.io.spans import (
     assemble_spans,
     check_choice,
     decode_text,
+    has_astral,
     text_notes,
 )
 
@@ -89,7 +90,6 @@ POSITION_CHOICES = ("codepoints", "utf-16")
 NAME_CHECK_SAMPLE = 2000  # named selections compared with the text
 SHOWN = 5
 
-_GUID = re.compile(r"^\{?([0-9a-fA-F]{8}-[0-9a-fA-F]{4}-[0-9a-fA-F]{4}-[0-9a-fA-F]{4}-[0-9a-fA-F]{12})\}?$")
 _DRIVE = re.compile(r"^[A-Za-z]:")
 
 
@@ -97,9 +97,14 @@ def normalise_guid(guid: str | None) -> str:
     """A GUID as compared: braces removed, lower case ("" for none)."""
     if not guid:
         return ""
-    g = guid.strip()
-    match = _GUID.match(g)
-    return match.group(1).lower() if match else g.strip("{}").lower()
+    return guid.strip().strip("{}").lower()
+
+
+def normalise_guids(guids: list[str | None]) -> np.ndarray:
+    """`normalise_guid` over a list: an object array ("" for none); each distinct value once."""
+    index, uniques = pd.factorize(pd.Series(guids, dtype=object), use_na_sentinel=True)
+    done = np.array([normalise_guid(g) for g in uniques] + [""], dtype=object)
+    return done[index]
 
 
 def _listed(items: list[str], shown: int = SHOWN) -> str:
@@ -343,14 +348,33 @@ def _open_folder(p: Path, max_bytes: int) -> Package:
 
 
 # -- the XML ----------------------------------------------------------------------------------------
+def _may_declare(data: bytes) -> bool:
+    """Whether XML bytes may hold a document type declaration (where entities are declared): any
+    '<!DOCTYPE', or an encoding that is not ASCII-compatible (then the bytes cannot be searched)."""
+    head = data[:4]
+    return head.startswith((b"\xff\xfe", b"\xfe\xff")) or b"\x00" in head or b"<!DOCTYPE" in data
+
+
 def parse_project(data: bytes, where: str) -> tuple[Element, str]:
     """Parse project XML safely (no entity expansion, no external references); returns the root
-    element and the namespace it uses. Refuses XML whose root is not a REFI-QDA ``Project``."""
+    element and the namespace it uses. Refuses XML whose root is not a REFI-QDA ``Project``.
+
+    XML with a document type declaration goes through `defusedxml`, which refuses entity
+    declarations and external references; XML without one cannot declare entities or reference
+    anything outside itself, and is parsed by the standard library's C parser (a project export
+    never has one, and this parser is several times faster)."""
+    from xml.etree.ElementTree import XMLParser
+
     from defusedxml import DefusedXmlException
     from defusedxml.ElementTree import fromstring
 
     try:
-        root = fromstring(data, forbid_dtd=False, forbid_entities=True, forbid_external=True)
+        if _may_declare(data):
+            root = fromstring(data, forbid_dtd=False, forbid_entities=True, forbid_external=True)
+        else:  # no document type declaration: no entity can be declared, nothing external is referenced
+            parser = XMLParser()
+            parser.feed(data)
+            root = parser.close()
     except DefusedXmlException as exc:
         raise AgreeError(f"refused: the project XML declares entities or external references "
                          f"({type(exc).__name__}), which a project never needs and which can be used to attack "
@@ -397,7 +421,6 @@ class _Collected:
     cod_sel: list[int] = field(default_factory=list)
     cod_user: list[str] = field(default_factory=list)
     cod_code: list[str] = field(default_factory=list)
-    cod_guid: list[str] = field(default_factory=list)
     empty_selections: int = 0
 
 
@@ -495,41 +518,55 @@ class _Reader:
         name = (owner.get("name") or "").strip() or guid
         text, bom, inline = self.text_of(el, name)
         self.docs.append(_Doc(guid=guid, name=name, kind=kind, text=text, bom=bom, inline=inline))
-        for sel in el.iterfind(q("PlainTextSelection")):
-            codings = sel.findall(q("Coding"))
-            if not codings:
+        selection, coding_tag, ref_tag = q("PlainTextSelection"), q("Coding"), q("CodeRef")
+        sel_doc, sel_start, sel_end, sel_user, sel_guid, sel_whole = (
+            c.sel_doc, c.sel_start, c.sel_end, c.sel_user, c.sel_guid, c.sel_whole)
+        cod_sel, cod_user, cod_code = c.cod_sel, c.cod_user, c.cod_code
+        whole = []
+        for child in el:
+            tag = child.tag
+            if tag == coding_tag:
+                whole.append(child)
+                continue
+            if tag != selection:
+                continue
+            s = len(sel_doc)
+            n = 0
+            for coding in child:
+                if coding.tag != coding_tag:
+                    continue
+                ref = coding.find(ref_tag)
+                cod_sel.append(s)
+                cod_user.append(coding.get("creatingUser"))
+                cod_code.append(None if ref is None else ref.get("targetGUID"))
+                n += 1
+            if not n:
                 c.empty_selections += 1
                 continue
-            s = len(c.sel_doc)
-            c.sel_doc.append(d)
-            c.sel_start.append(sel.get("startPosition"))
-            c.sel_end.append(sel.get("endPosition"))
-            c.sel_user.append(normalise_guid(sel.get("creatingUser")))
-            c.sel_guid.append(normalise_guid(sel.get("guid")))
-            c.sel_whole.append(False)
-            label = sel.get("name")
+            get = child.get
+            sel_doc.append(d)
+            sel_start.append(get("startPosition"))
+            sel_end.append(get("endPosition"))
+            sel_user.append(get("creatingUser"))
+            sel_guid.append(get("guid"))
+            sel_whole.append(False)
+            label = get("name")
             if label and len(c.named) < NAME_CHECK_SAMPLE:
                 c.named.append((s, label))
-            self.codings(codings, s)
-        whole = el.findall(q("Coding")) + list(extra_codings)
+        whole += list(extra_codings)
         if whole:
             s = len(c.sel_doc)
             c.sel_doc.append(d)
             c.sel_start.append("0")
             c.sel_end.append("0")
-            c.sel_user.append("")
+            c.sel_user.append(None)
             c.sel_guid.append(guid)
             c.sel_whole.append(True)
-            self.codings(whole, s)
-
-    def codings(self, codings: list[Element], s: int) -> None:
-        c, q = self.c, self.q
-        for coding in codings:
-            ref = coding.find(q("CodeRef"))
-            c.cod_sel.append(s)
-            c.cod_user.append(normalise_guid(coding.get("creatingUser")))
-            c.cod_code.append(normalise_guid(None if ref is None else ref.get("targetGUID")))
-            c.cod_guid.append(normalise_guid(coding.get("guid")))
+            for coding in whole:
+                ref = coding.find(ref_tag)
+                cod_sel.append(s)
+                cod_user.append(coding.get("creatingUser"))
+                cod_code.append(None if ref is None else ref.get("targetGUID"))
 
     def text_of(self, el: Element, name: str) -> tuple[str | None, bool, bool]:
         content = el.find(self.q("PlainTextContent"))
@@ -563,7 +600,7 @@ def exporter_starts(text: str, crlf: str, positions: str) -> np.ndarray | None:
     (CRLF as one position, UTF-16 units), with the text's end last: (len(text) + 1,) ints.
     None when that count equals the code points."""
     crlf_one = crlf == "one" and "\r\n" in text
-    wide = positions == "utf-16" and not text.isascii() and any(ord(ch) > 0xFFFF for ch in text)
+    wide = positions == "utf-16" and has_astral(text)
     if not crlf_one and not wide:
         return None
     cp = np.frombuffer(text.encode("utf-32-le"), dtype=np.uint32)
@@ -686,7 +723,7 @@ def _assemble(reader: _Reader, root: Element, users: dict, code_guids: list[str]
     ok = ~np.logical_or.reduce(list(problems.values())) if S else np.ones(0, bool)
     empty = ok & (end == start) & ~whole
     whole_unknown = whole & (dlen < 0)
-    sel_guid = np.array(c.sel_guid, dtype=object)
+    sel_guid = normalise_guids(c.sel_guid)
     for what, mask in problems.items():
         if mask.any():
             hint = ""
@@ -709,18 +746,19 @@ def _assemble(reader: _Reader, root: Element, users: dict, code_guids: list[str]
     cod_sel = np.array(c.cod_sel, np.int64)
     n_codings = len(cod_sel)
     code_lookup = {g: i for i, g in enumerate(code_guids)}
-    code_index = pd.Series(c.cod_code, dtype=object).map(code_lookup).to_numpy(dtype=float) if n_codings else \
+    cod_code = normalise_guids(c.cod_code)
+    code_index = pd.Series(cod_code, dtype=object).map(code_lookup).to_numpy(dtype=float) if n_codings else \
         np.zeros(0)
     dangling = ~np.isfinite(code_index)
     code_index = np.where(dangling, -1, code_index).astype(np.int64)
-    cod_user = np.array(c.cod_user, dtype=object)
-    sel_user = np.array(c.sel_user, dtype=object)[cod_sel] if n_codings else np.zeros(0, object)
+    cod_user = normalise_guids(c.cod_user)
+    sel_user = normalise_guids(c.sel_user)[cod_sel] if n_codings else np.zeros(0, object)
     by_coding = cod_user != ""
     by_selection = ~by_coding & (sel_user != "")
     by_file = ~by_coding & ~by_selection & (coder is not None)
     user = np.where(by_coding, cod_user, np.where(by_selection, sel_user, "" if coder is None else "\x00file"))
     if dangling.any():
-        missing = list(dict.fromkeys(np.array(c.cod_code, dtype=object)[dangling]))
+        missing = list(dict.fromkeys(cod_code[dangling]))
         left_out.append(f"{int(dangling.sum())} coding(s) refer to codes missing from the code book, left out: "
                         f"code GUIDs {_listed(missing)}")
     keep = sel_ok[cod_sel] & ~dangling if n_codings else np.zeros(0, bool)
@@ -849,7 +887,7 @@ def _name_check(reader: _Reader, texts: list, docs: list, *, span_end: str, crlf
     readings.add(("inclusive" if span_end == "exclusive" else "exclusive", crlf, positions, 0))
     if any(t is not None and "\r\n" in t for t in texts):
         readings.add((span_end, "one" if crlf == "two" else "two", positions, 0))
-    if any(t is not None and not t.isascii() and any(ord(ch) > 0xFFFF for ch in t) for t in texts):
+    if any(t is not None and has_astral(t) for t in texts):
         readings.add((span_end, crlf, "utf-16" if positions == "codepoints" else "codepoints", 0))
     if any(d.bom for d in docs):
         readings.add((span_end, crlf, positions, 1))

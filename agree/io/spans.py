@@ -59,7 +59,7 @@ from agree.core.spans import CODE_PATH_SEPARATOR, UNITS, SpanData, token_bounds
 from agree.io.columns import CODER_NAMES, find_column
 from agree.io.loaders import load_tables
 
-__all__ = ["read_spans", "assemble_spans", "decode_text", "code_tree", "SPAN_ENDS", "COVERAGES"]
+__all__ = ["read_spans", "assemble_spans", "decode_text", "code_tree", "has_astral", "SPAN_ENDS", "COVERAGES"]
 
 SPAN_ENDS = ("exclusive", "inclusive")
 COVERAGES = ("inferred", "declared")
@@ -101,7 +101,7 @@ def text_notes(documents: Sequence[str], texts: Sequence[str | None], boms: Sequ
     if bom:
         notes.append(f"{len(bom)} text file(s) begin with a byte-order mark, removed: position 0 is the first "
                      f"character after it ({_names(bom)})")
-    wide = [d for d, t in zip(documents, texts) if t is not None and _has_astral(t)]
+    wide = [d for d, t in zip(documents, texts) if t is not None and has_astral(t)]
     if wide:
         notes.append(f"{len(wide)} text(s) hold characters outside the Basic Multilingual Plane (emoji, rare "
                      f"scripts), each counted as one position (one code point); software that counts UTF-16 "
@@ -109,8 +109,9 @@ def text_notes(documents: Sequence[str], texts: Sequence[str | None], boms: Sequ
     return notes
 
 
-def _has_astral(text: str) -> bool:
-    return any(ord(c) > 0xFFFF for c in text) if not text.isascii() else False
+def has_astral(text: str) -> bool:
+    """Whether the text holds characters outside the Basic Multilingual Plane (two UTF-16 units)."""
+    return not text.isascii() and len(text.encode("utf-16-le")) != 2 * len(text)
 
 
 def _names(items: Sequence[str], shown: int = SHOWN) -> str:
