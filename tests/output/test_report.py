@@ -373,11 +373,11 @@ def test_methods_wording_of_the_share_below_and_the_default_minimum(sample_repor
     assert not any("default" in p or "--min" in p for p in sample_report.to_dict()["interpretation"])
     # the fact that it was the default stays in the settings (line and JSON)
     assert sample_report.minimum_default and sample_report.to_dict()["settings"]["minimum_default"]
-    from agree.output.report import _settings_line
-    assert "minimum .800 (the default: no minimum was given)" in _settings_line(sample_report)
+    from agree.output.report import settings_line
+    assert "minimum .800 (the default: no minimum was given)" in settings_line(sample_report)
     given = build_report(_sample_round2(), n_resamples=0, seed=1, minimum=0.8)
     assert not given.minimum_default
-    assert "default" not in _settings_line(given)
+    assert "default" not in settings_line(given)
     assert "set at .800 because [why this minimum]" in given.to_dict()["methods"]
 
 
@@ -494,7 +494,7 @@ def test_prevalence_caution_names_only_the_coefficients_shown(sample_report):
 
 
 def test_coefficients_table_note_says_which_se_is_analytic_and_which_bootstrap(sample_report):
-    from agree.output.report import _se_note, result_label
+    from agree.output.report import result_label, se_note
 
     note = {t.key: t for t in report_tables(sample_report)}["coefficients"].note
     for r in sample_report.coefficients:
@@ -507,7 +507,7 @@ def test_coefficients_table_note_says_which_se_is_analytic_and_which_bootstrap(s
     analytic = [r for r in sample_report.coefficients if r.se_method and not r.se_method.startswith("bootstrap")]
     assert boot and analytic                  # α's SE is a bootstrap SD; the kappas' are analytic
     assert "*SE*: analytic for" in note and "the bootstrap standard deviation for Krippendorff's α" in note
-    assert _se_note([], "nominal") == "*SE*: none computed."
+    assert se_note([], "nominal") == "*SE*: none computed."
 
 
 def test_per_code_table_shows_the_one_sided_bound_rounded_down(sample_report):
