@@ -420,3 +420,21 @@ def test_position_units_feed_the_diagnostics_when_small():
     d = P.position_units(sp)
     diag = diagnose_codes(d, n_resamples=0)
     assert set(diag.to_frame()["code"]) >= {"x", "y"}
+
+
+def test_spans_read_from_a_table_give_the_same_figures(tmp_path):
+    """The reader's SpanData and the same spans built directly give the same view-2 figures."""
+    import agree
+
+    text = "Ann: I like the garden. It is calm.\n\nBob: The rent is too high! We moved.\n"
+    (tmp_path / "docs").mkdir()
+    (tmp_path / "docs" / "d1.txt").write_text(text, encoding="utf-8")
+    (tmp_path / "spans.csv").write_text("document,coder,code,start,end\nd1,A,x,5,23\nd1,B,x,5,35\nd1,B,y,42,60\n",
+                                        encoding="utf-8")
+    read = agree.read_spans(tmp_path / "spans.csv", documents_dir=tmp_path / "docs")
+    direct = make([text], [(0, 0, 0, 5, 23), (0, 1, 0, 5, 35), (0, 1, 1, 42, 60)])
+    a, b = P.position_agreement(read, n_resamples=0), P.position_agreement(direct, n_resamples=0)
+    assert a.overall.estimate == pytest.approx(b.overall.estimate)
+    for code in ("x", "y"):
+        assert a.per_code[code]["krippendorff_alpha"].estimate == pytest.approx(
+            b.per_code[code]["krippendorff_alpha"].estimate, nan_ok=True)
