@@ -32,8 +32,10 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 import pandas as pd
 
+from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_RESAMPLES
 from agree.core.model import AgreeError, CodingData, ReadReport, value_sort_key
 from agree.core.results import AgreementResult, Note, display_name, json_safe
+from agree.core.seeds import draw_seed
 from agree.core.spans import SpanData
 from agree.stats import coefficients as coef
 from agree.stats.intervals import expand_ranges, overlap_pairs
@@ -709,8 +711,8 @@ def _kappa(d: CodingData):
 
 
 def position_agreement(spans: SpanData, *, coders: Sequence[int | str] | None = None, documents: str = "all",
-                       distance: str = "masi", min_jaccard: float = MATCH_JACCARD, confidence_level: float = 0.95,
-                       n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+                       distance: str = "masi", min_jaccard: float = MATCH_JACCARD, confidence_level: float = DEFAULT_CONFIDENCE,
+                       n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
                        minimum: float | None = None) -> PassageAgreement:
     """View 2 (the default view): agreement with every position (character or token) as a unit.
 
@@ -734,7 +736,7 @@ def position_agreement(spans: SpanData, *, coders: Sequence[int | str] | None = 
     view = _view_name("positions", sp, n_docs=sp.n_documents, resampled=resampled)
     opts = dict(_options(locals()), cluster="document")
     if seed is None and n_resamples:
-        opts["seed"] = int(np.random.SeedSequence().generate_state(1)[0])
+        opts["seed"] = draw_seed()
     caution = Note("positions-not-independent", POSITION_CAUTION)
     notes = [_view_note(view), caution, *(Note("documents", n) for n in sp.notes)]
     per_code: dict[str, dict[str, AgreementResult]] = {}
@@ -759,8 +761,8 @@ def position_agreement(spans: SpanData, *, coders: Sequence[int | str] | None = 
 def segment_agreement(spans: SpanData, *, by: str = "paragraph", segments: Any = None,
                       min_cover: float = DEFAULT_MIN_COVER, cover: str = "either",
                       coders: Sequence[int | str] | None = None, documents: str = "all", distance: str = "masi",
-                      resample: str = "documents", confidence_level: float = 0.95, n_resamples: int = 2000,
-                      ci_method: str = "bca", seed: Any = None, minimum: float | None = None) -> PassageAgreement:
+                      resample: str = "documents", confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES,
+                      ci_method: str = DEFAULT_CI_METHOD, seed: Any = None, minimum: float | None = None) -> PassageAgreement:
     """View 1: agreement with segments of the text as units (`segment_units`).
 
     All codes together: set-valued Krippendorff's alpha (MASI or Jaccard). Per code: alpha and kappa
@@ -779,7 +781,7 @@ def segment_agreement(spans: SpanData, *, by: str = "paragraph", segments: Any =
         view += ", segments resampled"
     opts = dict(_options(locals()), cluster="document" if resample == "documents" else None)
     if seed is None and n_resamples:
-        opts["seed"] = int(np.random.SeedSequence().generate_state(1)[0])
+        opts["seed"] = draw_seed()
     overall = _with_view(coef.krippendorff_alpha(d, distance=distance, **opts), view)
     per_code: dict[str, dict[str, AgreementResult]] = {}
     for code in d.categories:  # a loop over codes
@@ -802,8 +804,8 @@ def segment_agreement(spans: SpanData, *, by: str = "paragraph", segments: Any =
                             notes=tuple(notes), data=d)
 
 
-def unitizing_agreement(spans: SpanData, *, coders: Sequence[int | str] | None = None, confidence_level: float = 0.95,
-                        n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+def unitizing_agreement(spans: SpanData, *, coders: Sequence[int | str] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+                        n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
                         minimum: float | None = None) -> PassageAgreement:
     """View 3: Krippendorff's alpha for unitizing, per code and all codes together -- EXPERIMENTAL
     (`agree.stats.unitizing`: partly from memory, not checked against a published worked example).

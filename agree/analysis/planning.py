@@ -37,10 +37,13 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
+from agree.core.constants import DEFAULT_CONFIDENCE, DEFAULT_MINIMUM
 from agree.core.format import decision_sentence, percent_label  # noqa: F401 (decision_sentence: part of the planning API)
 from agree.core.model import AgreeError
 from agree.core.results import Note, json_safe
-from agree.stats.coefficients import alpha_from_coincidence, alpha_from_sums, level_delta, ordinal_delta
+from agree.core.seeds import resolve_seed
+from agree.stats.kernels import alpha_finish, coincidence_contributions, coincidence_features, delta_for, ordinal_delta
+from agree.stats.patterns import compress
 
 PLAN_LEVELS = ("nominal", "ordinal", "interval")
 
@@ -186,7 +189,7 @@ class Plan:
 # ---------------------------------------------------------------------------------------
 
 def _pattern_ids(codes: np.ndarray, q: int) -> tuple[np.ndarray, np.ndarray]:
-    """Map each unit's multiset of values to a pattern.
+    """Map each unit's multiset of values to a pattern (`agree.stats.patterns.compress`).
 
     Parameters
     ----------
@@ -196,62 +199,27 @@ def _pattern_ids(codes: np.ndarray, q: int) -> tuple[np.ndarray, np.ndarray]:
     Returns
     -------
     ids : codes.shape[:-1] int array, the pattern of each unit. Patterns are numbered by
-        decreasing frequency (so multinomial draws stop early); every unit with fewer than two
-        values (unpairable, no contribution to alpha) shares one pattern.
+        decreasing frequency (so multinomial draws stop early; ties by their sorted values, the
+        last most significant, missing last); every unit with fewer than two values
+        (unpairable, no contribution to alpha) shares one pattern.
     r : (P, q) value counts r_pc of each pattern.
     """
     m = codes.shape[-1]
     flat = codes.reshape(-1, m)
-    # Missing sorts last as q; the sorted row, read in base q+1, is the pattern key.
-    rows = np.sort(np.where(flat < 0, q, flat), axis=1).astype(np.int64)
-    rows[(flat >= 0).sum(axis=1) < 2] = q
-    if m * math.log2(q + 1) < 62:
-        key = rows @ ((q + 1) ** np.arange(m, dtype=np.int64))
-        _, first, inverse, freq = np.unique(key, return_index=True, return_inverse=True,
-                                            return_counts=True)
-    else:
-        _, first, inverse, freq = np.unique(rows, axis=0, return_index=True, return_inverse=True,
-                                            return_counts=True)
-    order = np.argsort(-freq, kind="stable")
+    unpairable = (flat >= 0).sum(axis=1) < 2
+    pat = compress(np.where(unpairable[:, None], -1, flat), q, ordered=False, keep_inverse=True)
+    rows = np.sort(np.where(pat.codes < 0, q, pat.codes), axis=1)
+    order = np.lexsort((*rows.T, -pat.counts))
     rank = np.empty_like(order)
     rank[order] = np.arange(len(order))
-    reps = rows[first[order]]
-    r = (reps[:, :, None] == np.arange(q)[None, None, :]).sum(axis=1)
-    return rank[inverse.ravel()].reshape(codes.shape[:-1]), r
-
-
-def _pattern_coincidences(r: np.ndarray) -> np.ndarray:
-    """Each pattern's contribution to the coincidence matrix.
-
-    Notes
-    -----
-    A unit with value counts r_u (q,) and m_u = sum r_u >= 2 values adds
-
-        (r_u r_uᵀ - diag(r_u)) / (m_u - 1)
-
-    to o (Krippendorff 2011; METHODS 4.1); units with m_u < 2 add nothing. So for a data set
-    with pattern counts c (P,), o = sum_p c_p O_p: linear in the counts.
-    """
-    r = np.asarray(r, dtype=float)
-    m_u = r.sum(axis=1)
-    outer = r[:, :, None] * r[:, None, :] - r[:, :, None] * np.eye(r.shape[1])[None]
-    scale = np.where(m_u >= 2, 1.0 / np.maximum(m_u - 1, 1), 0.0)
-    return outer * scale[:, None, None]
-
-
-def _level_delta(level: str, q: int) -> np.ndarray | None:
-    """The fixed δ of a level (interval: scores 1..q); None for ordinal (it needs margins)."""
-    if level == "ordinal":
-        return None
-    if level in ("nominal", "interval"):
-        return level_delta(level, np.arange(1, q + 1))
-    raise ValueError(f"unsupported level {level!r}")
+    return rank[pat.inverse].reshape(codes.shape[:-1]), pat.value_counts()[order]
 
 
 def _alpha_from_counts(counts: np.ndarray, coincidences: np.ndarray, level: str) -> np.ndarray:
     """Alpha for many data sets at once from their pattern counts.
 
-    counts : (..., P) pattern counts; coincidences : (P, q, q) from `_pattern_coincidences`.
+    counts : (..., P) pattern counts; coincidences : (P, q, q), each pattern's contribution
+    (`agree.stats.kernels.coincidence_contributions`); interval scores are 1..q.
 
     Notes
     -----
@@ -259,15 +227,8 @@ def _alpha_from_counts(counts: np.ndarray, coincidences: np.ndarray, level: str)
     sum o δ and the margins n_c are needed, so each pattern is reduced to q + 1 numbers
     first. The ordinal δ is recomputed from each data set's own margins (METHODS 4.3, 7.2).
     """
-    P, q, _ = coincidences.shape
-    counts = np.asarray(counts, dtype=float)
-    delta = _level_delta(level, q)
-    if delta is None:
-        o = (counts @ coincidences.reshape(P, q * q)).reshape(counts.shape[:-1] + (q, q))
-        return alpha_from_coincidence(o, None)
-    reduced = np.column_stack([(coincidences * delta).sum(axis=(1, 2)), coincidences.sum(axis=2)])
-    sums = counts @ reduced
-    return alpha_from_sums(sums[..., 0], sums[..., 1:], delta)
+    delta = delta_for(level, scores=np.arange(1, coincidences.shape[-1] + 1))
+    return alpha_finish(np.asarray(counts, dtype=float) @ coincidence_features(coincidences, delta), delta)
 
 
 def _lower_quantile(values: np.ndarray, prob: float) -> np.ndarray:
@@ -430,7 +391,7 @@ def _population_alpha(pair_probs: np.ndarray, level: str) -> float:
     α = 1 - sum P_ck δ_ck / sum π_c π_k δ_ck with π the margins (n → ∞ in METHODS 4.2).
     """
     margins = pair_probs.sum(axis=1)
-    delta = _level_delta(level, len(margins))
+    delta = delta_for(level, scores=np.arange(1, len(margins) + 1))
     if delta is None:
         delta = ordinal_delta(margins)
     return float(1.0 - (pair_probs * delta).sum() / (np.outer(margins, margins) * delta).sum())
@@ -716,10 +677,10 @@ def _validate(coders, expected, minimum, level, confidence_level, assurance, mis
                          problems=problems)
 
 
-def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
+def plan_sample(*, coders: int, expected: float, minimum: float = DEFAULT_MINIMUM,
                 categories: int | None = None, shares: Sequence[float] | None = None,
                 rarest: float | None = None, level: str = "nominal",
-                confidence_level: float = 0.95, assurance: float = 0.80, missing: float = 0.0,
+                confidence_level: float = DEFAULT_CONFIDENCE, assurance: float = 0.80, missing: float = 0.0,
                 seed: int | None = None, replicates: int = 500, n_resamples: int = 500,
                 min_units: int = 20, max_units: int = 2000, corpus_size: int | None = None,
                 refine_steps: int = 3, progress: Any = None) -> Plan:
@@ -767,9 +728,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
               replicates, n_resamples, min_units, max_units, corpus_size)
     shares_arr = resolve_shares(categories=categories, shares=shares, rarest=rarest)
     q = len(shares_arr)
-    if seed is None:
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
-    seed = int(seed)
+    seed = resolve_seed(seed)
     notes: list[Note] = []
 
     model, population_alpha = _build_model(level, shares_arr, int(coders), expected, missing)
@@ -777,7 +736,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
     codes = model.simulate(sim_rng, replicates, max_units)
     ids, r = _pattern_ids(codes, q)
     del codes
-    coincidences = _pattern_coincidences(r)
+    coincidences = coincidence_contributions(r)
     P = len(r)
 
     results: dict[int, tuple[int, float]] = {}
@@ -875,7 +834,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = 0.800,
     worst_undefined = max(u for _, u in results.values())
     if worst_undefined > 0.01:
         notes.append(Note("plan-undefined-replicates",
-                          f"Up to {worst_undefined:.1%} of bootstrap replicates had undefined alpha "
+                          f"Up to {percent_label(worst_undefined, 1)} of bootstrap replicates had undefined alpha "
                           "(no variation) at the smaller sample sizes; they were left out."))
     notes.append(Note("plan-model-assumption",
                       "The plan assumes coders who agree as in the simulation model (no systematic "

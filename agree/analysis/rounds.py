@@ -34,12 +34,13 @@ from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 
+from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_MINIMUM, DEFAULT_RESAMPLES, MIN_UNITS_PER_CODE, TENTATIVE
+from agree.core.format import percent_label
 from agree.core.model import AgreeError, CodingData, as_coding_data
 from agree.core.results import AgreementResult, Note, json_safe
+from agree.core.seeds import child_seed, draw_seed
 from agree.io.codebook import as_codebook
 from agree.stats.resampling import check_settings
-
-TENTATIVE = 0.667
 
 
 @dataclass(frozen=True)
@@ -190,7 +191,7 @@ class RoundsResult:
     warnings: tuple[Note, ...] = ()
     cluster: str | None = None
     n_clusters: Mapping[str, int] | None = None
-    min_units_per_code: int = 5
+    min_units_per_code: int = MIN_UNITS_PER_CODE
 
     @property
     def final_round(self) -> str:
@@ -359,7 +360,7 @@ def _change_line(ch: RoundChange, digits: int) -> str:
     verdict = "larger than sampling noise" if ch.beyond_noise else "within sampling noise"
     return (f"From {round_name(ch.from_round)} to {round_name(ch.to_round)}, α {direction} by "
             f"{format_value(abs(ch.difference), 'coefficient', digits)} (difference "
-            f"{format_value(ch.difference, 'coefficient', digits)}, {ch.confidence_level:.0%} CI "
+            f"{format_value(ch.difference, 'coefficient', digits)}, {percent_label(ch.confidence_level)} CI "
             f"{format_interval(ch.ci_low, ch.ci_high, digits)}): {verdict}.")
 
 
@@ -390,10 +391,6 @@ def split_rounds(data: CodingData, round_column: str = "round") -> dict[str, Cod
                          hint="fill in the round of every unit", code="round-missing")
     labels = labels.astype(str)
     return {name: data.subset(labels == name) for name in _natural_round_names(labels)}
-
-
-def _child_seed(master: int, *keys: int) -> int:
-    return int(np.random.SeedSequence([master, *keys]).generate_state(1)[0])
 
 
 def _replicates(result: AgreementResult, n_resamples: int) -> np.ndarray:
@@ -465,10 +462,10 @@ def _definition_changes(order: Sequence[str], measured: Mapping[str, set[str]],
 
 
 def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str | None = None,
-                   minimum: float = 0.8, n_resamples: int = 2000, seed: int | None = None,
-                   confidence_level: float = 0.95, codebooks: Mapping[str, Any] | None = None,
-                   drift_round: str | None = None, round_column: str = "round", ci_method: str = "bca",
-                   cluster: str | None = None, min_units_per_code: int = 5,
+                   minimum: float = DEFAULT_MINIMUM, n_resamples: int = DEFAULT_RESAMPLES, seed: int | None = None,
+                   confidence_level: float = DEFAULT_CONFIDENCE, codebooks: Mapping[str, Any] | None = None,
+                   drift_round: str | None = None, round_column: str = "round", ci_method: str = DEFAULT_CI_METHOD,
+                   cluster: str | None = None, min_units_per_code: int = MIN_UNITS_PER_CODE,
                    progress: Callable[[str, float], None] | None = None) -> RoundsResult:
     """Agreement per coding round, changes between rounds, definition changes and drift.
 
@@ -551,7 +548,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
     distance = "masi" if set_valued else None
     alpha_level = "nominal" if set_valued else level
     if seed is None:
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
+        seed = draw_seed()
     codes: dict[str, None] = {}
     for d in parts.values():
         for c in d.categories:
@@ -567,7 +564,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
     step = 0
     for i, name in enumerate(order):
         d = parts[name]
-        s0 = _child_seed(seed, i, 0)
+        s0 = child_seed(seed, i, 0)
         groups = None if cluster is None else np.asarray(d.columns[cluster]).astype(str)
         # the figure shown uses `seed` itself, so it equals `agree score` on the same round; the
         # differences between rounds need independent resamples, drawn with a seed per round
@@ -597,7 +594,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         for j, code in enumerate(code_list, start=1):
             if code in by_label:
                 binary = d.presence(by_label[code])
-                sj = _child_seed(seed, i, j)
+                sj = child_seed(seed, i, j)
                 independent = krippendorff_alpha(binary, level="nominal", seed=sj, cluster=groups, **opts)
                 if n_resamples:
                     reps[(name, code)] = _replicates(independent, n_resamples)

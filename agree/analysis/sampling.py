@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.model import AgreeError, cell_location, normalise_value
+from agree.core.seeds import resolve_seed
 from agree.io.codebook import read_codebook
 from agree.io.columns import LIST_ID_NAMES, LIST_TEXT_NAMES, find_column
 from agree.io.lists import id_key as _id_key
@@ -172,9 +173,7 @@ def draw_sample(corpus: pd.DataFrame, n: int, *, stratify: str | None = None,
                              hint=f"draw at most {len(eligible)}")
         raise AgreeError(f"cannot draw {n} units from a list of {total}", code="sample-too-large",
                          hint=f"draw at most {total}")
-    if seed is None:
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
-    seed = int(seed)
+    seed = resolve_seed(seed)
     rng = np.random.default_rng(seed)
 
     allocation: dict[str, int] | None = None

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import contextlib
 import json
-import math
 import sys
 from typing import Any, Iterable, Iterator
 
@@ -91,11 +90,12 @@ def signed(x: Any, digits: int = DIGITS) -> str:
     return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
 
 
-def percent(x: Any) -> str:
-    """A share as a whole percentage; '–' when undefined."""
-    if x is None or (isinstance(x, float) and not math.isfinite(x)):
-        return "–"
-    return f"{100 * x:.0f}%"
+def percent(x: Any, digits: int | None = 0) -> str:
+    """A share as a percentage, whole by default (`agree.core.format.percent_label`; None for
+    as many decimals as needed, as for confidence levels: 97.5%); '–' when undefined."""
+    from agree.core.format import percent_label
+
+    return percent_label(x, digits)
 
 
 def print_notes(notes: Iterable[Any]) -> None:

@@ -81,7 +81,7 @@ def _coders_table(result: "CoderDiagnostics") -> None:
     stdout.print(ptable)
     frame = result.to_frame()
     if frame.alpha_without.notna().any():
-        level = f"{result.confidence_level:.0%} CI of change"
+        level = f"{percent(result.confidence_level, None)} CI of change"
         ltable = Table(title="Krippendorff's α with each coder left out (a positive change: the coder lowers it)")
         for name in ["coder", "α without", "change", level]:
             ltable.add_column(name, justify="left" if name == "coder" else "right")

@@ -95,7 +95,7 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
     from agree.core.format import format_bound, format_interval, format_value
 
     frame = result.to_frame()
-    level = f"{result.confidence_level:.0%} CI"
+    level = f"{percent(result.confidence_level, None)} CI"
     interval = ("" if result.alpha_ci_low is None else
                 f" {format_interval(result.alpha_ci_low, result.alpha_ci_high, DIGITS)}")
     stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {coefficient(result.alpha)}{interval}", highlight=False)

@@ -28,13 +28,12 @@ from typing import TYPE_CHECKING, Annotated, Any, Optional, Sequence
 import typer
 
 from agree.cli.app import note
+from agree.core.constants import DEFAULT_RESAMPLES as DEFAULT_BOOT  # noqa: F401 (the commands' defaults)
+from agree.core.constants import DEFAULT_SEED  # noqa: F401
 from agree.core.errors import AgreeError
 
 if TYPE_CHECKING:
     from agree.core.model import CodingData
-
-DEFAULT_BOOT = 2000
-DEFAULT_SEED = 1
 
 
 class TableFormat(str, Enum):

@@ -10,7 +10,7 @@ import typer
 from rich.table import Table
 from rich.text import Text
 
-from agree.cli.app import app, note, print_json, progress_bar, stdout
+from agree.cli.app import app, note, percent, print_json, progress_bar, stdout
 from agree.cli.options import ResultFormatOption, SummaryFormat
 from agree.core.errors import AgreeError
 
@@ -95,12 +95,12 @@ def print_plan(p: "Plan") -> None:
         head = f"More than {i['max_units']} units would be needed (see the warnings)."
     else:
         head = (f"Units needed: {p.units_needed}, each coded by every coder. With them the one-sided "
-                f"{i['confidence_level']:.0%} lower bound of {i['level']} alpha exceeds "
-                f"{_num(i['minimum'])} with probability {i['assurance']:.0%}, if the coders reach "
+                f"{percent(i['confidence_level'], None)} lower bound of {i['level']} alpha exceeds "
+                f"{_num(i['minimum'])} with probability {percent(i['assurance'], None)}, if the coders reach "
                 f"alpha = {_num(i['expected'])}.")
     stdout.print(head, highlight=False)
     stdout.print(f"Inputs: {i['coders']} coders; {i['categories']} categories with shares {shares}; "
-                 f"missing {i['missing']:.0%}.", highlight=False)
+                 f"missing {percent(i['missing'], None)}.", highlight=False)
     stdout.print(Text("Model: " + p.model))
     stdout.print(Text(p.interval))
     stdout.print(f"Smoothing: {p.smoothing}. Seed {p.seed}.", highlight=False)

@@ -8,7 +8,7 @@ from typing import Annotated, Any, Optional
 import typer
 from rich.table import Table
 
-from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
+from agree.cli.app import app, note, percent, print_json, progress_bar, scaled, stdout
 from agree.cli.options import (
     DEFAULT_BOOT,
     DEFAULT_SEED,
@@ -129,7 +129,7 @@ def _print_coefficients(result: Any) -> None:
     from agree.output.report import result_label
 
     table = Table(title=result.title, title_justify="left")
-    for header in ("Coefficient", "Estimate", "SE", f"{result.confidence_level:.0%} CI",
+    for header in ("Coefficient", "Estimate", "SE", f"{percent(result.confidence_level, None)} CI",
                    f"P(below {format_value(result.minimum, 'threshold')})", "n units"):
         table.add_column(header, justify="left" if header == "Coefficient" else "right")
     dg = result.digits

@@ -8,7 +8,7 @@ from typing import Annotated, Any, Optional
 import typer
 from rich.table import Table
 
-from agree.cli.app import app, note, print_json, progress_bar, stdout
+from agree.cli.app import app, note, percent, print_json, progress_bar, stdout
 from agree.cli.options import (
     DEFAULT_BOOT,
     DEFAULT_SEED,
@@ -156,7 +156,7 @@ def _print_rounds(result: Any) -> None:
 
     minimum = format_value(result.minimum, "threshold")
     table = Table(title=f"Agreement per round (Krippendorff's α, {result.level})", title_justify="left")
-    for header in ("Round", "Units", "α", f"{result.confidence_level:.0%} CI", f"P(below {minimum})",
+    for header in ("Round", "Units", "α", f"{percent(result.confidence_level, None)} CI", f"P(below {minimum})",
                    f"Codes below {minimum}"):
         table.add_column(header, justify="left" if header in ("Round", f"Codes below {minimum}") else "right")
     for r in result.rounds:

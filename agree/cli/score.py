@@ -10,7 +10,7 @@ from typing import TYPE_CHECKING, Annotated
 import typer
 from rich.table import Table
 
-from agree.cli.app import app, note, print_json, progress_bar, scaled, stdout
+from agree.cli.app import app, note, percent, print_json, progress_bar, scaled, stdout
 from agree.cli.options import (
     DEFAULT_BOOT,
     DEFAULT_SEED,
@@ -99,7 +99,7 @@ def score_csv(result: "ScoreResult") -> str:
 def print_score(result: "ScoreResult") -> None:
     from agree.core.format import format_interval, format_value, result_label
 
-    pct = f"{result.confidence_level:.0%}"
+    pct = percent(result.confidence_level, None)
     title = (f"Agreement: {result.units_used} units, {len(result.coders)} coders "
              f"({', '.join(result.coders)}), level {result.level}")
     table = Table(title=title, title_justify="left")

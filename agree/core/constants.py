@@ -2,3 +2,28 @@
 the analysis options, so that no two modules can disagree about them."""
 
 VERSION = "0.1.0"
+
+# -- conventional thresholds (conventions, not laws: every output says so) ------------------
+#: The minimum alpha when none is given: Krippendorff's (2004) convention for relying on a variable.
+DEFAULT_MINIMUM = 0.8
+#: Krippendorff's (2004) lower limit for tentative conclusions.
+TENTATIVE = 0.667
+#: Fewer pairable units than this: intervals are wide and benchmarks hard to judge (common practice).
+FEW_UNITS = 30
+#: Fewer resampled groups than this: cluster-bootstrap intervals are rough (common practice).
+FEW_CLUSTERS = 20
+#: A code used on fewer pairable units than this is too rare to judge (common practice).
+MIN_UNITS_PER_CODE = 5
+
+# -- defaults of the analysis options, the same in every library function and command -------
+#: Bootstrap replicates (units resampled with all their values).
+DEFAULT_RESAMPLES = 2000
+#: Confidence level of intervals and of the one-sided lower bound.
+DEFAULT_CONFIDENCE = 0.95
+#: Bootstrap interval method.
+DEFAULT_CI_METHOD = "bca"
+#: The seed the commands use unless told otherwise (the library draws and records one when
+#: given seed=None), so every command repeats exactly.
+DEFAULT_SEED = 1
+#: Distance between sets of codes (several codes per unit and coder) unless another is asked for.
+DEFAULT_SET_DISTANCE = "masi"

@@ -48,7 +48,7 @@ def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
     if kind == "amount":
         return f"{int(v):,}" if v.is_integer() else f"{v:,.1f}"
     if kind == "percent":
-        return f"{100 * v:.1f}%"
+        return percent_label(v, 1)
     if kind == "probability":
         if 0 < v < 0.001:
             return "< .001"
@@ -203,9 +203,20 @@ def notebook_html(summary: str, frame: "pd.DataFrame", *, notes: Sequence[str] =
 # -- the decision against a minimum ------------------------------------------------------
 
 
-def percent_label(level: float) -> str:
-    """0.95 -> '95%', 0.975 -> '97.5%'."""
-    return f"{round(level * 100, 4):g}%"
+def percent_label(share: Any, digits: int | None = None) -> str:
+    """A share (0..1) as a percentage, the one percent format of every output.
+
+    With ``digits=None`` as many decimals as the number needs (confidence levels: 0.95 ->
+    ``95%``, 0.975 -> ``97.5%``); otherwise that many (``percent_label(0.8426, 0)`` ->
+    ``84%``). None and NaN give an en dash."""
+    if share is None or isinstance(share, str):
+        return format_value(share)
+    v = float(share)
+    if not math.isfinite(v):
+        return "–"
+    if digits is None:
+        return f"{round(v * 100, 4):g}%"
+    return f"{100 * v:.{digits}f}%"
 
 
 def _apa(x: float, digits: int) -> str:

@@ -129,7 +129,7 @@ class AgreementResult:
     def _repr_html_(self) -> str:
         import pandas as pd
 
-        from agree.core.format import notebook_html
+        from agree.core.format import notebook_html, percent_label
 
         row = {"estimate": self.estimate, "se": self.se, "ci_low": self.ci_low, "ci_high": self.ci_high,
                "n_units": self.n_units, "n_coders": self.n_coders}
@@ -137,6 +137,6 @@ class AgreementResult:
             row.update(minimum=self.minimum, p_below_min=self.p_below_min, lower_bound=self.lower_bound)
         how = [f"level {self.level}" if self.level else "", f"{self.weights} weights" if self.weights else "",
                f"SE: {self.se_method}" if self.se_method else "",
-               f"{self.confidence_level:.0%} CI: {self.ci_method}" if self.ci_method else ""]
+               f"{percent_label(self.confidence_level)} CI: {self.ci_method}" if self.ci_method else ""]
         summary = display_name(self.name) + ": " + "; ".join(h for h in how if h)
         return notebook_html(summary, pd.DataFrame([row]), notes=[w.message for w in self.warnings])

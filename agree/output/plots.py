@@ -29,7 +29,9 @@ from matplotlib.figure import Figure  # noqa: E402  (after choosing the backend)
 from matplotlib.patches import Rectangle  # noqa: E402
 from matplotlib.ticker import FixedLocator, NullFormatter, ScalarFormatter  # noqa: E402
 
+from agree.core.constants import TENTATIVE  # noqa: E402
 from agree.core.files import atomic_write  # noqa: E402
+from agree.core.format import percent_label  # noqa: E402
 
 # Okabe & Ito (2008), "Color universal design": black first, then the seven colours.
 OKABE_ITO = ("#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7")
@@ -39,7 +41,6 @@ LINESTYLES = ("-", "--", "-.", ":")
 
 AGREEMENT_RANGE = (-0.2, 1.0)
 WIDE_AGREEMENT_RANGE = (-1.0, 1.0)
-TENTATIVE = 0.667  # Krippendorff's limit for tentative conclusions
 
 
 def agreement_range(values: Sequence[float | None]) -> tuple[float, float]:
@@ -140,7 +141,7 @@ def forest_plot(labels: Sequence[Any], estimates: Sequence[float | None],
     ax.set_xlim(lo, hi + 0.04)  # headroom so a marker at 1 is not clipped
     ax.set_ylim(-0.7, n - 0.3)
     ax.set_yticks(ys, [_short(x) for x in labels])
-    ax.set_xlabel(f"{symbol} with {confidence_level:.0%} confidence interval "
+    ax.set_xlabel(f"{symbol} with {percent_label(confidence_level)} confidence interval "
                   f"(axis fixed at {lo:g} to {hi:g})")
     ax.set_title(title, fontsize=10)
     ax.grid(axis="x", color="0.9", linewidth=0.6)

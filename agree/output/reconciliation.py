@@ -61,6 +61,7 @@ from agree.core.model import (
     value_sort_key,
 )
 from agree.io.lists import find_records
+from agree.stats.kernels import pair_units, presence
 
 # Column headers of the review file. The workbook is read back by these names, so a team
 # can move or add columns freely.
@@ -365,34 +366,10 @@ PAIRS_NOTE = ("The units column counts the units in which one coder gave code 1 
 
 
 def _pair_units(data: CodingData) -> np.ndarray:
-    """(V, V) integer counts: units in which one coder gave value c and another value k.
-
-    Notes
-    -----
-    With presence G_uc = [some coder of unit u gave c], count_ck = Σ_u G_uc G_uk (c ≠ k), over
-    units with at least two values. For set-valued data X_uic = [coder i applied code c] and
-    count_ck = Σ_u [∃i: X_uic ¬X_uik] [∃j: X_ujk ¬X_ujc]. Unlike the coincidences o_ck (which
-    weigh each unit's pairs by 1 / (m_u - 1)), these are whole units.
-    """
-    codes = data.codes
-    pairable = (codes >= 0).sum(axis=1) >= 2
-    if data.set_valued:
-        cats = list(data.categories)
-        member = np.array([[c in v for c in cats] for v in data.values] + [[False] * len(cats)],
-                          dtype=bool).reshape(len(data.values) + 1, len(cats))
-        x = member[codes[pairable]]                                     # (N, m, C)
-        only = x[:, :, :, None] & ~x[:, :, None, :]                     # coder has c, not k
-        some = only.any(axis=1)                                         # (N, C, C)
-        both = some & np.swapaxes(some, 1, 2)
-        return both.sum(axis=0).astype(np.int64)
-    n_values = len(data.values)
-    given = np.zeros((int(pairable.sum()), n_values + 1), dtype=np.int64)
-    rows, cols = np.nonzero(codes[pairable] >= 0)
-    given[rows, codes[pairable][rows, cols]] = 1
-    given = given[:, :n_values]
-    counts = given.T @ given
-    np.fill_diagonal(counts, 0)
-    return counts
+    """(V, V) integer counts: units (with two or more values) in which one coder gave value c
+    and another value k; for set-valued data, codes (`agree.stats.kernels.pair_units`)."""
+    pairable = (data.codes >= 0).sum(axis=1) >= 2
+    return pair_units(presence(data)[pairable])
 
 
 def _confused_pairs(data: CodingData) -> pd.DataFrame:

@@ -31,6 +31,7 @@ from agree.analysis.sampling import detect_id_column, detect_text_column, stratu
 from agree.core.cells import cell_text, csv_text, put_cell, xml_safe
 from agree.core.files import atomic_write_bytes, atomic_write_text, check_output, make_folder
 from agree.core.model import AgreeError, normalise_value
+from agree.core.seeds import resolve_seed
 
 SHEET_COLUMNS = ("unit_id", "text", "code", "notes")
 _BAD_NAME = re.compile(r'[\\/:*?"<>|\x00-\x1f]')
@@ -238,9 +239,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     make_folder(folder)
 
     seed = sample.attrs.get("seed") if seed is None else seed
-    if seed is None:
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
-    seed = int(seed)
+    seed = resolve_seed(seed)
     if "corpus_row" in sample.columns:
         base_order = np.argsort(sample["corpus_row"].to_numpy(), kind="stable")
     else:

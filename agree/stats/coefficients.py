@@ -34,23 +34,26 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from dataclasses import replace as _replace
-from typing import Any, Callable, Sequence
+from typing import Any, Sequence
 
 import numpy as np
 import pandas as pd
 
+from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_RESAMPLES, FEW_CLUSTERS
 from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, value_label
 from agree.core.registry import references_for
 from agree.core.results import AgreementResult, BootstrapInfo, Note, display_name
+from agree.core.seeds import make_rng
+from agree.stats.kernels import alpha_features, alpha_finish, coincidences, level_delta, set_delta
 from agree.stats.patterns import Patterns, cluster_sums, compress
 from agree.stats.resampling import (
     bootstrap_interval,
     bootstrap_replicates,
     check_settings,
     jackknife_values,
-    make_rng,
     norm_cdf,
     norm_ppf,
+    resolve_clusters,
 )
 
 # ----------------------------------------------------------------------------------------
@@ -113,31 +116,6 @@ def _weight_notes(w: np.ndarray) -> list[Note]:
                  "weighted differently from (l, k). Check that this is intended and report the matrix.")]
 
 
-def _jaccard(a: frozenset, b: frozenset) -> float:
-    if not a and not b:
-        return 0.0
-    return 1.0 - len(a & b) / len(a | b)
-
-
-def _masi(a: frozenset, b: frozenset) -> float:
-    if not a and not b:
-        return 0.0
-    union = a | b
-    jac = len(a & b) / len(union) if union else 1.0
-    if a == b:
-        mono = 1.0
-    elif a <= b or b <= a:
-        mono = 2 / 3
-    elif a & b:
-        mono = 1 / 3
-    else:
-        mono = 0.0
-    return 1.0 - jac * mono
-
-
-SET_DISTANCES: dict[str, Callable[[frozenset, frozenset], float]] = {"jaccard": _jaccard, "masi": _masi}
-
-
 def distance_matrix(data: CodingData, level: Any, distance: str | None = None) -> tuple[np.ndarray | None, str]:
     """δ (V x V) for Krippendorff's alpha, or None for ordinal (it depends on the margins).
 
@@ -170,95 +148,12 @@ def distance_matrix(data: CodingData, level: Any, distance: str | None = None) -
     return level_delta(level, scores), level
 
 
-def level_delta(level: str, scores: np.ndarray) -> np.ndarray:
-    """δ (V x V) for the nominal, interval or ratio metric on values with these scores."""
-    s = np.asarray(scores, dtype=float)
-    if level == "nominal":
-        return 1.0 - np.eye(len(s))
-    if level == "interval":
-        return (s[:, None] - s[None, :]) ** 2
-    if level == "ratio":
-        if (s < 0).any():
-            raise AgreeError("ratio level needs values of zero or more", code="level")
-        total = s[:, None] + s[None, :]
-        safe = np.where(total == 0, 1.0, total)
-        return np.where(total == 0, 0.0, ((s[:, None] - s[None, :]) / safe) ** 2)
-    raise AgreeError(f"no fixed metric for level '{level}'", code="level")
-
-
-def set_delta(name: str, values: Sequence[frozenset]) -> np.ndarray:
-    """δ (V x V) between sets of codes: Jaccard or MASI distance."""
-    if name not in SET_DISTANCES:
-        raise AgreeError(f"distance for sets of codes must be 'jaccard' or 'masi'; got '{name}'", code="level")
-    # vectorised over pairs of sets (same values as SET_DISTANCES): sets as rows of a membership matrix
-    members = sorted({c for v in values for c in v}, key=str)
-    where = {c: k for k, c in enumerate(members)}
-    M = np.zeros((len(values), len(members)))
-    for i, v in enumerate(values):  # a loop over the distinct sets
-        M[i, [where[c] for c in v]] = 1.0
-    size = M.sum(axis=1)
-    inter = M @ M.T
-    union = size[:, None] + size[None, :] - inter
-    jac = np.where(union > 0, inter / np.where(union > 0, union, 1.0), 1.0)
-    if name == "jaccard":
-        return 1.0 - jac
-    equal = (inter == size[:, None]) & (inter == size[None, :])
-    nested = (inter == np.minimum(size[:, None], size[None, :]))
-    mono = np.where(equal, 1.0, np.where(nested, 2 / 3, np.where(inter > 0, 1 / 3, 0.0)))
-    return 1.0 - jac * mono
-
-
 def _is_number(v: Any) -> bool:
     try:
         float(v)
         return True
     except (TypeError, ValueError):
         return False
-
-
-def ordinal_delta(margins: np.ndarray) -> np.ndarray:
-    """Krippendorff's ordinal metric from coincidence margins n_g, shape (..., V) -> (..., V, V):
-    δ_ck = (sum_{g=c..k} n_g - (n_c + n_k)/2)^2."""
-    cum = np.cumsum(margins, axis=-1)
-    V = margins.shape[-1]
-    lo = np.minimum.outer(np.arange(V), np.arange(V))
-    hi = np.maximum.outer(np.arange(V), np.arange(V))
-    span = cum[..., hi] - cum[..., lo] + margins[..., lo]
-    return (span - (margins[..., :, None] + margins[..., None, :]) / 2.0) ** 2
-
-
-def alpha_from_sums(observed: np.ndarray, margins: np.ndarray, delta: np.ndarray) -> np.ndarray:
-    """α from the observed-disagreement sum Σ o_ck δ_ck (...) and the coincidence margins
-    n_c (..., V) for a fixed δ (V, V): α = 1 - (n - 1) Σ o δ / Σ n_c n_k δ. NaN where
-    undefined (no pairable values, or no expected disagreement)."""
-    n = margins.sum(axis=-1)
-    expected = ((margins @ delta) * margins).sum(axis=-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        alpha = 1.0 - (n - 1.0) * observed / expected
-    return np.where((expected > 0) & (n > 1), alpha, np.nan)
-
-
-def alpha_from_coincidence(o: np.ndarray, delta: np.ndarray | None) -> np.ndarray:
-    """α for coincidence matrices o of shape (..., V, V); `delta` is (V, V), or None for the
-    ordinal metric, which depends on the margins of each o.
-
-    Notes
-    -----
-    With mid-rank scores u_c = Σ_{g<c} n_g + n_c / 2 the ordinal δ_ck equals (u_c - u_k)²
-    (`ordinal_delta`), so ordinal α is interval α on u and needs no V x V metric:
-    Σ o δ = 2 Σ_c n_c u_c² - 2 uᵀ o u and Σ n_c n_k δ = 2 n Σ_c n_c u_c² - 2 (Σ_c n_c u_c)².
-    """
-    if delta is not None:
-        return alpha_from_sums((o * delta).sum(axis=(-2, -1)), o.sum(axis=-1), delta)
-    margins = o.sum(axis=-1)
-    n = margins.sum(axis=-1)
-    u = np.cumsum(margins, axis=-1) - margins / 2.0
-    square = (margins * u * u).sum(axis=-1)
-    observed = 2.0 * square - 2.0 * (np.matmul(o, u[..., None])[..., 0] * u).sum(axis=-1)
-    expected = 2.0 * n * square - 2.0 * (margins * u).sum(axis=-1) ** 2
-    with np.errstate(divide="ignore", invalid="ignore"):
-        alpha = 1.0 - (n - 1.0) * observed / expected
-    return np.where((expected > 1e-9 * np.maximum(n, 1) ** 4) & (n > 1), alpha, np.nan)
 
 
 # ----------------------------------------------------------------------------------------
@@ -302,29 +197,12 @@ def _unit_agreement(R: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarra
 @dataclass
 class _Alpha(_Statistic):
     delta: np.ndarray | None = None  # None -> ordinal
-    V: int = 0
 
     def features(self, pat):
-        R = pat.value_counts()
-        r = R.sum(axis=1)
-        pair = r >= 2
-        scale = _nan_div(pair.astype(float), r - 1)
-        scale = np.where(pair, scale, 0.0)
-        if self.delta is None:
-            o = (R[:, :, None] * R[:, None, :] - R[:, :, None] * np.eye(self.V)[None]) * scale[:, None, None]
-            return o.reshape(len(R), -1)
-        # Σ_ck r_pc δ_ck r_pk as a sum over the pattern's pairs of values: O(P m²), not O(P V²)
-        seen = pat.codes >= 0
-        c = np.where(seen, pat.codes, 0)
-        both = seen[:, :, None] & seen[:, None, :]
-        do = np.where(both, self.delta[c[:, :, None], c[:, None, :]], 0.0).sum(axis=(1, 2)) * scale
-        return np.column_stack([R * pair[:, None], do])
+        return alpha_features(pat.value_counts(), self.delta, codes=pat.codes)
 
     def finish(self, S):
-        V = self.V
-        if self.delta is None:
-            return alpha_from_coincidence(S.reshape(-1, V, V), None)
-        return alpha_from_sums(S[:, V], S[:, :V], self.delta)
+        return alpha_finish(S, self.delta)
 
 
 @dataclass
@@ -531,21 +409,11 @@ def cohen_variances(table: np.ndarray, w: np.ndarray, kappa: float) -> dict[str,
 
 
 def _resolve_clusters(data: CodingData, cluster: Any) -> tuple[np.ndarray | None, str]:
-    if cluster is None:
+    """Cluster labels and the record's name of what was resampled ("unit", "cluster:<column>", "cluster")."""
+    labels, name = resolve_clusters(data, cluster)
+    if labels is None:
         return None, "unit"
-    if isinstance(cluster, str):
-        if cluster not in data.columns:
-            known = ", ".join(data.columns) or "none"
-            raise AgreeError(f"no column '{cluster}' to resample clusters by (columns kept: {known})",
-                             hint="name the column with --cluster when reading the data", code="cluster")
-        return np.asarray(data.columns[cluster]), f"cluster:{cluster}"
-    arr = np.asarray(cluster)
-    if arr.ndim != 1 or len(arr) != data.n_units:
-        raise AgreeError(f"cluster labels: one per unit is needed ({data.n_units}); got an array of shape "
-                         f"{arr.shape}", code="cluster")
-    if any(v is None or (isinstance(v, float) and np.isnan(v)) for v in arr.tolist()):
-        raise AgreeError("cluster labels: every unit needs a group; some labels are missing", code="cluster")
-    return arr, "cluster"
+    return labels, f"cluster:{name}" if isinstance(cluster, str) else "cluster"
 
 
 def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resamples: int,
@@ -601,9 +469,9 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
             se, se_method = iv.se, "bootstrap standard deviation"
         boot = BootstrapInfo(replicates=int(n_resamples), seed=used_seed, method=iv.method,
                              unit=unit_label, n_undefined=iv.n_undefined)
-        if clusters is not None and n_items < 20:
+        if clusters is not None and n_items < FEW_CLUSTERS:
             warnings.append(Note("few-clusters", f"Only {n_items} groups ({unit_label.partition(':')[2] or 'clusters'}) "
-                                 "were resampled; bootstrap intervals from fewer than 20 groups are rough."))
+                                 f"were resampled; bootstrap intervals from fewer than {FEW_CLUSTERS} groups are rough."))
     elif extra.get("wilson"):
         n = extra["n"]
         ci_low, ci_high = _wilson(estimate, n, confidence_level)
@@ -739,9 +607,10 @@ def _prepare(data: Any, categories: Any, *, single: bool = True) -> CodingData:
 
 
 def _options(kw: dict) -> dict:
-    return {"confidence_level": kw.get("confidence_level", 0.95), "n_resamples": kw.get("n_resamples", 2000),
-            "ci_method": kw.get("ci_method", "bca"), "seed": kw.get("seed"), "minimum": kw.get("minimum"),
-            "cluster": kw.get("cluster")}
+    return {"confidence_level": kw.get("confidence_level", DEFAULT_CONFIDENCE),
+            "n_resamples": kw.get("n_resamples", DEFAULT_RESAMPLES),
+            "ci_method": kw.get("ci_method", DEFAULT_CI_METHOD), "seed": kw.get("seed"),
+            "minimum": kw.get("minimum"), "cluster": kw.get("cluster")}
 
 
 def _check_q(d: CodingData, name: str) -> None:
@@ -752,8 +621,8 @@ def _check_q(d: CodingData, name: str) -> None:
 
 @_documented("level")
 def krippendorff_alpha(data: Any, *, level: Any = None, distance: str | None = None,
-                       categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
-                       n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+                       categories: Sequence[Any] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+                       n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
                        minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Krippendorff's alpha for any number of coders, missing values and any metric.
 
@@ -769,7 +638,7 @@ def krippendorff_alpha(data: Any, *, level: Any = None, distance: str | None = N
     """
     d = _prepare(data, categories, single=False)
     delta, label = distance_matrix(d, d.level if level is None else level, distance)
-    stat = _Alpha(name="krippendorff_alpha", delta=delta, V=len(d.values),
+    stat = _Alpha(name="krippendorff_alpha", delta=delta,
                   undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
     notes = _order_notes(d, "The ordinal metric") if label == "ordinal" else []
     res = _run(stat, d, level=label, weights=None, notes=notes, **_options(locals()))
@@ -780,17 +649,14 @@ def coincidence_matrix(data: Any, *, categories: Sequence[Any] | None = None) ->
     """Krippendorff's coincidence matrix o_ck (values x values) over pairable units."""
     d = as_coding_data(data, categories=categories)
     pat = compress(d.codes, len(d.values), ordered=False, weights=d.weights)
-    R = pat.value_counts()
-    r = R.sum(axis=1)
-    scale = np.where(r >= 2, 1.0 / np.maximum(r - 1, 1), 0.0) * pat.counts
-    o = np.einsum("p,pc,pk->ck", scale, R, R) - np.diag(np.sum(scale[:, None] * R, axis=0))
+    o = coincidences(pat.value_counts(), pat.counts)
     labels = [value_label(v) for v in d.values]
     return pd.DataFrame(o, index=labels, columns=labels)
 
 
 @_documented("weights")
 def percent_agreement(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
-                      confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
+                      confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD,
                       seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Observed agreement: the mean over pairable units of the share of agreeing coder pairs.
 
@@ -809,7 +675,7 @@ def percent_agreement(data: Any, *, weights: Any = None, categories: Sequence[An
 
 @_documented("weights")
 def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
-                confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
+                confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD,
                 seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Cohen's kappa (weighted when `weights` is given) for exactly two coders.
 
@@ -855,7 +721,7 @@ def _pi_type(d: CodingData, name: str, kind: str, weights: Any, opts: dict, doc_
 
 @_documented("weights")
 def scott_pi(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
-             confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
+             confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD,
              seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Scott's pi: chance agreement from the coders' pooled category shares.
 
@@ -871,8 +737,8 @@ def scott_pi(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
 
 
 @_documented()
-def fleiss_kappa(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
-                 n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+def fleiss_kappa(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+                 n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
                  minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Fleiss' kappa for several coders, who need not be the same people for every unit.
 
@@ -938,8 +804,8 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
 
 
 @_documented()
-def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
-                 n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+                 n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
                  minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Conger's kappa: Cohen's kappa generalised to m identified coders.
 
@@ -974,7 +840,7 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
 
 @_documented("weights")
 def brennan_prediger(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
-                     confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
+                     confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD,
                      seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Brennan & Prediger's (1981) kappa: chance agreement 1/q (T_w / q² when weighted).
 
@@ -990,7 +856,7 @@ def brennan_prediger(data: Any, *, weights: Any = None, categories: Sequence[Any
 
 @_documented("weights")
 def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None = None,
-             confidence_level: float = 0.95, n_resamples: int = 2000, ci_method: str = "bca",
+             confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD,
              seed: Any = None, minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Gwet's AC1 (AC2 when `weights` is given).
 
@@ -1010,8 +876,8 @@ def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
 
 
 @_documented()
-def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = 0.95,
-          n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+          n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
           minimum: float | None = None, cluster: Any = None) -> AgreementResult:
     """Prevalence- and bias-adjusted kappa for a binary code: PABAK = 2 p_o - 1.
 

@@ -14,6 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from agree.stats.kernels import value_counts
+
 
 @dataclass(frozen=True)
 class Patterns:
@@ -37,9 +39,7 @@ class Patterns:
 
     def value_counts(self) -> np.ndarray:
         """(P, V) counts r_pv: how many coders gave value v in pattern p."""
-        V = self.n_values
-        onehot = self.codes[:, :, None] == np.arange(V)[None, None, :]
-        return onehot.sum(axis=1).astype(float)
+        return value_counts(self.codes, self.n_values)
 
     def coder_onehot(self) -> np.ndarray:
         """(P, m, V) indicator x_pik: coder i gave value k in pattern p."""

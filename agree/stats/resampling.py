@@ -22,8 +22,10 @@ from statistics import NormalDist
 from typing import Any, Callable
 
 import numpy as np
+import pandas as pd
 
-from agree.core.model import AgreeError
+from agree.core.constants import DEFAULT_CI_METHOD
+from agree.core.model import AgreeError, CodingData
 from agree.core.results import Note
 
 Finish = Callable[[np.ndarray], np.ndarray]
@@ -52,7 +54,7 @@ _CHUNK_CELLS = 4_000_000
 
 
 def check_settings(*, n_resamples: Any = 0, confidence_level: Any = 0.95, minimum: Any = None,
-                   ci_method: str = "bca", seed: Any = None) -> None:
+                   ci_method: str = DEFAULT_CI_METHOD, seed: Any = None) -> None:
     """Raise AgreeError for settings out of range, with the codes every command uses: "boot"
     (`n_resamples` not a whole number >= 0), "ci" (`confidence_level` not strictly between 0
     and 1, or an unknown `ci_method`), "minimum" (not a number between -1 and 1), "seed"."""
@@ -72,16 +74,6 @@ def check_settings(*, n_resamples: Any = 0, confidence_level: Any = 0.95, minimu
                          hint="e.g. --min 0.8 (minimum=0.8), not 80", code="minimum")
     if seed is not None and not isinstance(seed, (int, np.integer, np.random.Generator)):
         raise AgreeError(f"the seed must be a whole number; got {seed!r}", code="seed")
-
-
-def make_rng(seed: int | np.random.Generator | None) -> tuple[np.random.Generator, int | None]:
-    """A generator and the seed to record. With seed=None a fresh seed is drawn and recorded,
-    so every interval can be repeated."""
-    if isinstance(seed, np.random.Generator):
-        return seed, None
-    if seed is None:
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
-    return np.random.default_rng(int(seed)), int(seed)
 
 
 def bootstrap_replicates(features: np.ndarray, counts: np.ndarray, finish: Finish,
@@ -190,6 +182,28 @@ def _acceleration(jack: np.ndarray | None, weights: np.ndarray | None) -> float 
     if denom <= 0:
         return None
     return float(np.sum(w * d ** 3) / (6.0 * denom ** 1.5))
+
+
+def resolve_clusters(data: CodingData, cluster: Any) -> tuple[np.ndarray | None, str | None]:
+    """Per-unit group labels for a cluster bootstrap and the name to report: from the name of a
+    kept per-unit column (the column's name), or from one label per unit ("cluster"); (None,
+    None) when units are resampled one by one. AgreeError (code "cluster") for an unknown
+    column, labels of the wrong length, or missing labels."""
+    if cluster is None:
+        return None, None
+    if isinstance(cluster, str):
+        if cluster not in data.columns:
+            known = ", ".join(data.columns) or "none"
+            raise AgreeError(f"no column '{cluster}' to resample clusters by (columns kept: {known})",
+                             hint="name the column with --cluster when reading the data", code="cluster")
+        return np.asarray(data.columns[cluster]), cluster
+    labels = np.asarray(cluster)
+    if labels.ndim != 1 or len(labels) != data.n_units:
+        raise AgreeError(f"cluster labels: one per unit is needed ({data.n_units}); got an array of shape "
+                         f"{labels.shape}", code="cluster")
+    if pd.isna(labels).any():
+        raise AgreeError("cluster labels: every unit needs a group; some labels are missing", code="cluster")
+    return labels, "cluster"
 
 
 def cluster_features(unit_features: np.ndarray, clusters: np.ndarray) -> tuple[np.ndarray, int]:

@@ -8,12 +8,13 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_RESAMPLES, FEW_UNITS
+from agree.core.format import percent_label
 from agree.core.model import LEVELS, AgreeError, CodingData, value_label
 from agree.core.registry import display_name, family, skipped_by_reason, standard_set
 from agree.core.results import AgreementResult, Note, json_safe
+from agree.core.seeds import draw_seed
 from agree.stats import coefficients as coef
-
-FEW_UNITS = 30  # common practice: below this, intervals are wide and conventions shaky
 
 
 @dataclass(frozen=True)
@@ -60,7 +61,7 @@ class ScoreResult:
         bound = r.lower_bound if r.lower_bound is not None and math.isfinite(r.lower_bound) else None
         return json_safe({
             "coefficient": self.primary, "minimum": self.minimum, "estimate": r.estimate, "lower_bound": bound,
-            "bound": None if bound is None else f"one-sided {self.confidence_level:.0%} lower bound ({r.ci_method})",
+            "bound": None if bound is None else f"one-sided {percent_label(self.confidence_level)} lower bound ({r.ci_method})",
             "clears_minimum": None if bound is None else bool(bound > self.minimum),
             "p_below_min": r.p_below_min, "sentence": decision_sentence(r, self.minimum),
         })
@@ -99,7 +100,7 @@ class ScoreResult:
         from agree.core.format import notebook_html
 
         summary = (f"{self.units_used} of {self.units_read} units used, {len(self.coders)} coders "
-                   f"({', '.join(self.coders)}), level {self.level}; {self.confidence_level:.0%} intervals"
+                   f"({', '.join(self.coders)}), level {self.level}; {percent_label(self.confidence_level)} intervals"
                    + (f" from {self.n_resamples} bootstrap replicates ({self.ci_method}, {self.resampled}), seed "
                       f"{self.seed}" if self.n_resamples else ", analytic"))
         notes = [w.message for w in self.warnings]
@@ -111,8 +112,8 @@ class ScoreResult:
         return notebook_html(summary, self.to_frame(), notes=notes)
 
 
-def score(data: Any, *, level: str | None = None, minimum: float | None = None, n_resamples: int = 2000,
-          seed: int | None = None, confidence_level: float = 0.95, ci_method: str = "bca",
+def score(data: Any, *, level: str | None = None, minimum: float | None = None, n_resamples: int = DEFAULT_RESAMPLES,
+          seed: int | None = None, confidence_level: float = DEFAULT_CONFIDENCE, ci_method: str = DEFAULT_CI_METHOD,
           cluster: Any = None, categories: Any = None, distance: str | None = None,
           progress: Any = None) -> ScoreResult:
     """Compute every standard coefficient that fits the data and the level of measurement.
@@ -146,7 +147,7 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
     else:
         level_label = level
     if seed is None:
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
+        seed = draw_seed()
     opts = dict(confidence_level=confidence_level, n_resamples=n_resamples, ci_method=ci_method, seed=seed,
                 minimum=minimum, cluster=cluster)
     results: dict[str, AgreementResult] = {}
@@ -203,7 +204,7 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
         if pa is not None and pa.defined and pa.estimate >= 0.8 and low_chance and top >= 0.6:
             notes.append(Note("prevalence-skew",
                               f"Percent agreement is high ({pa.estimate:.2f}) but {low_chance[0].name} is low "
-                              f"({low_chance[0].estimate:.2f}): one category takes {top:.0%} of all values, so "
+                              f"({low_chance[0].estimate:.2f}): one category takes {percent_label(top, 0)} of all values, so "
                               "chance agreement is high and kappa-type coefficients are pulled down (the "
                               "prevalence paradox, Feinstein & Cicchetti 1990). Report both, with the "
                               "per-code diagnostics."))

@@ -48,12 +48,14 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_RESAMPLES
 from agree.core.model import AgreeError
 from agree.core.registry import references_for
 from agree.core.results import AgreementResult, BootstrapInfo, Note
+from agree.core.seeds import draw_seed, make_rng
 from agree.core.spans import SpanData
 from agree.stats.intervals import overlap_pairs
-from agree.stats.resampling import bootstrap_interval, check_settings, make_rng
+from agree.stats.resampling import bootstrap_interval, check_settings
 
 NAME = "unitizing_alpha_experimental"
 METHOD = "Krippendorff's alpha for unitizing, 1995/2004 form (EXPERIMENTAL: not checked against a published example)"
@@ -189,8 +191,8 @@ def u_alpha(units: Sequence[Sequence[tuple[int, int]]], *, continuum: tuple[int,
     return float(_alpha([sums], np.ones((1, 1)), m)[0])
 
 
-def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, confidence_level: float = 0.95,
-                    n_resamples: int = 2000, ci_method: str = "bca", seed: Any = None,
+def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+                    n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
                     minimum: float | None = None) -> dict[str, AgreementResult]:
     """Krippendorff's alpha for unitizing (EXPERIMENTAL), per code and for all codes together.
 
@@ -231,7 +233,7 @@ def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, conf
     groups = {name: [s] for name, s in per.items()}
     if len(chosen) > 1:
         groups["(all codes)"] = list(per.values())
-    rng_seed = seed if seed is not None or not n_resamples else int(np.random.SeedSequence().generate_state(1)[0])
+    rng_seed = seed if seed is not None or not n_resamples else draw_seed()
     one = np.ones((1, D))
     draws = jack = None
     if n_resamples:

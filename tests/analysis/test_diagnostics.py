@@ -20,7 +20,8 @@ from statsmodels.stats.inter_rater import fleiss_kappa as sm_fleiss_kappa
 from statsmodels.stats.multitest import multipletests
 
 import agree
-from agree.analysis.diagnostics import _holm, confusion_table, diagnose_coders, diagnose_codes, stuart_maxwell
+from agree.analysis.diagnostics import confusion_table, diagnose_coders, diagnose_codes, stuart_maxwell
+from agree.analysis.diagnostics.homogeneity import holm as _holm
 from agree.core.model import AgreeError, from_table
 from tests.conftest import as_float, as_labels, expand_table, simulate_codes
 

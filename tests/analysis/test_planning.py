@@ -21,7 +21,6 @@ from agree.analysis.planning import (
     _latent_pair_probabilities,
     _lower_quantile,
     _nominal_pair_probabilities,
-    _pattern_coincidences,
     _pattern_counts,
     _pattern_ids,
     _population_alpha,
@@ -34,7 +33,8 @@ from agree.analysis.planning import (
 from agree.core.model import AgreeError
 from agree.core.results import AgreementResult
 from agree.output.plots import assurance_figure, save_figure
-from agree.stats.coefficients import alpha_from_coincidence, ordinal_delta
+from agree.stats.kernels import alpha_from_coincidence, ordinal_delta
+from agree.stats.kernels import coincidence_contributions as _pattern_coincidences
 
 FAST = dict(replicates=100, n_resamples=100)
 

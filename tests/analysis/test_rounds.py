@@ -81,7 +81,7 @@ def test_difference_interval_from_independent_replicates(sample_rounds):
     parts = split_rounds(data)
     overall = [c for c in result.changes if c.code is None][0]
     # the seeds are derived per round (round index, code index 0 = overall)
-    from agree.analysis.rounds import _child_seed
+    from agree.core.seeds import child_seed as _child_seed
 
     r1 = krippendorff_alpha(parts["1"], n_resamples=500, seed=_child_seed(11, 0, 0)).replicates
     r2 = krippendorff_alpha(parts["2"], n_resamples=500, seed=_child_seed(11, 1, 0)).replicates
@@ -306,7 +306,8 @@ def test_per_code_figures_shown_per_round_equal_diagnose_codes_with_the_seed(sam
 def test_differences_between_rounds_keep_independent_resamples(sample_rounds):
     # the intervals of differences come from replicates with a seed derived per round and
     # code (independent of the resamples shown), as before
-    from agree.analysis.rounds import _child_seed, split_rounds
+    from agree.analysis.rounds import split_rounds
+    from agree.core.seeds import child_seed as _child_seed
 
     data, result = sample_rounds
     parts = split_rounds(data)

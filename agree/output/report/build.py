@@ -12,22 +12,25 @@ import pandas as pd
 
 from agree.analysis.diagnostics import confusion_table, diagnose_codes
 from agree.analysis.rounds import RoundsResult, compare_rounds
+from agree.core.constants import DEFAULT_CONFIDENCE, DEFAULT_MINIMUM, DEFAULT_RESAMPLES, FEW_CLUSTERS
 from agree.core.model import AgreeError, CodingData, as_coding_data, normalise_value, require_unit_rows, value_label
 from agree.core.results import Note, json_safe
+from agree.core.seeds import draw_seed
 from agree.io.lists import read_consensus
 from agree.output.report.model import ConsensusSummary, CrossTable, Report, SampleSummary
 from agree.output.report.text import cautions, interpretation, methods_paragraph
+from agree.stats.kernels import membership
 from agree.stats.resampling import check_settings
 from agree.stats.scoring import score
 
 Progress = Callable[[str, float], None]
 
-DEFAULT_MINIMUM = 0.8            # Krippendorff's (2004) convention, used when no minimum is given
 HOW_DECIDED = "how decided"      # column of `agree reconcile`'s consensus file (agree.output.reconciliation.HOW)
 HOW_ORDER = ("discussion", "adjudicator", "majority")
 
 def build_report(data: Any, *, level: str | None = None, minimum: float | None = None,
-                 n_resamples: int = 2000, seed: int | None = None, confidence_level: float = 0.95,
+                 n_resamples: int = DEFAULT_RESAMPLES, seed: int | None = None,
+                 confidence_level: float = DEFAULT_CONFIDENCE,
                  corpus_size: int | None = None, consensus: Any = None, rounds: Any = None,
                  round_column: str = "round", codebooks: Mapping[str, Any] | None = None,
                  drift_round: str | None = None, analysed_round: str | None = None,
@@ -82,7 +85,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     if seed is None:
         # one recorded seed for every part (coefficients, per-code diagnostics, rounds), so a
         # round's per-code figures equal the per-code table of that round
-        seed = int(np.random.SeedSequence().generate_state(1)[0])
+        seed = draw_seed()
     round_opts = dict(level=level, minimum=minimum, n_resamples=n_resamples, seed=seed,
                       confidence_level=confidence_level, codebooks=codebooks, drift_round=drift_round,
                       cluster=cluster, progress=lambda step, done: tick(step, 0.2 * done))
@@ -154,7 +157,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     if cluster is not None and n_clusters is not None and n_resamples:
         # one clear note on few groups, naming the column, instead of one per computation
         warnings = [w for w in warnings if w.code != "few-clusters"]
-        if n_clusters < 20:
+        if n_clusters < FEW_CLUSTERS:
             warnings.insert(0, Note("few-clusters", f"Only {n_clusters} {cluster} groups were resampled; "
                                     "bootstrap intervals from fewer than 20 groups are rough."))
 
@@ -223,13 +226,8 @@ def _diagnostics(d: CodingData, *, per_code: bool = True, **kw: Any):
 def _code_use(d: CodingData) -> CrossTable:
     """Units each coder gave each code (for sets of codes: units whose set contains it)."""
     V = len(d.values)
-    if d.set_valued:
-        cats = list(d.categories)
-        member = np.array([[c in v for c in cats] for v in d.values], dtype=float).reshape(V, len(cats))
-        labels = [str(c) for c in cats]
-    else:
-        member = np.eye(V)
-        labels = [value_label(v) for v in d.values]
+    member = membership(d)[:V]
+    labels = [str(c) for c in d.categories] if d.set_valued else [value_label(v) for v in d.values]
     counts = []
     for i in range(d.n_coders):
         col = d.codes[:, i]

@@ -10,7 +10,7 @@ import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any, Sequence
 
-from agree.core.format import format_bound, format_interval, format_value, lit
+from agree.core.format import format_bound, format_interval, format_value, lit, percent_label
 from agree.core.registry import skipped_by_reason
 from agree.core.results import AgreementResult
 from agree.output.report.text import INTERVAL_METHODS, coefficient_label, join_words, result_label, status_text
@@ -62,7 +62,7 @@ def se_note(results: Sequence[AgreementResult], level: str) -> str:
 def report_tables(report: Report) -> list[Table]:
     """Every table of the report, with its numbers formatted once, for every format."""
     dg = report.digits
-    level = f"{report.confidence_level:.0%} CI"
+    level = f"{percent_label(report.confidence_level)} CI"
     minimum = format_value(report.minimum, "threshold")
     tables = []
     rows = []
@@ -157,7 +157,7 @@ def rounds_tables(rounds: Any, dg: int, prefix: str = "") -> list[Table]:
     """Tables of a RoundsResult (per round; changes between rounds; drift; definitions)."""
     pre = f"{prefix}." if prefix else ""
     minimum = format_value(rounds.minimum, "threshold")
-    level = f"{rounds.confidence_level:.0%} CI"
+    level = f"{percent_label(rounds.confidence_level)} CI"
     out = []
     rows = []
     for i, r in enumerate(rounds.rounds):

@@ -21,8 +21,8 @@ import math
 from typing import TYPE_CHECKING, Iterable, Sequence
 
 from agree.analysis.rounds import round_name
-from agree.core.constants import VERSION
-from agree.core.format import format_bound, format_interval, format_value, lit
+from agree.core.constants import TENTATIVE, VERSION
+from agree.core.format import format_bound, format_interval, format_value, lit, percent_label
 from agree.core.format import result_label as format_result_label
 from agree.core.registry import coefficient, family
 from agree.core.results import AgreementResult
@@ -30,7 +30,6 @@ from agree.core.results import AgreementResult
 if TYPE_CHECKING:
     from agree.output.report.model import ConsensusSummary, Report
 
-TENTATIVE = 0.667
 PLACEHOLDER_NOTE = "Bracketed, highlighted text is for you to fill in; edit the wording freely."
 
 # ----------------------------------------------------------------------------------------
@@ -144,7 +143,7 @@ def _stat_markup(r: AgreementResult, digits: int) -> str:
     sym = _symbol(r.name)
     text = f"{sym} = {format_value(r.estimate, 'coefficient', digits)}"
     if r.ci_low is not None and r.ci_high is not None and math.isfinite(r.ci_low or math.nan):
-        text += f", {r.confidence_level:.0%} CI {format_interval(r.ci_low, r.ci_high, digits)}"
+        text += f", {percent_label(r.confidence_level)} CI {format_interval(r.ci_low, r.ci_high, digits)}"
     return text
 
 
@@ -248,12 +247,12 @@ def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
                 column = report.cluster or b.unit.split(":", 1)[-1]
                 groups = ("" if report.n_clusters is None else
                           f" (*n* = {format_value(report.n_clusters, 'count')} groups)")
-                p.append(f"Confidence intervals ({prim.confidence_level:.0%}) are {method} intervals from "
+                p.append(f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
                          f"{format_value(b.replicates, 'count')} bootstrap resamples{seed_text} in which "
                          f"whole {lit(column)} groups{groups} were resampled, each with all its units, so "
                          f"that units from the same {lit(column)} stay together.")
             else:
-                p.append(f"Confidence intervals ({prim.confidence_level:.0%}) are {method} intervals from "
+                p.append(f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
                          f"{format_value(b.replicates, 'count')} resamples of units{seed_text}.")
         elif prim.ci_method:
             p.append(f"The confidence interval is a {INTERVAL_METHODS.get(prim.ci_method, lit(prim.ci_method))}.")
@@ -433,7 +432,7 @@ def settings_line(report: Report) -> str:
     seed = "none drawn" if report.seed is None else str(report.seed)
     default = " (the default: no minimum was given)" if report.minimum_default else ""
     return (f"Level: {lit(report.level)} · minimum {format_value(report.minimum, 'threshold')}{default} · "
-            f"{report.confidence_level:.0%} intervals · {format_value(report.n_resamples, 'count')} bootstrap "
+            f"{percent_label(report.confidence_level)} intervals · {format_value(report.n_resamples, 'count')} bootstrap "
             f"resamples · seed {seed} · {format_value(s.units_read, 'count')} units, {s.n_coders} coders")
 
 

@@ -1,0 +1,698 @@
+"""Which codes of the codebook drive disagreement, and why (`diagnose_codes`).
+
+The work is done in the sections below, each a small function passing a frozen record:
+
+1. `_Presence`: each code present or absent, per unit and coder;
+2. `_agreement`: alpha and specific agreement per code, with intervals from the same resamples;
+3. `_chance`: kappa, percent agreement, prevalence and bias per code;
+4. `_usage`: each coder's use of each code, and the tests of equal use;
+5. `confused_pairs` (confusion.py): confusions and alpha after merging two codes;
+6. `_judge`: status, reason and explanation of one code from its `_CodeFacts`.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from agree.analysis.diagnostics.common import CoderShares, bootstrap_intervals, check_data, cluster_labels, set_distance
+from agree.analysis.diagnostics.confusion import Confusions, confused_pairs, directed_table
+from agree.analysis.diagnostics.homogeneity import cochran_q, holm, mcnemar, stuart_maxwell
+from agree.analysis.diagnostics.results import STATUSES, CodeDiagnostics
+from agree.core.constants import (
+    DEFAULT_CI_METHOD,
+    DEFAULT_CONFIDENCE,
+    DEFAULT_MINIMUM,
+    DEFAULT_RESAMPLES,
+    MIN_UNITS_PER_CODE,
+)
+from agree.core.format import format_value, percent_label
+from agree.core.model import CodingData
+from agree.core.results import BootstrapInfo, Note, json_safe
+from agree.stats.coefficients import krippendorff_alpha
+from agree.stats.kernels import alpha_from_sums, delta_for, presence
+from agree.stats.resampling import check_settings
+
+SIGNIFICANCE = 0.05          # Holm-adjusted p below this flags unequal use
+CONFUSION_REASON = 0.25      # name the main confusion in a reason from this share upward
+PARADOX_PREVALENCE = 0.5     # |PI| from which prevalence explains high p_o with low kappa
+PARADOX_BIAS = 0.1           # |BI| from which bias is named as a cause
+
+
+# =========================================================================================
+# 1. presence of each code
+# =========================================================================================
+
+@dataclass(frozen=True)
+class _Presence:
+    """Each code present or absent: X (N, m, q) 1 where coder i applied code k to unit u,
+    r (N, q) how many coders applied it, m_u (N,) how many coders coded the unit."""
+
+    x: np.ndarray
+    r: np.ndarray
+    m_u: np.ndarray
+    observed: np.ndarray
+
+    @classmethod
+    def of(cls, data: CodingData) -> "_Presence":
+        x = presence(data)
+        return cls(x, x.sum(axis=1), data.observed.sum(axis=1).astype(float), data.observed)
+
+    @property
+    def pairable(self) -> np.ndarray:
+        return self.m_u >= 2
+
+    def two_by_two(self, a: int, b: int) -> tuple[np.ndarray, ...]:
+        """Coders a and b on the units both coded, per code: (both, a only, b only, neither)."""
+        both = self.observed[:, a] & self.observed[:, b]
+        xa, xb = self.x[both, a, :], self.x[both, b, :]
+        return ((xa * xb).sum(0), (xa * (1 - xb)).sum(0), ((1 - xa) * xb).sum(0),
+                ((1 - xa) * (1 - xb)).sum(0))
+
+    def unit_agreement(self) -> np.ndarray:
+        """(N', q) share of agreeing pairs of coders on each code's presence, per pairable unit."""
+        mm = self.m_u[self.pairable, None]
+        rr = self.r[self.pairable]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (rr * (rr - 1) + (mm - rr) * (mm - rr - 1)) / (mm * (mm - 1))
+
+
+# =========================================================================================
+# 2. agreement on each code: alpha and specific agreement with intervals
+# =========================================================================================
+
+def _code_features(r: np.ndarray, m_u: np.ndarray) -> np.ndarray:
+    """Features per unit: [m_u, r_uk (q), r_uk(r_uk-1)/(m_u-1) (q), r_uk(r_uk-1) (q),
+    r_uk(m_u-1) (q)], zero for units with fewer than two values."""
+    ok = (m_u >= 2)[:, None]
+    m = m_u[:, None].astype(float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        o_kk = np.where(ok, r * (r - 1) / (m - 1), 0.0)
+    return np.hstack([np.where(ok, m, 0.0), np.where(ok, r, 0.0), o_kk,
+                      np.where(ok, r * (r - 1), 0.0), np.where(ok, r * (m - 1), 0.0)])
+
+
+def _code_finish(q: int):
+    """Summed `_code_features` (..., 1 + 4q) -> (alpha_k, p_s(k)) for every code (..., 2q).
+
+    alpha_k is nominal alpha on the k / not-k coincidence matrix, whose margins are n_k and
+    n - n_k and whose off-diagonal cell is n_k - o_kk (METHODS 6.3)."""
+    binary = delta_for("nominal", n_values=2)
+
+    def finish(sums: np.ndarray) -> np.ndarray:
+        n = sums[..., :1]
+        n_k = sums[..., 1:1 + q]
+        o_kk = sums[..., 1 + q:1 + 2 * q]
+        agree_pairs = sums[..., 1 + 2 * q:1 + 3 * q]
+        all_pairs = sums[..., 1 + 3 * q:1 + 4 * q]
+        alpha = alpha_from_sums(2.0 * (n_k - o_kk), np.stack([n_k, n - n_k], axis=-1), binary)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ps = np.where(all_pairs > 0, agree_pairs / all_pairs, np.nan)
+        return np.concatenate([alpha, ps], axis=-1)
+    return finish
+
+
+@dataclass(frozen=True)
+class _Agreement:
+    """Alpha and specific agreement of each code (arrays over codes) with their intervals."""
+
+    alpha: np.ndarray
+    alpha_low: np.ndarray
+    alpha_high: np.ndarray
+    lower_bound: np.ndarray
+    p_below_min: np.ndarray
+    specific: np.ndarray
+    specific_low: np.ndarray
+    specific_high: np.ndarray
+    bootstrap: BootstrapInfo | None
+    notes: tuple[Note, ...]
+
+
+def _agreement(pres: _Presence, cats: list, *, clusters, cluster_name, **boot) -> _Agreement:
+    q = len(cats)
+    features = _code_features(pres.r, pres.m_u)
+    finish = _code_finish(q)
+    point = finish(features.sum(axis=0))
+    names = [f"code '{c}', α" for c in cats] + [f"code '{c}', specific agreement" for c in cats]
+    iv = bootstrap_intervals(point, features, finish, clusters=clusters, cluster_name=cluster_name,
+                             labels=names, **boot)
+    return _Agreement(alpha=point[:q], alpha_low=iv.low[:q], alpha_high=iv.high[:q],
+                      lower_bound=iv.lower_bound[:q], p_below_min=iv.p_below_min[:q],
+                      specific=point[q:], specific_low=iv.low[q:], specific_high=iv.high[q:],
+                      bootstrap=iv.bootstrap, notes=iv.notes)
+
+
+# =========================================================================================
+# 3. kappa, percent agreement, prevalence and bias of each code
+# =========================================================================================
+
+def _cohen_2x2(a, b, c, d):
+    n = a + b + c + d
+    with np.errstate(divide="ignore", invalid="ignore"):
+        po = (a + d) / n
+        pe = ((a + b) * (a + c) + (c + d) * (b + d)) / n ** 2
+        return np.where((n > 0) & (pe < 1), (po - pe) / (1 - pe), np.nan)
+
+
+def _fleiss_binary(pres: _Presence) -> np.ndarray:
+    """Fleiss' kappa for each code against the rest, for unequal numbers of coders: P_bar over
+    units with m_u >= 2, pi_k over units with m_u >= 1 (METHODS 3.2). With complete data this
+    is Fleiss' per-category kappa_j."""
+    r, m_u = pres.r, pres.m_u
+    any_ = m_u >= 1
+    q = r.shape[1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        p_bar = pres.unit_agreement().mean(axis=0) if pres.pairable.any() else np.full(q, np.nan)
+        pi = (r[any_] / m_u[any_, None]).mean(axis=0) if any_.any() else np.full(q, np.nan)
+        p_e = pi ** 2 + (1 - pi) ** 2
+        return np.where(p_e < 1, (p_bar - p_e) / (1 - p_e), np.nan)
+
+
+@dataclass(frozen=True)
+class _Chance:
+    """What chance-corrected agreement on each code rests on (arrays over codes)."""
+
+    kappa: np.ndarray
+    kappa_method: str                # "cohen" (two coders) or "fleiss"
+    percent: np.ndarray              # presence/absence agreement, mean over pairable units
+    prevalence: np.ndarray           # PI
+    bias: np.ndarray                 # BI (several coders: mean |b - c| / N over pairs)
+    n_k: np.ndarray                  # pairable values that are, or contain, the code
+    n: float                         # all pairable values
+    units_with: np.ndarray           # pairable units where someone used the code
+    n_pairable_units: int
+    one_only: np.ndarray | None      # two coders: units only the first coder gave the code (b)
+    other_only: np.ndarray | None    # ... only the second (c)
+
+
+def _chance(pres: _Presence, m: int) -> _Chance:
+    pairable = pres.pairable
+    q = pres.r.shape[1]
+    n = float(pres.m_u[pairable].sum())
+    n_k = pres.r[pairable].sum(axis=0)
+    n_pairable_units = int(pairable.sum())
+    b = c = None
+    if m == 2:
+        a, b, c, d = pres.two_by_two(0, 1)
+        kappa, method = _cohen_2x2(a, b, c, d), "cohen"
+        n2 = a + b + c + d
+        with np.errstate(divide="ignore", invalid="ignore"):
+            bias = np.where(n2 > 0, (b - c) / n2, np.nan)
+    else:
+        kappa, method = _fleiss_binary(pres), "fleiss"
+        parts = []
+        for i, j in itertools.combinations(range(m), 2):  # a loop over pairs of coders
+            a_, b_, c_, d_ = pres.two_by_two(i, j)
+            tot = a_ + b_ + c_ + d_
+            if tot.sum() > 0:
+                parts.append(np.abs(b_ - c_) / np.where(tot > 0, tot, np.nan))
+        bias = np.nanmean(np.vstack(parts), axis=0) if parts else np.full(q, np.nan)
+    return _Chance(kappa=kappa, kappa_method=method,
+                   percent=pres.unit_agreement().mean(axis=0) if n_pairable_units else np.full(q, np.nan),
+                   prevalence=2.0 * n_k / n - 1.0 if n > 0 else np.full(q, np.nan), bias=bias,
+                   n_k=n_k, n=n, units_with=(pres.r[pairable] > 0).sum(axis=0),
+                   n_pairable_units=n_pairable_units, one_only=b, other_only=c)
+
+
+# =========================================================================================
+# 4. each coder's use of each code, and tests of equal use
+# =========================================================================================
+
+USAGE_COLUMNS = ["code", "coder", "uses", "units_coded", "share", "share_others", "ratio", "test", "p_value",
+                 "p_holm", "flag"]
+
+
+@dataclass(frozen=True)
+class _Usage:
+    """Each coder's use of each code ((m, q) arrays) and the per-code test of equal use."""
+
+    shares: CoderShares
+    flags: np.ndarray                # (m, q) "more", "less" or ""
+    coder_test: np.ndarray           # (m, q) the test behind each coder's p
+    coder_p: np.ndarray
+    coder_p_holm: np.ndarray
+    code_test: list                  # (q,) the per-code test
+    code_stat: np.ndarray
+    code_df: np.ndarray
+    code_p: np.ndarray
+    code_p_holm: np.ndarray
+    notes: tuple[Note, ...]
+
+    def frame(self, cats: list, coders: tuple) -> pd.DataFrame:
+        s = self.shares
+        rows = [{"code": cats[k], "coder": coders[i], "uses": s.uses[i, k], "units_coded": s.units_coded[i],
+                 "share": s.share[i, k], "share_others": s.share_others[i, k], "ratio": s.ratio[i, k],
+                 "test": self.coder_test[i, k], "p_value": self.coder_p[i, k], "p_holm": self.coder_p_holm[i, k],
+                 "flag": self.flags[i, k]} for k in range(len(cats)) for i in range(len(coders))]
+        return pd.DataFrame(rows, columns=USAGE_COLUMNS)
+
+
+def _usage(pres: _Presence, chance: _Chance, n_units: int) -> _Usage:
+    shares = CoderShares.of(pres.x, pres.observed)
+    m, q = shares.uses.shape
+    notes: list[Note] = []
+    if m == 2:
+        b, c = chance.one_only, chance.other_only
+        code_stat, code_p, code_test = mcnemar(b, c)
+        code_df = np.where([t == "mcnemar chi-square" for t in code_test], 1.0, np.nan)
+        code_p_holm = holm(code_p)
+        coder_p = np.vstack([code_p, code_p])
+        coder_test = np.array([code_test, code_test], dtype=object)
+        flags = np.full((m, q), "", dtype=object)
+        flagged = (code_p_holm < SIGNIFICANCE) & (b != c)
+        flags[0] = np.where(flagged, np.where(b > c, "more", "less"), "")
+        flags[1] = np.where(flagged, np.where(b > c, "less", "more"), "")
+        coder_p_holm = np.vstack([code_p_holm, code_p_holm])
+    else:
+        code_test, code_stat = [None] * q, np.full(q, np.nan)
+        code_df, code_p = np.full(q, np.nan), np.full(q, np.nan)
+        complete = pres.observed.all(axis=1)
+        if complete.sum() >= 2:
+            code_stat, code_p = cochran_q(pres.x[complete])
+            code_test = ["cochran q"] * q
+            code_df = np.full(q, float(m - 1))
+            if complete.sum() < n_units:
+                notes.append(Note("cochran-complete-units", f"Cochran's Q uses the {int(complete.sum())} "
+                                  f"units every coder coded ({n_units - int(complete.sum())} left out)."))
+        else:
+            notes.append(Note("cochran-not-run", "Cochran's Q needs units coded by every coder; "
+                              "there are fewer than two."))
+        code_p_holm = holm(code_p)
+        pooled = shares.uses.sum(axis=0) / shares.units_coded.sum()
+        units, others = shares.units_coded[:, None], shares.others_units[:, None]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            se = np.sqrt(pooled * (1 - pooled) * (1.0 / units + 1.0 / others))
+            z = (shares.share - shares.share_others) / se
+        coder_p = np.where(se > 0, 2 * stats.norm.sf(np.abs(z)), 1.0)
+        coder_p[~np.isfinite(shares.share - shares.share_others)] = np.nan
+        coder_test = np.full((m, q), "two-proportion z", dtype=object)
+        coder_p_holm = holm(coder_p.ravel()).reshape(m, q)
+        flags = np.where(coder_p_holm < SIGNIFICANCE,
+                         np.where(shares.share > shares.share_others, "more", "less"), "")
+    return _Usage(shares=shares, flags=flags, coder_test=coder_test, coder_p=coder_p,
+                  coder_p_holm=coder_p_holm, code_test=list(code_test), code_stat=code_stat,
+                  code_df=code_df, code_p=code_p, code_p_holm=code_p_holm, notes=tuple(notes))
+
+
+# =========================================================================================
+# 5. the main confusion of each code
+# =========================================================================================
+
+@dataclass(frozen=True)
+class _TopConfusion:
+    """For each code (arrays over codes): the code it is most confused with and that share of
+    its disagreements, and the share of its disagreements that are omissions (set-valued)."""
+
+    index: np.ndarray
+    share: np.ndarray
+    has: np.ndarray
+    omission: np.ndarray
+
+
+def _top_confusion(conf: Confusions, n_k: np.ndarray, set_valued: bool) -> _TopConfusion:
+    q = len(n_k)
+    disagreements = n_k - np.diag(conf.matrix)
+    off = conf.matrix.copy()
+    np.fill_diagonal(off, 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = off / disagreements[:, None]
+    top = np.argmax(np.where(np.isfinite(share), share, -1), axis=1)
+    top_share = share[np.arange(q), top]
+    if set_valued:
+        omission = np.where(disagreements > 0, 1.0 - np.nansum(share, axis=1), np.nan)
+    else:
+        omission = np.where(disagreements > 0, 0.0, np.nan)
+    return _TopConfusion(top, top_share, np.isfinite(top_share) & (top_share > 0), omission)
+
+
+def _homogeneity(data: CodingData) -> dict[str, Any]:
+    """The Stuart–Maxwell test for two coders with single codes, else why there is none."""
+    if data.n_coders == 2 and not data.set_valued:
+        return stuart_maxwell(directed_table(data, 0, 1), list(data.values))
+    reason = ("set-valued data have no single category table; see the per-code McNemar tests"
+              if data.n_coders == 2 else
+              "the Stuart–Maxwell test compares two coders; see the per-code Cochran's Q tests")
+    return {"test": None, "statistic": None, "df": None, "p_value": None, "dropped": [], "reason": reason}
+
+
+# =========================================================================================
+# 6. status, reason and explanation of one code
+# =========================================================================================
+
+@dataclass(frozen=True)
+class _Rules:
+    """What every code is judged against."""
+
+    minimum: float | None
+    min_units: int
+    confidence_level: float
+    bootstrapped: bool
+    set_valued: bool
+    coders: tuple[str, ...]
+    n_codes: int
+
+
+@dataclass(frozen=True)
+class _CodeFacts:
+    """What is known about one code, for judging it."""
+
+    alpha: float
+    lower_bound: float
+    kappa: float
+    percent: float
+    specific: float
+    prevalence: float
+    bias: float
+    n_k: float                       # pairable values with the code
+    n: float                         # all pairable values
+    units_with: int
+    uses: tuple[float, ...]          # per coder
+    flags: tuple[str, ...]           # per coder: "more", "less" or ""
+    ratios: tuple[float, ...]        # per coder: share / share of the others
+    top_confusion: str | None
+    top_share: float
+    omission: float
+
+
+@dataclass(frozen=True)
+class _Verdict:
+    status: str
+    reasons: tuple[str, ...]
+    paradox: bool = False
+    explanation: str = ""
+    judged_on: str = ""              # "interval", "estimate" or ""
+
+
+def _signed(x: float) -> str:
+    text = format_value(x, "coefficient", 2)
+    return text if text.startswith("\u2212") else "+" + text
+
+
+def _ratio_text(ratio: float) -> str:
+    return f"{ratio:.1f}x" if ratio >= 1 else f"{ratio:.2f}x"
+
+
+def _status(f: _CodeFacts, rules: _Rules) -> _Verdict:
+    """The status against the minimum, and why, before usage, confusions and the paradox."""
+    if f.n_k == 0:
+        used = any(u > 0 for u in f.uses)
+        return _Verdict("undefined", ("never used on a unit that two or more coders coded" if used
+                                      else "not used by any coder",),
+                        explanation="Agreement on a code nobody applied to a shared unit is undefined (0/0).")
+    if f.n_k == f.n:
+        return _Verdict("undefined", ("applied to every value: no variation to agree on",),
+                        explanation=("When every coder applies the code to every unit, expected disagreement "
+                                     "is zero and chance-corrected agreement is undefined."))
+    if f.units_with < rules.min_units:
+        return _Verdict("too rare", (f"used on only {int(f.units_with)} shared unit{'s' if f.units_with != 1 else ''} "
+                                     f"(fewer than {rules.min_units}): too rare to judge",))
+    if not np.isfinite(f.alpha):
+        return _Verdict("undefined", ("alpha is undefined",))
+    minimum = rules.minimum
+    if minimum is None:
+        return _Verdict("ok", ())
+    if np.isfinite(f.lower_bound):
+        level = percent_label(rules.confidence_level)
+        if f.alpha < minimum:
+            return _Verdict("below minimum", (), judged_on="interval")
+        if f.lower_bound >= minimum:
+            return _Verdict("ok", (f"the one-sided {level} lower bound is at or above the minimum",),
+                            judged_on="interval")
+        return _Verdict("uncertain", (f"the estimate reaches the minimum but its one-sided {level} lower bound "
+                                      "is below it",), judged_on="interval")
+    why = "no bootstrap" if not rules.bootstrapped else "no interval could be formed"
+    if f.alpha < minimum:
+        return _Verdict("below minimum", (f"estimate below the minimum ({why}: judged on the estimate alone)",),
+                        judged_on="estimate")
+    return _Verdict("ok", (f"estimate at or above the minimum ({why}: judged on the estimate alone, "
+                           "not on an interval)",), judged_on="estimate")
+
+
+def _use_reasons(f: _CodeFacts, coders: tuple[str, ...]) -> list[str]:
+    """Who used the code unusually often or rarely."""
+    users = [c for c, u in zip(coders, f.uses) if u > 0]
+    if len(users) == 1 and len(coders) > 1:
+        return [f"used by {users[0]} only"]
+    parts = []
+    for i, (flag, ratio) in enumerate(zip(f.flags, f.ratios)):
+        if flag and np.isfinite(ratio) and ratio > 0 and (flag == "more" or len(coders) > 2):
+            against = "the others" if len(coders) > 2 else coders[1 - i]
+            parts.append(f"used by {coders[i]} {_ratio_text(ratio)} as often as {against}")
+    return parts
+
+
+def _confusion_reasons(f: _CodeFacts, status: str, rules: _Rules) -> list[str]:
+    """The main confusion, and omissions (set-valued), of a code that is not ok."""
+    parts = []
+    if (f.top_confusion is not None and f.top_share >= CONFUSION_REASON and status != "ok"
+            and (rules.set_valued or rules.n_codes > 2)):
+        parts.append(f"confused with {f.top_confusion} in {percent_label(f.top_share, 0)} of its disagreements")
+    if rules.set_valued and np.isfinite(f.omission) and f.omission >= 0.5 and status != "ok":
+        parts.append(f"{percent_label(f.omission, 0)} of its disagreements are omissions (applied by one "
+                     "coder, no alternative by the other)")
+    return parts
+
+
+def _paradox(f: _CodeFacts, status: str, minimum: float | None) -> tuple[str, str | None]:
+    """The kappa paradox (Feinstein & Cicchetti 1990): its explanation ("" when there is none)
+    and a reason fragment for a code below the minimum (or None)."""
+    chance = np.nanmin([f.alpha, f.kappa]) if np.isfinite(f.alpha) or np.isfinite(f.kappa) else np.nan
+    causes = []
+    if np.isfinite(f.prevalence) and abs(f.prevalence) >= PARADOX_PREVALENCE:
+        side = "absence" if f.prevalence < 0 else "presence"
+        causes.append(f"the coders mostly agree on the code's {side} (prevalence index "
+                      f"{_signed(f.prevalence)}), so high agreement is expected by chance alone")
+    if np.isfinite(f.bias) and abs(f.bias) >= PARADOX_BIAS:
+        causes.append(f"the coders apply it at different rates (bias index {_signed(f.bias)})")
+    if not (minimum is not None and np.isfinite(f.percent) and np.isfinite(chance) and np.isfinite(f.specific)
+            and f.percent >= minimum and f.specific >= minimum and chance < minimum and causes):
+        return "", None
+    percent = percent_label(f.percent, 0)
+    explanation = (f"Percent agreement is {percent} but chance-corrected agreement is "
+                   f"{format_value(chance, 'coefficient', 2)}: {'; '.join(causes)}. When one coder applied the "
+                   f"code, another applied it too in {percent_label(f.specific, 0)} of the pairs (specific "
+                   "agreement). This is the kappa paradox (Feinstein & Cicchetti 1990): report "
+                   "specific agreement beside the coefficient.")
+    reason = None
+    if status in ("below minimum", "uncertain"):
+        reason = (f"{percent} raw agreement, mostly on absence" if np.isfinite(f.prevalence) and f.prevalence <= -0.5
+                  else f"{percent} raw agreement but low chance-corrected agreement")
+    return explanation, reason
+
+
+def _judge(f: _CodeFacts, rules: _Rules) -> _Verdict:
+    """Status, reason fragments, paradox and explanation, and what was judged, for one code."""
+    verdict = _status(f, rules)
+    if verdict.status == "undefined" and f.n_k == 0:
+        return verdict
+    parts = list(verdict.reasons) + _use_reasons(f, rules.coders) + _confusion_reasons(f, verdict.status, rules)
+    explanation, reason = _paradox(f, verdict.status, rules.minimum)
+    if reason:
+        parts.append(reason)
+    if verdict.status == "below minimum" and not parts:
+        parts.append("disagreement spread over several codes")
+    if verdict.status == "ok" and not parts:
+        parts.append("defined (no minimum given)")
+    return _Verdict(verdict.status, tuple(parts), bool(explanation), explanation or verdict.explanation,
+                    verdict.judged_on)
+
+
+# =========================================================================================
+# the table of codes
+# =========================================================================================
+
+def _per_code(cats: list, coders: tuple, agree: _Agreement, chance: _Chance, use: _Usage,
+              top: _TopConfusion, verdicts: list[_Verdict]) -> pd.DataFrame:
+    """One row per code in codebook order, ranked by status (worst first), then alpha."""
+    m = len(coders)
+    rows = []
+    for k, v in enumerate(verdicts):
+        row = {"code": cats[k], "status": v.status, "judged_on": v.judged_on,
+               "reason": "; ".join(v.reasons), "rank": 0,
+               "alpha": agree.alpha[k], "ci_low": agree.alpha_low[k], "ci_high": agree.alpha_high[k],
+               "lower_bound": agree.lower_bound[k], "p_below_min": agree.p_below_min[k],
+               "specific_agreement": agree.specific[k], "specific_ci_low": agree.specific_low[k],
+               "specific_ci_high": agree.specific_high[k], "kappa": chance.kappa[k],
+               "kappa_method": chance.kappa_method, "percent_agreement": chance.percent[k],
+               "prevalence_index": chance.prevalence[k], "bias_index": chance.bias[k],
+               "paradox": v.paradox, "explanation": v.explanation,
+               "n_pairable": chance.n_k[k], "n_values": chance.n, "units_with_code": chance.units_with[k],
+               "n_pairable_units": chance.n_pairable_units,
+               "top_confusion": cats[top.index[k]] if top.has[k] else None,
+               "top_confusion_share": top.share[k] if top.has[k] else np.nan,
+               "omission_share": top.omission[k],
+               "usage_test": use.code_test[k], "usage_statistic": use.code_stat[k], "usage_df": use.code_df[k],
+               "usage_p": use.code_p[k], "usage_p_holm": use.code_p_holm[k],
+               "mcnemar_p_holm": use.code_p_holm[k] if m == 2 else np.nan,
+               "cochran_p_holm": use.code_p_holm[k] if m > 2 else np.nan,
+               "usage_flag": ", ".join(f"{coders[i]} {use.flags[i, k]}" for i in range(m) if use.flags[i, k])}
+        for i in range(m):
+            row[f"uses_{coders[i]}"] = use.shares.uses[i, k]
+        for i in range(m):
+            row[f"share_{coders[i]}"] = use.shares.share[i, k]
+        rows.append(row)
+    per_code = pd.DataFrame(rows)
+    alpha = agree.alpha
+    order = sorted(range(len(cats)), key=lambda k: (STATUSES.index(verdicts[k].status),
+                                                    alpha[k] if np.isfinite(alpha[k]) else np.inf, k))
+    per_code.loc[order, "rank"] = np.arange(1, len(cats) + 1)
+    per_code["rank"] = per_code["rank"].astype(int)
+    return per_code
+
+
+def _data_notes(data: CodingData, n_pairable_units: int) -> list[Note]:
+    notes = []
+    if n_pairable_units < data.n_units:
+        notes.append(Note("units-left-out", f"{data.n_units - n_pairable_units} of {data.n_units} "
+                          "units were coded by fewer than two coders and do not enter agreement."))
+    if data.level != "nominal" and not data.set_valued:
+        notes.append(Note("nominal-diagnostics", f"The data are declared {data.level}; code "
+                          "diagnostics treat each value as a nominal category (applied or not)."))
+        notes.append(Note("rating-scale", "For a rating scale, presence/absence diagnostics per scale "
+                          "point are of limited use: a near miss (e.g. 3 against 4) counts as a full "
+                          "disagreement on both points. Judge the scale by the overall alpha at its "
+                          f"level ({data.level})."))
+    return notes
+
+
+def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resamples: int = DEFAULT_RESAMPLES,
+                   seed: int | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
+                   min_units_per_code: int = MIN_UNITS_PER_CODE, ci_method: str = DEFAULT_CI_METHOD,
+                   distance: str | None = None, cluster: Any = None) -> CodeDiagnostics:
+    """Which codes of the codebook drive disagreement, and why.
+
+    Parameters
+    ----------
+    data : CodingData, DataFrame or array (units x coders; None/NaN missing; sets for
+        set-valued coding).
+    minimum : the alpha a code should reach (default 0.8, a common benchmark); None for none.
+    n_resamples : unit bootstrap replicates for the intervals (0: no intervals; default 2000,
+        as everywhere). Every code is computed from the same resamples.
+    seed : seed of the bootstrap (recorded in the result; drawn and recorded if None).
+    confidence_level : of the intervals.
+    min_units_per_code : a code used on fewer pairable units than this is "too rare" to judge
+        (default 5: common practice, not a published threshold).
+    ci_method : "bca" (default) or "percentile".
+    distance : set-valued data: the distance between sets of codes for the overall alpha and
+        the alpha after merging two codes, "masi" (default, as in :func:`agree.score`, so
+        the overall alpha is the same figure) or "jaccard". Ignored for single codes.
+    cluster : per-unit group labels, or the name of a kept per-unit column (e.g. the
+        document): the bootstrap resamples whole groups (every code from the same
+        resamples). A note warns when there are fewer than 20 groups.
+
+    Returns
+    -------
+    CodeDiagnostics ; ``.to_frame()`` gives one row per code, worst first.
+
+    Notes
+    -----
+    For code k, with r_uk the number of coders who applied k to unit u, m_u the number of
+    coders who coded u, over the pairable units (m_u >= 2):
+
+    - alpha_k = 1 - (n - 1)(n_k - o_kk) / (n_k (n - n_k)), n_k = Σ r_uk, n = Σ m_u,
+      o_kk = Σ r_uk (r_uk - 1)/(m_u - 1): nominal alpha on the present/absent recoding
+      (METHODS 6.3). Undefined if nobody or everybody used k.
+    - p_s(k) = Σ r_uk (r_uk - 1) / Σ r_uk (m_u - 1), the share of agreeing pairs among the
+      pairs of values that involve k; with two coders 2 n_kk / (n_k. + n_.k) (Spitzer &
+      Fleiss 1974; p_pos of Cicchetti & Feinstein 1990).
+    - kappa: Cohen's kappa on the k / not-k table (two coders, units both coded); Fleiss'
+      kappa_j otherwise (with missing values, P_bar over pairable units and pi_k over coded
+      units, METHODS 3.2).
+    - prevalence index PI = 2 n_k / n - 1; with two coders this is Byrt et al.'s (a - d)/N.
+      Bias index: with two coders Byrt et al.'s BI = (b - c)/N (positive: the first coder
+      uses k more); with more coders the mean over pairs of coders of |b - c|/N, each pair
+      on the units both coded (so it is never negative).
+    - kappa paradox: flagged when the present/absent percent agreement and the specific
+      agreement p_s both reach the minimum, alpha or kappa does not, and prevalence
+      (|PI| >= 0.5) or bias (|BI| >= 0.1) explains the gap; the explanation names the cause
+      (Feinstein & Cicchetti 1990). When p_s is low too, the coders really disagree on the
+      code's presence and there is no paradox to explain. These cut-offs are our own choice
+      for wording, not published thresholds.
+    - unequal use: with two coders the per-code McNemar test (exact binomial when
+      b + c < 25, else chi-square without continuity correction), Holm over the codes; a
+      significant test flags the coder who uses k more and the one who uses it less. With
+      more coders, Cochran's Q per code on the units every coder coded (Holm over codes), and
+      for each coder a two-proportion z-test of their share against the pooled share of the
+      others (Holm over all codes and coders; it ignores that the coders coded the same units,
+      which usually makes it conservative) flags "more" or "less" at p_holm < 0.05.
+    - confusions: share_ck = 2 o_ck / Σ_{g≠h} o_gh, expected e_ck = n_c n_k / (n - 1), and
+      alpha after merging c and k (METHODS 6.3, 6.4). For set-valued data o_ck counts pairs of
+      coders where one applied c and not k and the other k and not c; shares are of all such
+      confusions, e_ck uses the numbers of values with c and not k, and alpha (with
+      `distance`, MASI by default) is recomputed after replacing k by c in every set.
+    - status: "undefined" (nobody, or every value, has the code, or alpha is undefined),
+      "too rare" (used on fewer than `min_units_per_code` pairable units), "below minimum"
+      (alpha < minimum), "uncertain" (alpha at or above the minimum, but its one-sided lower
+      confidence bound at `confidence_level` below it), "ok" (the one-sided lower bound at or
+      above the minimum). The one-sided bound is the bootstrap quantile at 1 - level (BCa-
+      adjusted like the interval; column ``lower_bound``), the same rule as the overall
+      decision of ``agree score --min``; it lies above the lower end of the two-sided
+      interval. This follows the advice to judge a coefficient by its interval, not its
+      estimate (Krippendorff 2004). Without an interval (``n_resamples=0``, or too few defined
+      replicates) the estimate is compared with the minimum and the reason says so
+      (``judged_on`` = "estimate"). Codes are ranked by status in the order of concern —
+      below minimum, uncertain, too rare, undefined, ok — and by alpha within a status,
+      lowest first.
+
+    References
+    ----------
+    Byrt, Bishop & Carlin (1993); Cicchetti & Feinstein (1990); Feinstein & Cicchetti (1990);
+    Spitzer & Fleiss (1974); Krippendorff (2004); McNemar (1947); Cochran (1950); Holm (1979);
+    Stuart (1955); Maxwell (1970).
+    """
+    check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum,
+                   ci_method=ci_method)
+    data = check_data(data)
+    distance = set_distance(data, distance)
+    clusters, cluster_name = cluster_labels(data, cluster)
+    cats = list(data.categories)
+    coders = tuple(data.coders)
+    pres = _Presence.of(data)
+
+    agree = _agreement(pres, cats, clusters=clusters, cluster_name=cluster_name, n_resamples=n_resamples,
+                       seed=seed, confidence_level=confidence_level, ci_method=ci_method, minimum=minimum)
+    chance = _chance(pres, data.n_coders)
+    use = _usage(pres, chance, data.n_units)
+    conf = confused_pairs(data, pres.x, pres.m_u, pres.r, distance)
+    top = _top_confusion(conf, chance.n_k, data.set_valued)
+
+    rules = _Rules(minimum=minimum, min_units=min_units_per_code, confidence_level=confidence_level,
+                   bootstrapped=agree.bootstrap is not None, set_valued=data.set_valued, coders=coders,
+                   n_codes=len(cats))
+    verdicts = [_judge(_CodeFacts(
+        alpha=agree.alpha[k], lower_bound=agree.lower_bound[k], kappa=chance.kappa[k], percent=chance.percent[k],
+        specific=agree.specific[k], prevalence=chance.prevalence[k], bias=chance.bias[k], n_k=chance.n_k[k],
+        n=chance.n, units_with=chance.units_with[k], uses=tuple(use.shares.uses[:, k]),
+        flags=tuple(use.flags[:, k]), ratios=tuple(use.shares.ratio[:, k]),
+        top_confusion=cats[top.index[k]] if top.has[k] else None, top_share=top.share[k],
+        omission=top.omission[k]), rules) for k in range(len(cats))]
+
+    notes = _data_notes(data, chance.n_pairable_units) + list(agree.notes) + list(use.notes)
+    if minimum is not None:
+        judged = (f"each code's one-sided {percent_label(confidence_level)} lower bound" if agree.bootstrap is not None
+                  else "each code's estimate (no bootstrap, so no interval)")
+        notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {minimum}, comparing "
+                          f"{judged} with it (a convention; choose it before looking at the data)."))
+    overall_ci = (None, None)
+    if n_resamples:  # the same figure and interval as krippendorff_alpha / agree score with this seed
+        overall = krippendorff_alpha(data, level="nominal", distance=distance if data.set_valued else None,
+                                     n_resamples=n_resamples, seed=agree.bootstrap.seed if agree.bootstrap else seed,
+                                     confidence_level=confidence_level, ci_method=ci_method, cluster=clusters)
+        overall_ci = (overall.ci_low, overall.ci_high)
+    return CodeDiagnostics(per_code=_per_code(cats, coders, agree, chance, use, top, verdicts),
+                           confused_pairs=conf.pairs, usage=use.frame(cats, coders),
+                           marginal_homogeneity=json_safe(_homogeneity(data)), alpha=conf.alpha,
+                           alpha_ci_low=overall_ci[0], alpha_ci_high=overall_ci[1],
+                           coders=coders, n_units=data.n_units,
+                           n_pairable_units=chance.n_pairable_units, set_valued=data.set_valued,
+                           minimum=None if minimum is None else float(minimum),
+                           confidence_level=confidence_level, min_units_per_code=min_units_per_code,
+                           bootstrap=agree.bootstrap, notes=tuple(notes), distance=distance,
+                           cluster=cluster_name,
+                           n_clusters=None if clusters is None else int(len(np.unique(clusters))),
+                           level=data.level)

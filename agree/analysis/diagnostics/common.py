@@ -1,0 +1,161 @@
+"""What the per-code and per-coder diagnostics share: checking the data, the choice of set
+distance, the clusters to resample, each coder's use of the codes, and bootstrap intervals of
+several statistics from the same resamples."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Callable, Sequence
+
+import numpy as np
+
+from agree.core.constants import DEFAULT_SET_DISTANCE, FEW_CLUSTERS
+from agree.core.model import AgreeError, CodingData, as_coding_data, expand_weights
+from agree.core.results import BootstrapInfo, Note
+from agree.core.seeds import make_rng
+from agree.stats.kernels import SET_DISTANCES
+from agree.stats.resampling import (
+    bootstrap_interval,
+    bootstrap_replicates,
+    cluster_features,
+    jackknife_values,
+    resolve_clusters,
+)
+
+
+def check_data(data: Any, allow_empty: bool = False) -> CodingData:
+    """CodingData with two or more coders and (unless `allow_empty`) some coded value."""
+    data = as_coding_data(data)
+    data = expand_weights(data, "diagnostics")  # positions as units: one row per position (small data only)
+    if data.n_coders < 2:
+        raise AgreeError("diagnostics need at least two coders", code="too-few-coders",
+                         hint="give one column per coder")
+    if not allow_empty and (data.n_units == 0 or not data.observed.any()):
+        raise AgreeError("no units to analyse" if data.n_units == 0 else
+                         f"no units to analyse: none of the {data.n_units} units has a coded value",
+                         hint="check that the data have one row per unit and one column per coder",
+                         code="empty")
+    return data
+
+
+def set_distance(data: CodingData, distance: str | None) -> str | None:
+    """The set distance to use: None for single codes, else "masi" (default) or "jaccard"."""
+    if distance is not None and distance not in SET_DISTANCES:
+        raise AgreeError(f"distance for sets of codes must be 'masi' or 'jaccard'; got '{distance}'",
+                         hint="use masi (the default, as in agree score) or jaccard", code="bad-option")
+    if not data.set_valued:
+        return None
+    return distance or DEFAULT_SET_DISTANCE
+
+
+def cluster_labels(data: CodingData, cluster: Any) -> tuple[np.ndarray | None, str | None]:
+    """Per-unit cluster labels (as text) and the name to report; (None, None) when units are
+    resampled one by one."""
+    labels, name = resolve_clusters(data, cluster)
+    return (None, None) if labels is None else (labels.astype(str), name)
+
+
+@dataclass(frozen=True)
+class CoderShares:
+    """Each coder's use of each code against the other coders' (arrays (m, q))."""
+
+    uses: np.ndarray            # units the coder gave the code
+    units_coded: np.ndarray     # (m,) units the coder coded
+    share: np.ndarray           # uses / units_coded
+    share_others: np.ndarray    # the other coders' pooled share
+    ratio: np.ndarray           # share / share_others
+
+    @property
+    def others_units(self) -> np.ndarray:
+        """(m,) units coded by the other coders together."""
+        return self.units_coded.sum() - self.units_coded
+
+    @classmethod
+    def of(cls, x: np.ndarray, observed: np.ndarray) -> "CoderShares":
+        """From presence X (N, m, q) and the (N, m) mask of coded cells."""
+        uses = x.sum(axis=0)
+        units = observed.sum(axis=0).astype(float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            share = uses / units[:, None]
+            share_others = (uses.sum(axis=0)[None, :] - uses) / (units.sum() - units)[:, None]
+            ratio = share / share_others
+        return cls(uses, units, share, share_others, ratio)
+
+
+@dataclass(frozen=True)
+class Intervals:
+    """Bootstrap intervals of several statistics from the same resamples (arrays, one entry
+    per statistic; NaN without a bootstrap)."""
+
+    low: np.ndarray
+    high: np.ndarray
+    p_below_min: np.ndarray
+    lower_bound: np.ndarray      # one-sided lower confidence bound at the same level
+    bootstrap: BootstrapInfo | None
+    notes: tuple[Note, ...]
+
+
+def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Callable[[np.ndarray], np.ndarray],
+                        *, n_resamples: int, seed: Any, confidence_level: float, ci_method: str,
+                        minimum: float | None = None, counts: np.ndarray | None = None,
+                        clusters: np.ndarray | None = None, cluster_name: str | None = None,
+                        labels: Sequence[str] | None = None) -> Intervals:
+    """Bootstrap intervals for several statistics from the same unit (or cluster) resamples.
+
+    Items are the distinct rows of `features` (units with the same features resample alike),
+    or, with `counts`, the rows of `features` are already distinct patterns occurring
+    `counts` times. With `clusters` (one label per row of `features`, which are then units),
+    the items are the clusters: the features of their units summed, each drawn whole.
+    `labels` name the statistics in the notes ("code 'X', α"). The lower bound is the
+    one-sided lower confidence bound at `confidence_level` (the rule of ``agree score --min``).
+    """
+    k = len(estimates)
+    nan = np.full(k, np.nan)
+    if n_resamples <= 0 or features.shape[0] == 0:
+        return Intervals(nan, nan.copy(), nan.copy(), nan.copy(), None, ())
+    rng, used_seed = make_rng(seed)
+    notes: list[Note] = []
+    unit = "unit"
+    if clusters is not None:
+        items, n_items = cluster_features(features, clusters)
+        counts = np.ones(n_items, dtype=np.int64)
+        unit = f"cluster:{cluster_name or 'cluster'}"
+        if n_items < FEW_CLUSTERS:
+            notes.append(Note("few-clusters", f"Only {n_items} clusters ({cluster_name or 'cluster'}) were "
+                              "resampled; bootstrap intervals from fewer than "
+                              f"{FEW_CLUSTERS} groups are rough."))
+    elif counts is None:
+        items, counts = np.unique(features, axis=0, return_counts=True)
+    else:
+        items = features
+    boot = bootstrap_replicates(items, counts, finish, n_resamples, rng).reshape(n_resamples, k)
+    informative = np.any(items != 0, axis=1)
+    jack = jackknife_values(items[informative], counts[informative], finish) if informative.any() else None
+    weights = counts[informative]
+    low, high, below, bound = nan.copy(), nan.copy(), nan.copy(), nan.copy()
+    n_undefined = 0
+    method_used = ci_method
+    fallback = []
+    for j in range(k):  # a loop over statistics (codes, coders), not units
+        iv = bootstrap_interval(float(estimates[j]), boot[:, j], confidence_level=confidence_level,
+                                method=ci_method, jack=None if jack is None else jack[:, j],
+                                jack_weights=weights, minimum=minimum)
+        low[j], high[j], bound[j] = iv.low, iv.high, iv.lower_bound
+        below[j] = np.nan if iv.p_below_min is None else iv.p_below_min
+        n_undefined = max(n_undefined, iv.n_undefined)
+        if iv.method != ci_method and np.isfinite(estimates[j]):
+            method_used = f"{ci_method} (percentile where BCa could not be formed)"
+        name = labels[j] if labels is not None else f"statistic {j + 1}"
+        for n in iv.notes:
+            if n.code == "bca-fallback":
+                fallback.append(name)
+            else:
+                notes.append(Note(n.code, f"{name}: {n.message}"))
+    if fallback:
+        notes.append(Note("bca-fallback", "The BCa interval could not be formed (bias correction or "
+                          "acceleration undefined) for " + ", ".join(fallback) + "; the percentile "
+                          "interval is shown there instead."))
+    info = BootstrapInfo(replicates=n_resamples, seed=used_seed, method=method_used, unit=unit,
+                         n_undefined=n_undefined)
+    unique = {(n.code, n.message): n for n in notes}
+    return Intervals(low, high, below, bound, info, tuple(unique.values()))
