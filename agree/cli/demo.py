@@ -86,7 +86,7 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
     """The steps of the demo, printed as they run; headline results go into `summary_json`."""
     from agree.analysis.diagnostics import diagnose_codes
     from agree.analysis.planning import plan_sample
-    from agree.analysis.rounds import compare_rounds
+    from agree.analysis.rounds import compare_rounds, split_rounds
     from agree.analysis.sampling import draw_sample, load_codebook_categories, read_corpus, read_unit_ids
     from agree.core.format import format_interval, plain
     from agree.io.readers import read
@@ -141,7 +141,8 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
         stdout.print(plain(line), highlight=False)
 
     step("Report for the methods section (agree report ... -o report.html)")
-    report = build_report(long, minimum=0.8, n_resamples=boot, seed=seed, corpus_size=600)
+    report = build_report(None, rounds=split_rounds(long), minimum=0.8, n_resamples=boot, seed=seed,
+                          corpus_size=600)
     written = []
     for suffix in (".html", ".md", ".docx", ".tex"):
         written += write_report(report, out / f"report{suffix}")

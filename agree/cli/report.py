@@ -70,7 +70,7 @@ def report(
 
     Example: agree report samples/round1.csv samples/round2.csv --round-files --codebook samples/codebook.csv -o report.md
     """
-    from agree.analysis.rounds import compare_rounds
+    from agree.analysis.rounds import split_rounds
     from agree.core.files import check_output
     from agree.output.report import build_report, write_report
 
@@ -92,24 +92,16 @@ def report(
     level_name = level.value if level is not None else None
     options = dict(level=level_name, minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci,
                    cluster=cluster)
+    if column is not None:
+        parts = split_rounds(data, column)
+    if parts is None and (books or drift_round):
+        raise AgreeError("--codebooks and --drift-round need rounds",
+                         hint="give a round column (--round-column) or one file per round (--round-files)",
+                         code="bad-option")
     with progress_bar("report") as tick:
-        building = scaled(tick, 0.0, 0.6)      # writing (with the plots) takes the rest
-        if parts is not None:
-            rounds = compare_rounds(parts, codebooks=books, drift_round=drift_round,
-                                    progress=scaled(tick, 0.0, 0.2),
-                                    **{**options, "minimum": 0.8 if minimum is None else minimum})
-            data = parts[rounds.final_round]
-            result = build_report(data, corpus_size=corpus_size, consensus=consensus, rounds=rounds,
-                                  analysed_round=rounds.final_round, title=title, digits=digits,
-                                  progress=scaled(tick, 0.2, 0.6), **options)
-        else:
-            if (books or drift_round) and column is None:
-                raise AgreeError("--codebooks and --drift-round need rounds",
-                                 hint="give a round column (--round-column) or one file per round (--round-files)",
-                                 code="bad-option")
-            result = build_report(data, corpus_size=corpus_size, consensus=consensus,
-                                  rounds=column if column else False, codebooks=books, drift_round=drift_round,
-                                  title=title, digits=digits, progress=building, **options)
+        result = build_report(None if parts is not None else data, rounds=parts, codebooks=books,
+                              drift_round=drift_round, corpus_size=corpus_size, consensus=consensus,
+                              title=title, digits=digits, progress=scaled(tick, 0.0, 0.6), **options)
         tick("writing", 0.6)
         written = write_report(result, output)
         tick("done", 1.0)

@@ -187,7 +187,7 @@ def test_same_seed_same_result():
 
 def test_report_includes_rounds_when_the_data_have_them(sample_rounds):
     data, _ = sample_rounds
-    report = build_report(data, n_resamples=300, seed=3, corpus_size=600)
+    report = build_report(None, rounds=split_rounds(data), n_resamples=300, seed=3, corpus_size=600)
     out = report.to_dict()
     assert out["analysed_round"] == "2"
     assert out["sample"]["units_read"] == 150
@@ -273,7 +273,7 @@ def test_each_round_shows_the_same_alpha_and_interval_as_score(sample_rounds):
 
 def test_report_on_rounds_prints_the_interval_of_score_for_the_analysed_round(sample_rounds):
     data, _ = sample_rounds
-    report = build_report(data, n_resamples=300, seed=4)
+    report = build_report(None, rounds=split_rounds(data), n_resamples=300, seed=4)
     alpha = report.primary_result
     scored = agree.score(split_rounds(data)["2"], n_resamples=300, seed=4).coefficients["krippendorff_alpha"]
     assert (alpha.ci_low, alpha.ci_high) == (scored.ci_low, scored.ci_high)
@@ -326,7 +326,7 @@ def test_differences_between_rounds_keep_independent_resamples(sample_rounds):
 
 def test_report_per_code_table_equals_the_rounds_figures_of_that_round(sample_rounds):
     data, _ = sample_rounds
-    report = build_report(data, n_resamples=300, seed=4)
+    report = build_report(None, rounds=split_rounds(data), n_resamples=300, seed=4)
     final = report.rounds.round(report.analysed_round)
     for rec in report.per_code:
         res = final.per_code[str(rec["code"])]
@@ -334,7 +334,7 @@ def test_report_per_code_table_equals_the_rounds_figures_of_that_round(sample_ro
         assert (res.ci_low, res.ci_high) == (rec["ci_low"], rec["ci_high"])
         assert final.code_status[str(rec["code"])] == rec["status"]
     # without a seed one is drawn and shared by both
-    drawn = build_report(data, n_resamples=100)
+    drawn = build_report(None, rounds=split_rounds(data), n_resamples=100)
     final = drawn.rounds.round(drawn.analysed_round)
     rec = drawn.per_code[0]
     assert final.per_code[str(rec["code"])].ci_low == rec["ci_low"]

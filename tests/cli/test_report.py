@@ -88,3 +88,25 @@ def test_cli_report_cluster(tmp_path):
     printed = json.loads(result.stdout)
     assert "whole interview groups (n = 12 groups)" in printed["methods"]
     assert "12 interview groups were resampled" in result.stderr
+
+
+def test_cli_report_rounds_from_a_column_or_from_files_equal_the_library(tmp_path):
+    # the command line turns both ways of giving rounds into the one mapping the library takes
+    from agree.analysis.rounds import split_rounds
+    from agree.io.readers import read
+
+    data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
+    expected = build_report(None, rounds=split_rounds(data), n_resamples=100, seed=5).to_dict()
+    args = ["report", str(SAMPLES / "rounds_long.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
+            "-o", str(tmp_path / "r.html"), "--boot", "100", "--seed", "5", "--format", "json"]
+    result = CliRunner().invoke(_cli(), args)
+    assert result.exit_code == 0, result.output
+    printed = json.loads(result.stdout)
+    for side in (printed, expected):
+        side["sample"].pop("files"), side["sample"].pop("checksums")
+    assert printed == expected
+    files = CliRunner().invoke(_cli(), ["report", str(SAMPLES / "round1.csv"), str(SAMPLES / "round2.csv"),
+                                        "--round-files", "--codebook", str(SAMPLES / "codebook.csv"), "-o",
+                                        str(tmp_path / "f.html"), "--boot", "0", "--format", "json"])
+    assert files.exit_code == 0, files.output
+    assert json.loads(files.stdout)["analysed_round"] == "round2"

@@ -448,14 +448,14 @@ def test_consensus_how_decided_replaces_the_placeholder():
 def test_report_settings_are_checked_like_score(kwargs, code):
     x = np.array([[0, 0], [1, 1], [0, 1], [1, 1], [0, 0]])
     with pytest.raises(AgreeError) as err:
-        build_report(x, rounds=False, **kwargs)
+        build_report(x, **kwargs)
     assert err.value.code == code
 
 
 def test_report_accepts_a_minimum_in_minus_one_to_one():
     # score accepts any minimum in [-1, 1]; so does the report
     x = np.array([[0, 0], [1, 1], [0, 1], [1, 1], [0, 0], [1, 0], [1, 1]])
-    assert build_report(x, minimum=-0.2, n_resamples=0, rounds=False).minimum == -0.2
+    assert build_report(x, minimum=-0.2, n_resamples=0).minimum == -0.2
 
 
 def test_report_on_no_units_raises_empty():
@@ -570,3 +570,26 @@ def test_consensus_with_numeric_ids_in_a_workbook_matches_the_data(tmp_path):
     pd.DataFrame({"unit": [1, 2.0], "source": ["agreed", "agreed"]}).to_excel(path, index=False)
     data = from_table([["a", "a"], ["b", "b"]], unit_ids=["1", "2"])
     assert summarise_consensus(path, data).units_not_in_data == 0
+
+
+def test_rounds_take_a_mapping_or_a_rounds_result_only():
+    from agree.analysis.rounds import compare_rounds, split_rounds
+
+    data = read(SAMPLES / "rounds_long.csv", codebook=SAMPLES / "codebook.csv", keep=["round"])
+    parts = split_rounds(data)
+    by_mapping = build_report(None, rounds=parts, n_resamples=0, seed=1)
+    compared = compare_rounds(parts, n_resamples=0, seed=1, minimum=0.8)
+    by_result = build_report(parts["2"], rounds=compared, n_resamples=0, seed=1)
+    assert by_mapping.analysed_round == by_result.analysed_round == "2"
+    assert by_mapping.to_dict()["coefficients"] == by_result.to_dict()["coefficients"]
+    for bad in ("round", True, False, ["1", "2"]):
+        with pytest.raises(AgreeError) as err:
+            build_report(data, rounds=bad, n_resamples=0)
+        assert err.value.code == "rounds"
+    with pytest.raises(AgreeError) as err:
+        build_report(parts["2"], drift_round="2", n_resamples=0)
+    assert err.value.code == "rounds"
+    # a round column without rounds: analysed as one set, and the report says so
+    pooled = build_report(data, n_resamples=0, seed=1)
+    assert pooled.rounds is None and pooled.sample.units_read == data.n_units
+    assert any(w.code == "rounds-pooled" for w in pooled.warnings)

@@ -21,6 +21,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from agree.analysis.rounds import split_rounds
 from agree.io.readers import read
 from agree.output.report import build_report, plain, report_tables, write_report
 
@@ -49,7 +50,7 @@ def full_report():
     n = final.n_units
     consensus = pd.DataFrame({"unit": list(map(str, final.unit_ids)), "final code": "Belonging",
                               "source": ["agreed"] * (n - 30) + ["decided"] * 25 + ["majority"] * 5})
-    return build_report(data, n_resamples=300, seed=17, corpus_size=600, consensus=consensus,
+    return build_report(None, rounds=split_rounds(data), n_resamples=300, seed=17, corpus_size=600, consensus=consensus,
                         title="Agreement & reliability <test>")
 
 

@@ -31,17 +31,18 @@ HOW_ORDER = ("discussion", "adjudicator", "majority")
 def build_report(data: Any, *, level: str | None = None, minimum: float | None = None,
                  n_resamples: int = DEFAULT_RESAMPLES, seed: int | None = None,
                  confidence_level: float = DEFAULT_CONFIDENCE,
-                 corpus_size: int | None = None, consensus: Any = None, rounds: Any = None,
-                 round_column: str = "round", codebooks: Mapping[str, Any] | None = None,
-                 drift_round: str | None = None, analysed_round: str | None = None,
+                 corpus_size: int | None = None, consensus: Any = None,
+                 rounds: RoundsResult | Mapping[str, Any] | None = None,
+                 codebooks: Mapping[str, Any] | None = None, drift_round: str | None = None,
+                 analysed_round: str | None = None,
                  title: str = "Intercoder agreement", digits: int = 2, cluster: str | None = None,
                  progress: Progress | None = None) -> Report:
     """Compute everything an agreement report shows.
 
     Parameters
     ----------
-    data : CodingData, DataFrame or array (units x coders). With `rounds` given as a
-        {round: data} mapping, None means the last full round's data.
+    data : CodingData, DataFrame or array (units x coders): the units the figures describe.
+        With `rounds` given as a {round: data} mapping, None means the last full round's data.
     level : level of measurement ("nominal", "ordinal", "interval", "ratio"); default the data's.
     minimum : the minimum acceptable agreement. None (default) uses .800, Krippendorff's
         convention; the settings line says that it was the default (the methods paragraph
@@ -50,12 +51,20 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     corpus_size : the number of units in the whole corpus, to state the share double-coded.
     consensus : a consensus file (path) or DataFrame with a "source" column (agreed, decided,
         majority, unresolved) and a unit id column; its counts by source go in the report.
-    rounds : None to analyse rounds when `data` has a `round_column`; a RoundsResult (or a
-        {round: data} mapping) to include; False for none. When rounds come from the data's
-        own column, the main figures describe the last round not marked as `drift_round`.
-    codebooks, drift_round : passed to `compare_rounds`.
-    analysed_round : the round `data` holds, when `rounds` are given separately (stated in the
-        methods paragraph).
+    rounds : coding rounds to compare, one of two kinds:
+
+        - a mapping {round name: data}, in round order: compared here with `compare_rounds`
+          (same settings and seed as the rest of the report); `codebooks` and `drift_round`
+          go to it. With `data` None the figures describe the last round not marked as
+          `drift_round`.
+        - a `RoundsResult` already computed; `data` is then the data of the round analysed.
+
+        None (default): no rounds. For data with a round column, pass
+        ``rounds=agree.analysis.rounds.split_rounds(data, column)`` (the command line does);
+        data that keep a "round" column but get no `rounds` are analysed as one set, with a note.
+    codebooks, drift_round : passed to `compare_rounds` (only with `rounds` as a mapping).
+    analysed_round : the round `data` holds (stated in the methods paragraph); default the
+        last full round when `rounds` are given.
     title, digits : the report's title and the decimals shown for coefficients.
     cluster : the name of a kept per-unit column (e.g. the document or interview): every
         bootstrap (coefficients, per-code diagnostics, rounds) resamples its groups whole, and
@@ -81,21 +90,28 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     if corpus_size is not None and corpus_size < 1:
         raise AgreeError(f"corpus size must be a positive number of units; got {corpus_size}",
                          code="corpus-size")
-    rounds_result = None
     if seed is None:
         # one recorded seed for every part (coefficients, per-code diagnostics, rounds), so a
         # round's per-code figures equal the per-code table of that round
         seed = draw_seed()
-    round_opts = dict(level=level, minimum=minimum, n_resamples=n_resamples, seed=seed,
-                      confidence_level=confidence_level, codebooks=codebooks, drift_round=drift_round,
-                      cluster=cluster, progress=lambda step, done: tick(step, 0.2 * done))
+    if (codebooks or drift_round) and not isinstance(rounds, Mapping):
+        raise AgreeError("codebooks and drift_round need rounds given as a {round: data} mapping",
+                         code="rounds")
     if isinstance(rounds, Mapping):
         tick("rounds", 0.0)
         parts = dict(rounds)
-        rounds = compare_rounds(parts, **round_opts)
+        rounds = compare_rounds(parts, level=level, minimum=minimum, n_resamples=n_resamples, seed=seed,
+                                confidence_level=confidence_level, codebooks=codebooks,
+                                drift_round=drift_round, cluster=cluster,
+                                progress=lambda step, done: tick(step, 0.2 * done))
         if data is None:
             data = parts[rounds.final_round]
-            analysed_round = rounds.final_round
+    elif rounds is not None and not isinstance(rounds, RoundsResult):
+        raise AgreeError(f"rounds must be a {{round: data}} mapping or a RoundsResult; got "
+                         f"{type(rounds).__name__}", hint="for a round column, pass "
+                         "rounds=split_rounds(data, column) (agree.analysis.rounds)", code="rounds")
+    if rounds is not None and analysed_round is None:
+        analysed_round = rounds.final_round
     if data is None:
         raise AgreeError("no data to report on", code="no-input")
     d = as_coding_data(data)
@@ -105,22 +121,12 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
                          f"no units to analyse: none of the {d.n_units} units has a coded value",
                          hint="check that the data have one row per unit and one column per coder",
                          code="empty")
-    if isinstance(rounds, RoundsResult):
-        rounds_result = rounds
-    elif rounds is None or rounds is True or isinstance(rounds, str):
-        column = rounds if isinstance(rounds, str) else round_column
-        if column in d.columns:
-            tick("rounds", 0.0)
-            rounds_result = compare_rounds(d, round_column=column, **round_opts)
-            analysed_round = rounds_result.final_round
-            labels = np.asarray(d.columns[column]).astype(str)
-            d = d.subset(labels == analysed_round)
-        elif isinstance(rounds, str):
-            raise AgreeError(f"no round column '{column}' in the data (columns kept: "
-                             f"{', '.join(d.columns) or 'none'})", code="round-column")
-    elif rounds is not False:
-        raise AgreeError("rounds must be a RoundsResult, a {round: data} mapping, a column name, "
-                         "None or False", code="rounds")
+    rounds_result = rounds
+    pooled = None
+    if rounds is None and "round" in d.columns:
+        pooled = Note("rounds-pooled", "The data have a 'round' column, but all rounds were analysed "
+                      "together as one set; to compare the rounds and describe the last one, give "
+                      "rounds=split_rounds(data) (on the command line, --round-column round).")
 
     tick("scoring", 0.2)
     if cluster is not None and cluster not in d.columns:
@@ -151,7 +157,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     if rounds_result is not None and analysed_round is not None:
         sample = replace(sample, units_double_coded=sum(r.n_units for r in rounds_result.rounds))
     cons = None if consensus is None else summarise_consensus(consensus, d)
-    warnings = list(scored.warnings)
+    warnings = list(scored.warnings) + ([pooled] if pooled is not None else [])
     if rounds_result is not None:
         warnings.extend(rounds_result.warnings)
     if cluster is not None and n_clusters is not None and n_resamples:
