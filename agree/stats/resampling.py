@@ -204,11 +204,3 @@ def resolve_clusters(data: CodingData, cluster: Any) -> tuple[np.ndarray | None,
     if pd.isna(labels).any():
         raise AgreeError("cluster labels: every unit needs a group; some labels are missing", code="cluster")
     return labels, "cluster"
-
-
-def cluster_features(unit_features: np.ndarray, clusters: np.ndarray) -> tuple[np.ndarray, int]:
-    """Sum per-unit features within clusters: (G, K) and the number of clusters G."""
-    labels, idx = np.unique(np.asarray(clusters).astype(str), return_inverse=True)
-    out = np.zeros((len(labels), unit_features.shape[1]))
-    np.add.at(out, idx, unit_features)
-    return out, len(labels)

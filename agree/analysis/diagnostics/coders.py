@@ -128,13 +128,10 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = D
             return a[..., 1:] - a[..., :1]
 
         names = [f"change in alpha without {c}" for c in data.coders]
-        if clusters is not None:
-            features, counts = features[pat.inverse], None
-        else:
-            counts = pat.counts
         iv = bootstrap_intervals(without - alpha, features, finish, n_resamples=n_resamples, seed=seed,
-                                 confidence_level=confidence_level, ci_method=ci_method, counts=counts,
-                                 clusters=clusters, cluster_name=cluster_name, labels=names)
+                                 confidence_level=confidence_level, ci_method=ci_method, counts=pat.counts,
+                                 clusters=clusters, inverse=pat.inverse, cluster_name=cluster_name,
+                                 labels=names)
         low, high, boot_info = iv.low, iv.high, iv.bootstrap
         notes.extend(iv.notes)
     else:

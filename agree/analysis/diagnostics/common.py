@@ -14,10 +14,10 @@ from agree.core.model import AgreeError, CodingData, as_coding_data, expand_weig
 from agree.core.results import BootstrapInfo, Note
 from agree.core.seeds import make_rng
 from agree.stats.kernels import SET_DISTANCES
+from agree.stats.patterns import cluster_sums
 from agree.stats.resampling import (
     bootstrap_interval,
     bootstrap_replicates,
-    cluster_features,
     jackknife_values,
     resolve_clusters,
 )
@@ -98,14 +98,15 @@ class Intervals:
 def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Callable[[np.ndarray], np.ndarray],
                         *, n_resamples: int, seed: Any, confidence_level: float, ci_method: str,
                         minimum: float | None = None, counts: np.ndarray | None = None,
-                        clusters: np.ndarray | None = None, cluster_name: str | None = None,
-                        labels: Sequence[str] | None = None) -> Intervals:
+                        clusters: np.ndarray | None = None, inverse: np.ndarray | None = None,
+                        cluster_name: str | None = None, labels: Sequence[str] | None = None) -> Intervals:
     """Bootstrap intervals for several statistics from the same unit (or cluster) resamples.
 
     Items are the distinct rows of `features` (units with the same features resample alike),
     or, with `counts`, the rows of `features` are already distinct patterns occurring
-    `counts` times. With `clusters` (one label per row of `features`, which are then units),
-    the items are the clusters: the features of their units summed, each drawn whole.
+    `counts` times. With `clusters` (one label per unit) the items are the clusters: the
+    features of their units summed, each drawn whole; the rows of `features` are then units, or
+    patterns when `inverse` gives the pattern of each unit.
     `labels` name the statistics in the notes ("code 'X', α"). The lower bound is the
     one-sided lower confidence bound at `confidence_level` (the rule of ``agree score --min``).
     """
@@ -117,7 +118,8 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
     notes: list[Note] = []
     unit = "unit"
     if clusters is not None:
-        items, n_items = cluster_features(features, clusters)
+        rows = np.arange(len(features)) if inverse is None else inverse
+        items, n_items = cluster_sums(features, rows, clusters)
         counts = np.ones(n_items, dtype=np.int64)
         unit = f"cluster:{cluster_name or 'cluster'}"
         if n_items < FEW_CLUSTERS:
