@@ -137,6 +137,19 @@ LevelOption = Annotated[Optional[Level], typer.Option(
     "--level", help="Level of measurement. Default: ordinal if the codebook has an order, else nominal.")]
 KeepOption = Annotated[Optional[list[str]], typer.Option(
     "--keep", help="Other per-unit column to keep (e.g. a round or document column); repeatable.")]
+class Engine(str, Enum):
+    auto = "auto"
+    pandas = "pandas"
+    duckdb = "duckdb"
+
+
+EngineOption = Annotated[Engine, typer.Option(
+    "--engine", help="How to read: pandas (in memory, every layout), duckdb (long CSV/Parquet files or globs such "
+                     "as 'logs/*.parquet' reduced to pattern counts out of core), or auto: duckdb for long files of "
+                     "5 million rows or more (AGREE_DUCKDB_ROWS) where the command accepts pattern counts.")]
+CountsOption = Annotated[bool, typer.Option(
+    "--counts", help="The file is a pattern-count table: one column per coder (or a 'values' column of the codes "
+                     "each unit received, joined by '|') and a 'count' column; see the README.")]
 ClusterOption = Annotated[Optional[str], typer.Option(
     "--cluster", help="Column grouping the units (e.g. document); resampling keeps each group whole.")]
 
@@ -154,6 +167,8 @@ _READING = (
     ("trim", TrimOption, False, "trim"),
     ("casefold", CasefoldOption, False, "casefold"),
     ("keep", KeepOption, None, "keep"),
+    ("engine", EngineOption, Engine.auto, "engine"),
+    ("counts", CountsOption, False, "counts"),
 )
 
 
@@ -220,22 +235,64 @@ def load_data(files: Sequence[Path], *, layout: Layout | str | None = None, unit
               text: str | None = None, sheet: Sequence[str] | str | None = None, sep: str = ";",
               codebook: Path | None = None, trim: bool = False, casefold: bool = False,
               level: Level | str | None = None, keep: Sequence[str] | None = (),
-              cluster: str | None = None) -> CodingData:
-    """Read the files with `agree.read` and tell the user (stderr) what was detected.
+              cluster: str | None = None, engine: Engine | str = "auto", counts: bool = False,
+              weighted_ok: bool = False, progress: Any = None) -> CodingData:
+    """Read the files and tell the user (stderr) what was detected: `agree.read` (the pandas engine),
+    `agree.read_duckdb` (the duckdb engine) or, with `counts`, `agree.read_counts`.
 
-    `cluster`, when given, is kept as a per-unit column like those in `keep`.
+    `cluster`, when given, is kept as a per-unit column like those in `keep`. `engine` 'auto' takes
+    DuckDB only where the command accepts pattern counts (`weighted_ok`) and the files are large.
+    `progress` is the library's progress callback (the DuckDB reduction reports through it).
     """
-    from agree.io.readers import read
-
     keep_cols = list(keep or ())
     if cluster and cluster not in keep_cols:
         keep_cols.append(cluster)
-    data = read(list(files), layout=_value(layout), unit=unit, coder=_one_or_many(coder),
-                code=_one_or_many(code),
-                text=text, sheet=_one_or_many(sheet), sep=sep or None, codebook=codebook, trim=trim,
-                casefold=casefold, level=_value(level), keep=tuple(keep_cols))
+    opts = dict(codebook=codebook, level=_value(level), sep=sep or None, trim=trim, casefold=casefold)
+    engine = _value(engine)
+    if counts:
+        from agree.io.counts import read_counts
+
+        data = read_counts([str(f) for f in files], coders=_as_names(coder), values=_one_or_many(code),
+                           keep=tuple(keep_cols), sheet=_one_or_many(sheet), progress=progress, **opts)
+    else:
+        from agree.io.duckdb_engine import choose_engine, expand_paths
+
+        names = [str(f) for f in files]
+        chosen = choose_engine(names, engine if weighted_ok or engine != "auto" else "pandas", layout=_value(layout))
+        if chosen == "duckdb":
+            from agree.io.duckdb_engine import read_duckdb
+
+            if _value(layout) not in (None, "long") or sheet or text:
+                raise AgreeError("the duckdb engine reads the long layout (unit, coder, code columns) of CSV and "
+                                 "Parquet files", code="bad-option",
+                                 hint="leave out --layout, --sheet and --text-col, or use --engine pandas")
+            if engine == "auto":
+                note("note: large files: reduced to pattern counts with DuckDB (--engine pandas reads them "
+                     "into memory)")
+            data = read_duckdb(names, unit=unit, coder=_one(coder, "--coder-col"), code=_one(code, "--code-col"),
+                               keep=tuple(keep_cols), progress=progress, **opts)
+        else:
+            from agree.io.readers import read
+
+            data = read(expand_paths(names), layout=_value(layout), unit=unit, coder=_one_or_many(coder),
+                        code=_one_or_many(code), text=text, sheet=_one_or_many(sheet), keep=tuple(keep_cols),
+                        **opts)
     report_reading(data)
     return data
+
+
+def _one(x: Sequence[str] | str | None, flag: str) -> str | None:
+    x = _one_or_many(x)
+    if x is not None and not isinstance(x, str):
+        raise AgreeError(f"{flag} takes one column with the duckdb engine", code="bad-option",
+                         hint="the long layout has one coder column and one code column")
+    return x
+
+
+def _as_names(x: Sequence[str] | str | None) -> list[str] | None:
+    if x is None:
+        return None
+    return [x] if isinstance(x, str) else list(x) or None
 
 
 def report_reading(data: CodingData) -> None:
@@ -243,7 +300,8 @@ def report_reading(data: CodingData) -> None:
     report = data.report
     if report is None:
         return
-    note(f"read {report.units_read} units, {len(data.coders)} coders, {report.values_read} values "
+    coders = "value positions (coders unknown)" if not data.coder_identity else f"{len(data.coders)} coders"
+    note(f"read {report.units_read} units, {coders}, {report.values_read} values "
          f"({report.values_missing} missing): {report.detected}")
     for line in report.notes:
         # warning-level notes start with "warning:" and are shown as they are, so they stand out

@@ -68,7 +68,8 @@ def score(
 
     with progress_bar("score") as tick:
         tick("reading", 0.0)
-        data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
+        data = load_data(files, codebook=codebook, level=level, cluster=cluster, weighted_ok=True,
+                         progress=scaled(tick, 0.0, 0.3), **reading)
         result = run_score(data, level=level.value if level else None, minimum=minimum, n_resamples=boot,
                            seed=seed, confidence_level=ci, ci_method=ci_method.value, cluster=cluster,
                            progress=scaled(tick, 0.3, 1.0))
@@ -124,7 +125,7 @@ def print_score(result: "ScoreResult") -> None:
                else "analytic where published, else the bootstrap SD" if result.n_resamples
                else "analytic where published, else none (no bootstrap)")
     stdout.print(f"Intervals: {boot}. SE: {se_rule}.", highlight=False)
-    stdout.print(f"Units: {result.units_read} read, {result.units_used} used, {len(result.units_left_out)} left out "
+    stdout.print(f"Units: {result.units_read} read, {result.units_used} used, {result.units_read - result.units_used} left out "
                  f"(fewer than two coders). Values: {result.values_read} read, {result.values_missing} empty cells.",
                  highlight=False)
     if result.units_left_out:

@@ -102,6 +102,9 @@ class CodingData:
         units (same values, same cluster). None means one unit per row. The coefficients and
         their bootstrap treat a row of weight w exactly as w identical rows; functions that need
         one row per unit refuse weighted data (`require_unit_rows`).
+    coder_identity : False when the columns are not coders but positions of the values a unit
+        received, whoever gave them (a counts table in the multiset layout); coefficients that pair
+        each coder's values across units (Cohen's, the weighted and Conger's kappa) refuse such data.
     """
 
     codes: np.ndarray
@@ -118,6 +121,7 @@ class CodingData:
     report: ReadReport | None = None
     order: str = "given"  # how `values` were ordered: "given" (codebook, categories), "numeric", "alphabetical"
     weights: np.ndarray | None = None
+    coder_identity: bool = True
 
     def __post_init__(self):
         codes = np.asarray(self.codes)
@@ -293,6 +297,15 @@ def require_unit_rows(data: CodingData, what: str) -> None:
                          f"stand for {data.units_represented:,} units (e.g. positions of text compressed into "
                          "runs)", hint="use the coefficients (score, krippendorff_alpha, ...), which accept "
                          "weighted data, or build the data with one row per unit", code="weighted")
+
+
+def require_coder_identity(data: CodingData, what: str) -> None:
+    """Refuse data whose columns are not coders (multiset counts) where `what` pairs each coder's values."""
+    if not data.coder_identity:
+        raise AgreeError(f"{what} needs to know which coder gave which value, but these data list only the values "
+                         "each unit received (a counts table in the multiset layout)",
+                         hint="count the patterns with one column per coder, or use a coefficient that ignores "
+                              "coder identity (alpha, Fleiss' kappa, AC1)", code="no-coder-identity")
 
 
 def value_sort_key(v: Any):

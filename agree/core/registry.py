@@ -121,7 +121,7 @@ class Coefficient:
         return self.short or self.display
 
 
-_TWO = frozenset({"set-valued", "two-coders", "q"})
+_TWO = frozenset({"set-valued", "two-coders", "q", "no-coder-identity"})
 
 COEFFICIENTS: tuple[Coefficient, ...] = (
     Coefficient("percent_agreement", "percent agreement", "percent agreement", "percent",
@@ -136,7 +136,7 @@ COEFFICIENTS: tuple[Coefficient, ...] = (
                 (FLEISS_1971, FLEISS_NEE_LANDIS_1979, GWET_2014), "fleiss_kappa", symbol="κ",
                 designs="two or more coders, who may differ from unit to unit"),
     Coefficient("conger_kappa", "Conger's kappa", "Conger's κ", "kappa-type", (CONGER_1980, GWET_2014),
-                "conger_kappa", refuses=frozenset({"set-valued", "q", "rotating"}), symbol="κ",
+                "conger_kappa", refuses=frozenset({"set-valued", "q", "rotating", "no-coder-identity"}), symbol="κ",
                 designs="two or more identified coders, the same coders on (nearly) every unit"),
     Coefficient("brennan_prediger", "Brennan–Prediger kappa", "Brennan–Prediger κ", "high-running",
                 (BRENNAN_PREDIGER_1981,), "brennan_prediger",

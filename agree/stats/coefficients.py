@@ -40,7 +40,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_RESAMPLES, FEW_CLUSTERS
-from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, value_label
+from agree.core.model import LEVELS, AgreeError, CodingData, as_coding_data, require_coder_identity, value_label
 from agree.core.registry import references_for
 from agree.core.results import AgreementResult, BootstrapInfo, Note, display_name
 from agree.core.seeds import make_rng
@@ -689,6 +689,7 @@ def cohen_kappa(data: Any, *, weights: Any = None, categories: Sequence[Any] | N
     q x q matrix.
     """
     d = _prepare(data, categories)
+    require_coder_identity(d, "Cohen's kappa")
     if d.n_coders != 2:
         raise AgreeError(f"Cohen's kappa compares exactly two coders; the data have {d.n_coders} "
                          f"({', '.join(d.coders)})",
@@ -817,6 +818,7 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     z is the Wald statistic κ / se.
     """
     d = _prepare(data, categories)
+    require_coder_identity(d, "Conger's kappa")
     _check_q(d, "Conger's kappa")
     observed = d.codes >= 0
     uw = d.unit_weights()

@@ -26,7 +26,7 @@ class ScoreResult:
     coders: tuple[str, ...]
     units_read: int
     units_used: int
-    units_left_out: tuple[str, ...]
+    units_left_out: tuple[str, ...]   # ids of the units left out (empty for weighted data: rows are not units)
     values_read: int
     values_missing: int
     values_used: int
@@ -69,7 +69,7 @@ class ScoreResult:
     def to_dict(self) -> dict[str, Any]:
         return {
             "units": {"read": self.units_read, "used": self.units_used,
-                      "left_out": len(self.units_left_out),
+                      "left_out": self.units_read - self.units_used,
                       "left_out_reason": "fewer than two coders coded these units",
                       "left_out_ids": list(self.units_left_out)},
             "values": {"read": self.values_read, "missing": self.values_missing, "used": self.values_used},
@@ -171,7 +171,8 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
 
     observed = d.codes >= 0
     per_unit = observed.sum(axis=1)
-    left = d.unit_ids[per_unit < 2]
+    # rows of weighted data (pattern counts) are not units: their ids name no unit left out
+    left = d.unit_ids[per_unit < 2] if d.weights is None else d.unit_ids[:0]
     used = per_unit >= 2
     uw = d.unit_weights()  # rows of weighted data stand for several units
     warnings = _score_warnings(d, results, int(uw[used].sum()))

@@ -37,3 +37,48 @@ def test_reading_options_parse_with_typer(tmp_path):
     result = CliRunner().invoke(app, [str(path), "--coder-col", "who", "--level", "ordinal", "--trim"])
     assert result.exit_code == 0, result.output
     assert "ordinal ana,ben,chloe 3" in result.stdout
+
+
+def test_counts_and_engine_flags_score_as_the_library(tmp_path, capsys):
+    import json
+
+    import agree
+    from tests.cli.conftest import run_main
+    from tests.io.logs import long_log
+
+    log = long_log(4, units=150)
+    for i, part in enumerate((log.iloc[:200], log.iloc[200:])):
+        part.to_parquet(tmp_path / f"log-{i}.parquet", index=False)
+    glob = str(tmp_path / "log-*.parquet")
+    code, out, err = run_main(capsys, "score", glob, "--engine", "duckdb", "--cluster", "queue", "--boot", "100",
+                              "--format", "json")
+    assert code == 0 and "reduced by DuckDB out of core" in err
+    lib = agree.score(agree.read_duckdb(glob, cluster="queue"), n_resamples=100, seed=1, cluster="queue")
+    assert json.loads(out) == json.loads(json.dumps(lib.to_dict()))
+
+    counts = tmp_path / "counts.csv"
+    agree.pattern_count_table(agree.read_duckdb(glob, cluster="queue")).to_csv(counts, index=False)
+    code, out, err = run_main(capsys, "score", counts, "--counts", "--cluster", "queue", "--boot", "100",
+                              "--format", "json")
+    assert code == 0 and "pattern counts, coder columns" in err
+    lib = agree.score(agree.read_counts(counts, cluster="queue"), n_resamples=100, seed=1, cluster="queue")
+    assert json.loads(out) == json.loads(json.dumps(lib.to_dict()))
+
+    # auto: DuckDB above the threshold, for the commands that accept pattern counts
+    code, out, err = run_main(capsys, "score", tmp_path / "log-0.parquet", "--boot", "0")
+    assert code == 0 and "DuckDB" not in err
+    import os
+    os.environ["AGREE_DUCKDB_ROWS"] = "10"
+    try:
+        code, out, err = run_main(capsys, "score", tmp_path / "log-0.parquet", "--boot", "0")
+        assert code == 0 and "reduced to pattern counts with DuckDB" in err
+        code, out, err = run_main(capsys, "codes", tmp_path / "log-0.parquet", "--boot", "0")
+        assert code == 0 and "DuckDB" not in err
+    finally:
+        del os.environ["AGREE_DUCKDB_ROWS"]
+
+    counts.write_text("ann,bob,count\nx,x,3\nx,y,2.5\n")
+    code, out, err = run_main(capsys, "score", counts, "--counts")
+    assert code == 2 and err.count("\n") == 1 and "row 3, column 'count'" in err
+    code, out, err = run_main(capsys, "codes", tmp_path / "log-0.parquet", "--engine", "duckdb")
+    assert code == 2 and "one row per unit" in err

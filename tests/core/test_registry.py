@@ -28,7 +28,7 @@ def in_words(label: str) -> str:
     for letter, word in GREEK.items():
         words = words.replace(letter, word)
     return words
-REFUSAL_CODES = {"set-valued", "two-coders", "q", "rotating", "binary"}  # AgreeError codes of the coefficients
+REFUSAL_CODES = {"set-valued", "two-coders", "q", "rotating", "binary", "no-coder-identity"}  # AgreeError codes of the coefficients
 
 
 def binary_two_coders():
