@@ -350,7 +350,10 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
     blank_coder = "(agree_c IS NULL OR trim(CAST(agree_c AS VARCHAR)) = '')"
 
     # pass 1: coders, codes, rows without coder or unit, first rows
-    scan = run.run(f"SELECT {_FILE}, agree_c, agree_v, {blank_unit} AS nu, count(*) AS n, min({_ROW}) AS first "
+    # (a unit id of spaces only is found per unit in pass 2: a trim on every row costs a scan; and
+    # where the Parquet statistics say the unit column has no nulls, it is not read at all here)
+    nu = "false" if _never_null(src, unit_col) else "agree_u IS NULL"
+    scan = run.run(f"SELECT {_FILE}, agree_c, agree_v, {nu} AS nu, count(*) AS n, min({_ROW}) AS first "
                    f"FROM {src.select(row=True)} GROUP BY ALL", "scanning coders and codes", 0.0, 0.25)
     file_index = {f: i for i, f in enumerate(src.files)}
     offsets = _row_offsets(scan, src)
@@ -363,9 +366,10 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
             name = name.strip() or None
         coder_names[raw] = name
     blank_rows = sum(r[4] for r in scan if coder_names[r[1]] is None and r[3] and _blank(r[2]))
-    _refuse_rows(con, src, sum(r[4] for r in scan if coder_names[r[1]] is None and not (r[3] and _blank(r[2]))),
-                 f"{blank_coder} AND NOT ({blank_unit} AND {blank_code})", coder_col, offsets,
-                 "row(s) have no coder name", "missing-coder", "fill in the coder of every row")
+    blank_rows += _refuse_rows(
+        con, src, sum(r[4] for r in scan if coder_names[r[1]] is None and not (r[3] and _blank(r[2]))),
+        f"{blank_coder} AND NOT ({blank_unit} AND {blank_code})", coder_col, offsets,
+        "row(s) have no coder name", "missing-coder", "fill in the coder of every row")
     _refuse_rows(con, src, sum(r[4] for r in scan if coder_names[r[1]] is not None and r[3]),
                  f"{blank_unit} AND NOT {blank_coder}", unit_col, offsets,
                  "row(s) have values but no unit id", "missing-unit-id",
@@ -428,11 +432,19 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
     conflicts = "".join(f", count(*) FILTER (WHERE kmin{i} IS DISTINCT FROM kmax{i}) AS conflict{i}"
                         for i in range(len(kept)))
     key_cols = ", ".join(f"coalesce(k{j}, 0) AS k{j}" for j in range(chunks))
+    # ids of spaces only, per unit (cheap: the first character is looked at before any trim)
+    blank_id = "(u = '' OR (ascii(u) IN (9, 10, 13, 32) AND trim(u) = ''))" if text_unit else "false"
     sql = (f"WITH units AS (SELECT {unit_expr} AS u, count(*) AS n, {keys}{kept_aggs} "
            f"FROM {src.select(row=False)} JOIN agree_coders cc ON agree_c = cc.raw "
-           f"LEFT JOIN agree_codes vc ON agree_v = vc.raw WHERE NOT {blank_unit} GROUP BY 1) "
-           f"SELECT {key_cols}{kept_cols}, n > {seen} AS dup, count(*) AS units{conflicts} FROM units GROUP BY ALL")
+           f"LEFT JOIN agree_codes vc ON agree_v = vc.raw WHERE agree_u IS NOT NULL GROUP BY 1) "
+           f"SELECT {key_cols}{kept_cols}, n > {seen} AS dup, {blank_id} AS blank, count(*) AS units{conflicts} "
+           "FROM units GROUP BY ALL")
     out = run.run(sql, "reducing to pattern counts", 0.25, 1.0, columns=True)
+    blank = np.asarray(out["blank"], dtype=bool)
+    if blank.any():
+        _refuse_rows(con, src, -1, f"{blank_unit} AND NOT {blank_coder}", unit_col, offsets,
+                     "row(s) have values but no unit id", "missing-unit-id",
+                     "fill in the unit id of every row (or delete the row)")
     dup = np.asarray(out["dup"], dtype=bool)
     units = np.asarray(out["units"], dtype=np.int64)
     if dup.any():
@@ -477,6 +489,28 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
     return data
 
 
+def _never_null(src: _Source, column: str) -> bool:
+    """Whether the Parquet statistics of every file say `column` holds no null (False when unknown)."""
+    if src.kind != "parquet":
+        return False
+    import pyarrow.parquet as pq
+
+    try:
+        for f in src.files:
+            meta = pq.read_metadata(f)
+            names = [meta.schema.column(i).name for i in range(meta.num_columns)]
+            if column not in names:
+                return False
+            i = names.index(column)
+            for g in range(meta.num_row_groups):
+                stats = meta.row_group(g).column(i).statistics
+                if stats is None or not stats.has_null_count or stats.null_count:
+                    return False
+    except Exception:  # noqa: BLE001  (no usable statistics: check every row)
+        return False
+    return True
+
+
 def _objects(column: Any) -> np.ndarray:
     """A fetched column as an object array of Python values (None where NULL)."""
     if isinstance(column, np.ma.MaskedArray):
@@ -501,11 +535,16 @@ def _row_offsets(scan: list[tuple], src: _Source) -> dict[str, int]:
     return {f: first - 2 for f, first in firsts.items()}
 
 
-def _refuse_rows(con, src: _Source, total: int, condition: str, column: str, offsets: dict[str, int],
-                 what: str, code: str, hint: str) -> None:
-    """An error naming how many rows match `condition` and the first of them (file and row)."""
+def _refuse_rows(con, src: _Source, suspected: int, condition: str, column: str, offsets: dict[str, int],
+                 what: str, code: str, hint: str) -> int:
+    """An error naming how many rows match `condition` and the first of them (file and row), when
+    the scan `suspected` some (-1: unknown how many); returns how many suspected rows did not match
+    (entirely blank rows)."""
+    if not suspected:
+        return 0
+    total = con.execute(f"SELECT count(*) FROM {src.select(row=False)} WHERE {condition}").fetchone()[0]
     if not total:
-        return
+        return max(suspected, 0)
     first = con.execute(f"SELECT {_FILE}, {_ROW} FROM {src.select(row=True)} WHERE {condition} "
                         f"ORDER BY list_position(?, {_FILE}), {_ROW} LIMIT {SHOWN}", [src.files]).fetchall()
     rows = ", ".join(f"{Path(f).name} row {r - offsets.get(f, 0)}" for f, r in first)
