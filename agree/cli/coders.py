@@ -52,7 +52,7 @@ def coders_command(
 
     Example: agree coders samples/ratings.csv --codebook samples/ratings_codebook.csv --boot 2000 --seed 1
     """
-    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
+    data = load_data(files, codebook=codebook, level=level, cluster=cluster, weighted_ok=True, **reading)
     from agree.analysis.diagnostics import diagnose_coders
 
     result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,

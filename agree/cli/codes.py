@@ -77,7 +77,7 @@ def codes_command(
 
     Example: agree codes samples/multicode.xlsx --distance masi --min 0.8 --boot 2000 --seed 1
     """
-    data = load_data(files, codebook=codebook, level=level, cluster=cluster, **reading)
+    data = load_data(files, codebook=codebook, level=level, cluster=cluster, weighted_ok=True, **reading)
     from agree.analysis.diagnostics import diagnose_codes
 
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,

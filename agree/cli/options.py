@@ -146,7 +146,8 @@ class Engine(str, Enum):
 EngineOption = Annotated[Engine, typer.Option(
     "--engine", help="How to read: pandas (in memory, every layout), duckdb (long CSV/Parquet files or globs such "
                      "as 'logs/*.parquet' reduced to pattern counts out of core), or auto: duckdb for long files of "
-                     "5 million rows or more (AGREE_DUCKDB_ROWS) where the command accepts pattern counts.")]
+                     "5 million rows or more (AGREE_DUCKDB_ROWS) in the commands that accept pattern counts (score, codes, "
+                     "coders).")]
 CountsOption = Annotated[bool, typer.Option(
     "--counts", help="The file is a pattern-count table: one column per coder (or a 'values' column of the codes "
                      "each unit received, joined by '|') and a 'count' column; see the README.")]

@@ -72,7 +72,7 @@ def test_counts_and_engine_flags_score_as_the_library(tmp_path, capsys):
     try:
         code, out, err = run_main(capsys, "score", tmp_path / "log-0.parquet", "--boot", "0")
         assert code == 0 and "reduced to pattern counts with DuckDB" in err
-        code, out, err = run_main(capsys, "codes", tmp_path / "log-0.parquet", "--boot", "0")
+        code, out, err = run_main(capsys, "disagreements", tmp_path / "log-0.parquet", "-o", tmp_path / "r.csv")
         assert code == 0 and "DuckDB" not in err
     finally:
         del os.environ["AGREE_DUCKDB_ROWS"]
@@ -80,5 +80,6 @@ def test_counts_and_engine_flags_score_as_the_library(tmp_path, capsys):
     counts.write_text("ann,bob,count\nx,x,3\nx,y,2.5\n")
     code, out, err = run_main(capsys, "score", counts, "--counts")
     assert code == 2 and err.count("\n") == 1 and "row 3, column 'count'" in err
-    code, out, err = run_main(capsys, "codes", tmp_path / "log-0.parquet", "--engine", "duckdb")
+    code, out, err = run_main(capsys, "disagreements", tmp_path / "log-0.parquet", "--engine", "duckdb",
+                              "-o", tmp_path / "r.csv")
     assert code == 2 and "one row per unit" in err
