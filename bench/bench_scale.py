@@ -5,7 +5,8 @@ The generator (`bench/make_logs.py`) writes the files under bench/data/logs-<row
 committed; about 3 bytes a row in Parquet) unless they are there. Then, each in a fresh process,
 one after the other:
 
-1. bare: DuckDB (its default settings) runs the group-by a user would write to count the
+1. bare: DuckDB (its default settings, but at most 8 GB of memory on this shared machine: more
+   than it needs to keep the whole group-by in memory) runs the group-by a user would write to count the
    patterns: pivot the rows to one row per unit (MAX(label) FILTER (WHERE annotator = ...)),
    then GROUP BY the coder columns with COUNT(*);
 2. agree: ``agree score 'bench/data/logs-<rows>/*.parquet' --engine duckdb`` (2000 bootstrap
@@ -69,7 +70,8 @@ def main() -> None:
                        check=True)
     pattern = str(folder / "*.parquet")
     size = sum(f.stat().st_size for f in folder.glob("*.parquet")) / 1e6
-    bare = child(f"import duckdb\ncon = duckdb.connect()\ncon.execute('SET enable_progress_bar=false')\n"
+    bare = child(f"import duckdb\ncon = duckdb.connect(config={{'memory_limit': '8GB'}})\n"
+                 "con.execute('SET enable_progress_bar=false')\n"
                  f"rows = con.execute({bare_sql(pattern, a.cluster)!r}).fetchall()\nprint(len(rows))")
     cluster = ["--cluster", "document"] if a.cluster else []
     ours = child("import sys\nfrom agree.cli import main\n"

@@ -455,7 +455,7 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
         j, pos = divmod(i, per_chunk)
         codes[:, i] = (np.asarray(out[f"k{j}"], dtype=np.int64) // (base ** pos)) % base - 1
     weights = units
-    columns = {k: _objects(out[f"kmin{i}"]) for i, k in enumerate(kept)}
+    columns = {k: _labels(out[f"kmin{i}"]) for i, k in enumerate(kept)}
     notes = list(res.notes)
     for i, k in enumerate(kept):
         n_conflict = int(np.asarray(out[f"conflict{i}"]).sum())
@@ -511,13 +511,17 @@ def _never_null(src: _Source, column: str) -> bool:
     return True
 
 
-def _objects(column: Any) -> np.ndarray:
-    """A fetched column as an object array of Python values (None where NULL)."""
+def _labels(column: Any) -> np.ndarray:
+    """A fetched column of kept values: numbers stay a numeric array (a cluster column of millions of
+    (cluster, pattern) rows), text and columns with NULLs become objects (None where NULL)."""
     if isinstance(column, np.ma.MaskedArray):
+        if not np.ma.getmaskarray(column).any():
+            return _labels(column.data)
         out = column.data.astype(object)
         out[np.ma.getmaskarray(column)] = None
         return out
-    return np.asarray(column).astype(object)
+    column = np.asarray(column)
+    return column if column.dtype.kind in "iub" else column.astype(object)
 
 
 def _blank(v: Any) -> bool:
