@@ -66,6 +66,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.errors import AgreeError
+from agree.core.files import record_input
 from agree.core.model import ReadReport
 from agree.core.spans import CODE_PATH_SEPARATOR, SpanData
 from agree.io.spans import (
@@ -181,6 +182,7 @@ class Package:
         if declared > remaining:
             raise _too_large(label, self.max_bytes)
         if self.zip is None:
+            record_input(entry)
             with open(entry, "rb") as fh:
                 data = fh.read(remaining + 1)
         else:
@@ -245,6 +247,7 @@ def open_package(path: str | os.PathLike, *, max_bytes: int = MAX_BYTES,
         raise AgreeError("this is a folder, not a project file", where=where, code="file-not-found",
                          hint="give the .qdpx package, or the project's .qde file")
     ext = p.suffix.lower()
+    record_input(p)
     with open(p, "rb") as fh:
         head = fh.read(512)
     if not head:

@@ -54,6 +54,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.errors import AgreeError, cell_location
+from agree.core.files import record_input
 from agree.core.model import ReadReport, normalise_value
 from agree.core.spans import CODE_PATH_SEPARATOR, UNITS, SpanData, token_bounds
 from agree.io.columns import CODER_NAMES, find_column
@@ -395,10 +396,12 @@ def read_spans(path: str | os.PathLike, *, documents_dir: str | os.PathLike | No
                              hint=f"name the file '{doc_name}.txt' (files there: {_names(sorted(files), 3)})")
                 continue
             used.add(p.name)
+            record_input(p)
             texts[d], boms[d] = decode_text(p.read_bytes(), str(p))
         extra = [n for n in files if n not in used and n.lower().endswith(".txt")]
         for n in extra:
             documents.append(n[:-4])
+            record_input(files[n])
             texts.append(decode_text(files[n].read_bytes(), str(files[n]))[0])
             boms.append(False)
         if extra:

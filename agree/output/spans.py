@@ -2,13 +2,12 @@
 
 Columns: document, coder, code (its path for nested codes), start, end (zero-based, in the data's
 unit, end exclusive unless ``span_end="inclusive"``) and, where the texts are known and positions
-count characters, excerpt (the span's text). Text that a spreadsheet would run as a formula stays
-text: typed as text in xlsx, one leading ``'`` in CSV (as in the consensus file).
+count characters, excerpt (the span's text). Cells follow `agree.core.cells`: text that a
+spreadsheet would run as a formula stays text (a text cell in xlsx, one leading ``'`` in CSV).
 """
 
 from __future__ import annotations
 
-import csv
 import os
 from pathlib import Path
 from typing import Sequence
@@ -16,10 +15,11 @@ from typing import Sequence
 import pandas as pd
 
 from agree.core.errors import AgreeError
-from agree.core.files import atomic_write, check_output
+from agree.core.cells import frame_csv
+from agree.core.files import atomic_write, atomic_write_text, check_output
 from agree.core.spans import SpanData
 from agree.io.spans import SPAN_ENDS, check_choice
-from agree.output.reconciliation import protect_text, write_table_xlsx
+from agree.output.reconciliation import write_table_xlsx
 
 __all__ = ["write_spans", "span_table", "SPAN_TABLE_FORMATS"]
 
@@ -66,9 +66,7 @@ def write_spans(spans: SpanData, path: str | os.PathLike, *, format: str | None 
     check_output(out, list(inputs), force=force)
     frame = span_table(spans, span_end=span_end, excerpts=excerpts)
     if fmt == "csv":
-        text = frame.map(lambda v: protect_text(v) if isinstance(v, str) else v)
-        atomic_write(out, lambda tmp: text.to_csv(tmp, index=False, encoding="utf-8", lineterminator="\n",
-                                                  quoting=csv.QUOTE_NONNUMERIC))
+        atomic_write_text(out, frame_csv(frame))
     elif fmt == "parquet":
         atomic_write(out, lambda tmp: frame.to_parquet(tmp, index=False))
     else:

@@ -182,3 +182,23 @@ def test_bad_options_and_a_non_utf8_text(tmp_path, texts):
     (texts / "Baker A.txt").write_bytes("café".encode("cp1252"))
     with pytest.raises(AgreeError, match="not UTF-8"):
         read_spans(path, documents_dir=texts)
+
+
+def test_a_workbook_problem_names_the_sheet(tmp_path, texts):
+    path = tmp_path / "spans.xlsx"
+    with pd.ExcelWriter(path) as writer:
+        pd.DataFrame([dict(P.span_rows()[0], start=-1)]).to_excel(writer, sheet_name="Iris", index=False)
+    with pytest.raises(AgreeError, match=r"sheet 'Iris', row 2, column 'start': the start -1 is negative"):
+        read_spans(path, documents_dir=texts)
+
+
+def test_the_texts_read_are_inputs_of_the_run(tmp_path, texts):
+    from agree.core.files import run_scope
+
+    path = _table(tmp_path, P.span_rows())
+    with run_scope() as run:
+        read_spans(path, documents_dir=texts)
+        with pytest.raises(AgreeError, match="refusing to overwrite the input"):
+            from agree.core.files import check_output
+            check_output(texts / "Baker A.txt")
+    assert run is not None
