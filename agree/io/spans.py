@@ -60,7 +60,7 @@ from agree.core.spans import CODE_PATH_SEPARATOR, UNITS, SpanData, token_bounds
 from agree.io.columns import CODER_NAMES, find_column
 from agree.io.loaders import load_tables
 
-__all__ = ["read_spans", "assemble_spans", "decode_text", "code_tree", "has_astral", "SPAN_ENDS", "COVERAGES"]
+__all__ = ["read_spans", "spans_from_table", "assemble_spans", "decode_text", "code_tree", "has_astral", "SPAN_ENDS", "COVERAGES"]
 
 SPAN_ENDS = ("exclusive", "inclusive")
 COVERAGES = ("inferred", "declared")
@@ -539,3 +539,31 @@ def _check_excerpts(values: pd.Series, texts: list, doc_idx: np.ndarray, s: np.n
         note += f"; {fits_other} of them match with {other} ends (span_end='{other}')"
     return [note]
 
+
+
+def spans_from_table(table: pd.DataFrame, *, like: SpanData) -> SpanData:
+    """`SpanData` from a table of spans (columns document, coder, code, start, end; end exclusive,
+    in `like`'s unit) over the documents and codes of `like` (their texts, nesting and GUIDs), for
+    example the consensus spans of a reconciliation, to be written back with `write_project`.
+    Coders come from the table, in order of appearance; repeated rows count once."""
+    missing = [c for c in ("document", "coder", "code", "start", "end") if c not in table.columns]
+    if missing:
+        raise AgreeError(f"the span table has no column {missing[0]!r}", code="no-column",
+                         hint="columns: document, coder, code, start, end")
+    doc_index = {d: i for i, d in enumerate(like.documents)}
+    code_index = {c: i for i, c in enumerate(like.codes)}
+    for column, lookup, what in (("document", doc_index, "document"), ("code", code_index, "code")):
+        unknown = sorted(set(map(str, table[column])) - set(lookup))
+        if unknown:
+            raise AgreeError(f"unknown {what}(s) in the span table: {_names(unknown)}", code=f"unknown-{what}",
+                             hint=f"the spans must use the {what}s of the data they came from")
+    coders = list(dict.fromkeys(map(str, table["coder"])))
+    coder_index = {c: i for i, c in enumerate(coders)}
+    start = table["start"].to_numpy(np.int64)
+    end = table["end"].to_numpy(np.int64)
+    data, _ = assemble_spans(
+        documents=like.documents, texts=like.texts, lengths=like.lengths, coders=coders, codes=like.codes,
+        parents=like.parents, doc=[doc_index[str(d)] for d in table["document"]],
+        coder=[coder_index[str(c)] for c in table["coder"]], code=[code_index[str(c)] for c in table["code"]],
+        start=start, end=end, unit=like.unit, document_guids=like.document_guids, code_guids=like.code_guids)
+    return data

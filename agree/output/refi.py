@@ -44,7 +44,9 @@ from agree.io.refi import (
     parse_project,
     read_project,
 )
-from agree.io.spans import SPAN_ENDS, check_choice
+import pandas as pd
+
+from agree.io.spans import SPAN_ENDS, check_choice, spans_from_table
 
 __all__ = ["write_project", "CONSENSUS_USER"]
 
@@ -111,7 +113,7 @@ def _check_options(span_end: str, crlf: str, positions: str, path: Path, spans: 
                          hint="read the spans with unit='character'", code="unit")
 
 
-def write_project(spans: SpanData, path: str | os.PathLike, *, project: str | os.PathLike | None = None,
+def write_project(spans: SpanData | pd.DataFrame, path: str | os.PathLike, *, project: str | os.PathLike | None = None,
                   coder: str = CONSENSUS_USER, span_end: str = "exclusive", crlf: str = "two",
                   positions: str = "codepoints", name: str | None = None, force: bool = False,
                   inputs: Sequence[str | os.PathLike] = (), max_bytes: int = MAX_BYTES,
@@ -121,7 +123,9 @@ def write_project(spans: SpanData, path: str | os.PathLike, *, project: str | os
     Parameters
     ----------
     spans : with `project`, the consensus: the spans of one coder (whatever their name), written
-        as the added user's codings. Without `project`, every coder's spans.
+        as the added user's codings; either `SpanData` or a table with columns document, coder,
+        code, start, end (such as the consensus spans of a reconciliation), matched to the
+        project's sources and codes by name. Without `project`, every coder's spans (`SpanData`).
     path : the ``.qdpx`` to write; never one of the inputs; an existing file only with `force`.
     project : the original project (``.qdpx`` or ``.qde``): copied untouched, plus one user.
     coder : the name of the added user.
@@ -136,6 +140,13 @@ def write_project(spans: SpanData, path: str | os.PathLike, *, project: str | os
         the file written.
     """
     out = Path(path)
+    if isinstance(spans, pd.DataFrame):
+        if project is None:
+            raise AgreeError("a table of spans is written into its project: give project=", code="no-project",
+                             hint="or turn it into SpanData with agree.io.spans.spans_from_table(table, like=...)")
+        spans = spans_from_table(spans, like=read_project(project, span_end=span_end, crlf=crlf,
+                                                          positions=positions, max_bytes=max_bytes,
+                                                          max_entries=max_entries))
     _check_options(span_end, crlf, positions, out, spans)
     check_output(out, [project, *inputs] if project is not None else list(inputs), force=force)
     if project is None:

@@ -167,3 +167,17 @@ def test_the_hand_written_projects_of_the_reader_tests_are_valid(tmp_path):
     xml = P.project_xml(P.text_source(P.DOCS["Baker A"], "Baker A", sels, inline="Flour\r\neverywhere",
                                       whole=[(P.CODERS["Iris"], P.CODES["Work"])]))
     assert_valid(P.write_qdpx(tmp_path / "b.qdpx", xml, {}))
+
+
+def test_a_consensus_table_is_written_into_its_project(tmp_path, original):
+    read = read_project(original)
+    table = read.subset_coders(["Tomás"]).table().assign(coder="consensus", source="decided")
+    out = write_project(table, tmp_path / "settled.qdpx", project=original)
+    assert_valid(out)
+    back = read_project(out)
+    assert [r[:1] + r[2:] for r in rows(back.subset_coders(["consensus"]))] == \
+        [r[:1] + r[2:] for r in rows(read.subset_coders(["Tomás"]))]
+    with pytest.raises(AgreeError, match="unknown code"):
+        write_project(table.assign(code="Nope"), tmp_path / "bad.qdpx", project=original)
+    with pytest.raises(AgreeError, match="give project="):
+        write_project(table, tmp_path / "bad.qdpx")
