@@ -34,10 +34,26 @@ def _shares(text: Optional[str]) -> Optional[list[float]]:
                          hint="--shares 0.4,0.3,0.2,0.1", code="plan-shares") from None
 
 
+NEEDS = """\
+agree plan works out how many units every coder should code so that the lower bound of
+Krippendorff's alpha clears your minimum. It needs:
+  --coders N       how many coders will code each unit
+  --expected A     the alpha you expect them to reach (from a pilot round, say)
+  the codes:       --shares 0.4,0.3,0.2,0.1 (expected share of each code), or
+                   --categories K (equal shares; --rarest S for a rarer last code)
+Optional: --min (default 0.8), --level, --assurance (default 0.8), --missing, --plot FILE.
+
+Example: agree plan --coders 2 --shares 0.4,0.3,0.2,0.1 --expected 0.85
+Every option: agree plan --help"""
+
+
 @app.command()
 def plan(
-    coders: Annotated[int, typer.Option("--coders", help="Number of coders who each code every unit.")],
-    expected: Annotated[float, typer.Option("--expected", help="The alpha the coders are expected to reach.")],
+    ctx: typer.Context,
+    coders: Annotated[Optional[int], typer.Option(
+        "--coders", help="Number of coders who each code every unit.", show_default=False)] = None,
+    expected: Annotated[Optional[float], typer.Option(
+        "--expected", help="The alpha the coders are expected to reach.", show_default=False)] = None,
     categories: Annotated[Optional[int], typer.Option(
         "--categories", help="Number of categories (equal shares unless --rarest).")] = None,
     shares: Annotated[Optional[str], typer.Option(
@@ -63,7 +79,18 @@ def plan(
     """How many units to double-code: a Monte Carlo plan for Krippendorff's alpha.
 
     Example: agree plan --coders 2 --shares 0.5,0.3,0.15,0.05 --expected 0.9 --min 0.8 --plot assurance.png
+
+    With no options at all it prints what it needs, with an example, and exits with code 0.
     """
+    if coders is None or expected is None:
+        sources = [getattr(ctx.get_parameter_source(name), "name", "DEFAULT") for name in ctx.params]
+        if all(source == "DEFAULT" for source in sources):
+            stdout.print(Text(NEEDS))           # nothing asked: say what is needed (exit code 0)
+            return
+        missing_options = [o for o, v in (("--coders", coders), ("--expected", expected)) if v is None]
+        raise AgreeError(f"a plan needs {' and '.join(missing_options)}",
+                         hint="e.g. agree plan --coders 2 --shares 0.4,0.3,0.2,0.1 --expected 0.85; "
+                              "`agree plan` alone says what it needs", code="plan-inputs")
     if plot is not None and plot.suffix.lower() != ".png":
         raise AgreeError(f"--plot writes a PNG file; got '{plot.name}'", hint="name it e.g. assurance.png",
                          code="plot-format")

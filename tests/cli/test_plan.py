@@ -63,3 +63,41 @@ def test_cli_plan_bad_input_exit_code_2():
     assert res.returncode == 2
     assert res.stderr.startswith("error:") and "sum to 0.9" in res.stderr
     assert "Traceback" not in res.stderr
+
+
+def test_cli_plan_without_options_says_what_it_needs(capsys):
+    """`agree plan` alone is a question, not a mistake: it prints what a plan needs and an example
+    that runs, with exit code 0; a plan started without --coders or --expected is an error (2)."""
+    from tests.cli.conftest import run_main
+
+    code, out, err = run_main(capsys, "plan")
+    assert code == 0 and err == ""
+    for option in ("--coders", "--expected", "--shares", "--categories"):
+        assert option in out
+    example = next(line for line in out.splitlines() if line.startswith("Example: "))
+    args = example.removeprefix("Example: agree ").split()
+    assert args[0] == "plan"
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    ran = CliRunner().invoke(app, args + ["--replicates", "60", "--boot", "60", "--max-units", "200"])
+    assert ran.exit_code == 0, ran.output          # the example is a working command
+
+    code, out, err = run_main(capsys, "plan", "--coders", "2", "--categories", "4")
+    assert code == 2 and err.startswith("error: a plan needs --expected") and "Traceback" not in err
+    code, out, err = run_main(capsys, "plan", "--format", "json")
+    assert code == 2 and "--coders and --expected" in err
+
+
+def test_readme_plan_wording_matches_the_command():
+    """The README's timing row names a command that runs as written (no 'default plan' exists:
+    `agree plan` alone only says what it needs)."""
+    import re
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text(encoding="utf-8")
+    rows = [line for line in readme.splitlines() if line.startswith("| `agree plan")]
+    assert rows and all("`agree plan`," not in line for line in rows)
+    command = re.search(r"`(agree plan [^`]+)`", rows[0]).group(1)
+    assert "--coders" in command and "--expected" in command
+    assert "`agree plan` with no options prints what it needs" in " ".join(readme.split())
