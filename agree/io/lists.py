@@ -20,7 +20,7 @@ import pandas as pd
 
 from agree.core.model import AgreeError, cell_location, normalise_value
 from agree.io.columns import LIST_ID_NAMES, column_key, find_column
-from agree.io.loaders import Grid, load, load_tables, loader_for, read_lines
+from agree.io.loaders import load, load_tables, loader_for, read_lines
 
 __all__ = ["read_corpus", "read_unit_ids", "read_consensus", "find_records", "Records", "plain_list",
            "id_key"]
@@ -168,14 +168,14 @@ def find_records(path: str | os.PathLike, *, columns: Sequence[str], prefer: str
     loaded = load(Path(path), name=name)
     wanted = [c.strip().lower() for c in columns]
     grids = sorted(loaded.grids, key=lambda g: g.sheet != prefer)
-    sheets = {g.sheet: [list(g.header)] + g.records() for g in loaded.grids if g.sheet is not None}
+    records = {id(g): g.records() for g in grids}
+    sheets = {g.sheet: [list(g.header)] + records[id(g)] for g in loaded.grids if g.sheet is not None}
     for grid in grids:
-        for k, cells in enumerate([grid.header] + grid.records()[: search - 1]):
-            keys = {_cell_key(v) for v in cells}
-            if all(w in keys for w in wanted):
-                found: Grid = grid if k == 0 else grid.below(k - 1)
-                return Records(name, found.sheet, list(found.header), found.records(),
-                               [int(r) for r in found.rows], loaded.kind, sheets)
+        below = records[id(grid)]
+        for k, cells in enumerate([grid.header] + below[: search - 1]):
+            if all(w in {_cell_key(v) for v in cells} for w in wanted):
+                return Records(name, grid.sheet, list(cells), below[k:], [int(r) for r in grid.rows[k:]],
+                               loaded.kind, sheets)
     if len(grids) == 1 and grids[0].sheet is None:
         keys = {_cell_key(v) for v in grids[0].header}
         missing = [c for c, w in zip(columns, wanted) if w not in keys]

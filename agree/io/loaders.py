@@ -121,13 +121,6 @@ class Grid:
                              code="empty-sheet" if sheet else "empty-file", hint="check that the data were saved")
         return Table(file=file, sheet=sheet, frame=out, rows=self.rows, letters=letters, kind=self.kind)
 
-    def below(self, k: int) -> "Grid":
-        """The grid whose header is record `k` (0-based) of this one: for files with title rows
-        above the header."""
-        cells = self.frame.iloc[k].tolist()
-        frame = self.frame.iloc[k + 1:].reset_index(drop=True)
-        return Grid(self.file, self.sheet, cells, frame, self.rows[k + 1:], self.letters, self.kind)
-
 
 @dataclass(frozen=True)
 class Loaded:
