@@ -27,6 +27,7 @@ from agree.cli.options import (
     reading_options,
 )
 from agree.core.cells import frame_csv
+from agree.core.constants import DEFAULT_MINIMUM
 
 if TYPE_CHECKING:
     from agree.analysis.diagnostics import CodeDiagnostics
@@ -54,7 +55,7 @@ def resampling_note(bootstrap, cluster: str | None, n_clusters: int | None) -> s
 @reading_options
 def codes_command(
     files: Files,
-    minimum: MinOption = 0.8,
+    minimum: MinOption = DEFAULT_MINIMUM,
     boot: BootOption = DEFAULT_BOOT,
     seed: SeedOption = DEFAULT_SEED,
     min_units: MinUnitsOption = 5,

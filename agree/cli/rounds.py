@@ -29,6 +29,7 @@ from agree.cli.options import (
     load_data,
     reading_options,
 )
+from agree.core.constants import DEFAULT_MINIMUM
 from agree.core.errors import AgreeError
 
 
@@ -97,7 +98,7 @@ def rounds(
     round_files: RoundFilesOption = False,
     codebooks: CodebooksOption = None,
     drift_round: DriftOption = None,
-    minimum: MinOption = 0.8,
+    minimum: MinOption = DEFAULT_MINIMUM,
     boot: BootOption = DEFAULT_BOOT,
     seed: SeedOption = DEFAULT_SEED,
     ci: CIOption = 0.95,
