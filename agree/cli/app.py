@@ -74,7 +74,7 @@ def print_json(obj: Any) -> None:
     sys.stdout.write(json.dumps(obj, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
 
 
-DIGITS = 3          # decimals of coefficients in the terminal's tables
+DIGITS = 3          # decimals of coefficients in the terminal's tables (agree.core.format.DEFAULT_DIGITS)
 
 
 def coefficient(x: Any, digits: int = DIGITS) -> str:
@@ -85,14 +85,15 @@ def coefficient(x: Any, digits: int = DIGITS) -> str:
 
 
 def signed(x: Any, digits: int = DIGITS) -> str:
-    """A change of a coefficient with its sign (+.012, −.034)."""
-    text = coefficient(x, digits)
-    return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
+    """A change of a coefficient with its sign (+.012, −.034), as in the report."""
+    from agree.core.format import signed as format_signed
+
+    return format_signed(x, digits)
 
 
-def percent(x: Any, digits: int | None = 0) -> str:
-    """A share as a percentage, whole by default (`agree.core.format.percent_label`; None for
-    as many decimals as needed, as for confidence levels: 97.5%); '–' when undefined."""
+def percent(x: Any, digits: int | None = 1) -> str:
+    """A share as a percentage with one decimal, as in the report (`agree.core.format.percent_label`;
+    None for as many decimals as needed, as for confidence levels: 97.5%); '–' when undefined."""
     from agree.core.format import percent_label
 
     return percent_label(x, digits)

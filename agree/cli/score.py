@@ -120,7 +120,9 @@ def print_score(result: "ScoreResult") -> None:
     over = ("units" if result.resampled == "unit" else
             f"whole groups of '{result.resampled.partition(':')[2]}'" if ":" in result.resampled else "whole groups")
     boot = (f"{result.n_resamples} bootstrap replicates over {over} ({result.ci_method}), seed {result.seed}"
-            if result.n_resamples else "no bootstrap; analytic intervals where published")
+            if result.n_resamples else "no bootstrap; analytic intervals where published"
+            + (f"; P(< {format_value(result.minimum, 'threshold')}) is then the normal approximation from the "
+               "analytic SE, not a share of resamples" if result.minimum is not None else ""))
     se_rule = ("the bootstrap SD (published SEs assume independent units)" if result.resampled != "unit"
                else "analytic where published, else the bootstrap SD" if result.n_resamples
                else "analytic where published, else none (no bootstrap)")

@@ -1,5 +1,18 @@
 """Number and text formatting shared by the CLI and every report format, so numbers never disagree.
 
+The number style, one rule for every output (terminal tables, JSON sentences, HTML, Markdown,
+DOCX, LaTeX, plot labels), after APA 7 (Publication Manual, 7th ed., 6.36):
+
+- A quantity on the scale of an agreement coefficient (bounded by 1 in absolute value) has no
+  leading zero: a coefficient, its interval ends and one-sided bound, its standard error (the
+  SE of a coefficient bounded by 1 is at most 1), a change between two coefficients; so do
+  probabilities, shares of resamples and thresholds: ``.843``, ``−.120``, ``1.000``, SE ``.034``.
+- Three decimals (`DEFAULT_DIGITS`) for all of them, so that coefficients that differ in the
+  third decimal never print alike; probabilities below .001 print as ``< .001``.
+- Numbers that can exceed 1 keep the leading zero (ratios, test statistics: kind "number").
+- Counts get thousands separators; percentages one decimal (`percent_label`).
+- Negative numbers use the minus sign (U+2212); missing values an en dash.
+
 Report text is written in a small markup: ``*italic*`` for statistical symbols and
 ``[[placeholder]]`` for what the author must fill in; `lit` escapes user text (code names,
 file names) so it is never read as markup.
@@ -21,15 +34,22 @@ if TYPE_CHECKING:
 
     from agree.core.results import AgreementResult
 
+#: Decimals of coefficients, standard errors, interval ends and changes in every output.
+DEFAULT_DIGITS = 3
+#: Kinds of `format_value` on the scale of a coefficient or a probability: no leading zero.
+BOUNDED_KINDS = ("coefficient", "se", "probability", "threshold")
 
-def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
-    """Format one number for display, the same way everywhere.
+
+def format_value(x: Any, kind: str = "coefficient", digits: int = DEFAULT_DIGITS) -> str:
+    """Format one number for display, the same way everywhere (the rule: see the module).
 
     kind
-        "coefficient": bounded by 1, no leading zero (APA), ``digits`` decimals: ``.84``, ``−.12``.
+        "coefficient" (also for changes between coefficients) and "se": no leading zero,
+        ``digits`` decimals (default three): ``.843``, ``−.120``, ``.034``.
         "probability": no leading zero, 3 decimals, ``< .001`` below that.
         "threshold": no leading zero, 3 decimals (``.800``, ``.667``).
-        "se" / "number": leading zero, ``digits`` decimals.
+        "number": a quantity that can exceed 1 (a ratio, a test statistic): leading zero,
+        ``digits`` decimals.
         "count": integer with thousands separators; "amount": the same, one decimal if fractional.
         "percent": a share (0..1) as a percentage with one decimal.
     Missing, None and NaN give an en dash. Negative numbers use the minus sign (U+2212).
@@ -61,7 +81,7 @@ def format_value(x: Any, kind: str = "coefficient", digits: int = 2) -> str:
         raise ValueError(f"unknown kind {kind!r}")
     if text.startswith("-") and float(text) == 0:
         text = text[1:]
-    if kind in ("coefficient", "probability", "threshold"):
+    if kind in BOUNDED_KINDS:
         text = re.sub(r"^(-?)0\.", r"\1.", text)
     return text.replace("-", "\u2212")
 
@@ -81,11 +101,24 @@ def format_bound(x: Any, minimum: float | None = None) -> str:
     return format_value(nearest, "threshold")
 
 
-def format_interval(low: Any, high: Any, digits: int = 2) -> str:
-    """``[.79, .88]``; an en dash when there is no interval."""
+def format_interval(low: Any, high: Any, digits: int = DEFAULT_DIGITS) -> str:
+    """``[.791, .884]``; an en dash when there is no interval."""
     if low is None or high is None or not (math.isfinite(float(low)) and math.isfinite(float(high))):
         return "–"
     return f"[{format_value(low, 'coefficient', digits)}, {format_value(high, 'coefficient', digits)}]"
+
+
+def signed(x: Any, digits: int = DEFAULT_DIGITS) -> str:
+    """A change of a coefficient with its sign: ``+.012``, ``−.034``, ``.000``; an en dash if none."""
+    text = format_value(x, "coefficient", digits)
+    return text if text.startswith(("−", "–")) or text.strip(".0") == "" else "+" + text
+
+
+def signed_interval(low: Any, high: Any, digits: int = DEFAULT_DIGITS) -> str:
+    """The interval of a change, each end with its sign: ``[−.012, +.034]``; an en dash if none."""
+    if low is None or high is None or not (math.isfinite(float(low)) and math.isfinite(float(high))):
+        return "–"
+    return f"[{signed(low, digits)}, {signed(high, digits)}]"
 
 
 def lit(text: Any) -> str:
@@ -219,44 +252,38 @@ def percent_label(share: Any, digits: int | None = None) -> str:
     return f"{100 * v:.{digits}f}%"
 
 
-def _apa(x: float, digits: int) -> str:
-    """A bounded coefficient without the leading zero (APA): .84, -.12, 1.00."""
-    text = f"{x:.{digits}f}"
-    if text.startswith("0."):
-        return text[1:]
-    if text.startswith("-0."):
-        return "-" + text[2:]
-    return text
+def _coef(x: float, digits: int) -> str:
+    return format_value(x, "coefficient", digits)
 
 
 def decision_sentence(result: "AgreementResult", minimum: float, confidence_level: float | None = None,
-                      *, digits: int = 2) -> str:
+                      *, digits: int = DEFAULT_DIGITS) -> str:
     """Whether a coefficient's lower confidence bound clears a minimum, as one sentence.
 
     Uses the one-sided lower bound (`result.lower_bound`) when there is one, else the lower end
     of the two-sided interval, and says which. "Clears" means strictly above the minimum. When
     rounding would show the bound and the minimum as equal, more digits are shown.
 
-    Examples: "alpha = .84; the one-sided 95% lower bound .80 clears the minimum .80" (with
-    ``digits=2`` and a bound of .803 this becomes "... lower bound .803 clears the minimum .800").
+    Examples: "alpha = .843; the one-sided 95% lower bound .801 clears the minimum .800"; a bound
+    of .8003 is shown as ".8003 clears the minimum .8000" rather than as equal to it.
     """
     row = coefficient(result.name)
     name = row.sentence_name if row is not None else result.name.replace("_", " ")
     level = result.confidence_level if confidence_level is None else confidence_level
     estimate = result.estimate
     if estimate is None or not math.isfinite(estimate):
-        return f"{name} is undefined, so it cannot be compared with the minimum {_apa(minimum, digits)}"
+        return f"{name} is undefined, so it cannot be compared with the minimum {_coef(minimum, digits)}"
     if result.lower_bound is not None and math.isfinite(result.lower_bound):
         bound, kind = result.lower_bound, f"the one-sided {percent_label(level)} lower bound"
     elif result.ci_low is not None and math.isfinite(result.ci_low):
         bound, kind = result.ci_low, f"the lower end of the two-sided {percent_label(level)} interval"
     else:
-        return (f"{name} = {_apa(estimate, digits)}; no confidence bound is available, so the minimum "
-                f"{_apa(minimum, digits)} cannot be tested")
+        return (f"{name} = {_coef(estimate, digits)}; no confidence bound is available, so the minimum "
+                f"{_coef(minimum, digits)} cannot be tested")
     clears = bound > minimum
     shown = digits
-    while shown < 4 and bound != minimum and _apa(bound, shown) == _apa(minimum, shown):
+    while shown < 4 and bound != minimum and _coef(bound, shown) == _coef(minimum, shown):
         shown += 1
     verb = "clears" if clears else "does not clear"
-    return (f"{name} = {_apa(estimate, shown)}; {kind} {_apa(bound, shown)} {verb} the minimum "
-            f"{_apa(minimum, shown)}")
+    return (f"{name} = {_coef(estimate, shown)}; {kind} {_coef(bound, shown)} {verb} the minimum "
+            f"{_coef(minimum, shown)}")

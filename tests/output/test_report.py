@@ -64,15 +64,17 @@ def _missing_data(seed=7, n=80):
 # -- the formatting function (APA 7 style; Publication Manual 6.36, 6.44, from memory) --------
 
 @pytest.mark.parametrize("value,kind,expected", [
-    (0.8432, "coefficient", ".84"),
-    (-0.1234, "coefficient", "\u2212.12"),
-    (1.0, "coefficient", "1.00"),
-    (-0.001, "coefficient", ".00"),          # no negative zero
+    (0.8432, "coefficient", ".843"),          # three decimals: coefficients that differ there never print alike
+    (-0.1234, "coefficient", "\u2212.123"),
+    (1.0, "coefficient", "1.000"),
+    (-0.0001, "coefficient", ".000"),         # no negative zero
     (0.0004, "probability", "< .001"),
     (0.25, "probability", ".250"),
     (0.8, "threshold", ".800"),
     (2 / 3, "threshold", ".667"),
-    (0.034, "se", "0.03"),                   # SE keeps its leading zero
+    (0.034, "se", ".034"),                    # an SE of a coefficient cannot exceed 1: no leading zero either
+    (1.25, "number", "1.250"),                # a quantity that can exceed 1 keeps its leading zero
+    (0.5, "number", "0.500"),
     (12345, "count", "12,345"),
     (0.25, "percent", "25.0%"),
     (None, "coefficient", "–"),
@@ -83,7 +85,7 @@ def test_format_value_apa(value, kind, expected):
 
 
 def test_format_interval():
-    assert format_interval(0.79, 0.884) == "[.79, .88]"
+    assert format_interval(0.79, 0.884) == "[.790, .884]"
     assert format_interval(None, 0.5) == "–"
 
 
@@ -263,10 +265,13 @@ def test_write_report_formats(sample_report, tmp_path):
     for suffix in (".html", ".md", ".docx", ".tex"):
         written = write_report(sample_report, tmp_path / f"report{suffix}")
         assert written[0].exists() and written[0].stat().st_size > 0
-    assert sorted(p.name for p in (tmp_path / "report-figures").iterdir()) == \
-        ["code_use.png", "confusion.png", "forest.png"]
+    # each report its own figure folder, so a .md and a .tex of the same name do not collide
+    for folder in ("report-md-figures", "report-tex-figures"):
+        assert sorted(p.name for p in (tmp_path / folder).iterdir()) == \
+            ["code_use.png", "confusion.png", "forest.png"]
     md = (tmp_path / "report.md").read_text()
-    assert "](report-figures/forest.png)" in md
+    assert "](report-md-figures/forest.png)" in md
+    assert "{report-tex-figures/forest.png}" in (tmp_path / "report.tex").read_text()
     assert not [p for p in tmp_path.iterdir() if p.name.endswith(".tmp")]     # atomic: no leftovers
     with pytest.raises(AgreeError) as err:
         write_report(sample_report, tmp_path / "report.pdf")
@@ -309,15 +314,14 @@ def test_repr_html(sample_report):
 def test_plots_follow_the_rules():
     from agree.output import plots
 
-    fig = plots.forest_plot(["a", "b"], [0.5, 0.9], [0.3, 0.8], [0.7, 0.95], minimum=0.8, symbol="α",
-                            title="t")
+    fig = plots.forest_plot(["a", "b"], [0.5, 0.9], [0.3, 0.8], minimum=0.8, symbol="α", title="t")
     ax = fig.axes[0]
     assert ax.get_xlim()[0] == pytest.approx(-0.2)              # fixed, not fitted to the data
-    assert "axis fixed at -0.2 to 1" in ax.get_xlabel()
+    assert "axis fixed at \u2212.2 to 1" in ax.get_xlabel()
     assert any(line.get_xdata()[0] == 0.8 for line in ax.get_lines() if line.get_linestyle() == "--")
-    assert {line.get_marker() for line in ax.get_lines() if line.get_marker() not in ("None", None, "")} == \
+    assert {line.get_marker() for line in ax.get_lines() if line.get_marker() not in ("None", None, "", "|")} == \
         {"^", "o"}                                                # shape carries the status
-    wide = plots.forest_plot(["a"], [-0.5], [-0.7], [-0.3], minimum=0.8, symbol="α", title="t")
+    wide = plots.forest_plot(["a"], [-0.5], [-0.7], minimum=0.8, symbol="α", title="t")
     assert wide.axes[0].get_xlim()[0] == pytest.approx(-1.0)
 
     bars = plots.code_use_bars(["x", "y"], ["c1", "c2"], [[3, 5], [4, 1]], title="t")
@@ -332,6 +336,7 @@ def test_plots_follow_the_rules():
                                    title="t")
     image = heat.axes[0].images[0]
     assert image.get_cmap().name == "cividis" and image.norm.vmin == 0
+    assert image.norm.vmax == 2                                   # the disagreements set the scale
     assert sorted(t.get_text() for t in heat.axes[0].texts) == ["1", "2", "5", "7"]   # counts printed
 
 

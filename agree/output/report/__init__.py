@@ -2,10 +2,13 @@
 
 The package is cut along the report's seams:
 
-- `build`: data → numbers (`build_report`, `summarise_consensus`);
-- `model`: the frozen result objects (`Report` and its parts), raw numbers only;
-- `text`: the words (methods paragraph, interpretation, cautions, settings line, notes);
+- `build`: data → numbers (`build_report` for one variable, `build_study_report` for several,
+  `summarise_consensus`);
+- `model`: the frozen result objects (`Report`, `StudyReport`, `Variable` and their parts),
+  raw numbers only;
+- `text`: the words (methods paragraph, interpretation, cautions, headings, settings, notes);
 - `tables` and `figures`: numbers formatted once for every format, plots as PNG;
+- `document`: the outline every format follows (the same headings in the same order);
 - `html`, `markdown`, `latex`, `docx`: one renderer per format;
 - `write`: `write_report`, the format chosen by the file name's suffix.
 
@@ -25,17 +28,35 @@ American Psychological Association (2020). Publication Manual (7th ed.), section
 """
 
 from agree.core.format import format_bound, format_interval, format_value, lit, plain, spans
-from agree.output.report.build import DEFAULT_MINIMUM, HOW_DECIDED, HOW_ORDER, build_report, summarise_consensus
+from agree.output.report.build import (
+    DEFAULT_MINIMUM,
+    HOW_DECIDED,
+    HOW_ORDER,
+    build_report,
+    build_study_report,
+    summarise_consensus,
+)
+from agree.output.report.document import document_figures, document_headings, report_document
 from agree.output.report.docx import render_docx
 from agree.output.report.figures import ReportFigure, report_figures
 from agree.output.report.html import render_html
 from agree.output.report.latex import latex_escape, render_latex
 from agree.output.report.markdown import render_markdown
-from agree.output.report.model import ConsensusSummary, CrossTable, Report, SampleSummary
-from agree.output.report.tables import Cell, Table, report_tables, rounds_tables, se_note
+from agree.output.report.model import (
+    CoderSummary,
+    ConsensusSummary,
+    CrossTable,
+    Report,
+    SampleSummary,
+    StudyReport,
+    Variable,
+)
+from agree.output.report.tables import Cell, Table, below_note, report_tables, rounds_tables, se_note
 from agree.output.report.text import (
     BAND_TEXT,
     CAUTIONS,
+    DEFAULT_TITLE,
+    HEADINGS,
     INTERVAL_METHODS,
     PLACEHOLDER_NOTE,
     STATUS_TEXT,
@@ -50,15 +71,18 @@ from agree.output.report.text import (
     result_label,
     settings_line,
     status_text,
+    study_methods_paragraph,
 )
-from agree.output.report.write import FORMATS, write_report
+from agree.output.report.write import FORMATS, figure_folder, write_report
 
 __all__ = [
-    "BAND_TEXT", "CAUTIONS", "DEFAULT_MINIMUM", "FORMATS", "HOW_DECIDED", "HOW_ORDER", "INTERVAL_METHODS",
-    "PLACEHOLDER_NOTE", "STATUS_TEXT", "TENTATIVE", "Cell", "ConsensusSummary", "CrossTable", "Report",
-    "ReportFigure", "SampleSummary", "Table", "build_report", "cautions", "coefficient_label", "format_bound",
-    "format_interval", "format_value", "interpretation", "krippendorff_band", "landis_koch", "latex_escape",
-    "lit", "methods_paragraph", "notes_markup", "plain", "render_docx", "render_html", "render_latex",
-    "render_markdown", "report_figures", "report_tables", "result_label", "rounds_tables", "se_note",
-    "settings_line", "spans", "status_text", "summarise_consensus", "write_report",
+    "BAND_TEXT", "CAUTIONS", "DEFAULT_MINIMUM", "DEFAULT_TITLE", "FORMATS", "HEADINGS", "HOW_DECIDED", "HOW_ORDER",
+    "INTERVAL_METHODS", "PLACEHOLDER_NOTE", "STATUS_TEXT", "TENTATIVE", "Cell", "CoderSummary", "ConsensusSummary",
+    "CrossTable", "Report", "ReportFigure", "SampleSummary", "StudyReport", "Table", "Variable", "below_note",
+    "build_report", "build_study_report", "cautions", "coefficient_label", "document_figures", "document_headings",
+    "figure_folder", "format_bound", "format_interval", "format_value", "interpretation", "krippendorff_band",
+    "landis_koch", "latex_escape", "lit", "methods_paragraph", "notes_markup", "plain", "render_docx",
+    "render_html", "render_latex", "render_markdown", "report_document", "report_figures", "report_tables",
+    "result_label", "rounds_tables", "se_note", "settings_line", "spans", "status_text", "study_methods_paragraph",
+    "summarise_consensus", "write_report",
 ]

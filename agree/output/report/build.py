@@ -10,15 +10,24 @@ from typing import Any, Callable, Iterable, Mapping
 import numpy as np
 import pandas as pd
 
-from agree.analysis.diagnostics import confusion_table, diagnose_codes
+from agree.analysis.diagnostics import confusion_table, diagnose_coders, diagnose_codes
 from agree.analysis.rounds import RoundsResult, compare_rounds
 from agree.core.constants import DEFAULT_CONFIDENCE, DEFAULT_MINIMUM, DEFAULT_RESAMPLES, FEW_CLUSTERS
+from agree.core.format import DEFAULT_DIGITS
 from agree.core.model import AgreeError, CodingData, as_coding_data, normalise_value, require_unit_rows, value_label
 from agree.core.results import Note, json_safe
 from agree.core.seeds import draw_seed
 from agree.io.lists import read_consensus
-from agree.output.report.model import ConsensusSummary, CrossTable, Report, SampleSummary
-from agree.output.report.text import cautions, interpretation, methods_paragraph
+from agree.output.report.model import (
+    CoderSummary,
+    ConsensusSummary,
+    CrossTable,
+    Report,
+    SampleSummary,
+    StudyReport,
+    Variable,
+)
+from agree.output.report.text import DEFAULT_TITLE, cautions, interpretation, methods_paragraph, study_methods_paragraph
 from agree.stats.kernels import membership
 from agree.stats.resampling import check_settings
 from agree.stats.scoring import score
@@ -35,8 +44,8 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
                  rounds: RoundsResult | Mapping[str, Any] | None = None,
                  codebooks: Mapping[str, Any] | None = None, drift_round: str | None = None,
                  analysed_round: str | None = None,
-                 title: str = "Intercoder agreement", digits: int = 2, cluster: str | None = None,
-                 progress: Progress | None = None) -> Report:
+                 title: str = DEFAULT_TITLE, digits: int = DEFAULT_DIGITS, cluster: str | None = None,
+                 variable: str | None = None, progress: Progress | None = None) -> Report:
     """Compute everything an agreement report shows.
 
     Parameters
@@ -69,6 +78,8 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     cluster : the name of a kept per-unit column (e.g. the document or interview): every
         bootstrap (coefficients, per-code diagnostics, rounds) resamples its groups whole, and
         the methods paragraph says so.
+    variable : the variable's name, when the report is one section of a study (see
+        `build_study_report`).
     progress : optional callback(step, fraction done), for a progress bar.
 
     Returns
@@ -146,6 +157,9 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     per_code, pairs, confusion, diag_notes = _diagnostics(
         d, per_code=not rating, minimum=minimum, n_resamples=n_resamples, seed=used_seed,
         confidence_level=confidence_level, cluster=cluster)
+    tick("coders", 0.75)
+    coders, coder_notes = _coders(d, level=level, n_resamples=n_resamples, seed=used_seed,
+                                  confidence_level=confidence_level, cluster=cluster)
     skipped_codes = ""
     if rating:
         skipped_codes = (f"Agreement per code is not reported: the values are points of an {level or d.level} "
@@ -156,8 +170,12 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     sample = _sample(d, corpus_size)
     if rounds_result is not None and analysed_round is not None:
         sample = replace(sample, units_double_coded=sum(r.n_units for r in rounds_result.rounds))
-    cons = None if consensus is None else summarise_consensus(consensus, d)
+    cons = None if consensus is None else summarise_consensus(consensus, d, round_name=analysed_round)
+    # the diagnostics' own notes, except what the report says elsewhere (the minimum, the units left
+    # out, the coder tables' notes)
+    said = {"minimum", "units-left-out", "leave-one-out-needs-three", "pairwise-kappa-nominal"}
     warnings = list(scored.warnings) + ([pooled] if pooled is not None else [])
+    warnings += [n for n in (*diag_notes, *coder_notes) if n.code not in said]
     if rounds_result is not None:
         warnings.extend(rounds_result.warnings)
     if cluster is not None and n_clusters is not None and n_resamples:
@@ -176,11 +194,73 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
         consensus=cons, rounds=rounds_result, analysed_round=analysed_round, methods="",
         interpretation=(), cautions=cautions(ordered), warnings=tuple(_dedupe(warnings)),
         minimum_default=minimum_default, per_code_skipped=skipped_codes, cluster=cluster,
-        n_clusters=n_clusters)
-    report = replace(report, methods=methods_paragraph(report, set_valued=d.set_valued),
-                     interpretation=interpretation(report))
+        n_clusters=n_clusters, coders=coders, set_valued=bool(d.set_valued), variable=variable)
+    report = replace(report, methods=methods_paragraph(report), interpretation=interpretation(report))
     tick("done", 1.0)
     return report
+
+
+def build_study_report(variables: Mapping[str, Any], *, minimum: float | None = None,
+                       n_resamples: int = DEFAULT_RESAMPLES, seed: int | None = None,
+                       confidence_level: float = DEFAULT_CONFIDENCE, corpus_size: int | None = None,
+                       title: str = DEFAULT_TITLE, digits: int = DEFAULT_DIGITS, cluster: str | None = None,
+                       progress: Progress | None = None) -> StudyReport:
+    """One report for a study that coded several variables: a section per variable and one
+    methods paragraph that covers them all.
+
+    Parameters
+    ----------
+    variables : {name: data or `Variable`}, in the order the report shows them. A `Variable`
+        carries what is the variable's own: its level, consensus file, rounds, corpus size;
+        plain data (CodingData, DataFrame, array) is analysed at its own level.
+    minimum, n_resamples, seed, confidence_level, digits, cluster : shared by every variable, as
+        in `build_report`; one seed (drawn when None) is used for every section.
+    corpus_size : units in the corpus, unless a `Variable` gives its own.
+    title : the report's title.
+    progress : optional callback(step, fraction done).
+
+    Returns
+    -------
+    StudyReport
+
+    Raises
+    ------
+    AgreeError
+        "no-input" when no variable is given; "variable" for an empty name or a value that is
+        neither data nor a `Variable`; any error of `build_report`, naming the variable.
+    """
+    tick = progress or (lambda step, done: None)
+    if not variables:
+        raise AgreeError("no variables to report on", hint="give at least one {name: data}", code="no-input")
+    if seed is None:
+        seed = draw_seed()
+    names = [str(k) for k in variables]
+    if any(not n.strip() for n in names):
+        raise AgreeError("a variable has an empty name", hint="name every variable", code="variable")
+    sections = []
+    for i, (name, spec) in enumerate(variables.items()):
+        var = spec if isinstance(spec, Variable) else Variable(data=spec)
+        if var.data is None and var.rounds is None:
+            raise AgreeError(f"variable '{name}' has no data", code="variable")
+        share = 1 / len(variables)
+        try:
+            sections.append(build_report(
+                var.data, level=var.level, minimum=minimum, n_resamples=n_resamples, seed=seed,
+                confidence_level=confidence_level, corpus_size=var.corpus_size or corpus_size,
+                consensus=var.consensus, rounds=var.rounds, codebooks=var.codebooks, drift_round=var.drift_round,
+                analysed_round=var.analysed_round, title=str(name), digits=digits, cluster=cluster,
+                variable=str(name), progress=lambda step, done, i=i: tick(f"{name}: {step}", (i + done) * share)))
+        except AgreeError as exc:
+            raise AgreeError(f"variable '{name}': {exc.message}", hint=exc.hint, where=exc.where,
+                             code=exc.code, problems=exc.problems) from exc
+    first = sections[0]
+    coefficients = [r for part in sections for r in part.coefficients]
+    study = StudyReport(title=title, sections=tuple(sections), methods=study_methods_paragraph(sections),
+                        cautions=cautions(coefficients), minimum=first.minimum,
+                        minimum_default=first.minimum_default, confidence_level=first.confidence_level,
+                        n_resamples=first.n_resamples, seed=first.seed, digits=first.digits, cluster=cluster)
+    tick("done", 1.0)
+    return study
 
 
 def _dedupe(notes: Iterable[Note]) -> list[Note]:
@@ -229,6 +309,16 @@ def _diagnostics(d: CodingData, *, per_code: bool = True, **kw: Any):
     return records, pairs, confusion, notes
 
 
+def _coders(d: CodingData, *, level: str | None, **kw: Any) -> tuple[CoderSummary, tuple[Note, ...]]:
+    """The coders compared (`agree.analysis.diagnostics.diagnose_coders`, with the report's seed
+    and settings): agreement per pair of coders and α with each coder left out."""
+    diag = diagnose_coders(d, level=level, **kw)
+    leave = diag.leave_one_out if diag.leave_one_out["alpha_without"].notna().any() else None
+    return CoderSummary(pairs=_records(diag.pairwise), leave_one_out=_records(leave), alpha=float(diag.alpha),
+                        level=diag.level_label, confidence_level=float(diag.confidence_level),
+                        bootstrap=diag.bootstrap is not None), tuple(diag.notes)
+
+
 def _code_use(d: CodingData) -> CrossTable:
     """Units each coder gave each code (for sets of codes: units whose set contains it)."""
     V = len(d.values)
@@ -257,13 +347,34 @@ def _sample(d: CodingData, corpus_size: int | None) -> SampleSummary:
         files=tuple(rep.files) if rep else (), checksums=dict(rep.checksums) if rep else {})
 
 
-def summarise_consensus(consensus: Any, data: CodingData | None = None) -> ConsensusSummary:
+def _other_units(file: str | None, data: CodingData, n_consensus: int, n_data: int, not_in_data: int,
+                 missing: int, round_name: str | None) -> AgreeError:
+    """The error for a consensus file whose units are not those analysed."""
+    consensus = f"the consensus file {file}" if file else "the consensus table"
+    files = list(data.report.files) if data.report is not None else []
+    analysed = ("the data " + ", ".join(files)) if files else "the data"
+    if round_name is not None:
+        analysed += f" (round {round_name}, the round analysed)"
+    counts = []
+    if not_in_data:
+        counts.append(f"{not_in_data:,} of its {n_consensus:,} units are not in the data")
+    if missing:
+        counts.append(f"{missing:,} of the {n_data:,} units analysed have no row in it")
+    return AgreeError(f"{consensus} is for other units than {analysed}: {' and '.join(counts)}",
+                      hint="give the consensus file that `agree reconcile` wrote for the data (and round) "
+                           "analysed", code="consensus-units")
+
+
+def summarise_consensus(consensus: Any, data: CodingData | None = None, *,
+                        round_name: str | None = None) -> ConsensusSummary:
     """Counts by source of a consensus file (path; any table format `agree.read` reads), DataFrame
     or `agree.output.reconciliation.Consensus`.
 
     The table needs a "source" column (agreed, decided, majority, unresolved, ...). A unit id
     column (the first column whose name contains "unit", else the first column) is matched
-    against the data's units to count units present in one and not the other.
+    against the data's units: a consensus file of other units (another round, another sample)
+    is refused with an `AgreeError` ("consensus-units") naming both files and how many units
+    differ. `round_name` is the round the data are, for the message.
     """
     file = None
     if isinstance(consensus, (str, os.PathLike)):
@@ -300,6 +411,8 @@ def summarise_consensus(consensus: Any, data: CodingData | None = None) -> Conse
         ids = {str(v) for v in map(normalise_value, frame[unit_col].tolist()) if v is not None}
         known = set(map(str, data.unit_ids))
         not_in_data, missing = len(ids - known), len(known - ids)
+        if not_in_data or missing:
+            raise _other_units(file, data, len(ids), len(known), not_in_data, missing, round_name)
     return ConsensusSummary(n_units=int(len(frame)), by_source=by_source, units_not_in_data=not_in_data,
                             data_units_missing=missing, file=file, by_method=by_method,
                             decided_without_method=without)

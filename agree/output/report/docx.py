@@ -6,14 +6,13 @@ import io
 from typing import TYPE_CHECKING
 
 from agree.core.format import lit, spans
-from agree.output.report.figures import report_figures
-from agree.output.report.tables import Table, report_tables
-from agree.output.report.text import PLACEHOLDER_NOTE, notes_markup, settings_line
+from agree.output.report.document import Bullets, Heading, Paragraph, report_document
+from agree.output.report.tables import Table
 
 if TYPE_CHECKING:
-    from agree.output.report.model import Report
+    from agree.output.report.model import Report, StudyReport
 
-def render_docx(report: Report) -> bytes:
+def render_docx(report: Report | StudyReport) -> bytes:
     """The report as a Word document (python-docx): real tables, the plots as pictures."""
     from docx import Document
     from docx.enum.text import WD_ALIGN_PARAGRAPH, WD_COLOR_INDEX
@@ -54,54 +53,19 @@ def render_docx(report: Report) -> bytes:
         if t.note:
             add_markup(doc.add_paragraph(), "*Note.* " + t.note, size=9)
 
-    tables = {t.key: t for t in report_tables(report)}
-    figs = {f.key: f for f in report_figures(report)}
-
-    def add_figure(key: str):
-        f = figs.get(key)
-        if f is None:
-            return
-        doc.add_picture(io.BytesIO(f.png), width=Inches(6.0))
-        add_markup(doc.add_paragraph(), f"*{lit(f.title)}.* {lit(f.caption)}", size=9)
-
-    doc.add_heading(report.title, level=1)
-    add_markup(doc.add_paragraph(), settings_line(report), size=9)
-    doc.add_heading("Methods paragraph", level=2)
-    add_markup(doc.add_paragraph(), lit(PLACEHOLDER_NOTE), size=9)
-    add_markup(doc.add_paragraph(), report.methods)
-    doc.add_heading("Agreement", level=2)
-    add_table(tables["coefficients"])
-    doc.add_heading("Interpretation", level=2)
-    for p in report.interpretation:
-        add_markup(doc.add_paragraph(), p)
-    doc.add_heading("Cautions", level=3)
-    for c in report.cautions:
-        add_markup(doc.add_paragraph(style="List Bullet"), c)
-    if "per_code" in tables:
-        doc.add_heading("Codes", level=2)
-        add_table(tables["per_code"])
-    add_figure("forest")
-    if "confused_pairs" in tables:
-        add_table(tables["confused_pairs"])
-    doc.add_heading("Coders", level=2)
-    add_figure("confusion")
-    if "code_use" in tables:
-        add_table(tables["code_use"])
-    add_figure("code_use")
-    if report.rounds is not None:
-        doc.add_heading("Coding rounds", level=2)
-        for s in report.rounds.summary_markup(report.digits):
-            add_markup(doc.add_paragraph(style="List Bullet"), s)
-        for key in ("rounds", "round_changes", "drift", "definitions"):
-            if key in tables:
-                add_table(tables[key])
-        add_figure("rounds")
-    if "consensus" in tables:
-        doc.add_heading("Resolution of disagreements", level=2)
-        add_table(tables["consensus"])
-    doc.add_heading("Notes", level=2)
-    for n in notes_markup(report):
-        add_markup(doc.add_paragraph(style="List Bullet"), n, size=9)
+    for block in report_document(report):
+        if isinstance(block, Heading):
+            add_markup(doc.add_heading(level=block.level), block.text)
+        elif isinstance(block, Paragraph):
+            add_markup(doc.add_paragraph(), block.text, size=9 if block.style in ("settings", "note") else None)
+        elif isinstance(block, Bullets):
+            for item in block.items:
+                add_markup(doc.add_paragraph(style="List Bullet"), item, size=9 if block.style == "notes" else None)
+        elif isinstance(block, Table):
+            add_table(block)
+        else:
+            doc.add_picture(io.BytesIO(block.png), width=Inches(6.0))
+            add_markup(doc.add_paragraph(), f"*{lit(block.title)}.* {lit(block.caption)}", size=9)
     buffer = io.BytesIO()
     doc.save(buffer)
     return buffer.getvalue()

@@ -8,12 +8,11 @@ import html
 from typing import TYPE_CHECKING
 
 from agree.core.format import spans
-from agree.output.report.figures import report_figures
-from agree.output.report.tables import Table, report_tables
-from agree.output.report.text import PLACEHOLDER_NOTE, notes_markup, settings_line
+from agree.output.report.document import Block, Bullets, Heading, Paragraph, report_document
+from agree.output.report.tables import Table
 
 if TYPE_CHECKING:
-    from agree.output.report.model import Report
+    from agree.output.report.model import Report, StudyReport
 
 _CSS = """
 :root { --ink: #1a1a1a; --rule: #444; --soft: #666; }
@@ -32,6 +31,7 @@ thead th { border-top: 2px solid var(--rule); border-bottom: 1px solid var(--rul
 tbody td { padding: .2rem .6rem; vertical-align: top; }
 tbody tr:last-child td { border-bottom: 2px solid var(--rule); }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+h3 { font-size: 1.05rem; margin-top: 1.6rem; }
 figure { margin: 1rem 0; } figure img { max-width: 100%; height: auto; border: 1px solid #ddd; }
 ul.cautions li { margin-bottom: .4rem; }
 @media print {
@@ -73,46 +73,29 @@ def _html_table(t: Table) -> str:
             f'</thead><tbody>{"".join(body)}</tbody></table>{note}')
 
 
-def render_html(report: Report, *, standalone: bool = True, figures: bool = True) -> str:
-    """The report as HTML: one self-contained file (CSS inline, plots as base64 PNG)."""
-    tables = {t.key: t for t in report_tables(report)}
-    figs = {f.key: f for f in report_figures(report)} if figures else {}
-    parts = [f"<h1>{html.escape(report.title)}</h1>", f'<p class="settings">{_html_markup(settings_line(report))}</p>']
+def _html_block(block: Block) -> str:
+    if isinstance(block, Heading):
+        return f'<h{block.level} id="{html.escape(block.key)}">{_html_markup(block.text)}</h{block.level}>'
+    if isinstance(block, Paragraph):
+        if block.style == "methods":
+            return f'<div class="methods"><p>{_html_markup(block.text)}</p></div>'
+        cls = f' class="{block.style}"' if block.style else ""
+        return f"<p{cls}>{_html_markup(block.text)}</p>"
+    if isinstance(block, Bullets):
+        cls = f' class="{block.style}"' if block.style else ""
+        return f"<ul{cls}>" + "".join(f"<li>{_html_markup(i)}</li>" for i in block.items) + "</ul>"
+    if isinstance(block, Table):
+        return _html_table(block)
+    data = base64.b64encode(block.png).decode("ascii")
+    return (f'<figure id="figure-{html.escape(block.key)}"><img src="data:image/png;base64,{data}" '
+            f'alt="{html.escape(block.title)}"><figcaption><b>{html.escape(block.title)}.</b> '
+            f"{html.escape(block.caption)}</figcaption></figure>")
 
-    def fig_html(key: str) -> str:
-        f = figs.get(key)
-        if f is None:
-            return ""
-        data = base64.b64encode(f.png).decode("ascii")
-        return (f'<figure id="figure-{key}"><img src="data:image/png;base64,{data}" alt="{html.escape(f.title)}">'
-                f"<figcaption><b>{html.escape(f.title)}.</b> {html.escape(f.caption)}</figcaption></figure>")
 
-    parts.append("<h2>Methods paragraph</h2>")
-    parts.append(f'<p class="note">{html.escape(PLACEHOLDER_NOTE)}</p>')
-    parts.append(f'<div class="methods"><p>{_html_markup(report.methods)}</p></div>')
-    parts.append("<h2>Agreement</h2>" + _html_table(tables["coefficients"]))
-    parts.append("<h2>Interpretation</h2>" + "".join(f"<p>{_html_markup(p)}</p>" for p in report.interpretation))
-    parts.append("<h3>Cautions</h3><ul class=\"cautions\">" +
-                 "".join(f"<li>{_html_markup(c)}</li>" for c in report.cautions) + "</ul>")
-    if "per_code" in tables or "forest" in figs:
-        parts.append("<h2>Codes</h2>" + (_html_table(tables["per_code"]) if "per_code" in tables else "")
-                     + fig_html("forest"))
-    if "confused_pairs" in tables:
-        parts.append(_html_table(tables["confused_pairs"]))
-    parts.append("<h2>Coders</h2>" + fig_html("confusion") + (_html_table(tables["code_use"])
-                                                            if "code_use" in tables else "") + fig_html("code_use"))
-    if report.rounds is not None:
-        parts.append("<h2>Coding rounds</h2>")
-        parts.append("<ul>" + "".join(f"<li>{_html_markup(s)}</li>" for s in report.rounds.summary_markup(report.digits))
-                     + "</ul>")
-        for key in ("rounds", "round_changes", "drift", "definitions"):
-            if key in tables:
-                parts.append(_html_table(tables[key]))
-        parts.append(fig_html("rounds"))
-    if "consensus" in tables:
-        parts.append("<h2>Resolution of disagreements</h2>" + _html_table(tables["consensus"]))
-    parts.append("<h2>Notes</h2>" + _html_notes(report))
-    body = "\n".join(parts)
+def render_html(report: Report | StudyReport, *, standalone: bool = True, figures: bool = True) -> str:
+    """The report as HTML: one self-contained file (CSS inline, plots as base64 PNG); with
+    ``standalone=False`` a fragment for a notebook."""
+    body = "\n".join(_html_block(b) for b in report_document(report, figures=figures))
     if not standalone:
         return f'<div class="agree-report"><style>{_scoped_css()}</style>{body}</div>'
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
@@ -126,10 +109,3 @@ def _scoped_css() -> str:
              ".agree-report thead th { border-bottom: 1px solid #444; text-align: left; }",
              ".agree-report figure img { max-width: 100%; }"]
     return " ".join(rules)
-
-
-def _html_notes(report: Report) -> str:
-    items = [f"<li>{_html_markup(n)}</li>" for n in notes_markup(report)]
-    return "<ul>" + "".join(items) + "</ul>"
-
-

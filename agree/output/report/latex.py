@@ -2,15 +2,14 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Sequence
+from typing import TYPE_CHECKING
 
 from agree.core.format import spans
-from agree.output.report.figures import ReportFigure
-from agree.output.report.tables import Table, report_tables
-from agree.output.report.text import notes_markup
+from agree.output.report.document import Bullets, Heading, Paragraph, report_document
+from agree.output.report.tables import Table
 
 if TYPE_CHECKING:
-    from agree.output.report.model import Report
+    from agree.output.report.model import Report, StudyReport
 
 _LATEX_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
                   "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
@@ -46,32 +45,31 @@ def _tex_table(t: Table) -> str:
     return "\n".join(lines) + "\n"
 
 
-def render_latex(report: Report, *, figure_dir: str | None = None,
-                 figures: Sequence[ReportFigure] = ()) -> str:
+_SECTIONS = {1: "section", 2: "subsection", 3: "subsubsection"}
+
+
+def render_latex(report: Report | StudyReport, *, figure_dir: str | None = None) -> str:
     """The report as a LaTeX fragment: the methods paragraph, booktabs tables, interpretation.
 
-    Needs ``\\usepackage{booktabs}`` (and ``graphicx`` when figures are included); for
-    ``\\input`` into a paper. Placeholders are set in bold.
+    Needs ``\\usepackage{booktabs}`` (and ``graphicx`` when figures are included, from
+    `figure_dir`); for ``\\input`` into a paper. Placeholders are set in bold.
     """
-    tables = report_tables(report)
     out = ["% Agreement report written by agree. Needs \\usepackage{booktabs}"
            + (" and \\usepackage{graphicx}." if figure_dir else "."),
-           "% Bold bracketed text is for you to fill in.", "",
-           f"\\section*{{{latex_escape(report.title)}}}", "", "\\subsection*{Methods}", "",
-           _tex_markup(report.methods), "", "\\subsection*{Interpretation}", ""]
-    out += [_tex_markup(p) + "\n" for p in report.interpretation]
-    out += ["\\begin{itemize}"] + [f"  \\item {_tex_markup(c)}" for c in report.cautions] + ["\\end{itemize}", ""]
-    if report.rounds is not None:
-        out += ["\\subsection*{Coding rounds}", "", "\\begin{itemize}"]
-        out += [f"  \\item {_tex_markup(s)}" for s in report.rounds.summary_markup(report.digits)]
-        out += ["\\end{itemize}", ""]
-    out += [_tex_table(t) for t in tables]
-    for f in figures:
-        out += ["\\begin{figure}[htbp]", "\\centering",
-                f"\\includegraphics[width=\\linewidth]{{{figure_dir}/{f.key}.png}}",
-                f"\\caption{{{latex_escape(f.title)}. {latex_escape(f.caption)}}}", "\\end{figure}", ""]
-    out += ["\\subsection*{Notes}", "", "\\begin{itemize}"] + [f"  \\item {_tex_markup(n)}" for n in notes_markup(report)]
-    out += ["\\end{itemize}"]
-    return "\n".join(out) + "\n"
-
-
+           "% Bold bracketed text is for you to fill in.", ""]
+    for block in report_document(report, figures=figure_dir is not None):
+        if isinstance(block, Heading):
+            out += [f"\\{_SECTIONS[block.level]}*{{{_tex_markup(block.text)}}}", ""]
+        elif isinstance(block, Paragraph):
+            text = _tex_markup(block.text)
+            out += [f"{{\\small {text}}}" if block.style in ("settings", "note") else text, ""]
+        elif isinstance(block, Bullets):
+            out += ["\\begin{itemize}"] + [f"  \\item {_tex_markup(i)}" for i in block.items]
+            out += ["\\end{itemize}", ""]
+        elif isinstance(block, Table):
+            out += [_tex_table(block)]
+        else:
+            out += ["\\begin{figure}[htbp]", "\\centering",
+                    f"\\includegraphics[width=\\linewidth]{{{figure_dir}/{block.key}.png}}",
+                    f"\\caption{{{latex_escape(block.title)}. {latex_escape(block.caption)}}}", "\\end{figure}", ""]
+    return "\n".join(out).rstrip("\n") + "\n"

@@ -3,15 +3,14 @@
 from __future__ import annotations
 
 import re
-from typing import TYPE_CHECKING, Sequence
+from typing import TYPE_CHECKING
 
 from agree.core.format import lit, spans
-from agree.output.report.figures import ReportFigure
-from agree.output.report.tables import Table, report_tables
-from agree.output.report.text import PLACEHOLDER_NOTE, notes_markup, settings_line
+from agree.output.report.document import Bullets, Heading, Paragraph, report_document
+from agree.output.report.tables import Table
 
 if TYPE_CHECKING:
-    from agree.output.report.model import Report
+    from agree.output.report.model import Report, StudyReport
 
 def _md_markup(markup: str) -> str:
     out = []
@@ -32,29 +31,21 @@ def _md_table(t: Table) -> str:
     return "\n".join(lines) + "\n"
 
 
-def render_markdown(report: Report, *, figure_dir: str | None = None,
-                    figures: Sequence[ReportFigure] = ()) -> str:
-    """The report as Markdown. Figures are linked from `figure_dir` (relative) when given."""
-    tables = {t.key: t for t in report_tables(report)}
-    out = [f"# {_md_markup(lit(report.title))}", "", _md_markup(settings_line(report)), "",
-           "## Methods paragraph", "", f"*{PLACEHOLDER_NOTE}*", "", _md_markup(report.methods), "",
-           "## Agreement", "", _md_table(tables["coefficients"]), "## Interpretation", ""]
-    out += [_md_markup(p) + "\n" for p in report.interpretation]
-    out += ["### Cautions", ""] + [f"- {_md_markup(c)}" for c in report.cautions] + [""]
-    order = ["per_code", "confused_pairs", "code_use"]
-    if report.rounds is not None:
-        out += ["## Coding rounds", ""] + [f"- {_md_markup(s)}" for s in report.rounds.summary_markup(report.digits)]
-        out.append("")
-        order += ["rounds", "round_changes", "drift", "definitions"]
-    order.append("consensus")
-    for key in order:
-        if key in tables:
-            out += [_md_table(tables[key])]
-    if figure_dir is not None:
-        out += ["## Figures", ""]
-        for f in figures:
-            out += [f"![{f.title}]({figure_dir}/{f.key}.png)", "", f"*{f.title}.* {f.caption}", ""]
-    out += ["## Notes", ""] + [f"- {_md_markup(n)}" for n in notes_markup(report)]
-    return "\n".join(out) + "\n"
-
-
+def render_markdown(report: Report | StudyReport, *, figure_dir: str | None = None) -> str:
+    """The report as Markdown. Figures are linked from `figure_dir` (a folder beside the report,
+    relative) when given, else left out."""
+    out: list[str] = []
+    for block in report_document(report, figures=figure_dir is not None):
+        if isinstance(block, Heading):
+            out += ["#" * block.level + " " + _md_markup(block.text), ""]
+        elif isinstance(block, Paragraph):
+            text = _md_markup(block.text)
+            out += [f"*{text}*" if block.style == "note" else f"> {text}" if block.style == "methods" else text, ""]
+        elif isinstance(block, Bullets):
+            out += [f"- {_md_markup(i)}" for i in block.items] + [""]
+        elif isinstance(block, Table):
+            out += [_md_table(block)]
+        else:
+            out += [f"![{_md_markup(lit(block.title))}]({figure_dir}/{block.key}.png)", "",
+                    f"*{_md_markup(lit(block.title))}.* {_md_markup(lit(block.caption))}", ""]
+    return "\n".join(out).rstrip("\n") + "\n"

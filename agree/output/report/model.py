@@ -86,6 +86,34 @@ class CrossTable:
                        "column_title": self.column_title, "source": self.source})
 
 
+@dataclass(frozen=True)
+class CoderSummary:
+    """The coders compared, from `agree.analysis.diagnostics.diagnose_coders` (raw numbers).
+
+    pairs : one record per pair of coders: ``coder_a``, ``coder_b``, ``n_units`` (units both
+        coded), ``percent_agreement``, ``kappa`` (Cohen's, unweighted), ``alpha`` (at ``level``).
+    leave_one_out : one record per coder: ``coder``, ``alpha_without``, ``delta``
+        (``alpha_without`` minus α of all coders: positive when the coder lowers agreement),
+        ``delta_ci_low``, ``delta_ci_high`` (paired bootstrap), ``n_pairable_units``; empty with
+        fewer than three coders.
+    alpha : α of all coders at ``level``; level : the level or set distance used.
+    bootstrap : whether the leave-one-out intervals come from bootstrap resamples.
+    """
+
+    pairs: tuple[Mapping[str, Any], ...]
+    leave_one_out: tuple[Mapping[str, Any], ...]
+    alpha: float
+    level: str
+    confidence_level: float
+    bootstrap: bool = False
+
+    def to_dict(self) -> dict[str, Any]:
+        return json_safe({"pairs": [dict(r) for r in self.pairs],
+                          "leave_one_out": [dict(r) for r in self.leave_one_out], "alpha": self.alpha,
+                          "level": self.level, "confidence_level": self.confidence_level,
+                          "bootstrap": self.bootstrap})
+
+
 @dataclass(frozen=True, eq=False)
 class Report:
     """Everything a report shows, with raw (unrounded) numbers.
@@ -115,6 +143,10 @@ class Report:
     per_code_skipped : why the per-code section was left out (rating scales), else "".
     cluster, n_clusters : the column whose groups were resampled whole and how many groups
         (in the data the figures describe); None when units were resampled.
+    coders : the per-coder diagnostics (`agree.analysis.diagnostics.diagnose_coders`): agreement
+        of each pair of coders and α with each coder left out; None when not computed.
+    set_valued : True when units carry sets of codes (several codes per unit).
+    variable : the variable's name when the report is one section of a `StudyReport`, else None.
     """
 
     title: str
@@ -143,6 +175,9 @@ class Report:
     per_code_skipped: str = ""
     cluster: str | None = None
     n_clusters: int | None = None
+    coders: CoderSummary | None = None
+    set_valued: bool = False
+    variable: str | None = None
     _figures: dict = field(default_factory=dict, init=False, repr=False, compare=False)  # figure cache
 
     @property
@@ -155,7 +190,8 @@ class Report:
     def to_dict(self) -> dict[str, Any]:
         return json_safe({
             "title": self.title,
-            "settings": {"level": self.level, "minimum": self.minimum,
+            "variable": self.variable,
+            "settings": {"level": self.level, "set_valued": self.set_valued, "minimum": self.minimum,
                          "minimum_default": self.minimum_default,
                          "confidence_level": self.confidence_level, "n_resamples": self.n_resamples,
                          "seed": self.seed, "digits": self.digits, "cluster": self.cluster,
@@ -169,6 +205,7 @@ class Report:
             "confused_pairs": [dict(r) for r in self.confused_pairs],
             "confusion": None if self.confusion is None else self.confusion.to_dict(),
             "code_use": None if self.code_use is None else self.code_use.to_dict(),
+            "coders": None if self.coders is None else self.coders.to_dict(),
             "consensus": None if self.consensus is None else self.consensus.to_dict(),
             "rounds": None if self.rounds is None else self.rounds.to_dict(),
             "analysed_round": self.analysed_round,
@@ -182,3 +219,79 @@ class Report:
         return render_html(self, standalone=False)
 
 
+
+
+@dataclass(frozen=True)
+class Variable:
+    """One coded variable of a study, for `build_study_report`: its data and what is its own.
+
+    data : CodingData, DataFrame or array (units x coders); None with `rounds` as a mapping.
+    level : its level of measurement (default the data's).
+    consensus : its consensus file or table (see `build_report`).
+    rounds, codebooks, drift_round, analysed_round : its coding rounds (see `build_report`).
+    corpus_size : units in its corpus, when it differs from the study's.
+    """
+
+    data: Any = None
+    level: str | None = None
+    consensus: Any = None
+    rounds: Any = None
+    codebooks: Mapping[str, Any] | None = None
+    drift_round: str | None = None
+    analysed_round: str | None = None
+    corpus_size: int | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class StudyReport:
+    """One report for a study with several coded variables: a section per variable (a `Report`
+    each, in the order given) and one methods paragraph covering them all.
+
+    Attributes
+    ----------
+    title : the report's title.
+    sections : one `Report` per variable; each one's `variable` is its name.
+    methods : the methods paragraph for the whole study (markup).
+    cautions : the usual cautions, naming the coefficients any section shows (markup).
+    minimum, minimum_default, confidence_level, n_resamples, seed, digits, cluster : the settings
+        every section shares.
+    """
+
+    title: str
+    sections: tuple[Report, ...]
+    methods: str
+    cautions: tuple[str, ...]
+    minimum: float
+    minimum_default: bool
+    confidence_level: float
+    n_resamples: int
+    seed: int | None
+    digits: int
+    cluster: str | None = None
+
+    @property
+    def variables(self) -> tuple[str, ...]:
+        """The variables' names, in order."""
+        return tuple(str(r.variable) for r in self.sections)
+
+    def section(self, name: str) -> Report:
+        """The section of the variable `name`."""
+        for r in self.sections:
+            if r.variable == name:
+                return r
+        raise KeyError(name)
+
+    def to_dict(self) -> dict[str, Any]:
+        return json_safe({
+            "title": self.title,
+            "settings": {"minimum": self.minimum, "minimum_default": self.minimum_default,
+                         "confidence_level": self.confidence_level, "n_resamples": self.n_resamples,
+                         "seed": self.seed, "digits": self.digits, "cluster": self.cluster},
+            "variables": list(self.variables),
+            "methods": plain(self.methods),
+            "cautions": [plain(c) for c in self.cautions],
+            "sections": [r.to_dict() for r in self.sections],
+        })
+
+    def _repr_html_(self) -> str:
+        return render_html(self, standalone=False)

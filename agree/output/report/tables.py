@@ -10,7 +10,15 @@ import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any, Sequence
 
-from agree.core.format import format_bound, format_interval, format_value, lit, percent_label
+from agree.core.format import (
+    format_bound,
+    format_interval,
+    format_value,
+    lit,
+    percent_label,
+    signed,
+    signed_interval,
+)
 from agree.core.registry import skipped_by_reason
 from agree.core.results import AgreementResult
 from agree.output.report.text import INTERVAL_METHODS, coefficient_label, join_words, result_label, status_text
@@ -59,6 +67,77 @@ def se_note(results: Sequence[AgreementResult], level: str) -> str:
     return "*SE*: " + "; ".join(parts) + "."
 
 
+def below_note(results: Sequence[AgreementResult], minimum: float, level: str) -> str:
+    """What the *P*(below the minimum) column holds for each result: the share of bootstrap
+    resamples below the minimum or, for a result computed without resamples (``--boot 0``), the
+    normal approximation from its analytic *SE*."""
+    threshold = format_value(minimum, "threshold")
+    column = f"*P*(below {threshold})"
+    boot = [result_label(r, level) for r in results if r.p_below_min is not None and r.bootstrap is not None]
+    normal = [result_label(r, level) for r in results if r.p_below_min is not None and r.bootstrap is None]
+    share = "the share of bootstrap resamples below the minimum"
+    approx = (f"not a share of resamples: no bootstrap resamples were drawn, so it is the normal approximation "
+              f"*P*(θ < {threshold}) from the analytic *SE*")
+    if not normal:
+        return f"{column} is {share}."
+    if not boot:
+        return f"{column} is {approx} (– where there is no analytic *SE*)."
+    return f"{column} is {share} for {join_words(boot)}; for {join_words(normal)} it is {approx}."
+
+
+def _coder_tables(report: Report) -> list[Table]:
+    """Agreement of each pair of coders, and α with each coder left out (as `agree coders`)."""
+    cs = report.coders
+    if cs is None:
+        return []
+    dg = report.digits
+    out = []
+    rows = []
+    for i, rec in enumerate(cs.pairs):
+        path = f"coders.pairs.{i}"
+        rows.append((Cell(lit(rec.get("coder_a", ""))), Cell(lit(rec.get("coder_b", ""))),
+                     _c(rec.get("n_units"), "count", dg, f"{path}.n_units"),
+                     _c(rec.get("percent_agreement"), "percent", dg, f"{path}.percent_agreement"),
+                     _c(rec.get("kappa"), "coefficient", dg, f"{path}.kappa"),
+                     _c(rec.get("alpha"), "coefficient", dg, f"{path}.alpha")))
+    if rows:
+        out.append(Table("coder_pairs", "Agreement of each pair of coders",
+                         ("Coder", "Coder", "Units both coded", "Percent agreement", "Cohen's κ",
+                          f"Krippendorff's α ({lit(cs.level)})"), tuple(rows),
+                         note="Over the units both coders coded. Percent agreement: exact matches; Cohen's κ "
+                              "treats the values as nominal categories (unweighted)."))
+    order = sorted(range(len(cs.leave_one_out)), key=lambda i: -_number(cs.leave_one_out[i].get("delta")))
+    rows = []
+    for i in order:
+        rec = cs.leave_one_out[i]
+        path = f"coders.leave_one_out.{i}"
+        rows.append((Cell(lit(rec.get("coder", ""))),
+                     _c(rec.get("alpha_without"), "coefficient", dg, f"{path}.alpha_without"),
+                     Cell(signed(rec.get("delta"), dg), (f"{path}.delta",), True),
+                     Cell(signed_interval(rec.get("delta_ci_low"), rec.get("delta_ci_high"), dg),
+                          (f"{path}.delta_ci_low", f"{path}.delta_ci_high"), True),
+                     _c(rec.get("n_pairable_units"), "count", dg, f"{path}.n_pairable_units")))
+    if rows:
+        ci = f"{percent_label(cs.confidence_level)} CI of the change"
+        how = ("paired bootstrap: α with and without the coder on the same resamples of units"
+               if cs.bootstrap else "none, as no bootstrap resamples were drawn")
+        out.append(Table("leave_one_out", "Krippendorff's α with each coder left out",
+                         ("Coder left out", "α without the coder", "Change", ci, "*n* pairable units"),
+                         tuple(rows),
+                         note=f"Change: α without the coder minus α of all coders "
+                              f"({format_value(cs.alpha, 'coefficient', dg)}); a positive change means the coder "
+                              f"lowers agreement. Intervals: {how}. Coders in order of the change, largest first."))
+    return out
+
+
+def _number(x: Any) -> float:
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return -math.inf
+    return v if math.isfinite(v) else -math.inf
+
+
 def report_tables(report: Report) -> list[Table]:
     """Every table of the report, with its numbers formatted once, for every format."""
     dg = report.digits
@@ -79,9 +158,9 @@ def report_tables(report: Report) -> list[Table]:
         "coefficients", "Agreement coefficients",
         ("Coefficient", "Estimate", "*SE*", level, f"*P*(below {minimum})", "*n* units", "Interval"),
         tuple(rows),
-        note=(se_note(report.coefficients, report.level) + " "
-              f"*P*(below {minimum}) is the share of bootstrap resamples below the minimum. *n* units: units "
-              "entering the coefficient." + (f" Not computed: {skipped}." if skipped else ""))))
+        note=(se_note(report.coefficients, report.level) + " " + below_note(report.coefficients, report.minimum,
+                                                                           report.level)
+              + " *n* units: units entering the coefficient." + (f" Not computed: {skipped}." if skipped else ""))))
     if report.per_code:
         columns = report.per_code[0].keys()
         bound = f"One-sided {100 * report.confidence_level:g}% lower bound"
@@ -122,20 +201,21 @@ def report_tables(report: Report) -> list[Table]:
         for i, rec in enumerate(recs):
             rows.append((Cell(lit(rec.get("code_a", ""))), Cell(lit(rec.get("code_b", "")))) + tuple(
                 _c(rec.get(key), kind, dg, f"confused_pairs.{i}.{key}") for key, _, kind in spec))
-        tables.append(Table("confused_pairs", "Most often confused code pairs",
+        tables.append(Table("confused_pairs", "Pairs of codes the coders most often disagreed between",
                             ("Code", "Confused with") + tuple(h for _, h, _ in spec), tuple(rows),
                             note="Count: coincidences of the two codes within units (for two coders, units "
                                  "where one gave each; with more coders each pair of values is weighted "
                                  "1/(*m* − 1), so counts can be fractional). α if merged: overall α (nominal; "
                                  "for sets of codes with the same set distance as the coefficients) with the "
                                  "two codes merged into one."))
+    tables.extend(_coder_tables(report))
     if report.code_use is not None:
         cu = report.code_use
         rows = []
         for j, code in enumerate(cu.columns):
             rows.append((Cell(lit(code)),) + tuple(
                 _c(cu.counts[i][j], "count", dg, f"code_use.counts.{i}.{j}") for i in range(len(cu.rows))))
-        tables.append(Table("code_use", "Code use per coder (units)", ("Code",) + tuple(lit(c) for c in cu.rows),
+        tables.append(Table("code_use", "Units given each code, per coder", ("Code",) + tuple(lit(c) for c in cu.rows),
                             tuple(rows)))
     if report.rounds is not None:
         tables.extend(rounds_tables(report.rounds, dg, prefix="rounds"))
@@ -144,12 +224,9 @@ def report_tables(report: Report) -> list[Table]:
         rows = tuple((Cell(lit(k)), _c(n, "count", dg, f"consensus.by_source.{k}"),
                       Cell(format_value(n / c.n_units if c.n_units else None, "percent")))
                      for k, n in c.by_source.items())
-        note = ""
-        if c.units_not_in_data or c.data_units_missing:
-            note = (f"{format_value(c.units_not_in_data, 'count')} consensus units are not in the agreement data; "
-                    f"{format_value(c.data_units_missing, 'count')} units of the agreement data have no consensus row.")
-        tables.append(Table("consensus", "How disagreements were resolved", ("Source", "Units", "Share"), rows,
-                            note=note))
+        note = "The units of the consensus are the units analysed (checked)."
+        tables.append(Table("consensus", "Units by how their final code was reached", ("Source", "Units", "Share"),
+                            rows, note=note))
     return tables
 
 

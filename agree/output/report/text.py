@@ -28,9 +28,26 @@ from agree.core.registry import coefficient, family
 from agree.core.results import AgreementResult
 
 if TYPE_CHECKING:
-    from agree.output.report.model import ConsensusSummary, Report
+    from agree.output.report.model import ConsensusSummary, Report, StudyReport
 
 PLACEHOLDER_NOTE = "Bracketed, highlighted text is for you to fill in; edit the wording freely."
+
+#: The report's title unless one is given.
+DEFAULT_TITLE = "Reliability of the coding"
+
+#: The headings of a report, in the order they appear; every format shows the same ones
+#: (`agree.output.report.document`). Our own words; the coefficients keep the trade's names.
+HEADINGS = {
+    "methods": "Paragraph for the methods section",
+    "agreement": "Overall agreement",
+    "interpretation": "Interpretation",
+    "codes": "Agreement per code",
+    "coders": "The coders compared",
+    "rounds": "Rounds of coding",
+    "resolution": "How disagreements were settled",
+    "cautions": "Conventions and cautions",
+    "notes": "Data files and notes",
+}
 
 # ----------------------------------------------------------------------------------------
 # names of coefficients, in markup: from the registry (agree.core.registry)
@@ -114,7 +131,8 @@ CAUTIONS = (
 def cautions(coefficients: Iterable[AgreementResult] = ()) -> tuple[str, ...]:
     """The usual cautions; the prevalence caution names the coefficients less affected by
     prevalence (Gwet's AC1/AC2, Brennan–Prediger, PABAK) only when the report shows them."""
-    shown = [coefficient_label(r.name) for r in coefficients if family(r.name) == "high-running"]
+    shown = list(dict.fromkeys(coefficient_label(r.name) for r in coefficients
+                               if family(r.name) == "high-running"))
     if not shown:
         return CAUTIONS
     verb = "it" if len(shown) == 1 else "they"
@@ -185,113 +203,238 @@ def _rounds_sample_text(report: Report, coders: str) -> list[str]:
     return out
 
 
-def methods_paragraph(report: Report, *, set_valued: bool = False) -> str:
-    """The methods paragraph, in markup: facts from the data and settings, placeholders for the
-    rest. Nothing is invented: what the tool cannot know stays a bracketed placeholder."""
+def _sample_text(report: Report, coders: str) -> list[str]:
+    """Sentences on who coded how many units, and how they were selected (no rounds)."""
     s = report.sample
-    digits = report.digits
-    p: list[str] = []
-    coders = _count_words(s.n_coders, "coder")
-    with_rounds = report.analysed_round is not None and report.rounds is not None
-    if with_rounds:
-        p.extend(_rounds_sample_text(report, coders))
+    text = (f"{coders} ([[who the coders were and how they were trained]]) coded "
+            f"*N* = {format_value(s.units_read, 'count')} units ([[describe the coding unit]]) "
+            "[[independently of each other: confirm]]")
+    if s.corpus_size:
+        text += (f", {format_value(s.share_of_corpus, 'percent')} of the "
+                 f"{format_value(s.corpus_size, 'count')} units in the corpus, selected "
+                 f"[[how the sample was selected, e.g. at random]]")
     else:
-        p.append(f"{coders} ([[who the coders were and how they were trained]]) coded "
-                 f"*N* = {format_value(s.units_read, 'count')} units ([[describe the coding unit]]) "
-                 "[[independently of each other: confirm]]")
-        if s.corpus_size:
-            p[-1] += (f", {format_value(s.share_of_corpus, 'percent')} of the "
-                      f"{format_value(s.corpus_size, 'count')} units in the corpus, selected "
-                      f"[[how the sample was selected, e.g. at random]]")
-        else:
-            p[-1] += ", selected [[how the sample was selected, e.g. at random, and what share of the corpus it is]]"
-        p[-1] += ". Coders worked from [[the codebook version]]."
-    level = "sets of codes per unit" if set_valued else f"{report.level} data"
-    p.append(f"The codes were analysed as {lit(level)}.")
+        text += ", selected [[how the sample was selected, e.g. at random, and what share of the corpus it is]]"
+    return [text + ". Coders worked from [[the codebook version]]."]
+
+
+def level_text(report: Report) -> str:
+    """How the values were analysed: "sets of codes per unit" or "<level> data"."""
+    return "sets of codes per unit" if report.set_valued else f"{report.level} data"
+
+
+def _entered_text(report: Report) -> list[str]:
+    """Sentences on the units that entered the analysis and what was left out while reading."""
+    s = report.sample
+    out = []
     partial = ""
     if s.units_partial:
         partial = (f"; {format_value(s.units_partial, 'count')} of them were coded by fewer than all "
                    f"{s.n_coders} coders, and the coefficients use every pair of values available")
     if s.units_left_out:
-        p.append(f"Units coded by fewer than two coders cannot be compared and were left out "
-                 f"(*n* = {format_value(s.units_left_out, 'count')}), so "
-                 f"*n* = {format_value(s.units_used, 'count')} units entered the analysis{partial}.")
+        out.append(f"Units coded by fewer than two coders cannot be compared and were left out "
+                   f"(*n* = {format_value(s.units_left_out, 'count')}), so "
+                   f"*n* = {format_value(s.units_used, 'count')} units entered the analysis{partial}.")
     else:
-        p.append(f"Every unit was coded by at least two coders, so all "
-                 f"*n* = {format_value(s.units_used, 'count')} units entered the analysis{partial}.")
+        out.append(f"Every unit was coded by at least two coders, so all "
+                   f"*n* = {format_value(s.units_used, 'count')} units entered the analysis{partial}.")
     if s.reader_left_out:
-        p.append(f"While reading the data, {format_value(len(s.reader_left_out), 'count')} "
-                 f"entr{'y was' if len(s.reader_left_out) == 1 else 'ies were'} left out "
-                 "(listed in the report's notes).")
+        out.append(f"While reading the data, {format_value(len(s.reader_left_out), 'count')} "
+                   f"entr{'y was' if len(s.reader_left_out) == 1 else 'ies were'} left out "
+                   "(listed in the report's notes).")
+    return out
+
+
+_SET_DISTANCES = {"masi": "the MASI distance between sets of codes (Passonneau, 2006)",
+                  "jaccard": "the Jaccard distance between sets of codes"}
+
+
+def _metric_text(report: Report, prim: AgreementResult) -> str:
+    """" (nominal metric)" or " with the MASI distance between sets of codes (...)"."""
+    if report.set_valued:
+        return (f" with {_SET_DISTANCES[str(prim.level)]}" if str(prim.level) in _SET_DISTANCES
+                else f" ({lit(prim.level or 'set')} distance)")
+    return f" ({lit(prim.level or report.level)} metric)"
+
+
+def _metric_phrase(report: Report, prim: AgreementResult) -> str:
+    """"the ordinal metric" or "the MASI distance between sets of codes (...)"."""
+    if report.set_valued:
+        return _SET_DISTANCES.get(str(prim.level), f"the {lit(prim.level or 'set')} distance")
+    return f"the {lit(prim.level or report.level)} metric"
+
+
+def _interval_text(report: Report, prim: AgreementResult) -> str:
+    """How the confidence intervals were made ("" when there are none)."""
+    if prim.bootstrap is not None:
+        b = prim.bootstrap
+        seed_text = f", random seed {b.seed}" if b.seed is not None else ""
+        method = INTERVAL_METHODS.get(b.method, lit(b.method))
+        if b.unit != "unit" or report.cluster is not None:
+            seed_text = f" (random seed {b.seed})" if b.seed is not None else ""
+            column = report.cluster or b.unit.split(":", 1)[-1]
+            groups = ("" if report.n_clusters is None else
+                      f" (*n* = {format_value(report.n_clusters, 'count')} groups)")
+            return (f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
+                    f"{format_value(b.replicates, 'count')} bootstrap resamples{seed_text} in which "
+                    f"whole {lit(column)} groups{groups} were resampled, each with all its units, so "
+                    f"that units from the same {lit(column)} stay together.")
+        return (f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
+                f"{format_value(b.replicates, 'count')} resamples of units{seed_text}.")
+    if prim.ci_method:
+        return f"The confidence interval is a {INTERVAL_METHODS.get(prim.ci_method, lit(prim.ci_method))}."
+    return ""
+
+
+def below_minimum_text(result: AgreementResult, minimum: float) -> str:
+    """What `p_below_min` is, as a clause: the share of bootstrap resamples below the minimum, or,
+    without a bootstrap, the normal approximation from the analytic standard error ("" if none)."""
+    if result.p_below_min is None:
+        return ""
+    share = format_value(result.p_below_min, "probability")
+    threshold = format_value(minimum, "threshold")
+    if result.bootstrap is None:
+        return (f"without bootstrap resamples, the normal approximation from its standard error gives a "
+                f"probability of {share} of a value below the minimum of {threshold}")
+    return f"a share of {share} of the bootstrap resamples fell below the minimum of {threshold}"
+
+
+def _result_text(report: Report, prim: AgreementResult, lead: str = "Overall, ") -> str:
+    text = f"{lead}{_stat_markup(prim, report.digits)}"
+    below = below_minimum_text(prim, report.minimum)
+    return text + (f"; {below}" if below else "")
+
+
+def _minimum_text(minimum: float, minimum_default: bool, per_code: bool) -> str:
+    threshold = format_value(minimum, "threshold")
+    codes_clause = ("" if not per_code else
+                    "; codes below it were [[what happened to them: dropped, merged or redefined]]")
+    if minimum_default:
+        # that .800 was the tool's default belongs to the settings and notes, not to a paper
+        return (f"The minimum acceptable value was set at {threshold}, following Krippendorff's (2004) "
+                f"convention, because [[why this minimum]]{codes_clause}.")
+    return f"The minimum acceptable value was set at {threshold} because [[why this minimum]]{codes_clause}."
+
+
+def _resolution_text(c: ConsensusSummary, name: str = "") -> str:
+    """How disagreements were resolved, from a consensus summary (`name`: the variable's)."""
+    parts = []
+    for k, n in c.by_source.items():
+        text = f"{format_value(n, 'count')} {_SOURCE_TEXT.get(k, f'had the source ‘{lit(k)}’')}"
+        if k == "decided" and c.by_method:
+            text = f"{format_value(n, 'count')} were decided ({_decided_text(c)})"
+        parts.append(text)
+    if c.by_method:
+        how = "as recorded in the consensus file"
+        if c.decided_without_method:
+            how += " ([[how the decided units without a recorded procedure were decided]])"
+    else:
+        how = "by [[the procedure, e.g. discussion or a third coder]]"
+    whose = f" of ‘{lit(name)}’" if name else ""
+    return (f"Agreement was computed on each coder's own codes, before resolution. Disagreements{whose} were "
+            f"then resolved {how}: of the {_units(c.n_units)} in the final data, " + join_words(parts) + ".")
+
+
+_UNRESOLVED = ("Disagreements were resolved by [[how disagreements were resolved]]; agreement was computed "
+               "on each coder's own codes, before resolution.")
+
+
+def methods_paragraph(report: Report) -> str:
+    """The methods paragraph, in markup: facts from the data and settings, placeholders for the
+    rest. Nothing is invented: what the tool cannot know stays a bracketed placeholder."""
+    p: list[str] = []
+    coders = _count_words(report.sample.n_coders, "coder")
+    if report.analysed_round is not None and report.rounds is not None:
+        p.extend(_rounds_sample_text(report, coders))
+    else:
+        p.extend(_sample_text(report, coders))
+    p.append(f"The codes were analysed as {lit(level_text(report))}.")
+    p.extend(_entered_text(report))
     prim = report.primary_result
     if prim is not None:
-        if set_valued:
-            metric = {"masi": " with the MASI distance between sets of codes (Passonneau, 2006)",
-                      "jaccard": " with the Jaccard distance between sets of codes"}.get(
-                          str(prim.level), f" ({lit(prim.level or 'set')} distance)")
-        else:
-            metric = f" ({lit(prim.level or report.level)} metric)"
-        coef_text = (f"Agreement was measured with {coefficient_label(prim.name, in_sentence=True)}{metric}, chosen because "
-                     "[[why this coefficient]]")
+        coef_text = (f"Agreement was measured with {coefficient_label(prim.name, in_sentence=True)}"
+                     f"{_metric_text(report, prim)}, chosen because [[why this coefficient]]")
         others = [result_label(r, report.level, in_sentence=True) for r in report.coefficients[1:]]
         if others:
             coef_text += f"; {join_words(others)} {'is' if len(others) == 1 else 'are'} reported alongside for comparison"
         p.append(coef_text + ".")
-        if prim.bootstrap is not None:
-            b = prim.bootstrap
-            seed_text = f", random seed {b.seed}" if b.seed is not None else ""
-            if b.unit != "unit" or report.cluster is not None:
-                seed_text = f" (random seed {b.seed})" if b.seed is not None else ""
-            method = INTERVAL_METHODS.get(b.method, lit(b.method))
-            if b.unit != "unit" or report.cluster is not None:
-                column = report.cluster or b.unit.split(":", 1)[-1]
-                groups = ("" if report.n_clusters is None else
-                          f" (*n* = {format_value(report.n_clusters, 'count')} groups)")
-                p.append(f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
-                         f"{format_value(b.replicates, 'count')} bootstrap resamples{seed_text} in which "
-                         f"whole {lit(column)} groups{groups} were resampled, each with all its units, so "
-                         f"that units from the same {lit(column)} stay together.")
-            else:
-                p.append(f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
-                         f"{format_value(b.replicates, 'count')} resamples of units{seed_text}.")
-        elif prim.ci_method:
-            p.append(f"The confidence interval is a {INTERVAL_METHODS.get(prim.ci_method, lit(prim.ci_method))}.")
-        result = f"Overall, {_stat_markup(prim, digits)}"
-        if prim.p_below_min is not None:
-            result += (f"; a share of {format_value(prim.p_below_min, 'probability')} of the bootstrap "
-                       f"resamples fell below the minimum of {format_value(report.minimum, 'threshold')}")
-        result += "."
-        p.append(result)
-    threshold = format_value(report.minimum, "threshold")
-    codes_clause = ("" if not report.per_code else
-                    "; codes below it were [[what happened to them: dropped, merged or redefined]]")
-    if report.minimum_default:
-        # that .800 was the tool's default belongs to the settings and notes, not to a paper
-        p.append(f"The minimum acceptable value was set at {threshold}, following Krippendorff's (2004) "
-                 f"convention, because [[why this minimum]]{codes_clause}.")
-    else:
-        p.append(f"The minimum acceptable value was set at {threshold} because [[why this minimum]]"
-                 f"{codes_clause}.")
-    if report.consensus is not None:
-        c = report.consensus
-        parts = []
-        for k, n in c.by_source.items():
-            text = f"{format_value(n, 'count')} {_SOURCE_TEXT.get(k, f'had the source ‘{lit(k)}’')}"
-            if k == "decided" and c.by_method:
-                text = f"{format_value(n, 'count')} were decided ({_decided_text(c)})"
-            parts.append(text)
-        if c.by_method:
-            how = "as recorded in the consensus file"
-            if c.decided_without_method:
-                how += " ([[how the decided units without a recorded procedure were decided]])"
-        else:
-            how = "by [[the procedure, e.g. discussion or a third coder]]"
-        p.append("Agreement was computed on each coder's own codes, before resolution. Disagreements were "
-                 f"then resolved {how}: of the {_units(c.n_units)} in the final data, " + join_words(parts) + ".")
-    else:
-        p.append("Disagreements were resolved by [[how disagreements were resolved]]; agreement was computed "
-                 "on each coder's own codes, before resolution.")
+        interval = _interval_text(report, prim)
+        if interval:
+            p.append(interval)
+        p.append(_result_text(report, prim) + ".")
+    p.append(_minimum_text(report.minimum, report.minimum_default, bool(report.per_code)))
+    p.append(_UNRESOLVED if report.consensus is None else _resolution_text(report.consensus))
     p.append("The codebook and the reliability data are available at [[where]].")
+    return " ".join(p)
+
+
+def study_methods_paragraph(sections: Sequence[Report]) -> str:
+    """One methods paragraph for several coded variables (each a `Report` whose `variable` is its
+    name): what every variable shares is said once, what differs is said per variable."""
+    first = sections[0]
+    names = [f"‘{lit(r.variable)}’" for r in sections]
+    kinds = [f"‘{lit(r.variable)}’ ({lit(level_text(r))})" for r in sections]
+    p = [f"{_count_words(len(sections), 'variable')} were coded: {join_words(kinds)}.",
+         "The coders ([[who the coders were and how they were trained]]) coded the units "
+         "([[describe the coding unit of each variable]]) [[independently of each other: confirm]], "
+         "from [[the codebook version of each variable]]."]
+    for r in sections:
+        s = r.sample
+        who = _count_words(s.n_coders, "coder").lower()
+        if r.analysed_round is not None and r.rounds is not None:
+            k = len(r.rounds.rounds)
+            total = s.units_double_coded if s.units_double_coded is not None else s.units_read
+            text = (f"For ‘{lit(r.variable)}’, {who} double-coded *N* = {format_value(total, 'count')} units over "
+                    f"{k} rounds ({join_words([lit(x.round) for x in r.rounds.rounds])}); the figures describe "
+                    f"{round_name(r.analysed_round)}, *n* = {format_value(s.units_read, 'count')} units")
+        else:
+            text = f"For ‘{lit(r.variable)}’, {who} coded *N* = {format_value(s.units_read, 'count')} units"
+            if s.corpus_size:
+                text += (f" ({format_value(s.share_of_corpus, 'percent')} of the "
+                         f"{format_value(s.corpus_size, 'count')} units in the corpus)")
+        if s.units_left_out:
+            text += (f"; units coded by fewer than two coders were left out (*n* = "
+                     f"{format_value(s.units_left_out, 'count')}), so *n* = {format_value(s.units_used, 'count')} "
+                     "units entered the analysis")
+        else:
+            text += (f"; every unit was coded by at least two coders, so all *n* = "
+                     f"{format_value(s.units_used, 'count')} units entered the analysis")
+        if s.units_partial:
+            text += (f" ({format_value(s.units_partial, 'count')} of them by fewer than all {s.n_coders} coders; "
+                     "the coefficients use every pair of values available)")
+        if s.reader_left_out:
+            text += (f"; while reading, {format_value(len(s.reader_left_out), 'count')} "
+                     f"entr{'y was' if len(s.reader_left_out) == 1 else 'ies were'} left out (listed in the notes)")
+        p.append(text + ".")
+    p.append("The units were selected [[how the sample of each variable was selected, e.g. at random]].")
+    with_primary = [r for r in sections if r.primary_result is not None]
+    by_coefficient: dict[str, list[Report]] = {}
+    for r in with_primary:
+        by_coefficient.setdefault(r.primary, []).append(r)
+    measures = []
+    for name, group in by_coefficient.items():
+        metrics = [f"{_metric_phrase(r, r.primary_result)} for ‘{lit(r.variable)}’" for r in group]
+        measures.append(f"{coefficient_label(name, in_sentence=True)} (with {join_words(metrics)})")
+    if measures:
+        text = f"Agreement was measured with {'; '.join(measures)}, chosen because [[why this coefficient]]"
+        if any(len(r.coefficients) > 1 for r in with_primary):
+            text += "; the tables report other coefficients alongside for comparison"
+        p.append(text + ".")
+        intervals = [_interval_text(r, r.primary_result) for r in with_primary]
+        if len(set(intervals)) == 1 and intervals[0]:
+            p.append(intervals[0])
+        else:
+            p.extend(f"For ‘{lit(r.variable)}’: {t[:1].lower()}{t[1:]}" for r, t in zip(with_primary, intervals) if t)
+        results = [_result_text(r, r.primary_result, lead=f"for ‘{lit(r.variable)}’, ") for r in with_primary]
+        p.append(results[0][:1].upper() + results[0][1:] + "".join(f"; {x}" for x in results[1:]) + ".")
+    p.append(_minimum_text(first.minimum, first.minimum_default, any(r.per_code for r in sections)))
+    resolved = [r for r in sections if r.consensus is not None]
+    p.extend(_resolution_text(r.consensus, r.variable) for r in resolved)
+    if len(resolved) < len(sections):
+        rest = [f"‘{lit(r.variable)}’" for r in sections if r.consensus is None]
+        p.append(_UNRESOLVED if not resolved else
+                 f"Disagreements of {join_words(rest)} were resolved by [[how disagreements were resolved]].")
+    p.append(f"The codebooks of {join_words(names)} and the reliability data are available at [[where]].")
     return " ".join(p)
 
 
@@ -357,11 +500,8 @@ def interpretation(report: Report) -> tuple[str, ...]:
             "undefined": f"{sym} is undefined for these data (see the notes).",
         }[band]
         if band == "estimate-only":
-            if prim.p_below_min is not None:
-                text += (f" (a share of {format_value(prim.p_below_min, 'probability')} of the bootstrap "
-                         "resamples fell below it).")
-            else:
-                text += "."
+            below = below_minimum_text(prim, report.minimum)
+            text += f" ({below})." if below else "."
         out.append(text)
     rest = []
     for r in report.coefficients:
@@ -414,25 +554,51 @@ def status_text(confidence_level: float = 0.95) -> dict[str, str]:
     return {k: v.replace("95%", level) for k, v in STATUS_TEXT.items()}
 
 
-
-
-def notes_markup(report: Report) -> list[str]:
-    """Notes in markup: warnings, what was left out, the data files and checksums."""
+def notes_markup(report: Report, *, footer: bool = True) -> list[str]:
+    """Notes in markup: warnings, what was left out, the data files and checksums (and, with
+    `footer`, the version of agree that made the report)."""
     out = [lit(w.message) for w in report.warnings]
     out += [f"Left out while reading: {lit(x)}" for x in report.sample.reader_left_out]
     for f in report.sample.files:
         digest = report.sample.checksums.get(f)
         out.append(f"Data file: {lit(f)}" + (f" (SHA-256 {digest})" if digest else ""))
-    out.append(f"Made with agree {VERSION}.")
+    if footer:
+        out.append(made_with())
     return out
 
 
-def settings_line(report: Report) -> str:
+def made_with() -> str:
+    return f"Made with agree {VERSION}."
+
+
+def _shared_settings(minimum: float, minimum_default: bool, confidence_level: float, n_resamples: int,
+                     seed: int | None) -> str:
+    shown_seed = "none drawn" if seed is None else str(seed)
+    default = " (the default: no minimum was given)" if minimum_default else ""
+    boot = (f"{format_value(n_resamples, 'count')} bootstrap resamples" if n_resamples else
+            "no bootstrap resamples (intervals from analytic standard errors where they exist)")
+    return (f"minimum {format_value(minimum, 'threshold')}{default} · {percent_label(confidence_level)} "
+            f"intervals · {boot} · seed {shown_seed}")
+
+
+def variable_settings_line(report: Report) -> str:
+    """What is the variable's own: level, units, coders."""
     s = report.sample
-    seed = "none drawn" if report.seed is None else str(report.seed)
-    default = " (the default: no minimum was given)" if report.minimum_default else ""
-    return (f"Level: {lit(report.level)} · minimum {format_value(report.minimum, 'threshold')}{default} · "
-            f"{percent_label(report.confidence_level)} intervals · {format_value(report.n_resamples, 'count')} bootstrap "
-            f"resamples · seed {seed} · {format_value(s.units_read, 'count')} units, {s.n_coders} coders")
+    return (f"Level: {lit(level_text(report))} · {format_value(s.units_read, 'count')} units, "
+            f"{s.n_coders} coders")
 
 
+def settings_line(report: Report) -> str:
+    """The settings of a one-variable report, in one line."""
+    s = report.sample
+    shared = _shared_settings(report.minimum, report.minimum_default, report.confidence_level,
+                              report.n_resamples, report.seed)
+    return (f"Level: {lit(report.level)} · {shared} · {format_value(s.units_read, 'count')} units, "
+            f"{s.n_coders} coders")
+
+
+def study_settings_line(study: StudyReport) -> str:
+    """The settings every variable of a study shares, in one line."""
+    shared = _shared_settings(study.minimum, study.minimum_default, study.confidence_level,
+                              study.n_resamples, study.seed)
+    return f"{_count_words(len(study.sections), 'variable')} · {shared}"

@@ -9,24 +9,34 @@ from typing import TYPE_CHECKING
 from agree.core.files import atomic_write_bytes, make_folder
 from agree.core.model import AgreeError
 from agree.output.report.docx import render_docx
-from agree.output.report.figures import report_figures
+from agree.output.report.document import document_figures
 from agree.output.report.html import render_html
 from agree.output.report.latex import render_latex
 from agree.output.report.markdown import render_markdown
 
 if TYPE_CHECKING:
-    from agree.output.report.model import Report
+    from agree.output.report.model import Report, StudyReport
 
 FORMATS = {".html": "html", ".htm": "html", ".md": "markdown", ".markdown": "markdown", ".docx": "docx",
            ".tex": "latex"}
 
 
-def write_report(report: Report, path: str | os.PathLike, *, figures: bool = True) -> list[Path]:
+def figure_folder(path: str | os.PathLike) -> Path:
+    """The folder beside a Markdown or LaTeX report that holds its figures: the file name with
+    its suffix, then ``-figures`` (``r.md`` → ``r-md-figures/``, ``r.tex`` → ``r-tex-figures/``),
+    so that reports of different formats never share, or fight over, one folder."""
+    path = Path(path)
+    return path.parent / f"{path.stem}-{path.suffix.lower().lstrip('.')}-figures"
+
+
+def write_report(report: Report | StudyReport, path: str | os.PathLike, *, figures: bool = True) -> list[Path]:
     """Write the report in the format its suffix names (.html, .md, .docx, .tex), atomically.
 
     HTML and DOCX carry their figures inside the file. For Markdown and LaTeX the figures are
-    written as PNG files into a folder beside the report, ``<name>-figures/`` (unless
-    ``figures=False``). Returns the paths written.
+    written as PNG files into the report's own folder beside it (`figure_folder`:
+    ``r.md`` → ``r-md-figures/``) unless ``figures=False``; an existing folder is reused, and
+    only the report's own figure files in it are replaced (each atomically). Returns the paths
+    written, the report first.
     """
     path = Path(path)
     fmt = FORMATS.get(path.suffix.lower())
@@ -41,16 +51,14 @@ def write_report(report: Report, path: str | os.PathLike, *, figures: bool = Tru
     elif fmt == "docx":
         payload = render_docx(report)
     else:
-        figs = report_figures(report) if figures else []
-        fig_dir = f"{path.stem}-figures" if figs else None
+        figs = document_figures(report) if figures else []
+        fig_dir = None
         if figs:
-            folder = make_folder(path.parent / fig_dir)
+            folder = make_folder(figure_folder(path))
+            fig_dir = folder.name
             for f in figs:
                 written.append(atomic_write_bytes(folder / f"{f.key}.png", f.png))
         render = render_markdown if fmt == "markdown" else render_latex
-        payload = render(report, figure_dir=fig_dir, figures=figs).encode("utf-8")
+        payload = render(report, figure_dir=fig_dir).encode("utf-8")
     written.insert(0, atomic_write_bytes(path, payload))
     return written
-
-
-
