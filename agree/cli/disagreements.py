@@ -46,6 +46,10 @@ def disagreements(
     include_agreed: Annotated[bool, typer.Option(
         "--include-agreed", help="Also list the units the coders agree on (after the disagreements).")
     ] = False,
+    accept_single: Annotated[bool, typer.Option(
+        "--accept-single", help="Do not list the units coded by one coder only (they are listed by "
+                                "default); `agree reconcile --accept-single` then keeps their one code.")
+    ] = False,
     force: ForceOption = False,
     output_format: SummaryOption = None,
     summary_format: OldSummaryOption = None,
@@ -56,15 +60,18 @@ def disagreements(
 ):
     """Write the units the coders disagree on to a review workbook, worst first.
 
-    One row per unit needing reconciliation: the unit, its text, each coder's
-    code, the codes involved with their codebook definitions, and empty columns
-    to fill in: the decision (a drop-down of the codebook's codes), how it was
-    decided (discussion, adjudicator, majority), who decided, and notes.
+    One row per unit needing a decision: the units the coders disagree on, worst
+    first, then the units coded by one coder only (nobody checked their code;
+    --accept-single leaves them out). Each row has the unit, its text, why it is
+    listed, each coder's code, the codes involved with their codebook
+    definitions, and empty columns to fill in: the decision (a drop-down of the
+    codebook's codes; "(none)" when no code applies), how it was decided
+    (discussion, adjudicator, majority), who decided, and notes.
 
     A second sheet lists the confused pairs of codes; a third records the inputs
     with their sha256 checksums, the date, the agree version, the options, and
-    how many units were read, agreed, need review and were left out (fewer than
-    two coders). Fill it in, then run `agree reconcile`.
+    how many units were read, agreed, need review and were not listed, naming
+    those. Fill it in, then run `agree reconcile`.
 
     Example: agree disagreements samples/round1.csv --codebook samples/codebook.csv -o review.xlsx
 
@@ -74,24 +81,26 @@ def disagreements(
                                                  [f.value for f in ReviewFormat])
     reading = {**reading, **option_values(codebook=codebook, level=level)}
     data = load_data(files, **reading)
-    options = _recorded({**reading, "include_agreed": include_agreed})
+    options = _recorded({**reading, "include_agreed": include_agreed, "accept_single": accept_single})
     options["sep"] = reading["sep"]
     inputs = list(files) + ([codebook] if codebook else [])
     from agree.output.reconciliation import write_review
 
     summary = write_review(data, output, format=file_format, inputs=inputs, options=options,
-                           include_agreed=include_agreed, force=force)
-    note(f"wrote {output}: {summary.needing_review} units need review "
-         f"({summary.units_read} read, {summary.agreed} agreed, {len(summary.left_out)} left out)")
-    if summary.left_out:
-        ids = [unit for unit, _ in summary.left_out]
+                           include_agreed=include_agreed, accept_single=accept_single, force=force)
+    single = (f", {summary.single_coder} coded by one coder only" if not accept_single else "")
+    note(f"wrote {output}: {summary.needing_review} units need review ({summary.disagreements} with a "
+         f"disagreement{single}; {summary.units_read} read, {summary.agreed} agreed, "
+         f"{len(summary.left_out)} not listed)")
+    from agree.output.reconciliation import review_counts
+
+    by_reason: dict[str, list[str]] = {}
+    for unit, reason in summary.left_out:
+        by_reason.setdefault(reason, []).append(unit)
+    for reason, ids in by_reason.items():
         shown_ids = ", ".join(ids[:20]) + (f" and {len(ids) - 20} more" if len(ids) > 20 else "")
-        note(f"left out (fewer than two coders): {shown_ids}")
+        note(f"not listed ({reason}): {shown_ids}")
     if shown == "json":
         print_json(summary.to_dict())
     else:
-        print_summary("Review list", [
-            ("units read", summary.units_read), ("agreed", summary.agreed),
-            ("needing review", summary.needing_review), ("left out (fewer than two coders)",
-                                                         len(summary.left_out)),
-            ("rows written", summary.rows_written)])
+        print_summary("Review list", [*review_counts(summary), ("rows written", summary.rows_written)])

@@ -49,7 +49,12 @@ def reconcile_command(
     ] = False,
     majority: Annotated[bool, typer.Option(
         "--majority", help="Give an undecided unit the code a strict majority of its coders gave "
-                           "(source 'majority'), where one exists.")] = False,
+                           "(source 'majority'), where one exists; never to a unit one coder coded.")
+    ] = False,
+    accept_single: Annotated[bool, typer.Option(
+        "--accept-single", help="Keep the code of a unit coded by one coder only, without review, when "
+                                "the review file has no decision for it (source 'single coder'); "
+                                "without it such units need a decision.")] = False,
     file_format: Annotated[Optional[ConsensusFormat], typer.Option(
         "--file-format", help="Format of the file written: csv or xlsx, from the suffix of -o when "
                               "not given.")] = None,
@@ -64,9 +69,12 @@ def reconcile_command(
     """Read the decisions back and write one final code per unit.
 
     Every unit of the data is written exactly once: agreed units keep their
-    code, decided units take the decision, and each row says where its code
-    came from (agreed, decided, majority, unresolved, single coder, not coded),
-    how it was decided, by whom and why. The coders' independent codes are
+    code, decided units take the decision ("(none)": no code applies, an empty
+    final code), and each row says where its code came from (agreed, decided,
+    majority, unresolved, single coder, not coded), how it was decided, by whom
+    and why. A unit coded by one coder only needs a decision like a
+    disagreement, unless --accept-single keeps that coder's code (source
+    'single coder', said in its notes). The coders' independent codes are
     written beside the final code, unchanged.
 
     Agreement is always computed on the coders' independent codes, never on
@@ -89,7 +97,8 @@ def reconcile_command(
     data = load_data(files, **reading)
     from agree.output.reconciliation import reconcile, unresolved_listing, write_consensus
 
-    consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority)
+    consensus = reconcile(data, review_file, allow_unresolved=allow_unresolved, majority=majority,
+                          accept_single=accept_single)
     inputs = [review_file, *files] + ([codebook] if codebook else [])
     write_consensus(consensus, output, format=file_format, inputs=inputs, force=force, data=data)
     for line in consensus.notes:
@@ -107,6 +116,7 @@ def reconcile_command(
         print_summary("Consensus", [
             ("units read", summary["units_read"]), ("agreed", summary["agreed"]),
             ("decided", summary["decided"]), ("majority", summary["majority"]),
+            ("coded by one coder only, kept as coded", summary["single_coder"]),
             ("unresolved", summary["unresolved"]),
-            ("left out (fewer than two coders)", summary["left_out"]),
+            ("coded by no coder", summary["not_coded"]),
             ("written", summary["written"])])

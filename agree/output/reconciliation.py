@@ -12,18 +12,26 @@ Three steps, each a plain function:
 
 How units are classified (the same everywhere):
 
-- **needs review**: at least two coders coded the unit and they gave at least two different
-  values;
+- **disagreement**: at least two coders coded the unit and they gave at least two different
+  values; listed for review, worst first;
+- **coded by one coder only**: one coder coded the unit, so nobody checked that code. Listed
+  for review after the disagreements (status "coded by one coder only"), unless the team
+  accepts such codes as they are (``accept_single=True``, ``--accept-single``): then they are
+  not listed and the consensus keeps the one code with source ``"single coder"``, saying so in
+  its notes. Without a decision and without ``accept_single`` such a unit is unresolved, like
+  an undecided disagreement; the majority rule never settles it (one coder is no majority);
 - **agreed**: at least two coders coded the unit and all who did gave the same value (coders
   who did not code the unit do not count against agreement);
-- **left out**: fewer than two coders coded the unit, so there is nothing to compare. Such
-  units are not in the review list; the workbook's "About this file" sheet names them. In the
-  consensus they still get their row: with one value, that value is kept with source
-  ``"single coder"``; with none, the final code is empty with source ``"not coded"``.
+- **coded by no coder**: not listed (there is nothing to review); the workbook's "About this
+  file" sheet names such units, and in the consensus their final code is empty with source
+  ``"not coded"``.
 
-Set-valued codes are written ``"a; b"``; the empty set (a coder who coded the unit and
-applied no code) is written ``"(none)"``, while a coder who did not code the unit gets an
-empty cell.
+Set-valued codes are written ``"a; b"``. In the review list and in the coders' columns of the
+consensus, the empty set (a coder who coded the unit and applied no code) is written
+``"(none)"``, while a coder who did not code the unit gets an empty cell. A decision of
+``"(none)"`` means *no code applies*: the final code is the empty set for set-valued data and
+no code otherwise, written as an empty final-code cell in every consensus format (the source
+column, ``"decided"``, tells it from a unit nobody coded).
 
 Spreadsheet safety: text that a spreadsheet would run as a formula (starting with ``=``,
 ``+``, ``-``, ``@``, a tab or a carriage return) stays text, by the rules every output of agree
@@ -38,6 +46,7 @@ import datetime as _dt
 import difflib
 import json
 import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping, Sequence
@@ -87,7 +96,13 @@ CONSENSUS_FORMATS = ("csv", "xlsx")
 
 _LIST_LITERAL_LIMIT = 255  # Excel's limit on an inline list in a data-validation formula
 _UNRESOLVED_SHOWN = 20
-_LEFT_OUT_REASONS = {"single coder": "coded by one coder only", "not coded": "coded by no coder"}
+DISAGREEMENT = "disagreement"
+SINGLE = "coded by one coder only"
+AGREED = "agreed"
+NOT_CODED = "coded by no coder"
+SINGLE_KEPT = "coded by one coder only; kept as coded, without review (accept single)"
+#: Separators people type between codes instead of SET_SEPARATOR (checked in this order).
+WRONG_SEPARATORS = (",", "|", "/", " and ")
 _INDEPENDENCE_NOTE = ("Agreement is computed on the coders' independent codes, never on "
                       "reconciled ones.")
 
@@ -95,7 +110,12 @@ _INDEPENDENCE_NOTE = ("Agreement is computed on the coders' independent codes, n
 # -- results -------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class ReviewSummary:
-    """What `write_review` wrote: counts that account for every unit read."""
+    """What `write_review` wrote: counts that account for every unit read.
+
+    ``units_read = agreed + needing_review + len(left_out)``: `needing_review` counts the units
+    listed for a decision (`disagreements`, plus the `single_coder` units unless
+    `accept_single`); `left_out` names the units not listed and why (coded by no coder, and
+    with `accept_single` the units coded by one coder only)."""
 
     path: str
     format: str
@@ -105,6 +125,9 @@ class ReviewSummary:
     left_out: tuple[tuple[str, str], ...]  # (unit id, why)
     rows_written: int
     checksums: Mapping[str, str] = field(default_factory=dict)
+    disagreements: int = 0
+    single_coder: int = 0                   # units coded by one coder only (listed unless accept_single)
+    accept_single: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -113,6 +136,9 @@ class ReviewSummary:
             "units_read": self.units_read,
             "agreed": self.agreed,
             "needing_review": self.needing_review,
+            "disagreements": self.disagreements,
+            "single_coder": self.single_coder,
+            "single_coder_listed": not self.accept_single,
             "left_out": len(self.left_out),
             "left_out_units": [{"unit": u, "reason": r} for u, r in self.left_out],
             "rows_written": self.rows_written,
@@ -135,9 +161,16 @@ class Consensus:
     unresolved : ids of units that still need a decision (written with an empty final code).
     unresolved_rows : their rows in the review sheet, as the spreadsheet counts them (None
         for a unit the review file does not list).
-    left_out : (unit id, why) for units fewer than two coders coded and nobody decided.
+    single_coder : ids of the units coded by one coder only whose code was kept as coded,
+        without review (``accept_single=True``; source "single coder").
+    not_coded : ids of the units no coder coded and nobody decided (source "not coded").
+    accept_single : whether codes of units coded by one coder only were accepted as coded.
     review : the review file read (or "review table" when the decisions came as a DataFrame).
-    notes : anything the user should know (e.g. a data file changed since the review).
+    notes : anything the user should know (e.g. a data file changed since the review, units
+        kept from a single coder).
+
+    ``units_read = agreed + decided + majority + len(single_coder) + len(unresolved) +
+    len(not_coded)``.
     """
 
     table: pd.DataFrame
@@ -146,18 +179,27 @@ class Consensus:
     decided: int
     majority: int
     unresolved: tuple[str, ...]
-    left_out: tuple[tuple[str, str], ...]
+    single_coder: tuple[str, ...] = ()
+    not_coded: tuple[str, ...] = ()
+    accept_single: bool = False
     review: str = "review table"
     notes: tuple[str, ...] = ()
     unresolved_rows: tuple[int | None, ...] = ()
 
+    def summary(self) -> str:
+        """One line: the units read and how each got its final code."""
+        return (f"Consensus from {self.review}: {self.units_read} units read; {self.agreed} agreed, "
+                f"{self.decided} decided, {self.majority} by majority, {len(self.single_coder)} kept "
+                f"from a single coder, {len(self.unresolved)} unresolved, {len(self.not_coded)} coded "
+                "by no coder.")
+
+    def __repr__(self) -> str:
+        return f"<{self.summary()}>"
+
     def _repr_html_(self) -> str:
         from agree.core.format import notebook_html
 
-        summary = (f"Consensus from {self.review}: {self.units_read} units read; {self.agreed} agreed, "
-                   f"{self.decided} decided, {self.majority} by majority, {len(self.unresolved)} "
-                   f"unresolved, {len(self.left_out)} left out (fewer than two coders).")
-        return notebook_html(summary, consensus_frame(self), notes=self.notes)
+        return notebook_html(self.summary(), consensus_frame(self), notes=self.notes)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -166,11 +208,14 @@ class Consensus:
             "agreed": self.agreed,
             "decided": self.decided,
             "majority": self.majority,
+            "single_coder": len(self.single_coder),
+            "single_coder_units": list(self.single_coder),
+            "accept_single": self.accept_single,
             "unresolved": len(self.unresolved),
             "unresolved_units": list(self.unresolved),
             "unresolved_review_rows": list(self.unresolved_rows),
-            "left_out": len(self.left_out),
-            "left_out_units": [{"unit": u, "reason": r} for u, r in self.left_out],
+            "not_coded": len(self.not_coded),
+            "not_coded_units": list(self.not_coded),
             "written": int(len(self.table)),
             "notes": list(self.notes),
         }
@@ -184,8 +229,12 @@ class _Status:
     spread: np.ndarray       # range of scores on ordinal and numeric scales, else 0
 
     @property
-    def left_out(self) -> np.ndarray:
-        return self.n_values < 2
+    def single(self) -> np.ndarray:
+        return self.n_values == 1
+
+    @property
+    def not_coded(self) -> np.ndarray:
+        return self.n_values == 0
 
     @property
     def agreed(self) -> np.ndarray:
@@ -219,11 +268,11 @@ def _status(data: CodingData) -> _Status:
     return _Status(observed.sum(axis=1), distinct, spread)
 
 
-def _left_out(data: CodingData, status: _Status) -> tuple[tuple[str, str], ...]:
-    idx = np.nonzero(status.left_out)[0]
-    return tuple((str(data.unit_ids[i]),
-                  _LEFT_OUT_REASONS["single coder" if status.n_values[i] == 1 else "not coded"])
-                 for i in idx)
+def _left_out(data: CodingData, status: _Status, accept_single: bool) -> tuple[tuple[str, str], ...]:
+    """(unit id, why) for the units the review list leaves out: no coder coded them, or (with
+    `accept_single`) one coder did and the team accepts that code as it is."""
+    idx = np.nonzero(status.not_coded | (status.single & accept_single))[0]
+    return tuple((str(data.unit_ids[i]), SINGLE_KEPT if status.single[i] else NOT_CODED) for i in idx)
 
 
 # -- labels --------------------------------------------------------------------------------
@@ -266,38 +315,42 @@ def _coder_headers(coders: Sequence[str], reserved: Sequence[str]) -> list[str]:
 
 
 # -- the review table ----------------------------------------------------------------------
-def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
+def review_table(data: Any, *, include_agreed: bool = False, accept_single: bool = False) -> pd.DataFrame:
     """The units that need reconciliation, worst first, as a table of text.
 
     Parameters
     ----------
     data : CodingData, DataFrame or array (units x coders).
-    include_agreed : also list the agreed units (after the disagreements, with a ``status``
-        column), for teams that want to check every unit.
+    include_agreed : also list the agreed units (last), for teams that want to check every unit.
+    accept_single : do not list the units coded by one coder only (`reconcile` with
+        ``accept_single=True`` then keeps their one code as it is).
 
     Returns
     -------
     DataFrame with columns ``unit``, the data's other per-unit columns for context (e.g.
     ``interview``; renamed "<name> (data)" if the name clashes), ``text`` (when the data have
-    unit text), ``status``
-    (with `include_agreed`), one column per coder (the coder's code; empty when the coder
-    did not code the unit), ``codes involved``, ``definitions`` (when the codebook has
-    definitions), and the empty ``decision``, ``how decided``, ``decided by`` and ``notes``
-    columns to fill in. Every cell is text.
+    unit text), ``status`` (why the unit is listed: "disagreement", "coded by one coder only"
+    or "agreed"), one column per coder (the coder's code; empty when the coder did not code
+    the unit), ``codes involved``, ``definitions`` (when the codebook has definitions), and
+    the empty ``decision``, ``how decided``, ``decided by`` and ``notes`` columns to fill in.
+    Every cell is text.
 
     Notes
     -----
-    Order: number of distinct codes given to the unit (descending), then, on ordinal and
-    numeric scales, the range of the scores given (max - min, descending), then unit order.
-    Units fewer than two coders coded are never listed (see the module notes). For
-    set-valued data "codes involved" are the codes some but not all of the unit's coders
-    applied; otherwise the distinct codes given.
+    Disagreements come first, ordered by the number of distinct codes given to the unit
+    (descending), then, on ordinal and numeric scales, the range of the scores given
+    (max - min, descending), then unit order; then the units coded by one coder only, in unit
+    order; then (with `include_agreed`) the agreed units. Units no coder coded are never listed
+    (see the module notes). For set-valued data "codes involved" are the codes some but not
+    all of the unit's coders applied (a single coder's: the codes it applied); otherwise the
+    distinct codes given.
     """
     data = as_coding_data(data)
     require_unit_rows(data, "the review table")
     status = _status(data)
-    mask = status.needs_review | (status.agreed if include_agreed else False)
-    rows = status.worst_first(mask)
+    rows = np.concatenate([status.worst_first(status.needs_review),
+                           np.nonzero(status.single & (not accept_single))[0],
+                           np.nonzero(status.agreed & include_agreed)[0]]).astype(np.int64)
     labels = _value_labels(data)
     reserved = [UNIT, TEXT, STATUS, CODES_INVOLVED, DEFINITIONS, DECISION, HOW, WHO, NOTES]
     columns: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids[rows]]}
@@ -306,12 +359,12 @@ def review_table(data: Any, *, include_agreed: bool = False) -> pd.DataFrame:
         columns[header] = [_text(v) for v in np.asarray(data.columns[name], dtype=object)[rows]]
     if data.text is not None:
         columns[TEXT] = [_text(t) for t in data.text[rows]]
-    if include_agreed:
-        columns[STATUS] = np.where(status.needs_review[rows], "disagreement", "agreed").tolist()
+    columns[STATUS] = np.select([status.needs_review[rows], status.single[rows]],
+                                [DISAGREEMENT, SINGLE], AGREED).tolist()
     for header, j in zip(_coder_headers(data.coders, reserved + list(kept.values())),
                          range(data.n_coders)):
         columns[header] = labels[data.codes[rows, j]].tolist()
-    involved = [_codes_involved(data, data.codes[i]) for i in rows]
+    involved = [_codes_involved(data, data.codes[i], single=bool(status.single[i])) for i in rows]
     order = _category_order(data)
     columns[CODES_INVOLVED] = [SET_SEPARATOR.join(_label(c, order) for c in inv) for inv in involved]
     if data.codebook:
@@ -340,13 +393,13 @@ def _text(value: Any) -> str:
     return "" if value is None else str(value)
 
 
-def _codes_involved(data: CodingData, unit_codes: np.ndarray) -> list[Any]:
+def _codes_involved(data: CodingData, unit_codes: np.ndarray, *, single: bool = False) -> list[Any]:
     given = [data.values[c] for c in np.unique(unit_codes[unit_codes >= 0])]
     if not data.set_valued:
         return given
     if not given:
         return []
-    disputed = frozenset().union(*given) - frozenset.intersection(*given)
+    disputed = frozenset().union(*given) - (frozenset() if single else frozenset.intersection(*given))
     order = _category_order(data)
     return sorted(disputed, key=lambda c: (order.get(c, len(order)), value_sort_key(c)))
 
@@ -435,7 +488,7 @@ def _now() -> str:
 def write_review(data: Any, path: str | os.PathLike, *, format: str | None = None,
                  inputs: Sequence[str | os.PathLike] | None = None,
                  options: Mapping[str, Any] | None = None, include_agreed: bool = False,
-                 force: bool = False) -> ReviewSummary:
+                 accept_single: bool = False, force: bool = False) -> ReviewSummary:
     """Write the review list as a workbook (or CSV / Markdown) to fill in.
 
     Parameters
@@ -448,6 +501,8 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
         data were read from; checksums from ``data.report.checksums`` when present).
     options : the options used, recorded in the workbook so the review can be traced.
     include_agreed : also list agreed units (see `review_table`).
+    accept_single : do not list the units coded by one coder only (see `review_table`); the
+        "About this file" sheet names them.
     force : replace an existing output file.
 
     Returns
@@ -471,13 +526,16 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
     checksums = _input_checksums(data, inputs)
     protected = set(checksums) | set(data.report.files if data.report else ())
     check_output(out, sorted(protected), force=force)
-    table = review_table(data, include_agreed=include_agreed)
+    table = review_table(data, include_agreed=include_agreed, accept_single=accept_single)
     status = _status(data)
-    left_out = _left_out(data, status)
+    disagreements, single = int(status.needs_review.sum()), int(status.single.sum())
     summary = ReviewSummary(path=str(out), format=fmt, units_read=data.n_units,
                             agreed=int(status.agreed.sum()),
-                            needing_review=int(status.needs_review.sum()), left_out=left_out,
-                            rows_written=len(table), checksums=checksums)
+                            needing_review=disagreements + (0 if accept_single else single),
+                            left_out=_left_out(data, status, accept_single),
+                            rows_written=len(table), checksums=checksums,
+                            disagreements=disagreements, single_coder=single,
+                            accept_single=accept_single)
     if fmt == "xlsx":
         about = _about_rows(data, summary, options)
         writer = lambda tmp: _write_review_xlsx(tmp, data, table, _confused_pairs(data), about)  # noqa: E731
@@ -498,10 +556,7 @@ def _about_rows(data: CodingData, summary: ReviewSummary,
         ("coders", SET_SEPARATOR.join(data.coders)),
         ("level", data.level),
         ("set-valued", "yes" if data.set_valued else "no"),
-        ("units read", summary.units_read),
-        ("units agreed", summary.agreed),
-        ("units needing review", summary.needing_review),
-        ("units left out (fewer than two coders)", len(summary.left_out)),
+        *review_counts(summary),
         ("rows in the review sheet", summary.rows_written),
     ]
     for key, value in (options or {}).items():
@@ -515,7 +570,7 @@ def _about_rows(data: CodingData, summary: ReviewSummary,
     rows.extend(summary.checksums.items())
     if summary.left_out:
         rows.append(("", ""))
-        rows.append(("left-out unit", "why"))
+        rows.append(("unit not listed", "why"))
         rows.extend(summary.left_out)
     report = data.report
     if report is not None and (report.left_out or report.notes):
@@ -523,6 +578,21 @@ def _about_rows(data: CodingData, summary: ReviewSummary,
         rows.append(("while reading", ""))
         rows.extend(("left out", line) for line in report.left_out)
         rows.extend(("note", line) for line in report.notes)
+    return rows
+
+
+def review_counts(summary: ReviewSummary) -> list[tuple[str, int]]:
+    """How the units read divide up, as (label, count); the same words in every review format."""
+    not_coded = len(summary.left_out) - (summary.single_coder if summary.accept_single else 0)
+    rows = [("units read", summary.units_read), ("units agreed", summary.agreed),
+            ("units needing review", summary.needing_review),
+            ("of which the coders disagree", summary.disagreements)]
+    if summary.accept_single:
+        rows.append(("units coded by one coder only, not listed (kept as coded: accept single)",
+                     summary.single_coder))
+    else:
+        rows.append(("of which coded by one coder only", summary.single_coder))
+    rows.append(("units coded by no coder (not listed)", not_coded))
     return rows
 
 
@@ -540,9 +610,7 @@ def _write_markdown(tmp: str, table: pd.DataFrame, summary: ReviewSummary) -> No
     lines = [
         "# Units to reconcile",
         "",
-        f"{summary.needing_review} of {summary.units_read} units need review; "
-        f"{summary.agreed} agreed; {len(summary.left_out)} left out (fewer than two coders). "
-        + _INDEPENDENCE_NOTE,
+        "; ".join(f"{label}: {n}" for label, n in review_counts(summary)) + ". " + _INDEPENDENCE_NOTE,
         "",
         "| " + " | ".join(_md_cell(c) for c in table.columns) + " |",
         "|" + "---|" * len(table.columns),
@@ -618,7 +686,7 @@ def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: p
 
     order = _category_order(data)
     codes = [_label(c, order) for c in data.categories]
-    if data.set_valued:
+    if NONE_LABEL not in codes:
         codes.append(NONE_LABEL)
     decision = get_column_letter(header.index(DECISION) + 1)
     how = get_column_letter(header.index(HOW) + 1)
@@ -627,8 +695,8 @@ def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: p
         showDropDown=False, showErrorMessage=not data.set_valued, errorStyle="stop",
         errorTitle="Not a code", error="Choose a code from the codebook.",
         promptTitle="Decision", showInputMessage=True,
-        prompt=("Several codes: separate them with '; '." if data.set_valued
-                else "Choose the final code."))
+        prompt=(f"Several codes: separate them with '{SET_SEPARATOR}'. {NONE_LABEL}: no code applies."
+                if data.set_valued else f"Choose the final code; {NONE_LABEL}: no code applies."))
     dv_codes.add(f"{decision}2:{decision}{last}")
     dv_how = DataValidation(type="list", formula1=_list_source(wb, "how", list(HOW_CHOICES), 2),
                             allow_blank=True, showErrorMessage=True, errorTitle="How decided",
@@ -763,7 +831,10 @@ def _recorded_checksums(about: Sequence[Sequence[Any]]) -> dict[str, str]:
 
 
 class _DecisionParser:
-    """Turns a decision cell into a value of the data, or says why it cannot."""
+    """Turns a decision cell into a value of the data, or says why it cannot.
+
+    "(none)" (any case) is the decision *no code applies*: the empty set for set-valued data,
+    None (no code) otherwise, unless the codebook has a code written exactly so."""
 
     def __init__(self, data: CodingData):
         self.data = data
@@ -773,7 +844,7 @@ class _DecisionParser:
         self.by_label = {_label(c, self.order): c for c in singles}
 
     def known(self) -> list[str]:
-        return list(self.by_label) + ([NONE_LABEL] if self.data.set_valued else [])
+        return list(self.by_label) + ([NONE_LABEL] if NONE_LABEL not in self.by_label else [])
 
     def one(self, raw: Any) -> Any:
         if not isinstance(raw, str):
@@ -789,19 +860,51 @@ class _DecisionParser:
             return number
         raise KeyError(text)
 
+    def _no_code(self, raw: Any) -> bool:
+        return (isinstance(raw, str) and raw.strip().casefold() == NONE_LABEL
+                and raw.strip() not in self.by_label)
+
     def parse(self, raw: Any) -> Any:
+        """The decided value: a value of the data, frozenset() or None for "(none)"."""
+        if self._no_code(raw):
+            return frozenset() if self.data.set_valued else None
         if not self.data.set_valued:
             return self.one(raw)
-        if isinstance(raw, str) and raw.strip() == NONE_LABEL:
-            return frozenset()
         parts = [p for p in str(raw).split(";") if p.strip()] if isinstance(raw, str) else [raw]
         return frozenset(self.one(p) for p in parts)
 
-    def hint(self, text: str) -> str:
+    def _as_codes(self, text: str) -> list[str] | None:
+        """The labels of the codes `text` names, if it is two or more known codes joined by
+        one of `WRONG_SEPARATORS` (with or without "; " between some of them)."""
+        folded = {k.casefold(): k for k in self.by_label}
+        for sep in WRONG_SEPARATORS:
+            pattern = r"\s+and\s+" if sep.strip() == "and" else re.escape(sep)
+            if not re.search(pattern, text, flags=re.IGNORECASE):
+                continue
+            parts = [p.strip() for chunk in text.split(";")
+                     for p in re.split(pattern, chunk, flags=re.IGNORECASE) if p.strip()]
+            labels = [folded.get(p.casefold()) for p in parts]
+            if len(labels) >= 2 and all(labels):
+                return labels
+        return None
+
+    def hint(self, text: str, decision: Any = None) -> str:
+        """What to write instead of `text` (the part of the `decision` cell that is not a code)."""
+        whole = decision.strip() if isinstance(decision, str) else text
         known = self.known()
+        shown = ", ".join(known[:12]) + (", ..." if len(known) > 12 else "")
+        codes = self._as_codes(whole)
+        if codes is not None:
+            listed = " and ".join(f"'{c}'" for c in codes)
+            if self.data.set_valued:
+                return (f"separate codes with '{SET_SEPARATOR}': write '{SET_SEPARATOR.join(codes)}' "
+                        f"(one cell holds {listed})")
+            return (f"this variable takes one code per unit, and the cell holds {len(codes)} ({listed}): "
+                    "choose one")
+        if text.casefold() == NONE_LABEL:
+            return f"'{NONE_LABEL}' means no code applies; it cannot stand beside codes"
         folded = [k for k in known if k.casefold() == text.casefold()]
         close = folded or difflib.get_close_matches(text, known, n=1, cutoff=0.0)
-        shown = ", ".join(known[:12]) + (", ..." if len(known) > 12 else "")
         if close:
             return f"did you mean '{close[0]}'? The codes are: {shown}"
         return f"the codes are: {shown}"
@@ -833,7 +936,7 @@ def _rows_text(rows: Sequence[int]) -> str:
 
 
 def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
-              majority: bool = False) -> Consensus:
+              majority: bool = False, accept_single: bool = False) -> Consensus:
     """Read the decisions back and give every unit one final code.
 
     Parameters
@@ -844,17 +947,22 @@ def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
     allow_unresolved : keep units that still need a decision, with source "unresolved" and
         an empty final code, instead of raising.
     majority : give an undecided unit the value a strict majority (more than half) of its
-        coders gave, with source "majority", where one exists.
+        coders gave, with source "majority", where one exists (at least two coders: one coder
+        is no majority).
+    accept_single : keep the code of a unit coded by one coder only, without review, when the
+        review file gives no decision for it (source "single coder", and a note saying so).
+        Without it such units need a decision like any disagreement.
 
     Returns
     -------
     Consensus
         Every unit of `data` exactly once, in input order. Agreed units keep their code,
         decided units take the decision (a decision also overrides an agreed code, when the
-        review list included agreed units), then the majority rule (if asked), then
-        "unresolved"; units fewer than two coders coded keep their single value ("single
-        coder") or none ("not coded"). The coders' independent codes are carried beside the
-        final code and never changed. Compute agreement on `data`, never on the consensus.
+        review list included agreed units; "(none)" decides that no code applies), then
+        (with `accept_single`) units coded by one coder only keep that code ("single coder"),
+        then the majority rule (if asked), then "unresolved"; units no coder coded get no
+        code ("not coded"). The coders' independent codes are carried beside the final code
+        and never changed. Compute agreement on `data`, never on the consensus.
 
     Raises
     ------
@@ -864,7 +972,8 @@ def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
         decision that is not a code (with the file, sheet, row and column), "unknown-method"
         for a "how decided" outside discussion/adjudicator/majority, "unresolved" when units
         still need a decision and `allow_unresolved` is False. All problems are collected
-        into one error.
+        into one error. A decision naming several codes joined by ",", "|", "/" or "and" gets a
+        hint to use "; " (set-valued data) or to choose one code.
     """
     data = as_coding_data(data)
     require_unit_rows(data, "reconciliation")
@@ -901,7 +1010,7 @@ def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
         except KeyError as exc:
             text = str(exc.args[0])
             problems.append(AgreeError(f"the decision '{text}' for unit '{row.unit}' is not a code",
-                                       where=where(DECISION), hint=parser.hint(text),
+                                       where=where(DECISION), hint=parser.hint(text, row.decision),
                                        code="unknown-code"))
 
     mismatch = _mismatch(data, status, seen, unknown_ids, empty_ids, source)
@@ -913,7 +1022,8 @@ def reconcile(data: Any, review: Any, *, allow_unresolved: bool = False,
             raise first
         raise AgreeError(first.message + f" (and {len(problems) - 1} more problems)",
                          hint=first.hint, where=first.where, code=first.code, problems=problems)
-    return _build_consensus(data, status, decided, annotations, source, allow_unresolved, majority)
+    return _build_consensus(data, status, decided, annotations, source, allow_unresolved, majority,
+                            accept_single)
 
 
 def _mismatch(data: CodingData, status: _Status, seen: Mapping[str, list[int]],
@@ -944,15 +1054,16 @@ def _mismatch(data: CodingData, status: _Status, seen: Mapping[str, list[int]],
 
 def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tuple[Any, _ReviewRow]],
                      annotations: Mapping[int, _ReviewRow], source: _ReviewFile,
-                     allow_unresolved: bool, majority: bool) -> Consensus:
+                     allow_unresolved: bool, majority: bool, accept_single: bool) -> Consensus:
     n = data.n_units
     values = np.array(list(data.values) + [None], dtype=object)
     first_value = values[np.where(data.codes >= 0, data.codes, -1).max(axis=1, initial=-1)]
-    final = np.where(status.agreed | (status.n_values == 1), first_value, None)
+    kept_single = status.single & accept_single
+    final = np.where(status.agreed | kept_single, first_value, None)
     origin = np.full(n, "unresolved", dtype=object)
     origin[status.agreed] = "agreed"
-    origin[status.left_out & (status.n_values == 1)] = "single coder"
-    origin[status.left_out & (status.n_values == 0)] = "not coded"
+    origin[kept_single] = "single coder"
+    origin[status.not_coded] = "not coded"
 
     if decided:
         rows = np.fromiter(decided, dtype=np.int64)
@@ -963,6 +1074,7 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
     notes = np.full(n, "", dtype=object)
     for u, row in annotations.items():
         how[u], who[u], notes[u] = row.how.lower(), row.who, row.notes
+    notes[(origin == "single coder") & (notes == "")] = SINGLE_KEPT
 
     if majority:
         undecided = np.nonzero(origin == "unresolved")[0]
@@ -979,11 +1091,19 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
         n_open = len(unresolved)
         verb = "unit still needs" if n_open == 1 else "units still need"
         where = cell_location(source.name, source.sheet) if source.sheet else source.name
-        raise AgreeError(f"{n_open} {verb} a decision: {unresolved_listing(unresolved, unresolved_rows)}",
+        n_single = int(status.single[open_units].sum())
+        singles = ("" if not n_single else " (coded by one coder only)" if n_single == n_open == 1 else
+                   f" ({'all' if n_single == n_open else n_single} coded by one coder only)")
+        raise AgreeError(f"{n_open} {verb} a decision{singles}: "
+                         f"{unresolved_listing(unresolved, unresolved_rows)}",
                          where=where, code="unresolved",
                          hint="fill in the decision column, or use --allow-unresolved "
                               "(allow_unresolved=True) to write them with an empty final code"
-                              + ("" if majority else ", or --majority to take a strict majority"))
+                              + ("" if majority or n_single == n_open else
+                                 ", or --majority to take a strict majority")
+                              + ("" if not n_single else
+                                 ", or --accept-single (accept_single=True) to keep the code of "
+                                 "the one coder who coded a unit"))
 
     table: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids]}
     for name, header in _kept_headers(data, [UNIT, TEXT, FINAL, SOURCE, HOW, WHO, NOTES]).items():
@@ -995,17 +1115,22 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
     for j, header in enumerate(_coder_headers(data.coders, list(table))):
         table[header] = values[data.codes[:, j]].tolist()
     counts = {s: int((origin == s).sum()) for s in SOURCES}
-    left = tuple((str(data.unit_ids[i]), _LEFT_OUT_REASONS[origin[i]])
-                 for i in np.nonzero(np.isin(origin, list(_LEFT_OUT_REASONS)))[0])
+    ids = lambda kind: tuple(str(u) for u in data.unit_ids[origin == kind])  # noqa: E731
+    kept = ids("single coder")
+    notes = _changed_inputs(data, source)
+    if kept:
+        notes += (f"{len(kept)} unit{'s' if len(kept) != 1 else ''} coded by one coder only "
+                  f"kept that coder's code without review (accept single): {_listed(list(kept))}",)
     return Consensus(table=pd.DataFrame(table, dtype=object), units_read=n,
                      agreed=counts["agreed"], decided=counts["decided"],
-                     majority=counts["majority"], unresolved=unresolved, left_out=left,
-                     review=source.name, notes=_changed_inputs(data, source),
-                     unresolved_rows=unresolved_rows)
+                     majority=counts["majority"], unresolved=unresolved, single_coder=kept,
+                     not_coded=ids("not coded"), accept_single=accept_single,
+                     review=source.name, notes=notes, unresolved_rows=unresolved_rows)
 
 
 def _strict_majority(data: CodingData, units: np.ndarray) -> np.ndarray:
-    """For each unit, the value index more than half of its coders gave, else -1."""
+    """For each unit, the value index more than half of its coders gave, and at least two
+    coders (one coder is no majority), else -1."""
     if not len(units):
         return np.zeros(0, dtype=np.int64)
     codes = data.codes[units]
@@ -1014,7 +1139,8 @@ def _strict_majority(data: CodingData, units: np.ndarray) -> np.ndarray:
     np.add.at(counts, (rows, codes[rows, cols]), 1)
     best = counts.argmax(axis=1)
     n = (codes >= 0).sum(axis=1)
-    return np.where(2 * counts[np.arange(len(units)), best] > n, best, -1)
+    top = counts[np.arange(len(units)), best]
+    return np.where((2 * top > n) & (top >= 2), best, -1)
 
 
 def _changed_inputs(data: CodingData, source: _ReviewFile) -> tuple[str, ...]:
@@ -1031,9 +1157,15 @@ def _changed_inputs(data: CodingData, source: _ReviewFile) -> tuple[str, ...]:
 
 # -- writing the consensus -----------------------------------------------------------------
 def consensus_frame(consensus: Consensus, data: CodingData | None = None) -> pd.DataFrame:
-    """The consensus table as text, the way it is written (sets as "a; b")."""
+    """The consensus table as text, the way it is written in every format: sets as "a; b";
+    in the final code, no code (the empty set, None) as an empty cell; in the coders'
+    columns the empty set as "(none)" and a unit the coder did not code as an empty cell."""
     order = _category_order(data) if data is not None else None
-    return consensus.table.map(lambda v: _label(v, order) if not isinstance(v, str) else v)
+    frame = consensus.table.map(lambda v: _label(v, order) if not isinstance(v, str) else v)
+    if FINAL in frame.columns:
+        frame[FINAL] = ["" if isinstance(v, frozenset) and not v else v if isinstance(v, str)
+                        else _label(v, order) for v in consensus.table[FINAL]]
+    return frame
 
 
 def write_consensus(consensus: Consensus, path: str | os.PathLike, *, format: str | None = None,

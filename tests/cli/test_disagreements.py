@@ -39,7 +39,7 @@ def test_format_prints_the_summary_and_file_format_writes_the_file(tmp_path, dat
     code, printed, err = run(capsys, "disagreements", data_file, "-o", out, "--file-format", "csv",
                              "--format", "json")
     assert code == 0, err
-    assert json.loads(printed)["needing_review"] == 2 and "deprecated" not in err
+    assert json.loads(printed)["needing_review"] == 3 and "deprecated" not in err
     assert out.read_text(encoding="utf-8").startswith("unit,")
 
 
@@ -48,7 +48,7 @@ def test_old_format_flags_still_work_with_a_one_line_note(tmp_path, data_file, c
     code, printed, err = run(capsys, "disagreements", data_file, "-o", tmp_path / "a.csv",
                              "--summary-format", "json")
     assert code == 0, err
-    assert json.loads(printed)["needing_review"] == 2
+    assert json.loads(printed)["needing_review"] == 3
     assert [line for line in err.splitlines() if "deprecated" in line] == [
         "note: --summary-format is deprecated; use --format json"]
     code, printed, err = run(capsys, "disagreements", data_file, "-o", tmp_path / "b.txt", "--format", "md")

@@ -21,14 +21,15 @@ def test_disagreements_then_reconcile(tmp_path, data_file, capsys):
     code, out, err = run(capsys, "disagreements", data_file, "-o", review, "--format", "json")
     assert code == 0, err
     summary = json.loads(out)
-    assert summary == {**summary, "units_read": 5, "agreed": 2, "needing_review": 2, "left_out": 1,
-                       "rows_written": 2}
+    # u3 was coded by one coder only: listed for review after the two disagreements
+    assert summary == {**summary, "units_read": 5, "agreed": 2, "needing_review": 3, "disagreements": 2,
+                       "single_coder": 1, "single_coder_listed": True, "left_out": 0, "rows_written": 3}
     assert summary["inputs"] == {str(data_file): hashlib.sha256(data_file.read_bytes()).hexdigest()}
-    assert "left out (fewer than two coders): u3" in err
+    assert "3 units need review (2 with a disagreement, 1 coded by one coder only" in err
     about = {r[0]: r[1] for r in openpyxl.load_workbook(review)[ABOUT_SHEET].iter_rows(values_only=True)}
     assert about[str(data_file)] == summary["inputs"][str(data_file)]
 
-    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed", "u3": "neg"})
     consensus = tmp_path / "consensus.csv"
     code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus,
                          "--summary-format", "json")
@@ -40,14 +41,14 @@ def test_disagreements_then_reconcile(tmp_path, data_file, capsys):
     back = pd.read_csv(consensus, dtype=str, keep_default_na=False).map(unprotect_text)
     assert list(back["unit"]) == ["=SUM(A1)", "u2", "u3", "@here", "-fine"]
     assert list(back["final code"]) == ["neg", "pos", "neg", "mixed", "mixed"]
-    assert list(back["source"]) == ["decided", "agreed", "single coder", "decided", "agreed"]
+    assert list(back["source"]) == ["decided", "agreed", "decided", "decided", "agreed"]
     assert list(back["ann"]) == ["pos", "pos", "neg", "pos", "mixed"]
 
 
 def test_table_summary_and_data_after_review(tmp_path, data_file, capsys):
     review = tmp_path / "review.xlsx"
     assert run(capsys, "disagreements", data_file, "-o", review)[0] == 0
-    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed", "u3": "neg"})
     code, out, err = run(capsys, "reconcile", review, data_file, "-o", tmp_path / "c.xlsx")
     assert code == 0, err
     assert "decided" in out and "written" in out
@@ -57,7 +58,7 @@ def test_table_summary_and_data_after_review(tmp_path, data_file, capsys):
 def test_unresolved_exits_2_and_writes_nothing(tmp_path, data_file, capsys):
     review = tmp_path / "review.xlsx"
     run(capsys, "disagreements", data_file, "-o", review)
-    fill(review, {"=SUM(A1)": "neg"})
+    fill(review, {"=SUM(A1)": "neg", "u3": "neg"})
     consensus = tmp_path / "consensus.csv"
     code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus)
     assert code == 2
@@ -91,7 +92,7 @@ def test_refuses_to_overwrite_inputs(tmp_path, data_file, capsys):
     assert code == 2 and "refusing to overwrite the input file" in err
     review = tmp_path / "review.xlsx"
     run(capsys, "disagreements", data_file, "-o", review)
-    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed", "u3": "neg"})
     review_bytes = review.read_bytes()
     for target in (review, data_file):
         code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", target,
@@ -121,7 +122,7 @@ def test_one_unresolved_unit_reads_as_one_and_names_its_row(tmp_path, data_file,
     review = tmp_path / "review.xlsx"
     run(capsys, "disagreements", data_file, "-o", review)
     units = [c.value for c in openpyxl.load_workbook(review)[REVIEW_SHEET]["A"]][1:]
-    fill(review, {"=SUM(A1)": "neg"})
+    fill(review, {"=SUM(A1)": "neg", "u3": "neg"})
     code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv")
     assert code == 2
     row = units.index("@here") + 2          # as the spreadsheet counts rows (header = row 1)
@@ -165,10 +166,38 @@ def test_help_examples_run_on_the_bundled_samples(tmp_path, capsys):
 def test_file_format_and_printed_format_are_two_options(tmp_path, data_file, capsys):
     review = tmp_path / "review.xlsx"
     run(capsys, "disagreements", data_file, "-o", review)
-    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed", "u3": "neg"})
     out = tmp_path / "consensus.txt"
     code, printed, err = run(capsys, "reconcile", review, "--data", data_file, "-o", out,
                              "--file-format", "csv", "--format", "json")
     assert code == 0, err
-    assert json.loads(printed)["decided"] == 2 and "deprecated" not in err
+    assert json.loads(printed)["decided"] == 3 and "deprecated" not in err
     assert out.read_text(encoding="utf-8").startswith("unit,")
+
+
+def test_accept_single_in_both_commands(tmp_path, data_file, capsys):
+    """u3 was coded by one coder only: `disagreements --accept-single` does not list it and
+    `reconcile --accept-single` keeps its code, saying so; the JSON is the library's."""
+    review = tmp_path / "review.xlsx"
+    code, out, err = run(capsys, "disagreements", data_file, "-o", review, "--accept-single",
+                         "--format", "json")
+    assert code == 0, err
+    summary = json.loads(out)
+    assert summary["needing_review"] == 2 and summary["single_coder"] == 1
+    assert summary["single_coder_listed"] is False
+    assert "not listed (coded by one coder only; kept as coded, without review (accept single)): u3" in err
+    assert [c.value for c in openpyxl.load_workbook(review)[REVIEW_SHEET]["A"]][1:] == ["@here", "=SUM(A1)"]
+    fill(review, {"=SUM(A1)": "neg", "@here": "mixed"})
+    consensus = tmp_path / "consensus.csv"
+    code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus)
+    assert code == 2 and "'u3'" in err and "--accept-single" in err        # not accepted silently
+    code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus,
+                         "--accept-single", "--format", "json")
+    assert code == 0, err
+    assert json.loads(out) == reconcile(read(data_file), review, accept_single=True).to_dict()
+    assert "1 unit coded by one coder only kept that coder's code without review" in err
+    back = pd.read_csv(consensus, dtype=str, keep_default_na=False).map(unprotect_text).set_index("unit")
+    assert back.loc["u3", "source"] == "single coder" and back.loc["u3", "final code"] == "neg"
+    code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus, "--force",
+                         "--accept-single")
+    assert code == 0 and "coded by one coder only, kept as coded" in " ".join(out.split())

@@ -91,6 +91,12 @@ def review_units(path):
     return [ws.cell(r, 1).value for r in range(2, ws.max_row + 1)]
 
 
+def decision_choices(data, path):
+    """Write the review workbook; the list the decision column's drop-down offers."""
+    write_review(data, path)
+    return openpyxl.load_workbook(path)[REVIEW_SHEET].data_validations.dataValidation[0].formula1
+
+
 def no_temp_files(folder):
     return not [f for f in os.listdir(folder) if f.endswith(".tmp")]
 
@@ -100,8 +106,10 @@ def test_xlsx_round_trip_keeps_text_and_every_unit(tmp_path):
     data = tricky_data()
     review = tmp_path / "review.xlsx"
     summary = write_review(data, review)
-    assert summary.units_read == 9 and summary.agreed == 2 and summary.needing_review == 5
-    assert dict(summary.left_out) == {"Zürich": "coded by one coder only", "日本": "coded by no coder"}
+    # the unit one coder coded is listed for review after the disagreements; nobody's unit is not
+    assert summary.units_read == 9 and summary.agreed == 2 and summary.needing_review == 6
+    assert summary.disagreements == 5 and summary.single_coder == 1
+    assert dict(summary.left_out) == {"日本": "coded by no coder"}
 
     wb = openpyxl.load_workbook(review)
     assert wb.sheetnames[:3] == [REVIEW_SHEET, PAIRS_SHEET, ABOUT_SHEET]
@@ -113,7 +121,7 @@ def test_xlsx_round_trip_keeps_text_and_every_unit(tmp_path):
             if cell.value is not None:
                 assert cell.data_type == "s", (cell.coordinate, cell.value)
     units = review_units(review)
-    assert set(units) == {"=SUM(A1)", "@here", "+1", "\tpad", "'quoted"}
+    assert set(units[:5]) == {"=SUM(A1)", "@here", "+1", "\tpad", "'quoted"} and units[5] == "Zürich"
     cols = header_index(ws)
     texts = {ws.cell(r, 1).value: ws.cell(r, cols["text"]).value for r in range(2, ws.max_row + 1)}
     assert texts["=SUM(A1)"] == "text of =SUM(A1) | with a pipe"
@@ -124,12 +132,15 @@ def test_xlsx_round_trip_keeps_text_and_every_unit(tmp_path):
     decision_letter = openpyxl.utils.get_column_letter(cols["decision"])
     how_letter = openpyxl.utils.get_column_letter(cols["how decided"])
     lists = {str(dv.sqref): dv for dv in ws.data_validations.dataValidation}
-    dv = lists[f"{decision_letter}2:{decision_letter}6"]
-    assert dv.type == "list" and dv.formula1 == '"pos,neg,mixed,=odd"'
-    assert lists[f"{how_letter}2:{how_letter}6"].formula1 == '"discussion,adjudicator,majority"'
+    dv = lists[f"{decision_letter}2:{decision_letter}7"]
+    assert dv.type == "list" and dv.formula1 == '"pos,neg,mixed,=odd,(none)"'
+    assert lists[f"{how_letter}2:{how_letter}7"].formula1 == '"discussion,adjudicator,majority"'
+    statuses = {ws.cell(r, 1).value: ws.cell(r, cols["status"]).value for r in range(2, ws.max_row + 1)}
+    assert statuses["Zürich"] == "coded by one coder only" and statuses["+1"] == "disagreement"
 
     filled = fill(review,
-                  {"=SUM(A1)": "mixed", "@here": "pos", "+1": "neg", "\tpad": "=odd", "'quoted": "neg"},
+                  {"=SUM(A1)": "mixed", "@here": "pos", "+1": "neg", "\tpad": "=odd", "'quoted": "neg",
+                   "Zürich": "mixed"},
                   how={"=SUM(A1)": "discussion", "@here": "Adjudicator"},
                   who={"@here": "Zoë"},
                   notes={"=SUM(A1)": "=HYPERLINK(\"x\")", "+1": "-context decides"},
@@ -142,7 +153,7 @@ def test_xlsx_round_trip_keeps_text_and_every_unit(tmp_path):
     assert final == {"=SUM(A1)": "mixed", "-fine": "pos", "@here": "pos", "+1": "neg", "café": "neg",
                      "Zürich": "mixed", "日本": None, "\tpad": "=odd", "'quoted": "neg"}
     assert source == {"=SUM(A1)": "decided", "-fine": "agreed", "@here": "decided", "+1": "decided",
-                      "café": "agreed", "Zürich": "single coder", "日本": "not coded",
+                      "café": "agreed", "Zürich": "decided", "日本": "not coded",
                       "\tpad": "decided", "'quoted": "decided"}
     row = table.set_index("unit")
     assert row.loc["=SUM(A1)", "notes"] == "=HYPERLINK(\"x\")"
@@ -152,9 +163,8 @@ def test_xlsx_round_trip_keeps_text_and_every_unit(tmp_path):
         expected = [None if c < 0 else data.values[c] for c in data.codes[:, j]]
         assert list(table[coder]) == expected
     assert consensus.to_dict()["written"] == 9
-    assert consensus.to_dict()["left_out_units"] == [
-        {"unit": "Zürich", "reason": "coded by one coder only"},
-        {"unit": "日本", "reason": "coded by no coder"}]
+    assert consensus.to_dict()["not_coded_units"] == ["日本"]
+    assert consensus.to_dict()["single_coder"] == 0 and consensus.single_coder == ()
 
     out = tmp_path / "consensus.csv"
     write_consensus(consensus, out, inputs=[filled], data=data)
@@ -191,9 +201,11 @@ def test_provenance_sheet_records_checksums_counts_and_left_out(tmp_path):
     assert rows[str(source)] == hashlib.sha256(source.read_bytes()).hexdigest()
     assert rows["units read"] == 4
     assert rows["units agreed"] == 1
-    assert rows["units needing review"] == 2
-    assert rows["units left out (fewer than two coders)"] == 1
-    assert rows["u3"] == "coded by one coder only"
+    assert rows["units needing review"] == 3
+    assert rows["of which the coders disagree"] == 2
+    assert rows["of which coded by one coder only"] == 1
+    assert rows["units coded by no coder (not listed)"] == 0
+    assert "u3" not in rows                          # listed for review, not left out
     assert rows["option level"] == "nominal"
     assert rows["made with"].startswith("agree ")
     assert "made at" in rows
@@ -236,6 +248,7 @@ def test_include_agreed_lists_agreed_units_after_disagreements():
     table = review_table(data, include_agreed=True)
     assert list(table["unit"]) == ["2", "1", "3"]
     assert list(table["status"]) == ["disagreement", "agreed", "agreed"]
+    assert list(review_table(data)["status"]) == ["disagreement"]
     table.loc[table["unit"] == "2", "decision"] = "a"
     table.loc[table["unit"] == "3", "decision"] = "a"  # a decision overrides an agreed code
     consensus = reconcile(data, table)
@@ -337,8 +350,8 @@ def test_long_codebook_uses_a_hidden_list_sheet(tmp_path):
     assert wb[LISTS_SHEET].sheet_state == "hidden"
     ws = wb[REVIEW_SHEET]
     formulas = [dv.formula1 for dv in ws.data_validations.dataValidation]
-    assert f"'{LISTS_SHEET}'!$A$2:$A$41" in formulas
-    assert [wb[LISTS_SHEET].cell(r, 1).value for r in range(2, 42)] == cats
+    assert f"'{LISTS_SHEET}'!$A$2:$A$42" in formulas
+    assert [wb[LISTS_SHEET].cell(r, 1).value for r in range(2, 43)] == cats + ["(none)"]
     fill(tmp_path / "review.xlsx", {"1": cats[1]})
     assert reconcile(data, tmp_path / "review.xlsx").table.loc[0, "final code"] == cats[1]
 
@@ -355,10 +368,11 @@ def test_csv_review_is_protected_and_reads_back(tmp_path):
     assert "\n+1," in raw and "\n'quoted," in raw     # a plain number and a plain quote stay as they are
     frame = pd.read_csv(path, dtype=str, keep_default_na=False)
     units = frame["unit"].map(unprotect_text)
-    assert set(units) == {"=SUM(A1)", "@here", "+1", "\tpad", "'quoted"}
+    assert set(units) == {"=SUM(A1)", "@here", "+1", "\tpad", "'quoted", "Zürich"}
     # decisions typed in as a spreadsheet keeps them; "'=odd" protected by hand
     frame["decision"] = units.map(
-        {"=SUM(A1)": "mixed", "@here": "'=odd", "+1": "neg", "\tpad": "pos", "'quoted": "pos"})
+        {"=SUM(A1)": "mixed", "@here": "'=odd", "+1": "neg", "\tpad": "pos", "'quoted": "pos",
+         "Zürich": "mixed"})
     frame.to_csv(path, index=False)
     consensus = reconcile(data, path)
     final = dict(zip(consensus.table["unit"], consensus.table["final code"]))
@@ -382,7 +396,7 @@ def test_markdown_review_escapes_pipes(tmp_path):
         # unescaped pipes separate exactly n_columns cells
         assert len(line.replace("\\|", "").split("|")) == n_columns + 2
     assert "text of =SUM(A1) \\| with a pipe" in path.read_text(encoding="utf-8")
-    assert len(table) == 2 + 5
+    assert len(table) == 2 + 6
     with pytest.raises(AgreeError) as err:
         reconcile(data, path)
     assert err.value.code == "format"
@@ -398,9 +412,7 @@ def test_set_valued_round_trip(tmp_path):
     assert list(table["ann"]) == ["b; a", "(none)"]  # codebook order, empty set shown
     assert list(table["codes involved"]) == ["b", "b"]
     path = tmp_path / "review.xlsx"
-    write_review(data, path)
-    assert openpyxl.load_workbook(path)[REVIEW_SHEET].data_validations.dataValidation[0].formula1 \
-        == '"c,b,a,(none)"'
+    assert decision_choices(data, path) == '"c,b,a,(none)"'
     fill(path, {"s1": "a;  b", "s3": "(none)"})
     consensus = reconcile(data, path)
     final = dict(zip(consensus.table["unit"], consensus.table["final code"]))
@@ -408,7 +420,15 @@ def test_set_valued_round_trip(tmp_path):
                      "s4": frozenset({"a", "c"})}
     out = write_consensus(consensus, tmp_path / "consensus.csv", data=data)
     back = pd.read_csv(out, dtype=str, keep_default_na=False)
-    assert list(back["final code"]) == ["b; a", "c", "(none)", "c; a"]
+    # the decision "(none)" is the empty set: no final code, in the table and in every file format
+    assert list(back["final code"]) == ["b; a", "c", "", "c; a"]
+    assert list(back["source"]) == ["decided", "agreed", "decided", "agreed"]
+    assert list(back["ann"]) == ["b; a", "c", "(none)", "c; a"]   # a coder's empty set stays visible
+    xlsx = write_consensus(consensus, tmp_path / "consensus.xlsx", data=data)
+    ws = openpyxl.load_workbook(xlsx).active
+    header = [c.value for c in ws[1]]
+    column = header.index("final code") + 1
+    assert [ws.cell(r, column).value for r in range(2, 6)] == ["b; a", "c", None, "c; a"]
 
     fill(path, {"s1": "a; x"})
     with pytest.raises(AgreeError) as err:
@@ -471,7 +491,12 @@ def test_summary_accounts_for_every_unit():
     data = tricky_data()
     consensus = reconcile(data, review_table(data), allow_unresolved=True)
     d = consensus.to_dict()
-    assert d["agreed"] + d["decided"] + d["majority"] + d["unresolved"] + d["left_out"] == d["units_read"]
+    assert (d["agreed"] + d["decided"] + d["majority"] + d["single_coder"] + d["unresolved"]
+            + d["not_coded"]) == d["units_read"]
+    kept = reconcile(data, review_table(data), allow_unresolved=True, accept_single=True).to_dict()
+    assert kept["single_coder"] == 1 and kept["unresolved"] == d["unresolved"] - 1
+    assert (kept["agreed"] + kept["decided"] + kept["majority"] + kept["single_coder"] + kept["unresolved"]
+            + kept["not_coded"]) == kept["units_read"]
     assert d["written"] == d["units_read"] == 9
     assert isinstance(consensus, Consensus)
 
@@ -709,3 +734,160 @@ def test_review_file_errors(tmp_path):
     with pytest.raises(AgreeError) as err:
         reconcile(data, other)
     assert err.value.code == "review-columns" and "'decision'" in err.value.message
+
+
+# -- units one coder coded: listed, or kept as coded only when asked -------------------------
+def single_data():
+    """Two coders; 's1' coded by ann only, 's2' by bo only, 'none' by nobody."""
+    return from_table([["a", "b"], ["a", "a"], ["b", None], [None, "c"], [None, None], ["c", "c"]],
+                      coders=["ann", "bo"], unit_ids=["d1", "ok1", "s1", "s2", "none", "ok2"],
+                      categories=["a", "b", "c"])
+
+
+@pytest.mark.parametrize("suffix", ["xlsx", "csv", "md"])
+def test_units_one_coder_coded_are_listed_for_review_in_every_format(tmp_path, suffix):
+    """Before: a unit one coder coded went into the consensus with that coder's code, never
+    listed. Now it is a row of the review list (after the disagreements), with its reason."""
+    data = single_data()
+    table = review_table(data)
+    assert list(table["unit"]) == ["d1", "s1", "s2"]
+    assert list(table["status"]) == ["disagreement", "coded by one coder only", "coded by one coder only"]
+    assert list(table["codes involved"]) == ["a; b", "b", "c"]
+    summary = write_review(data, tmp_path / f"review.{suffix}")
+    assert (summary.needing_review, summary.disagreements, summary.single_coder) == (3, 1, 2)
+    assert summary.left_out == (("none", "coded by no coder"),)
+    assert summary.units_read == summary.agreed + summary.needing_review + len(summary.left_out)
+    text = (tmp_path / f"review.{suffix}").read_bytes()
+    if suffix == "xlsx":
+        ws = openpyxl.load_workbook(tmp_path / "review.xlsx")[REVIEW_SHEET]
+        rows = [[c.value for c in r] for r in ws.iter_rows(min_row=2)]
+        assert [r[0] for r in rows] == ["d1", "s1", "s2"] and rows[1][1] == "coded by one coder only"
+        about = {r[0]: r[1] for r in openpyxl.load_workbook(tmp_path / "review.xlsx")[ABOUT_SHEET]
+                 .iter_rows(values_only=True) if r[0]}
+        assert about["of which coded by one coder only"] == 2 and about["none"] == "coded by no coder"
+    else:
+        assert text.decode("utf-8").count("coded by one coder only") >= 2
+
+
+def test_a_unit_one_coder_coded_needs_a_decision_unless_accepted(tmp_path):
+    data = single_data()
+    path = tmp_path / "review.xlsx"
+    write_review(data, path)
+    fill(path, {"d1": "a"})
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, path)
+    assert err.value.code == "unresolved"
+    assert err.value.message.startswith("2 units still need a decision (all coded by one coder only)")
+    assert "--accept-single (accept_single=True)" in err.value.hint
+    assert "--majority" not in err.value.hint            # a majority never settles them
+    # one coder is no majority
+    open_ = reconcile(data, path, majority=True, allow_unresolved=True)
+    assert open_.unresolved == ("s1", "s2") and open_.majority == 0
+    # decided in the review like any other unit
+    fill(path, {"s1": "a", "s2": "c"})
+    done = reconcile(data, path)
+    source = dict(zip(done.table["unit"], done.table["source"]))
+    assert source == {"d1": "decided", "ok1": "agreed", "s1": "decided", "s2": "decided",
+                      "none": "not coded", "ok2": "agreed"}
+    assert dict(zip(done.table["unit"], done.table["final code"]))["s1"] == "a"
+
+
+def test_accept_single_keeps_the_code_and_says_so_everywhere(tmp_path):
+    data = single_data()
+    path = tmp_path / "review.xlsx"
+    summary = write_review(data, path, accept_single=True)
+    assert review_units(path) == ["d1"]
+    assert dict(summary.left_out) == {
+        "s1": "coded by one coder only; kept as coded, without review (accept single)",
+        "s2": "coded by one coder only; kept as coded, without review (accept single)",
+        "none": "coded by no coder"}
+    assert summary.to_dict()["single_coder_listed"] is False
+    about = {r[0]: r[1] for r in openpyxl.load_workbook(path)[ABOUT_SHEET].iter_rows(values_only=True) if r[0]}
+    assert about["units coded by one coder only, not listed (kept as coded: accept single)"] == 2
+
+    fill(path, {"d1": "b"})
+    consensus = reconcile(data, path, accept_single=True)
+    row = consensus.table.set_index("unit")
+    assert row.loc["s1", "final code"] == "b" and row.loc["s1", "source"] == "single coder"
+    assert row.loc["s2", "final code"] == "c" and "without review" in row.loc["s2", "notes"]
+    assert consensus.single_coder == ("s1", "s2") and consensus.not_coded == ("none",)
+    assert any("2 units coded by one coder only kept that coder's code without review" in n
+               for n in consensus.notes)
+    d = consensus.to_dict()
+    assert d["single_coder"] == 2 and d["accept_single"] is True
+    assert "2 kept from a single coder" in repr(consensus) and "2 kept from a single coder" in consensus._repr_html_()
+    out = write_consensus(consensus, tmp_path / "consensus.csv", data=data)
+    back = pd.read_csv(out, dtype=str, keep_default_na=False).set_index("unit")
+    assert back.loc["s1", "source"] == "single coder" and "accept single" in back.loc["s1", "notes"]
+
+    # the report's consensus summary and methods sentence say how those units were settled
+    from agree.output.report import build_report
+
+    report = build_report(data, n_resamples=0, seed=1, consensus=consensus)
+    assert report.to_dict()["consensus"]["by_source"]["single coder"] == 2
+    assert "were coded by one coder only and kept that coder's code without review" in report.methods
+
+    # a review list made with accept_single, reconciled without it: the units still need a decision
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, path)
+    assert "'s1', 's2'" in err.value.message and "--accept-single" in err.value.hint
+
+
+# -- the decision "(none)" and codes joined the wrong way --------------------------------------
+def test_none_decision_means_no_code_for_single_code_data(tmp_path):
+    data = from_table([["a", "b"], ["b", "c"], ["a", "a"]], unit_ids=["u1", "u2", "u3"],
+                      categories=["a", "b", "c"])
+    path = tmp_path / "review.xlsx"
+    assert decision_choices(data, path) == '"a,b,c,(none)"'
+    fill(path, {"u1": "(none)", "u2": " (None) "})
+    consensus = reconcile(data, path)
+    assert consensus.table["final code"].tolist() == [None, None, "a"]
+    assert consensus.table["source"].tolist() == ["decided", "decided", "agreed"]
+    for suffix in ("csv", "xlsx"):
+        out = write_consensus(consensus, tmp_path / f"consensus.{suffix}", data=data)
+        back = (pd.read_csv(out, dtype=str, keep_default_na=False) if suffix == "csv"
+                else pd.read_excel(out, dtype=str).fillna(""))
+        assert back["final code"].tolist() == ["", "", "a"], suffix
+    # a code named "(none)" in the codebook stays that code
+    named = from_table([["(none)", "b"]], unit_ids=["u1"], categories=["(none)", "b"])
+    table = review_table(named)
+    table["decision"] = "(none)"
+    assert reconcile(named, table).table["final code"].tolist() == ["(none)"]
+
+
+@pytest.mark.parametrize("typed, written", [
+    ("a, b", "a; b"), ("a,b", "a; b"), ("a | b", "a; b"), ("a/b", "a; b"), ("a and b", "a; b"),
+    ("A AND c", "a; c"), ("a; b, c", "a; b; c")])
+def test_codes_joined_by_another_separator_get_the_right_one(typed, written):
+    """Before: 'a, b' got 'did you mean ...?' with some code; now the hint names the separator."""
+    data = from_table([[{"a"}, {"b"}]], unit_ids=["u1"], categories=["a", "b", "c"])
+    table = review_table(data)
+    table["decision"] = typed
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, table)
+    assert err.value.code == "unknown-code"
+    assert err.value.hint.startswith(f"separate codes with '; ': write '{written}'")
+    assert "did you mean" not in err.value.hint
+    table["decision"] = written
+    assert reconcile(data, table).table["final code"].tolist() == [frozenset(written.split("; "))]
+
+
+def test_separator_hints_for_single_code_data_and_real_codes():
+    data = from_table([["yes", "no"], ["no", "yes"]], unit_ids=["u1", "u2"],
+                      categories=["yes", "no", "yes, partly"])
+    table = review_table(data)
+    table["decision"] = ["yes, partly", "yes / no"]        # the first is a code with a comma in it
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, table)
+    assert "'yes / no'" in err.value.message and "u2" in err.value.message
+    assert err.value.hint == "this variable takes one code per unit, and the cell holds 2 ('yes' and 'no'): choose one"
+    table["decision"] = ["yes, partly", "maybe, perhaps"]   # parts that are not codes: the usual hint
+    with pytest.raises(AgreeError) as err:
+        reconcile(data, table)
+    assert err.value.hint.startswith(("did you mean", "the codes are"))
+    set_data = from_table([[{"a"}, {"b"}]], unit_ids=["u1"], categories=["a", "b"])
+    table = review_table(set_data)
+    table["decision"] = "(none); a"
+    with pytest.raises(AgreeError) as err:
+        reconcile(set_data, table)
+    assert "no code applies" in err.value.hint

@@ -452,7 +452,7 @@ def _decided_text(c: ConsensusSummary) -> str:
 
 _SOURCE_TEXT = {"agreed": "were coded alike by the coders", "decided": "were decided after discussion "
                 "or adjudication", "majority": "took the majority code", "unresolved": "remained unresolved",
-                "single coder": "kept the code of the one coder who coded them",
+                "single coder": "were coded by one coder only and kept that coder's code without review",
                 "not coded": "were coded by nobody"}
 
 
