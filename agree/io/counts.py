@@ -66,7 +66,7 @@ from agree.core.model import (
     cell_location,
     value_sort_key,
 )
-from agree.io.cells import canonical_code
+from agree.io.cells import canonical_code, looks_missing
 from agree.io.codebook import Codebook, as_codebook
 from agree.io.columns import KEEP_NAMES, UNIT_NAMES, find_column
 from agree.io.loaders import load_tables, raise_all
@@ -158,6 +158,8 @@ def resolve_values(atoms: Atoms, *, book: Codebook | None, level: str | None, se
                                        hint="numbers only at this level; leave a cell empty for missing",
                                        code="text-at-ordinal" if level == "ordinal" else "text-at-interval"))
         raise_all(problems, f"text values at {level} level")
+    notes += _warnings(atoms, canon, present, numbers=len(text) < len(distinct) and book is None, trim=trim,
+                       casefold=casefold)
     if book is not None:
         mapping = _codebook_map(book, distinct, lambda a: [i for i in present if canon[i] == a], atoms, casefold)
         values = tuple(book.categories)
@@ -178,6 +180,35 @@ def resolve_values(atoms: Atoms, *, book: Codebook | None, level: str | None, se
     pos = {v: k for k, v in enumerate(values)}
     remap = np.array([MISSING if c is None else pos[mapping[c]] for c in canon] + [MISSING], dtype=np.int32)
     return Resolved(values, values, data_level, False, remap, order, notes, int(atoms.cells[blank[:-1]].sum()))
+
+
+def _warnings(atoms: Atoms, canon: list, present: list[int], *, numbers: bool, trim: bool,
+              casefold: bool) -> list[str]:
+    """The reader's warnings on distinct codes: text such as 'NA' among numbers (read as a code of its
+    own), and codes that differ only in case or in spaces around them (counted as different codes)."""
+    out = []
+    for a in dict.fromkeys(canon[i] for i in present):
+        if numbers and looks_missing(a):
+            own = [i for i in present if canon[i] == a]
+            cells = int(sum(atoms.cells[i] for i in own))
+            out.append(f"warning: '{a}' among numeric codes looks like a missing value but is read as a code of its "
+                       f"own ({cells} cell{'s' * (cells != 1)}; first: {atoms.where[own[0]]}); if it means 'not "
+                       "coded', leave those cells empty")
+    texts = {a: i for i in present for a in [canon[i]] if isinstance(a, str)}
+    for flag, fold, what, option in ((trim, str.strip, "in spaces before or after them", "--trim (trim=True)"),
+                                     (casefold, lambda x: x.strip().casefold(), "in upper/lower case",
+                                      "--casefold (casefold=True)")):
+        if flag:
+            continue
+        groups: dict[str, list[str]] = {}
+        for a in texts:
+            groups.setdefault(fold(a), []).append(a)
+        clash = [g for g in groups.values() if len({x.strip() for x in g} if fold is not str.strip else g) > 1]
+        if clash:
+            shown = " / ".join(f"{x!r} ({atoms.where[texts[x]]})" for x in clash[0][:3])
+            out.append(f"warning: {len(clash)} code(s) differ only {what} and count as different codes: {shown}"
+                       f"{' ...' if len(clash) > 1 else ''}; use {option} to merge them")
+    return out
 
 
 def _split(a: Any, sep: str, casefold: bool) -> frozenset:

@@ -118,3 +118,14 @@ def test_check_columns_unit_ids_and_missing_count_are_refused():
     with pytest.raises(AgreeError, match="no count column") as err:
         read_counts(COUNTS.drop(columns="count"))
     assert err.value.code == "no-column"
+
+
+def test_the_readers_warnings_on_codes(tmp_path):
+    frame = pd.DataFrame({"a": ["1", "2", "NA", "Pos", " x"], "b": ["1", "2", "2", "pos", "x"], "count": [3, 4, 5, 1, 1]})
+    path = tmp_path / "w.csv"
+    frame.to_csv(path, index=False)
+    notes = read_counts(path).report.notes
+    ordinary = agree.read([path], layout="wide", coder=["a", "b"]).report.notes  # the same warnings, per cell
+    assert len(notes) == len(ordinary) == 3
+    assert notes[0].startswith("warning: 'NA' among numeric codes") and "(5 cells; first: " in notes[0]
+    assert notes[1:] == ordinary[1:]
