@@ -135,13 +135,17 @@ class Encoder:
         self.presence_sets: list[frozenset] = []
         self.presence_columns: list[tuple[Table, Any, str]] = []  # (table, category, column)
 
-    def codes(self, col: pd.Series, label: str, factorized: Factorized | None = None) -> np.ndarray:
-        """Index of each cell's canonical value in `vocab` (grown in place); -1 for empty."""
+    def codes(self, col: pd.Series, label: str, factorized: Factorized | None = None,
+              weights: np.ndarray | None = None) -> np.ndarray:
+        """Index of each cell's canonical value in `vocab` (grown in place); -1 for empty. `weights`:
+        how many cells each entry of `col` stands for (distinct codes with their counts), for the stats."""
         fcodes, uniques = factorize(col) if factorized is None else factorized
         if not len(uniques):
             return np.full(len(col), MISSING, dtype=np.int64)
         stats, vocab, trim, casefold = self.stats, self.vocab, self.trim, self.casefold
-        counts = np.bincount(fcodes[fcodes >= 0], minlength=len(uniques))
+        ok = fcodes >= 0
+        counts = np.bincount(fcodes[ok], weights=None if weights is None else np.asarray(weights, float)[ok],
+                             minlength=len(uniques)).astype(np.int64)
         local = np.empty(len(uniques), dtype=np.int64)
         for j, u in enumerate(uniques):
             a = canonical_code(u, trim=trim, casefold=casefold)

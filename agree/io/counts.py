@@ -64,12 +64,12 @@ from agree.core.model import (
     CodingData,
     ReadReport,
     cell_location,
-    value_sort_key,
 )
-from agree.io.cells import canonical_code, looks_missing
+from agree.io.cells import Encoder
 from agree.io.codebook import Codebook, as_codebook
 from agree.io.columns import KEEP_NAMES, UNIT_NAMES, find_column
-from agree.io.loaders import load_tables, raise_all
+from agree.io.loaders import load_tables
+from agree.io.values import CellFinder, Values
 
 __all__ = ["read_counts", "pattern_count_table", "COUNT_NAMES", "MULTISET_NAMES", "CHECK_COLUMNS",
            "MULTISET_SEP", "Atoms", "resolve_values", "multiset_coders"]
@@ -91,12 +91,15 @@ MULTISET_CODER = "value {}"  # names of the positions of a multiset (not coders)
 class Atoms:
     """The distinct raw codes of a table: each with how many cells hold it and where the first is.
 
-    `raw` (K,) the values as read; `cells` (K,) int64 how many cells (units, for weighted
-    tables) hold each; `where` (K,) the location of the first such cell, as errors name it."""
+    `raw` (K,) the values as read; `cells` (K,) int64 how many cells (units, for weighted tables)
+    hold each; `rows` (K,) and `source` (K,) the row and the index into `sources` ((file, sheet,
+    column) triples) of the first such cell, as errors name it."""
 
     raw: list
     cells: np.ndarray
-    where: list[str]
+    rows: np.ndarray
+    source: np.ndarray
+    sources: list[tuple]
 
 
 @dataclass
@@ -105,146 +108,28 @@ class Resolved:
     categories: tuple
     level: str
     set_valued: bool
-    remap: np.ndarray      # (K + 1,) int32: index into `values` of each raw code, MISSING last and for blanks
+    remap: np.ndarray      # (K,) int32: index into `values` of each raw code, MISSING for blanks
     order: str
     notes: list[str]
     blank_cells: int        # cells whose code was blank or only spaces
 
 
 def resolve_values(atoms: Atoms, *, book: Codebook | None, level: str | None, sep: str | None,
-                   trim: bool, casefold: bool) -> Resolved:
-    """The values, categories and level of data whose distinct raw codes are `atoms`, by the
-    rules of the ordinary reader: canonical codes (`canonical_code`), several codes in one cell
-    when a text code holds `sep`, codes checked against the codebook (all unknown codes in one
-    error naming the first cell of each and how many cells hold it), text refused at the
-    interval and ratio levels and among numbers at the ordinal level without a codebook."""
-    canon = [canonical_code(r, trim=trim, casefold=casefold) for r in atoms.raw]
-    blank = np.array([c is None for c in canon] + [True])
+                   trim: bool, casefold: bool, label: str = "codes") -> Resolved:
+    """The values, categories and level of data whose distinct raw codes are `atoms`, decided by the
+    ordinary reader's own rules (`agree.io.values.Values`: canonical codes, several codes in one cell,
+    the codebook, text at the interval level, look-alike and case/space warnings), with every count in
+    its messages a count of cells. `label` names the code column(s) in the notes on trimming."""
+    enc = Encoder(trim=trim, casefold=casefold)
+    value = enc.codes(pd.Series(atoms.raw, dtype=object), label, weights=atoms.cells)
+    cell_of = CellFinder(value, atoms.rows, atoms.source, atoms.sources, weights=atoms.cells)
     notes: list[str] = []
-    present = [i for i, c in enumerate(canon) if c is not None]
-    set_valued = sep is not None and any(isinstance(canon[i], str) and sep in canon[i] for i in present)
-    if set_valued:
-        if level in ("interval", "ratio", "ordinal"):
-            first = next(i for i in present if isinstance(canon[i], str) and sep in canon[i])
-            raise AgreeError(f"several codes per cell (set-valued data) cannot be read at the {level} level",
-                             where=atoms.where[first], code="set-at-level",
-                             hint="use --level nominal (level='nominal'), or one code per cell")
-        sets = {i: _split(canon[i], sep, casefold) for i in present}
-        pieces = list(dict.fromkeys(x for s in sets.values() for x in s))
-        if book is not None:
-            mapping = _codebook_map(book, pieces, lambda a: [i for i in present if a in sets[i]], atoms, casefold)
-            sets = {i: frozenset(mapping[x] for x in s) for i, s in sets.items()}
-            categories = tuple(book.categories)
-        else:
-            categories = tuple(sorted(pieces, key=value_sort_key))
-        values = tuple(sorted(set(sets.values()), key=value_sort_key))
-        pos = {v: k for k, v in enumerate(values)}
-        remap = np.array([pos[sets[i]] if i in sets else MISSING for i in range(len(canon))] + [MISSING],
-                         dtype=np.int32)
-        multi = int(sum(atoms.cells[i] for i in present if len(sets[i]) > 1))
-        notes.append(f"several codes in one cell: {multi} cell(s) hold codes separated by '{sep}'; the data are "
-                     "analysed as sets of codes (set-valued); --sep '' (sep=None) keeps each cell as one code")
-        return Resolved(values, categories, "nominal", True, remap, "given" if book is not None else "alphabetical",
-                        notes, int(atoms.cells[blank[:-1]].sum()))
-    distinct = list(dict.fromkeys(canon[i] for i in present))
-    text = [a for a in distinct if isinstance(a, str)]
-    data_level = level
-    if text and (level in ("interval", "ratio") or (level == "ordinal" and book is None and len(text) < len(distinct))):
-        problems = []
-        for a in text[:50]:
-            owners = [i for i in present if canon[i] == a]
-            what = "text among numbers at ordinal level" if level == "ordinal" else f"text at {level} level"
-            problems.append(AgreeError(f"{what}: '{a}'{_more(atoms, owners)}", where=atoms.where[owners[0]],
-                                       hint="numbers only at this level; leave a cell empty for missing",
-                                       code="text-at-ordinal" if level == "ordinal" else "text-at-interval"))
-        raise_all(problems, f"text values at {level} level")
-    notes += _warnings(atoms, canon, present, numbers=len(text) < len(distinct) and book is None, trim=trim,
-                       casefold=casefold)
-    if book is not None:
-        mapping = _codebook_map(book, distinct, lambda a: [i for i in present if canon[i] == a], atoms, casefold)
-        values = tuple(book.categories)
-        if data_level is None:
-            data_level = "ordinal" if book.ordered else "nominal"
-            notes.append(f"level: {data_level} (from the codebook{' order' if book.ordered else ''}; "
-                         "set it with --level (level=...))")
-        order = "given" if book.ordered else "codebook rows"
-    else:
-        mapping = {a: a for a in distinct}
-        values = tuple(sorted(distinct, key=value_sort_key))
-        if data_level is None:
-            data_level = "nominal"
-            if values and not text:
-                notes.append("level: nominal (numbers read as categories; set --level ordinal, interval or ratio "
-                             "(level=...) if the numbers are a scale)")
-        order = "numeric" if not text else "alphabetical"
-    pos = {v: k for k, v in enumerate(values)}
-    remap = np.array([MISSING if c is None else pos[mapping[c]] for c in canon] + [MISSING], dtype=np.int32)
-    return Resolved(values, values, data_level, False, remap, order, notes, int(atoms.cells[blank[:-1]].sum()))
-
-
-def _warnings(atoms: Atoms, canon: list, present: list[int], *, numbers: bool, trim: bool,
-              casefold: bool) -> list[str]:
-    """The reader's warnings on distinct codes: text such as 'NA' among numbers (read as a code of its
-    own), and codes that differ only in case or in spaces around them (counted as different codes)."""
-    out = []
-    for a in dict.fromkeys(canon[i] for i in present):
-        if numbers and looks_missing(a):
-            own = [i for i in present if canon[i] == a]
-            cells = int(sum(atoms.cells[i] for i in own))
-            out.append(f"warning: '{a}' among numeric codes looks like a missing value but is read as a code of its "
-                       f"own ({cells} cell{'s' * (cells != 1)}; first: {atoms.where[own[0]]}); if it means 'not "
-                       "coded', leave those cells empty")
-    texts = {a: i for i in present for a in [canon[i]] if isinstance(a, str)}
-    for flag, fold, what, option in ((trim, str.strip, "in spaces before or after them", "--trim (trim=True)"),
-                                     (casefold, lambda x: x.strip().casefold(), "in upper/lower case",
-                                      "--casefold (casefold=True)")):
-        if flag:
-            continue
-        groups: dict[str, list[str]] = {}
-        for a in texts:
-            groups.setdefault(fold(a), []).append(a)
-        clash = [g for g in groups.values() if len({x.strip() for x in g} if fold is not str.strip else g) > 1]
-        if clash:
-            shown = " / ".join(f"{x!r} ({atoms.where[texts[x]]})" for x in clash[0][:3])
-            out.append(f"warning: {len(clash)} code(s) differ only {what} and count as different codes: {shown}"
-                       f"{' ...' if len(clash) > 1 else ''}; use {option} to merge them")
-    return out
-
-
-def _split(a: Any, sep: str, casefold: bool) -> frozenset:
-    if not isinstance(a, str):
-        return frozenset([a])
-    parts = (canonical_code(p, trim=True, casefold=casefold) for p in a.split(sep))
-    return frozenset(p for p in parts if p is not None)
-
-
-def _more(atoms: Atoms, owners: list[int]) -> str:
-    count = int(sum(atoms.cells[i] for i in owners))
-    return f" (and {count - 1} more cell{'s' * (count != 2)})" if count > 1 else ""
-
-
-def _codebook_map(book: Codebook, codes: list, owners: Callable[[Any], list[int]], atoms: Atoms,
-                  casefold: bool) -> dict:
-    """Each code's codebook entry; every unknown code in one error (first cell and how many)."""
-    lookup = {(c.casefold() if casefold and isinstance(c, str) else c): c for c in reversed(book.categories)}
-    mapping, problems = {}, []
-    names = [str(c) for c in book.categories]
-    for a in codes:
-        if a in lookup:
-            mapping[a] = lookup[a]
-            continue
-        own = owners(a)
-        close = difflib.get_close_matches(str(a), names, n=1, cutoff=0.5)
-        hint = f"closest codebook entry: '{close[0]}'" if close else "add it to the codebook or fix the cell"
-        problems.append(AgreeError(f"code '{a}' is not in the codebook{_more(atoms, own)}",
-                                   where=atoms.where[own[0]] if own else None, hint=hint, code="unknown-code"))
-    if problems:
-        first = problems[0]
-        src = f" ({book.source})" if book.source else ""
-        summary = (first.message if len(problems) == 1 else
-                   f"{len(problems)} codes are not in the codebook{src}; first: {first.message}")
-        raise AgreeError(summary, where=first.where, hint=first.hint, code="unknown-code", problems=problems)
-    return mapping
+    values, categories, remap, set_valued, data_level = Values(enc, sep=sep, presence=False,
+                                                               notes=notes).resolve(book, level, cell_of)
+    order = (("given" if book.ordered else "codebook rows") if book is not None else
+             "numeric" if all(isinstance(v, (int, float)) for v in values) else "alphabetical")
+    return Resolved(tuple(values), tuple(categories), data_level, set_valued, remap[value].astype(np.int32),
+                    order, enc.stats.notes() + notes, int(atoms.cells[value < 0].sum()))
 
 
 def as_book(codebook: Any, *, trim: bool) -> Codebook | None:
@@ -345,7 +230,8 @@ def read_counts(source: Any, *, count: str | None = None, coders: Sequence[str] 
     row_part, row_pos, cell_row, cell_col, raw_index, atoms = cells
     weights = np.concatenate([c[k] for c, k in zip(counts, keep_rows)]) if counts else np.zeros(0, np.int64)
     atoms.cells = np.bincount(raw_index, weights=weights[cell_row], minlength=len(atoms.raw)).astype(np.int64)
-    res = resolve_values(atoms, book=book, level=level, sep=sep, trim=trim, casefold=casefold)
+    res = resolve_values(atoms, book=book, level=level, sep=sep, trim=trim, casefold=casefold,
+                         label=roles[0].values or "coder columns")
     n, m = len(weights), len(coder_names)
     codes = np.full((n, m), MISSING, dtype=np.int32)
     coded = res.remap[raw_index]
@@ -569,12 +455,17 @@ def _cells(parts, raw, row_idx, col_idx, where_row, where_part, row_part, row_po
     first = np.full(len(uniques), -1, dtype=np.int64)
     order = np.arange(len(raw_index))[::-1]
     first[raw_index[order]] = order  # the first cell of each distinct value
-    where = []
-    for i in first:
+    sources: list[tuple] = []
+    source = np.empty(len(first), dtype=np.int64)
+    for k, i in enumerate(first):
         p = parts[int(wpart[i])]
-        column = coder_cols[int(cell_col[i])] if coder_cols else None
-        where.append(p.where(int(wrow[i]), column if column is not None else _multiset_column(p)))
-    atoms = Atoms(raw=uniques, cells=np.zeros(len(uniques), np.int64), where=where)
+        column = coder_cols[int(cell_col[i])] if coder_cols else _multiset_column(p)
+        key = (p.file, p.sheet, column)
+        if key not in sources:
+            sources.append(key)
+        source[k] = sources.index(key)
+    atoms = Atoms(raw=uniques, cells=np.zeros(len(uniques), np.int64), rows=wrow[first], source=source,
+                  sources=sources)
     return cat(row_part, np.int64), cat(row_pos, np.int64), cell_row, cell_col, raw_index, atoms
 
 

@@ -34,7 +34,6 @@ temporary folder, removed afterwards).
 from __future__ import annotations
 
 import glob
-import math
 import os
 import shutil
 import tempfile
@@ -45,7 +44,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from agree.core.model import LEVELS, MISSING, AgreeError, CodingData, ReadReport, cell_location, normalise_value
+from agree.core.model import LEVELS, AgreeError, CodingData, ReadReport, cell_location, normalise_value
 from agree.io.counts import Atoms, as_book, resolve_values
 from agree.io.columns import CODE_NAMES, CODER_NAMES, TEXT_NAMES, UNIT_NAMES, find_column
 
@@ -178,7 +177,7 @@ def _connect(memory_limit: str | None, threads: int | None, temp: str, progress:
     import duckdb
 
     config: dict[str, Any] = {"memory_limit": memory_limit or os.environ.get("AGREE_DUCKDB_MEMORY", DEFAULT_MEMORY),
-                              "temp_directory": temp, "preserve_insertion_order": True}
+                              "temp_directory": temp}
     if threads:
         config["threads"] = int(threads)
     try:
@@ -210,6 +209,8 @@ def _open(con, files: list[str]) -> _Source:
         raise AgreeError(f"cannot read the files: {str(exc).splitlines()[0]}", where=files[0], code="bad-file",
                          hint="check that every file is a readable " + ("Parquet" if kind == "parquet" else "CSV")
                               + " file with the same columns; --engine pandas reads other encodings") from None
+    # CSV row numbers come from DuckDB's order of reading, which must then be the files' order
+    con.execute(f"SET preserve_insertion_order={'false' if kind == 'parquet' else 'true'}")
     types = {str(r[0]): str(r[1]) for r in described}
     columns = [c for c in types if c not in (_FILE, "file_row_number")]
     return _Source(files, kind, reader, columns, types)
@@ -222,10 +223,12 @@ class _Progress:
         self.con, self.tick = con, tick
 
     def run(self, sql: str, step: str, low: float, high: float, params: Any = None, columns: bool = False) -> Any:
-        """Rows as tuples, or with `columns` a dict of numpy arrays (for large results)."""
+        """Rows as tuples, or with `columns` a dict of numpy arrays (large results, fetched in batches so
+        that DuckDB never holds them whole)."""
         def fetch():
-            cursor = self.con.execute(sql, params)
-            return cursor.fetchnumpy() if columns else cursor.fetchall()
+            if columns:
+                return _fetch_columns(self.con, sql)
+            return self.con.execute(sql, params).fetchall()
 
         if self.tick is None:
             return fetch()
@@ -403,9 +406,11 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
             entry[1] = at
     raw_codes = sorted(per_code, key=lambda r: per_code[r][1][:2])  # in order of first appearance
     atoms = Atoms(raw=raw_codes, cells=np.array([per_code[r][0] for r in raw_codes], dtype=np.int64),
-                  where=[cell_location(per_code[r][1][2], None, per_code[r][1][1] - offsets.get(per_code[r][1][2], 0),
-                                       code_col) for r in raw_codes])
-    res = resolve_values(atoms, book=book, level=level, sep=sep, trim=trim, casefold=casefold)
+                  rows=np.array([per_code[r][1][1] - offsets.get(per_code[r][1][2], 0) for r in raw_codes],
+                                dtype=np.int64),
+                  source=np.array([per_code[r][1][0] for r in raw_codes], dtype=np.int64),
+                  sources=[(f, None, code_col) for f in src.files])
+    res = resolve_values(atoms, book=book, level=level, sep=sep, trim=trim, casefold=casefold, label=code_col)
 
     # numbering tables: coder -> (chunk, position, weight), raw code -> value index + 1 (0: blank)
     base = len(res.values) + 1
@@ -429,33 +434,37 @@ def _reduce(con, src: _Source, run: _Progress, *, unit, coder, code, keep, book,
     seen = " + ".join(f"coalesce(bit_count(m{j}), 0)" for j in range(chunks))
     kept_aggs = "".join(f", min(agree_k{i}) AS kmin{i}, max(agree_k{i}) AS kmax{i}" for i in range(len(kept)))
     kept_cols = "".join(f", kmin{i}" for i in range(len(kept)))
-    conflicts = "".join(f", count(*) FILTER (WHERE kmin{i} IS DISTINCT FROM kmax{i}) AS conflict{i}"
+    conflicts = "".join(f", count(*) FILTER (WHERE kmin{i} IS DISTINCT FROM kmax{i})::INTEGER AS conflict{i}"
                         for i in range(len(kept)))
-    key_cols = ", ".join(f"coalesce(k{j}, 0) AS k{j}" for j in range(chunks))
     # ids of spaces only, per unit (cheap: the first character is looked at before any trim)
     blank_id = "(u = '' OR (ascii(u) IN (9, 10, 13, 32) AND trim(u) = ''))" if text_unit else "false"
+    # a unit coded twice by a coder gets key -1, a blank unit id -2: few columns come back, however many rows
+    # (the sums are HUGEINT; a key fits in BIGINT, so the cast is exact, and it never sees a duplicate's sum)
+    key_cols = ", ".join((f"(CASE WHEN n > {seen} THEN -1 WHEN {blank_id} THEN -2 ELSE coalesce(k0, 0) END)::BIGINT AS k0"
+                          if j == 0 else f"(CASE WHEN n > {seen} THEN 0 ELSE coalesce(k{j}, 0) END)::BIGINT AS k{j}")
+                         for j in range(chunks))
     sql = (f"WITH units AS (SELECT {unit_expr} AS u, count(*) AS n, {keys}{kept_aggs} "
            f"FROM {src.select(row=False)} JOIN agree_coders cc ON agree_c = cc.raw "
            f"LEFT JOIN agree_codes vc ON agree_v = vc.raw WHERE agree_u IS NOT NULL GROUP BY 1) "
-           f"SELECT {key_cols}{kept_cols}, n > {seen} AS dup, {blank_id} AS blank, count(*) AS units{conflicts} "
-           "FROM units GROUP BY ALL")
+           f"SELECT {key_cols}{kept_cols}, count(*) AS units{conflicts} FROM units GROUP BY ALL")
+    con.execute("SET preserve_insertion_order=false")  # the order of the counts does not matter; memory does
     out = run.run(sql, "reducing to pattern counts", 0.25, 1.0, columns=True)
-    blank = np.asarray(out["blank"], dtype=bool)
-    if blank.any():
+    con.execute(f"SET preserve_insertion_order={'true' if src.kind != 'parquet' else 'false'}")
+    units = out["units"]
+    flag = out["k0"]
+    if (flag == -2).any():
         _refuse_rows(con, src, -1, f"{blank_unit} AND NOT {blank_coder}", unit_col, offsets,
                      "row(s) have values but no unit id", "missing-unit-id",
                      "fill in the unit id of every row (or delete the row)")
-    dup = np.asarray(out["dup"], dtype=bool)
-    units = np.asarray(out["units"], dtype=np.int64)
-    if dup.any():
-        _refuse_duplicates(con, src, unit_expr, blank_unit, coder_names, code_col, offsets, int(units[dup].sum()))
+    if (flag == -1).any():
+        _refuse_duplicates(con, src, unit_expr, blank_unit, coder_names, code_col, offsets, int(units[flag == -1].sum()))
     P = len(units)
     codes = np.empty((P, m), dtype=np.int32)
     for i in range(m):  # a loop over coders, not units
         j, pos = divmod(i, per_chunk)
-        codes[:, i] = (np.asarray(out[f"k{j}"], dtype=np.int64) // (base ** pos)) % base - 1
+        codes[:, i] = (out[f"k{j}"] // (base ** pos)) % base - 1
     weights = units
-    columns = {k: _labels(out[f"kmin{i}"]) for i, k in enumerate(kept)}
+    columns = {k: out[f"kmin{i}"] for i, k in enumerate(kept)}
     notes = list(res.notes)
     for i, k in enumerate(kept):
         n_conflict = int(np.asarray(out[f"conflict{i}"]).sum())
@@ -509,6 +518,22 @@ def _never_null(src: _Source, column: str) -> bool:
     except Exception:  # noqa: BLE001  (no usable statistics: check every row)
         return False
     return True
+
+
+def _fetch_columns(con, sql: str, batch: int = 1 << 20) -> dict[str, np.ndarray]:
+    """The result of `sql` as numpy arrays, streamed batch by batch (kept values through `_labels`)."""
+    relation = con.sql(sql)
+    if hasattr(relation, "to_arrow_reader"):  # DuckDB 2
+        reader = relation.to_arrow_reader(batch)
+    else:  # DuckDB 1.x
+        reader = con.execute(sql).fetch_record_batch(batch)
+    parts: dict[str, list] = {name: [] for name in reader.schema.names}
+    for b in reader:
+        for name, column in zip(b.schema.names, b.columns):
+            parts[name].append(column.to_numpy(zero_copy_only=False) if column.null_count == 0 else
+                               np.array(column.to_pylist(), dtype=object))
+    return {name: _labels(np.concatenate(chunks) if chunks else np.zeros(0, np.int64))
+            for name, chunks in parts.items()}
 
 
 def _labels(column: Any) -> np.ndarray:

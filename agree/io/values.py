@@ -36,10 +36,20 @@ MULTI_WARNING_SHARE = 0.05  # below this share of coded cells, several codes per
 
 
 class CellFinder:
-    """Find the cells holding a given vocab entry (for error messages), vectorised."""
+    """Find the cells holding a given vocab entry (for error messages), vectorised.
 
-    def __init__(self, value, rows, source, sources):
+    `value`, `rows` and `source` have one entry per cell; `weights`, when given, says how many
+    cells each entry stands for (an entry per distinct code with the location of its first cell,
+    as the pattern-count readers have), so counts in messages are counts of cells."""
+
+    def __init__(self, value, rows, source, sources, weights=None):
         self.value, self.rows, self.source, self.sources = value, rows, source, sources
+        self.weights = None if weights is None else np.asarray(weights, dtype=np.int64)
+
+    def count(self, indices) -> int:
+        """How many cells hold any of `indices` (all coded cells when None)."""
+        hit = self.value >= 0 if indices is None else np.isin(self.value, indices)
+        return int(hit.sum() if self.weights is None else self.weights[hit].sum())
 
     def _where(self, pos: int) -> str:
         s = self.sources[int(self.source[pos])]
@@ -63,7 +73,8 @@ class CellFinder:
             return "", 0
         # earliest by source then row, as a reader would look for it
         order = np.lexsort((self.source[hit], self.rows[hit]))
-        return self._where(int(hit[order[0]])), int(hit.size)
+        count = hit.size if self.weights is None else self.weights[hit].sum()
+        return self._where(int(hit[order[0]])), int(count)
 
 
 class Values:
@@ -170,8 +181,8 @@ class Values:
         """Where the cells with several codes are, and what splitting them does to the analysis.
         A warning when they are few (under 5% of the coded cells): likely a slip, not a design."""
         multi = [i for i, s in enumerate(atoms_sets) if len(s) > 1]
-        n_multi = int(np.isin(value, multi).sum()) if multi else 0
-        n_coded = int((value >= 0).sum())
+        n_multi = cell_of.count(multi) if multi else 0
+        n_coded = cell_of.count(None)
         share = n_multi / n_coded if n_coded else 0.0
         shown = cell_of.firsts(multi, MULTI_SHOWN)
         places = "; ".join(f"{where}: {atoms[int(cell_of.value[pos])]!r}" for where, pos in shown)

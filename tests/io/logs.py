@@ -21,7 +21,8 @@ def long_log(seed: int = 0, *, units: int = 400, coders: int = 3, missing: float
     annotators and blank labels included; coders appear first in a shuffled order."""
     rng = np.random.default_rng(seed)
     codes = simulate_codes(rng, units, coders, 4, alpha=0.55, missing=missing, coder_bias=0.3)
-    names = np.array([f"annotator_{c}" for c in "abcdefgh"[:coders]], dtype=object)
+    names = np.array([f"annotator_{c}" for c in "abcdefgh"[:coders]] if coders <= 8 else
+                     [f"annotator_{i:02d}" for i in range(coders)], dtype=object)
     order = rng.permutation(coders)
     u, c = np.nonzero(codes[:, order] >= 0)
     c = order[c]

@@ -38,6 +38,16 @@ def test_files_and_globs_read_as_the_ordinary_reader_reads_them(tmp_path, fmt):
         assert f"{len(log):,} rows in 3 files" in reduced.report.detected
 
 
+def test_many_coders_split_the_key_into_chunks(tmp_path):
+    # 30 coders x 4 codes: base 5, 26 coders per 62-bit key, so two keys per unit
+    log = long_log(8, units=150, coders=30, missing=0.6)
+    path = tmp_path / "log.parquet"
+    log.to_parquet(path, index=False)
+    ordinary, reduced = agree.read(path, keep=("queue",)), read_duckdb(path, cluster="queue")
+    assert reduced.coders == ordinary.coders and len(reduced.coders) == 30
+    same_scores(agree.score(ordinary, n_resamples=50, seed=1), agree.score(reduced, n_resamples=50, seed=1))
+
+
 def test_codebook_level_and_several_codes_per_cell(tmp_path):
     log = long_log(5, units=120)
     path = tmp_path / "log.parquet"
