@@ -9,7 +9,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_RESAMPLES, FEW_UNITS
-from agree.core.format import percent_label
+from agree.core.format import format_value, percent_label
 from agree.core.model import LEVELS, AgreeError, CodingData, value_label
 from agree.core.registry import display_name, family, skipped_by_reason, standard_set
 from agree.core.results import AgreementResult, Note, json_safe
@@ -204,8 +204,8 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
         low_chance = [r for r in chance if r.defined and r.estimate < 0.67]
         if pa is not None and pa.defined and pa.estimate >= 0.8 and low_chance and top >= 0.6:
             notes.append(Note("prevalence-skew",
-                              f"Percent agreement is high ({pa.estimate:.2f}) but {low_chance[0].name} is low "
-                              f"({low_chance[0].estimate:.2f}): one category takes {percent_label(top, 0)} of all values, so "
+                              f"Percent agreement is high ({format_value(pa.estimate)}) but {low_chance[0].name} is low "
+                              f"({format_value(low_chance[0].estimate)}): one category takes {percent_label(top, 0)} of all values, so "
                               "chance agreement is high and kappa-type coefficients are pulled down (the "
                               "prevalence paradox, Feinstein & Cicchetti 1990). Report both, with the "
                               "per-code diagnostics."))

@@ -31,7 +31,7 @@ from agree.core.constants import (
     DEFAULT_RESAMPLES,
     MIN_UNITS_PER_CODE,
 )
-from agree.core.format import format_value, percent_label
+from agree.core.format import format_value, percent_label, signed
 from agree.core.model import CodingData
 from agree.core.results import BootstrapInfo, Note, json_safe
 from agree.stats.coefficients import krippendorff_alpha
@@ -388,11 +388,6 @@ class _Verdict:
     judged_on: str = ""              # "interval", "estimate" or ""
 
 
-def _signed(x: float) -> str:
-    text = format_value(x, "coefficient", 2)
-    return text if text.startswith("\u2212") else "+" + text
-
-
 def _ratio_text(ratio: float) -> str:
     return f"{ratio:.1f}x" if ratio >= 1 else f"{ratio:.2f}x"
 
@@ -466,15 +461,15 @@ def _paradox(f: _CodeFacts, status: str, minimum: float | None) -> tuple[str, st
     if np.isfinite(f.prevalence) and abs(f.prevalence) >= PARADOX_PREVALENCE:
         side = "absence" if f.prevalence < 0 else "presence"
         causes.append(f"the coders mostly agree on the code's {side} (prevalence index "
-                      f"{_signed(f.prevalence)}), so high agreement is expected by chance alone")
+                      f"{signed(f.prevalence)}), so high agreement is expected by chance alone")
     if np.isfinite(f.bias) and abs(f.bias) >= PARADOX_BIAS:
-        causes.append(f"the coders apply it at different rates (bias index {_signed(f.bias)})")
+        causes.append(f"the coders apply it at different rates (bias index {signed(f.bias)})")
     if not (minimum is not None and np.isfinite(f.percent) and np.isfinite(chance) and np.isfinite(f.specific)
             and f.percent >= minimum and f.specific >= minimum and chance < minimum and causes):
         return "", None
     percent = percent_label(f.percent, 0)
     explanation = (f"Percent agreement is {percent} but chance-corrected agreement is "
-                   f"{format_value(chance, 'coefficient', 2)}: {'; '.join(causes)}. When one coder applied the "
+                   f"{format_value(chance, 'coefficient')}: {'; '.join(causes)}. When one coder applied the "
                    f"code, another applied it too in {percent_label(f.specific, 0)} of the pairs (specific "
                    "agreement). This is the kappa paradox (Feinstein & Cicchetti 1990): report "
                    "specific agreement beside the coefficient.")
@@ -676,7 +671,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     if minimum is not None:
         judged = (f"each code's one-sided {percent_label(confidence_level)} lower bound" if agree.bootstrap is not None
                   else "each code's estimate (no bootstrap, so no interval)")
-        notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {minimum}, comparing "
+        notes.append(Note("minimum", f"Codes are judged against a minimum alpha of {format_value(minimum, 'threshold')}, comparing "
                           f"{judged} with it (a convention; choose it before looking at the data)."))
     overall_ci = (None, None)
     if n_resamples:  # the same figure and interval as krippendorff_alpha / agree score with this seed

@@ -119,7 +119,7 @@ class CodeDiagnostics:
         frame = self.to_frame()
         counts = frame["status"].value_counts()
         statuses = ", ".join(f"{int(counts[s])} {s}" for s in STATUSES if s in counts)
-        minimum = "no minimum" if self.minimum is None else f"minimum {self.minimum:g}"
+        minimum = "no minimum" if self.minimum is None else f"minimum {format_value(self.minimum, 'threshold')}"
         summary = (f"Code diagnostics: {len(frame)} codes, {len(self.coders)} coders, "
                    f"{self.n_pairable_units} of {self.n_units} units pairable; "
                    f"overall α = {_display(self.alpha)} ({self.alpha_label}); {minimum}: {statuses}.")
