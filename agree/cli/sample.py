@@ -22,8 +22,12 @@ def sample(
     out: Annotated[Path, typer.Option("-o", "--out", help="Folder for the coding workbooks and the manifest.")],
     stratify: Annotated[Optional[str], typer.Option(
         "--stratify", help="Column to stratify by (e.g. interview): each group in proportion. The column "
-                           "is copied into every coder's sheet, so the sheets can be scored with "
-                           "--keep COLUMN --cluster COLUMN.")] = None,
+                           "is copied into every coder's sheet. Strata are not clusters: the sheets are "
+                           "scored resampling units, as for a simple random sample.")] = None,
+    cluster: Annotated[Optional[str], typer.Option(
+        "--cluster", help="Column grouping units that are not independent (e.g. the document of each "
+                          "excerpt, when agreement should carry over to other documents): copied into "
+                          "every sheet and suggested as --cluster for scoring them.")] = None,
     keep: Annotated[Optional[list[str]], typer.Option(
         "--keep", "--keep-col", help="Another column of the list of units to copy into every coder's "
                                      "sheet, after the unit id, for context; repeatable.")] = None,
@@ -61,7 +65,8 @@ def sample(
     categories = load_codebook_categories(codebook) if codebook is not None else None
     names = [c.strip() for c in coders.split(",") if c.strip()]
     written = write_coding_sheets(drawn, out, coders=names, codebook=categories, shuffle=shuffle,
-                                  text_col=text_col, force=force, corpus_path=corpus, keep=list(keep or []))
+                                  text_col=text_col, force=force, corpus_path=corpus,
+                                  keep=([cluster] if cluster else []) + list(keep or []))
     if exclude_files:
         note(sample_exclusion_note(drawn, [str(f) for f in exclude_files]))
     if output_format is SummaryFormat.json:
@@ -97,7 +102,9 @@ def sample(
     if written.context_columns:
         note(f"column(s) {', '.join(repr(c) for c in written.context_columns)} copied into every sheet "
              "for context (shaded; leave them as they are)")
-    note(f"read them back with: {score_command(written, stratify, codebook)}")
+    note(f"read them back with: {score_command(written, stratify, codebook, cluster)}")
+    if stratify and stratify != cluster:
+        note(strata_note(stratify))
 
 
 def sample_exclusion_note(drawn, files: list[str]) -> str:
@@ -111,10 +118,23 @@ def sample_exclusion_note(drawn, files: list[str]) -> str:
     return text
 
 
-def score_command(written, stratify: Optional[str], codebook: Optional[Path] = None) -> str:
+def score_command(written, stratify: Optional[str], codebook: Optional[Path] = None,
+                  cluster: Optional[str] = None) -> str:
+    """The command that scores the filled-in sheets: units resampled as a simple random sample
+    (strata are not clusters), or whole groups of the column the user named as --cluster."""
     command = f"agree score {' '.join(written.files)}"
     if codebook is not None:
         command += f" --codebook {codebook}"  # keeps unused codes and the scale order
-    if stratify:
-        command += f" --keep {stratify} --cluster {stratify}"
+    if stratify and stratify != cluster:
+        command += f" --keep {stratify}"      # the column is in every sheet; kept, not resampled
+    if cluster:
+        command += f" --cluster {cluster}"
     return command
+
+
+def strata_note(stratify: str) -> str:
+    """Why the read-back command does not resample the strata."""
+    return (f"note: strata are not clusters. Every {stratify} was sampled, in proportion to its size, and "
+            f"the units within it at random, so the interval resamples units as for a simple random sample. "
+            f"Resampling whole strata (--cluster {stratify}) gives intervals that are too narrow or too "
+            "wide; use --cluster only for a column whose units hang together beyond this sample.")

@@ -200,7 +200,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
         sample's recorded source).
     keep : other corpus columns to copy into every sheet, after the unit id, for context.
         The stratify column of a stratified draw is always copied, so the filled sheets can
-        be scored with ``--keep <column> --cluster <column>``.
+        be scored with ``--keep <column>`` (a stratum is not a cluster: do not resample it).
 
     Returns
     -------

@@ -55,7 +55,8 @@ def test_cli_sample_excludes_and_keeps(tmp_path):
 
     table = CliRunner().invoke(app, args[:-2] + ["--force"])
     assert table.exit_code == 0, table.output
-    assert "Already coded" in table.stdout and "--keep participant --cluster participant" in table.stderr
+    assert "Already coded" in table.stdout and "--keep participant" in table.stderr
+    assert "--cluster" not in table.stderr.split("read them back with:")[1].split("\n")[0]
 
 
 def test_cli_sample_help_example_uses_bundled_files(tmp_path):
@@ -98,3 +99,68 @@ def test_cli_sample_reads_its_lists_like_every_other_table(tmp_path):
     assert got["excluded"] == 2 and got["drop_down"] == "inline list"
     _, rows = _read_sheet(tmp_path / "sheets" / "ana.xlsx")
     assert len(rows) == 11 and not {r[0] for r in rows[1:]} & {"u0000", "u0001"}
+
+
+def _fill_sheets(folder, rng):
+    """Fill every coder's sheet as a coder would: a code in each row (mostly the same code)."""
+    import openpyxl
+
+    truth = None
+    for path in sorted(folder.glob("*.xlsx")):
+        wb = openpyxl.load_workbook(path)
+        ws = wb["coding"]
+        header = [c.value for c in ws[1]]
+        code_col = header.index("code") + 1
+        ids = [ws.cell(r, 1).value for r in range(2, ws.max_row + 1)]
+        if truth is None:
+            truth = {u: CODES[rng.integers(len(CODES))] for u in ids}
+        for r, unit in enumerate(ids, start=2):
+            ws.cell(r, code_col).value = truth[unit] if rng.random() < 0.8 else CODES[rng.integers(len(CODES))]
+        wb.save(path)
+
+
+def _read_back_command(stderr: str) -> list[str]:
+    import shlex
+
+    line = next(x for x in stderr.splitlines() if x.startswith("read them back with: "))
+    return shlex.split(line.removeprefix("read them back with: agree "))
+
+
+def test_cli_sample_read_back_resamples_units_not_strata(tmp_path):
+    """Before: the read-back command resampled the strata (--cluster STRATUM). Strata are not
+    clusters: the command keeps the stratum column and resamples units (see the slow simulation
+    in tests/analysis/test_sampling.py), and a note says why; a --cluster column the user names
+    is the one suggested."""
+    import numpy as np
+
+    import agree.cli.commands  # noqa: F401
+    from agree.cli.app import app
+
+    corpus_file = tmp_path / "units.csv"
+    make_corpus(120).to_csv(corpus_file, index=False)
+    res = CliRunner().invoke(app, ["sample", str(corpus_file), "-n", "40", "--stratify", "participant",
+                                   "--coders", "ana,ben", "-o", str(tmp_path / "sheets")])
+    assert res.exit_code == 0, res.output
+    words = _read_back_command(res.stderr)
+    assert "--cluster" not in words and words[words.index("--keep") + 1] == "participant"
+    flat = " ".join(res.stderr.split())
+    assert "note: strata are not clusters" in flat and "as for a simple random sample" in flat
+    _fill_sheets(tmp_path / "sheets", np.random.default_rng(3))
+    scored = CliRunner().invoke(app, words + ["--format", "json", "--boot", "200"])
+    assert scored.exit_code == 0, scored.output
+    assert json.loads(scored.stdout)["bootstrap"]["unit"] == "unit"
+
+    corpus = make_corpus(120)
+    corpus["school"] = [f"s{i % 9}" for i in range(120)]
+    corpus.to_csv(corpus_file, index=False)
+    res = CliRunner().invoke(app, ["sample", str(corpus_file), "-n", "40", "--stratify", "participant",
+                                   "--cluster", "school", "--coders", "ana,ben", "-o", str(tmp_path / "s2")])
+    assert res.exit_code == 0, res.output
+    words = _read_back_command(res.stderr)
+    assert words[words.index("--cluster") + 1] == "school" and "participant" in words
+    _, rows = _read_sheet(tmp_path / "s2" / "ana.xlsx")
+    assert rows[0][:3] == ("unit_id", "participant", "school")
+    _fill_sheets(tmp_path / "s2", np.random.default_rng(4))
+    scored = CliRunner().invoke(app, words + ["--format", "json", "--boot", "200"])
+    assert scored.exit_code == 0, scored.output
+    assert json.loads(scored.stdout)["bootstrap"]["unit"] == "cluster:school"
