@@ -48,7 +48,7 @@ LEVELS = ("nominal", "ordinal", "interval", "ratio")
 
 FilesArgument = Annotated[Optional[list[Path]], typer.Argument(
     help="Coding files (.csv, .tsv, .xlsx, .parquet). Several files: one per coder. With --variable, "
-         "the files of every variable that names none.", show_default=False, metavar="[FILE]...")]
+         "the files of every variable that names none.", show_default=False, metavar="FILE")]
 VariableOption = Annotated[Optional[list[str]], typer.Option(
     "--variable", metavar="NAME=SPEC",
     help="One coded variable of the study, for one report covering them all (repeat for each): "

@@ -121,6 +121,8 @@ def test_study_errors_name_the_variable():
     with pytest.raises(AgreeError) as err:
         build_study_report({" ": _ratings()}, n_resamples=0)
     assert err.value.code == "variable"
+    one = build_study_report({"commitment": _ratings()}, n_resamples=0)
+    assert plain(one.methods).startswith("One variable was coded: ‘commitment’ (ordinal data).")
 
 
 # -- the coders compared ----------------------------------------------------------------------------

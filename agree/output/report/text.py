@@ -144,7 +144,7 @@ def cautions(coefficients: Iterable[AgreementResult] = ()) -> tuple[str, ...]:
     return (CAUTIONS[0], first + extra + " The bands" + rest) + CAUTIONS[2:]
 
 
-_NUMBER_WORDS = {2: "Two", 3: "Three", 4: "Four", 5: "Five", 6: "Six", 7: "Seven", 8: "Eight", 9: "Nine"}
+_NUMBER_WORDS = {1: "One", 2: "Two", 3: "Three", 4: "Four", 5: "Five", 6: "Six", 7: "Seven", 8: "Eight", 9: "Nine"}
 
 
 def _count_words(n: int, noun: str) -> str:
@@ -374,7 +374,8 @@ def study_methods_paragraph(sections: Sequence[Report]) -> str:
     first = sections[0]
     names = [f"‘{lit(r.variable)}’" for r in sections]
     kinds = [f"‘{lit(r.variable)}’ ({lit(level_text(r))})" for r in sections]
-    p = [f"{_count_words(len(sections), 'variable')} were coded: {join_words(kinds)}.",
+    p = [f"{_count_words(len(sections), 'variable')} {'was' if len(sections) == 1 else 'were'} coded: "
+         f"{join_words(kinds)}.",
          "The coders ([[who the coders were and how they were trained]]) coded the units "
          "([[describe the coding unit of each variable]]) [[independently of each other: confirm]], "
          "from [[the codebook version of each variable]]."]
