@@ -21,8 +21,19 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
 )
 
-stdout = Console(soft_wrap=True, markup=False)  # user text (codes, [placeholders]) is never markup
-stderr = Console(stderr=True, soft_wrap=True, markup=False)
+class _Console(Console):
+    """Lines of text soft-wrap (long commands and paragraphs stay whole, to copy); tables are
+    fitted to the terminal's width, wrapping their cells (with soft wrapping a table keeps its
+    natural width and a narrow terminal breaks every row)."""
+
+    def print(self, *objects: Any, **kwargs: Any) -> None:
+        if "soft_wrap" not in kwargs and any(type(o).__name__ == "Table" for o in objects):
+            kwargs["soft_wrap"] = False
+        super().print(*objects, **kwargs)
+
+
+stdout = _Console(soft_wrap=True, markup=False)  # user text (codes, [placeholders]) is never markup
+stderr = _Console(stderr=True, soft_wrap=True, markup=False)
 
 STATE = {"debug": False, "quiet": False}
 

@@ -92,6 +92,43 @@ def codes_command(
         print_codes(result, top)
 
 
+def _word_width(names, cap: int = 24) -> int:
+    """Width of the longest word of the names (so a column wraps them at spaces, never inside a
+    word), at most `cap` (a longer word is folded onto the next line, not cut)."""
+    return min(max((len(w) for n in names for w in str(n).split()), default=4), cap)
+
+
+def _min_width(table: Table) -> int:
+    """The narrowest the table can be drawn without cutting a word (unclamped by the terminal)."""
+    from rich.measure import Measurement
+
+    return Measurement.get(stdout, stdout.options.update_width(10_000), table).minimum
+
+
+def _codes_table(result: "CodeDiagnostics", frame, title: str, level: str, *, reasons: bool) -> Table:
+    """The per-code table; without the reason column (and with a plainer frame) for narrow terminals."""
+    from rich import box
+
+    from agree.core.format import format_bound, format_interval
+
+    table = (Table(title=title) if reasons else
+             Table(title=title, box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, collapse_padding=True))
+    table.add_column("#", justify="right", no_wrap=True)
+    table.add_column("code", min_width=_word_width(frame["code"]), overflow="fold")
+    table.add_column("status", min_width=9)
+    kappa = "Cohen's κ" if len(result.coders) == 2 else "Fleiss' κ"
+    for name in ["α", level, "bound†", "specific agreement", kappa]:
+        table.add_column(name, justify="right", no_wrap=name == level)   # headers may wrap, numbers cannot
+    if reasons:
+        table.add_column("reason", ratio=1, min_width=20)
+    for row in frame.itertuples(index=False):
+        cells = [str(row.rank), str(row.code), row.status, coefficient(row.alpha),
+                 format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound, result.minimum),
+                 coefficient(row.specific_agreement), coefficient(row.kappa)]
+        table.add_row(*cells, *([row.reason] if reasons else []))
+    return table
+
+
 def print_codes(result: "CodeDiagnostics", top: int) -> None:
     from agree.core.format import format_bound, format_interval, format_value
 
@@ -101,20 +138,17 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
                 f" {format_interval(result.alpha_ci_low, result.alpha_ci_high, DIGITS)}")
     stdout.print(f"Krippendorff's α ({result.alpha_label}), all codes: {coefficient(result.alpha)}{interval}", highlight=False)
     minimum = "none" if result.minimum is None else format_value(result.minimum, "threshold")
-    table = Table(title=f"Codes, worst first (presence/absence α; minimum {minimum})")
-    table.add_column("#", justify="right", no_wrap=True)
-    table.add_column("code", min_width=8)
-    table.add_column("status", min_width=9)
-    kappa = "Cohen's κ" if len(result.coders) == 2 else "Fleiss' κ"
     bound = f"one-sided {100 * result.confidence_level:g}% lower bound"
-    for name in ["α", level, "bound†", "specific agreement", kappa]:
-        table.add_column(name, justify="right", no_wrap=True)
-    table.add_column("reason", ratio=1, min_width=20)
-    for row in frame.itertuples(index=False):
-        table.add_row(str(row.rank), str(row.code), row.status, coefficient(row.alpha),
-                      format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound, result.minimum),
-                      coefficient(row.specific_agreement), coefficient(row.kappa), row.reason)
+    title = f"Codes, worst first (presence/absence α; minimum {minimum})"
+    # the reasons sit in the table when it fits the terminal, else numbered below it; code names
+    # wrap at spaces and are never cut
+    table = _codes_table(result, frame, title, level, reasons=True)
+    if _min_width(table) > stdout.width:
+        table = _codes_table(result, frame, title, level, reasons=False)
     stdout.print(table)
+    if len(table.columns) < 9:
+        for row in frame.itertuples(index=False):
+            stdout.print(f"#{row.rank} {row.code}: {row.reason}", highlight=False)
     judged = (f"ok: the {bound} reaches the minimum (as for agree score --min); uncertain: only the "
               f"estimate does; † bound: the {bound} (3 decimals, rounded down where rounding would reach the minimum)"
               if result.bootstrap is not None else
@@ -129,8 +163,10 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
         if len(result.coders) == 2:
             columns[2:2] = [f"{result.coders[0]}→{result.coders[1]}", "reverse"]
         for name in columns:
-            ptable.add_column(name, justify="left" if name == "codes" else "right",
-                              min_width=len(name) if name.startswith("coinc") else None)
+            ptable.add_column(name, justify="left" if name == "codes" else "right", overflow="fold",
+                              min_width=(len(name) if name.startswith("coinc") else
+                                         _word_width(list(pairs["code_a"]) + list(pairs["code_b"]))
+                                         if name == "codes" else None))
         for p in pairs.itertuples(index=False):
             cells = [f"{p.code_a} / {p.code_b}", format_value(p.count, "number", 1), percent(p.share),
                      format_value(p.o_over_e, "number", 2), coefficient(p.alpha_if_merged), signed(p.delta_alpha)]

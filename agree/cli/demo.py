@@ -2,7 +2,8 @@
 
 Score two coding rounds, find what drives disagreement, write the review workbook, compare the
 rounds, write the report, plan the next reliability sample and draw it. Every output goes to one
-folder, named at the end.
+folder; the last line names each file and folder written there. Every step resamples with the
+same number of replicates and the same seed, so one coefficient shows one interval throughout.
 """
 
 from __future__ import annotations
@@ -19,6 +20,7 @@ from agree.cli.codes import print_codes
 from agree.cli.options import SummaryFormat, report_reading
 from agree.cli.plan import print_plan
 from agree.cli.score import print_score
+from agree.core.constants import DEFAULT_RESAMPLES, DEFAULT_SEED
 from agree.core.errors import AgreeError
 from agree.core.files import make_folder
 
@@ -42,21 +44,44 @@ class _Steps:
     def __init__(self) -> None:
         self.count = 0
 
-    def __call__(self, title: str) -> None:
+    def __call__(self, title: str, command: str | None = None) -> None:
         self.count += 1
-        stdout.print(Rule(f"{self.count}. {title}", align="left"))
+        _section(f"{self.count}. {title}", command)
 
 
-def _section(title: str) -> None:
-    stdout.print(Rule(title, align="left"))
+def _section(title: str, command: str | None = None) -> None:
+    """A section header: the title on a rule when it fits the terminal, else the title on its own
+    line above a plain rule (a rule would cut it); the equivalent command below, never cut."""
+    if len(title) + 6 <= stdout.width:
+        stdout.print(Rule(title, align="left"))
+    else:
+        stdout.print(title, highlight=False)
+        stdout.print(Rule())
+    if command:
+        stdout.print(f"$ {command}", highlight=False)
+
+
+def _outputs_line(out: Path, written: list[Path]) -> str:
+    """'All outputs are in DIR: a, b, figures/, sheets/.': every file and folder the demo wrote,
+    named as they are in `out` (a file inside a folder is named by the folder, once)."""
+    root = out.resolve()
+    names: list[str] = []
+    for path in written:
+        rel = Path(path).resolve().relative_to(root)
+        name = rel.parts[0] + ("/" if len(rel.parts) > 1 or (root / rel).is_dir() else "")
+        if name not in names:
+            names.append(name)
+    shown = [n + (" (open it in a browser)" if n.endswith(".html") else "") for n in names]
+    return f"All outputs are in {root}: {', '.join(shown)}."
 
 
 @app.command()
 def demo(
     out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the demo's outputs.")] = Path("agree-demo"),
     samples: Annotated[Optional[Path], typer.Option("--samples", help="Folder with the sample files.")] = None,
-    boot: Annotated[int, typer.Option("--boot", help="Bootstrap replicates.")] = 2000,
-    seed: Annotated[int, typer.Option("--seed", help="Seed for every random step.")] = 1,
+    boot: Annotated[int, typer.Option(
+        "--boot", help="Bootstrap replicates, the same in every step.")] = DEFAULT_RESAMPLES,
+    seed: Annotated[int, typer.Option("--seed", help="Seed for every random step.")] = DEFAULT_SEED,
     output_format: Annotated[SummaryFormat, typer.Option(
         "--format", help="table: the tour as it runs; json: only a summary of the outputs at the end.")
     ] = SummaryFormat.table,
@@ -69,20 +94,20 @@ def demo(
     make_folder(out)
     quiet_tour = output_format is SummaryFormat.json
     summary_json: dict = {"outputs": {}, "rounds": {}}
+    written: list[Path] = []
     with contextlib.ExitStack() as stack:
         if quiet_tour:
             stack.enter_context(stdout.capture())  # the tour is not printed; the summary is
-        _tour(folder, out, boot, seed, summary_json)
+        _tour(folder, out, boot, seed, summary_json, written)
     if quiet_tour:
         print_json(summary_json)
         return
     _section("Done")
-    stdout.print(f"All outputs are in {out.resolve()}: review-round1.xlsx, report.html (open it in a browser), "
-                 "report.md, report.docx, report.tex, sheets/.", highlight=False)
+    stdout.print(_outputs_line(out, written), highlight=False)
     note("The sample data are synthetic (samples/make_samples.py).")
 
 
-def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> None:
+def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict, written: list[Path]) -> None:
     """The steps of the demo, printed as they run; headline results go into `summary_json`."""
     from agree.analysis.diagnostics import diagnose_codes
     from agree.analysis.planning import plan_sample
@@ -98,12 +123,13 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
 
     codebook = folder / "codebook.csv"
     stdout.print("agree demo: synthetic interviews with volunteers of a neighbourhood repair café; "
-                 "8-code codebook, three coders (amara, bastien, chen), two coding rounds. See samples/README.md.")
+                 "8-code codebook, three coders (amara, bastien, chen), two coding rounds. See samples/README.md. "
+                 f"Every interval: {boot:,} bootstrap replicates, seed {seed}.", highlight=False)
 
     step = _Steps()
     rounds = {}
     for name in ("round1", "round2"):
-        step(f"Agreement, {name} (agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8)")
+        step(f"Agreement, {name}", f"agree score samples/{name}.csv --codebook samples/codebook.csv --min 0.8")
         data = read(folder / f"{name}.csv", codebook=codebook)
         report_reading(data)
         rounds[name] = data
@@ -119,49 +145,59 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
                          f"{format_interval(alpha.ci_low, alpha.ci_high, 3)} (the report below resamples units, "
                          "as rounds_long.csv has no interview column).", highlight=False)
 
-    step("Which codes drive disagreement in round 1 (agree codes samples/round1.csv ...)")
-    codes = diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=min(boot, 1000), seed=seed)
+    step("Which codes drive disagreement in round 1",
+         "agree codes samples/round1.csv --codebook samples/codebook.csv --min 0.8")
+    codes = diagnose_codes(rounds["round1"], minimum=0.8, n_resamples=boot, seed=seed)
     print_codes(codes, top=8)
 
-    step("Review workbook for the round-1 disagreements (agree disagreements samples/round1.csv "
-         "--codebook samples/codebook.csv -o review-round1.xlsx)")
+    step("Review workbook for round 1",
+         "agree disagreements samples/round1.csv --codebook samples/codebook.csv -o review-round1.xlsx")
     review_path = out / "review-round1.xlsx"
     summary = write_review(rounds["round1"], review_path, format="xlsx",
                                  inputs=[folder / "round1.csv", codebook], options={"source": "agree demo"},
                                  force=True)
+    written.append(review_path)
     stdout.print(f"{summary.needing_review} units to reconcile, worst first: {review_path}", highlight=False)
     summary_json["outputs"]["review"] = str(review_path)
     summary_json["worst_codes"] = [str(c) for c in codes.to_frame()["code"].head(3)]
 
-    step("Did round 2 beat round 1? (agree rounds samples/rounds_long.csv --codebook ...)")
+    step("Did round 2 beat round 1?", "agree rounds samples/rounds_long.csv --codebook samples/codebook.csv")
     long = read(folder / "rounds_long.csv", codebook=codebook, keep=["round"])
     report_reading(long)
     compared = compare_rounds(long, minimum=0.8, n_resamples=boot, seed=seed)
     for line in compared.summary_markup():
         stdout.print(plain(line), highlight=False)
 
-    step("Report for the methods section (agree report ... -o report.html)")
+    step("Report for the methods section",
+         "agree report samples/rounds_long.csv --codebook samples/codebook.csv --corpus-size 600 -o report.html")
     report = build_report(None, rounds=split_rounds(long), minimum=0.8, n_resamples=boot, seed=seed,
                           corpus_size=600)
-    written = []
+    reports = []
     for suffix in (".html", ".md", ".docx", ".tex"):
-        written += write_report(report, out / f"report{suffix}")
+        reports += write_report(report, out / f"report{suffix}")
+    written.extend(reports)
     stdout.print("Methods paragraph (edit the bracketed parts):", highlight=False)
     stdout.print(plain(report.methods), highlight=False)
-    stdout.print("Written: " + ", ".join(str(p) for p in written if p.suffix != ".png"), highlight=False)
-    summary_json["outputs"]["report"] = [str(p) for p in written if p.suffix != ".png"]
+    figures = sorted({str(Path(p).parent) for p in reports if Path(p).suffix == ".png"})
+    stdout.print("Written: " + ", ".join(str(p) for p in reports if Path(p).suffix != ".png")
+                 + (f"; figures in {', '.join(figures)}" if figures else ""), highlight=False)
+    summary_json["outputs"]["report"] = [str(p) for p in reports if Path(p).suffix != ".png"]
+    summary_json["outputs"]["figures"] = figures
 
-    step("How many units to double-code next time (agree plan --coders 3 --shares ... --expected 0.85)")
+    step("How many units to double-code next time",
+         "agree plan --coders 3 --shares 0.25,0.2,0.15,0.12,0.1,0.08,0.06,0.04 --expected 0.85 --min 0.8")
     plan = plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
                              expected=0.85, minimum=0.8, seed=seed)
     print_plan(plan)
 
-    step("Draw the next reliability sample, leaving out the units coded in rounds 1 and 2 "
-         "(agree sample samples/corpus.csv ... --exclude samples/round1.csv --exclude samples/round2.csv)")
     corpus = read_corpus(folder / "corpus.csv")
     already = read_unit_ids([folder / "round1.csv", folder / "round2.csv"])
     available = len(corpus) - int(corpus["unit_id"].astype(str).isin(already).sum())
     n = int(plan.units_needed or 100)
+    step("Draw the next reliability sample, leaving out the units already coded",
+         f"agree sample samples/corpus.csv -n {min(n, available)} --stratify interview --coders amara,bastien,chen "
+         "--codebook samples/codebook.csv --shuffle --exclude samples/round1.csv --exclude samples/round2.csv "
+         f"--seed {seed} -o sheets/")
     if n > available:
         note(f"the plan asks for {n} units but only {available} are not yet coded; drawing all {available}")
     drawn = draw_sample(corpus, min(n, available), stratify="interview", seed=seed, exclude=already)
@@ -172,6 +208,7 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict) -> 
                  f"{drawn.attrs['excluded']} units coded in rounds 1 and 2 were excluded. One workbook per "
                  f"coder in {sheets.folder}, with the interview column beside the unit id.", highlight=False)
 
+    written.append(Path(sheets.folder))
     summary_json["units_needed"] = plan.units_needed
     summary_json["outputs"]["sheets"] = sheets.folder
     summary_json["drawn"] = len(drawn)

@@ -36,7 +36,8 @@ def test_codes_min_and_csv(coding_csv):
     assert "uses_amara" in frame.columns
 
 
-def test_codes_table_shows_worst_first_and_notes(coding_csv):
+def test_codes_table_shows_worst_first_and_notes(coding_csv, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "200")
     result = run(["codes", str(coding_csv), "--boot", "100", "--seed", "1"])
     assert result.exit_code == 0, result.output
     first = diagnose_codes(expected_data(), n_resamples=0).to_frame().code[0]
@@ -96,7 +97,8 @@ def test_codes_status_follows_the_interval_on_the_sample():
     assert "uncertain" in table.stdout
 
 
-def test_codes_table_is_apa_style_with_display_labels_and_coincidence_note():
+def test_codes_table_is_apa_style_with_display_labels_and_coincidence_note(monkeypatch):
+    monkeypatch.setenv("COLUMNS", "200")                   # headers on one line (80 columns wrap them)
     result = run(["codes", str(SAMPLES / "round1.csv"), "--codebook", str(SAMPLES / "codebook.csv"),
                   "--boot", "200"])
     assert result.exit_code == 0, result.output
@@ -161,3 +163,25 @@ def test_codes_table_shows_the_one_sided_bound_and_says_so():
             assert c["lower_bound"] >= 0.8
         elif c["status"] == "uncertain":
             assert c["alpha"] >= 0.8 > c["lower_bound"]
+
+
+def test_codes_fit_an_80_column_terminal_without_cutting_a_code(tmp_path, monkeypatch):
+    """Before: at 80 columns the table kept its natural width (118 columns) and code names were
+    cut ('Coordin…'). Now every table line fits, names wrap at spaces and the reasons move below
+    the table, numbered as its rows."""
+    names = ["Coordination of volunteers", "Recognition", "Time pressure", "Materialresourcesandtools"]
+    rows = [(str(u), names[u % 4], names[(u + (u % 3 == 0)) % 4], names[u % 4]) for u in range(40)]
+    path = tmp_path / "long.csv"
+    pd.DataFrame(rows, columns=["unit", "amara", "ben", "chen"]).to_csv(path, index=False)
+    monkeypatch.setenv("COLUMNS", "80")
+    result = run(["codes", str(path), "--boot", "50", "--seed", "1"])
+    assert result.exit_code == 0, result.output
+    lines = result.stdout.splitlines()
+    # every table line fits; lines of text (the reasons, the overall alpha) soft-wrap, to copy
+    assert [line for line in lines if len(line) > 80 and not line.startswith(("#", "Krippendorff"))] == []
+    assert "…" not in result.stdout
+    joined = " ".join(" ".join(line.split()) for line in lines)
+    frame = diagnose_codes(pd.DataFrame(rows).set_index(0).to_numpy(), n_resamples=0).to_frame()
+    for rank, code in zip(frame["rank"], frame["code"]):
+        assert f"#{rank} {code}: " in result.stdout           # the reasons, below the table
+    assert "Materialresourcesandtools"[:20] in joined             # a long word folded, not cut

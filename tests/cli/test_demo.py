@@ -63,3 +63,57 @@ def test_demo_json_prints_only_a_summary_of_its_outputs(tmp_path, monkeypatch):
     assert set(summary["rounds"]) == {"round1", "round2"}
     assert Path(summary["outputs"]["review"]).exists() and summary["drawn"] > 0
     assert summary["rounds"]["round2"]["estimate"] > summary["rounds"]["round1"]["estimate"]
+
+
+def test_demo_at_80_columns_cuts_nothing_and_shows_one_interval_per_coefficient(tmp_path, monkeypatch):
+    """Before: section headers and code names were cut at 80 columns, the code diagnostics used
+    1,000 resamples where the other steps used 2,000 (so round 1's alpha printed two intervals),
+    and the last line named neither the figure folder nor what was really written."""
+    import inspect
+    import re
+    from pathlib import Path
+
+    import agree.cli.commands  # noqa: F401
+    import agree.output.report
+    from agree.cli.app import app
+    from agree.cli.demo import demo
+    from agree.core.constants import DEFAULT_RESAMPLES, DEFAULT_SEED
+
+    assert inspect.signature(demo).parameters["boot"].default == DEFAULT_RESAMPLES
+    assert inspect.signature(demo).parameters["seed"].default == DEFAULT_SEED
+    _stub_report_and_plan(monkeypatch)
+
+    def write_report(report, path):                 # a report file and a figure in its own folder
+        path = Path(path)
+        figure = path.parent / f"{path.stem}-{path.suffix[1:]}-figures" / "forest.png"
+        figure.parent.mkdir(exist_ok=True)
+        figure.write_bytes(b"png")
+        path.write_text("report")
+        return [path, figure]
+
+    monkeypatch.setattr(agree.output.report, "write_report", write_report)
+    monkeypatch.setenv("COLUMNS", "80")
+    out = tmp_path / "demo"
+    res = CliRunner().invoke(app, ["demo", "--out", str(out), "--boot", "60"])
+    assert res.exit_code == 0, res.output
+    lines = res.stdout.splitlines()
+    assert "…" not in res.stdout
+    # the section titles are whole, each with the command it stands for on the next line
+    headers = [i for i, line in enumerate(lines) if re.match(r"^\d+\. ", line)]
+    assert len(headers) >= 8
+    assert all(lines[i + 1].startswith("$ agree ") for i in headers)
+    assert "Which codes drive disagreement in round 1" in res.stdout
+    # every table line fits in 80 columns (lines of text soft-wrap, so they can be copied whole)
+    table_lines = [line for line in lines if re.search("[│┃━─]", line) and not line.startswith("$")]
+    assert table_lines and max(len(line) for line in table_lines) <= 80
+    # one resample count, so round 1's alpha has one interval in score and in codes
+    alpha_rows = [line for line in lines if line.startswith("│ Krippendorff's alpha")]
+    score_interval = re.search(r"\[[.\d]+, [.\d]+\]", alpha_rows[0]).group(0)
+    codes_line = next(line for line in lines if line.startswith("Krippendorff's α (nominal), all codes:"))
+    assert codes_line.endswith(score_interval)
+    assert "60 resamples of units" in res.stderr and "2,000" not in res.stdout + res.stderr
+    # the last line names every file and folder written, the figure folders included
+    final = lines[lines.index(next(line for line in lines if line.startswith("Done"))) + 1]
+    for entry in out.iterdir():
+        assert entry.name + ("/" if entry.is_dir() else "") in final, entry
+    assert "report-html-figures/" in final and "sheets/" in final
