@@ -19,6 +19,7 @@ suffix of `-o` (`--file-format` where the suffix may not say).
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import inspect
 from enum import Enum
@@ -137,6 +138,12 @@ LevelOption = Annotated[Optional[Level], typer.Option(
     "--level", help="Level of measurement. Default: ordinal if the codebook has an order, else nominal.")]
 KeepOption = Annotated[Optional[list[str]], typer.Option(
     "--keep", help="Other per-unit column to keep (e.g. a round or document column); repeatable.")]
+MaxCellsOption = Annotated[Optional[int], typer.Option(
+    "--max-cells", min=1, show_default=False,
+    help="Largest worksheet read, in cells (rows x columns that hold values; default 20,000,000): a larger "
+         "sheet is refused before it is read into memory. Applies to every workbook the command reads.")]
+
+
 class Engine(str, Enum):
     auto = "auto"
     pandas = "pandas"
@@ -170,6 +177,7 @@ _READING = (
     ("keep", KeepOption, None, "keep"),
     ("engine", EngineOption, Engine.auto, "engine"),
     ("counts", CountsOption, False, "counts"),
+    ("max_cells", MaxCellsOption, None, "max_cells"),
 )
 
 
@@ -184,10 +192,23 @@ def reading_options(command):
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
         reading = {key: _value(kwargs.pop(name)) for name, _, _, key in _READING}
-        return command(*args, reading=reading, **kwargs)
+        with worksheet_limit(reading.pop("max_cells")):   # every workbook the command reads
+            return command(*args, reading=reading, **kwargs)
 
     wrapper.__signature__ = signature.replace(parameters=own + extra)
     return wrapper
+
+
+@contextlib.contextmanager
+def worksheet_limit(max_cells: int | None):
+    """--max-cells for everything read inside the block (`agree.io.loaders.cell_limit`)."""
+    if max_cells is None:
+        yield
+        return
+    from agree.io.loaders import cell_limit
+
+    with cell_limit(max_cells):
+        yield
 
 
 def _value(x: Any) -> Any:

@@ -10,7 +10,7 @@ from rich.table import Table
 from rich.text import Text
 
 from agree.cli.app import app, note, print_json, stdout
-from agree.cli.options import ResultFormatOption, SummaryFormat
+from agree.cli.options import MaxCellsOption, ResultFormatOption, SummaryFormat, worksheet_limit
 
 
 @app.command()
@@ -45,6 +45,7 @@ def sample(
     sheet: Annotated[Optional[str], typer.Option("--sheet", help="Worksheet of an .xlsx list of units.")] = None,
     force: Annotated[bool, typer.Option("--force", help="Write into a folder that is not empty.")] = False,
     output_format: ResultFormatOption = SummaryFormat.table,
+    max_cells: MaxCellsOption = None,
 ):
     """Draw the reliability sample and write one blank coding workbook per coder.
 
@@ -58,9 +59,10 @@ def sample(
     )
     from agree.output.sheets import write_coding_sheets
 
-    frame = read_corpus(corpus, sheet=sheet)
-    exclude_files = list(exclude or [])
-    already = read_unit_ids(exclude_files, id_col=unit_col) if exclude_files else ()
+    with worksheet_limit(max_cells):
+        frame = read_corpus(corpus, sheet=sheet)
+        exclude_files = list(exclude or [])
+        already = read_unit_ids(exclude_files, id_col=unit_col) if exclude_files else ()
     drawn = draw_sample(frame, n, stratify=stratify, seed=seed, id_col=unit_col, exclude=already)
     categories = load_codebook_categories(codebook) if codebook is not None else None
     names = [c.strip() for c in coders.split(",") if c.strip()]

@@ -25,5 +25,8 @@ DEFAULT_CI_METHOD = "bca"
 #: The seed the commands use unless told otherwise (the library draws and records one when
 #: given seed=None), so every command repeats exactly.
 DEFAULT_SEED = 1
+#: The largest worksheet read, in cells: the rows that hold values times the columns that hold
+#: values (a block past it is refused before it is built; `max_cells=`, `--max-cells` override).
+MAX_SHEET_CELLS = 20_000_000
 #: Distance between sets of codes (several codes per unit and coder) unless another is asked for.
 DEFAULT_SET_DISTANCE = "masi"

@@ -89,15 +89,18 @@ def as_list(x: Any) -> list:
 
 
 def is_free_text(col: pd.Series) -> bool:
-    """Long, mostly distinct sentences: unit text rather than codes."""
-    sample = col.dropna().iloc[:500]
-    if len(sample) == 0:
+    """Long, mostly distinct sentences: unit text rather than codes (judged on the first 500
+    non-empty cells; plain Python, as a wide table asks this of thousands of short columns)."""
+    head = col.iloc[:2000].tolist()
+    sample = [v for v in head if normalise_value(v) is not None][:500]
+    if not sample:
         return False
-    s = sample.map(lambda v: v if isinstance(v, str) else "").astype(object)
-    lengths = s.str.len()
-    spaced = s.str.strip().str.contains(" ", regex=False)
-    distinct = s.nunique() / len(s)
-    return bool(spaced.mean() >= 0.5 and lengths.mean() >= 25 and (len(s) < 4 or distinct >= 0.8))
+    s = [v if isinstance(v, str) else "" for v in sample]
+    if sum(map(len, s)) < 25 * len(s):
+        return False
+    spaced = sum(1 for v in s if " " in v.strip())
+    distinct = len(set(s)) / len(s)
+    return bool(spaced >= 0.5 * len(s) and (len(s) < 4 or distinct >= 0.8))
 
 
 def is_binary(col: pd.Series) -> bool:
@@ -171,11 +174,13 @@ def _foreign_columns(table: Table, candidates: list) -> list:
     if len(candidates) < 3:
         return []
     values = {c: set(pd.unique(table.frame[c].dropna().astype(str).str.strip())) - {""} for c in candidates}
-    foreign = []
-    for c in candidates:
-        others = set().union(*(values[o] for o in candidates if o != c and o not in foreign))
-        if values[c] and others and not (values[c] & others):
-            foreign.append(c)
+    holders: dict[str, int] = {}  # value -> how many candidate columns hold it
+    for vs in values.values():
+        for v in vs:
+            holders[v] = holders.get(v, 0) + 1
+    foreign = [c for c in candidates if values[c] and all(holders[v] == 1 for v in values[c])]
+    if len(foreign) == len(candidates):  # nothing shared anywhere: coders who never agree
+        return []
     return foreign if len(candidates) - len(foreign) >= 2 else []
 
 

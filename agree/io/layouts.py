@@ -83,6 +83,7 @@ class Build:
         self.enc = Encoder(trim=trim, casefold=casefold)
         self.sources: list[tuple] = []
         self.coders: list[str] = []
+        self._coder_at: dict[str, int] = {}
         self.pieces: list[Piece] = []
         self.units: list[tuple[np.ndarray, np.ndarray]] = []  # per table: (unit idx per row, ids)
         self.roles: list[Roles] = []
@@ -136,9 +137,10 @@ class Build:
         return g[cidx]
 
     def coder_index(self, name: str) -> int:
-        if name not in self.coders:
+        if name not in self._coder_at:
+            self._coder_at[name] = len(self.coders)
             self.coders.append(name)
-        return self.coders.index(name)
+        return self._coder_at[name]
 
     def piece(self, ti: int, coder_idx: np.ndarray, values: np.ndarray, column: str | None,
               blank: np.ndarray) -> None:

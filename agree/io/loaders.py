@@ -27,19 +27,23 @@ import difflib
 import hashlib
 import io
 import re
+from array import array
+from contextlib import contextmanager
+from contextvars import ContextVar
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any, Callable, Iterator
 
 import numpy as np
 import pandas as pd
 
 from agree.core.cells import PROTECTED_PATTERN
+from agree.core.constants import MAX_SHEET_CELLS
 from agree.core.files import record_input, sha256_file
 from agree.core.model import AgreeError, cell_location, normalise_value
 
 __all__ = ["LOADERS", "Loader", "Grid", "Table", "Loaded", "load", "load_tables", "loader_for",
-           "read_lines", "raise_all", "column_label", "known_suffixes"]
+           "read_lines", "raise_all", "column_label", "known_suffixes", "cell_limit"]
 
 _MAGIC_ZIP = b"PK\x03\x04"
 _MAGIC_OLE = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
@@ -75,9 +79,14 @@ class Grid:
     rows: np.ndarray
     letters: bool = False
     kind: str = "text"
+    positions: tuple[int, ...] | None = None  # 1-based column of each frame column (None: 1, 2, ...)
 
     def where(self, row: int | None = None, column: str | None = None) -> str:
         return cell_location(self.file, self.sheet, row, column)
+
+    def column(self, i: int) -> str:
+        """'column 3 (C)' for the frame's column `i` (0-based)."""
+        return column_label(self.positions[i] if self.positions is not None else i + 1, self.letters)
 
     def records(self) -> list[list]:
         """Every record below the header as a list of cells (None for an empty cell)."""
@@ -100,13 +109,13 @@ class Grid:
         for i, h in enumerate(names):
             if h is None:
                 if _has_values(frame.iloc[:, i]):
-                    problems.append(AgreeError(f"{column_label(i + 1, letters)} has a blank header but holds data",
+                    problems.append(AgreeError(f"{self.column(i)} has a blank header but holds data",
                                                where=cell_location(file, sheet, 1), code="blank-header",
                                                hint="give every column a name in the first row"))
                 continue
             if h in seen:
                 problems.append(AgreeError(
-                    f"{column_label(i + 1, letters)} repeats the header '{h}' of {column_label(seen[h] + 1, letters)}",
+                    f"{self.column(i)} repeats the header '{h}' of {self.column(seen[h])}",
                     where=cell_location(file, sheet, 1), code="duplicate-header",
                     hint="give every column a different name"))
                 continue
@@ -236,18 +245,26 @@ def _decode(raw: bytes, name: str) -> tuple[bytes, str | None]:
     return text.encode("utf-8"), "read as Windows-1252 (not valid UTF-8)"
 
 
-def _first_record(text: str, delimiter: str) -> list[str]:
+def _first_record(data: bytes, delimiter: str) -> list[str]:
+    """The first record of UTF-8 text, however long (a header of many thousand columns), read
+    lazily: only as much of the text is decoded as the record needs."""
+    stream = io.TextIOWrapper(io.BytesIO(data), encoding="utf-8", errors="replace", newline="")
     try:
-        return next(csv.reader(io.StringIO(text), delimiter=delimiter), [])
+        return next(csv.reader(stream, delimiter=delimiter), [])
     except csv.Error:
-        return text.splitlines()[0].split(delimiter) if text else []
+        stream.seek(0)
+        return stream.readline().rstrip("\r\n").split(delimiter)
+    finally:
+        stream.detach()
 
 
-def _sniff_delimiter(head: str) -> str:
-    """The delimiter that splits the header into the most fields (comma on ties)."""
+def _sniff_delimiter(data: bytes) -> str:
+    """The delimiter that splits the header into the most fields (comma on ties), from the first
+    megabyte."""
     best, best_n = ",", 1
+    sample = data[: 1 << 20]
     for d in (",", ";", "\t"):
-        n = len(_first_record(head, d))
+        n = len(_first_record(sample, d))
         if n > best_n:
             best, best_n = d, n
     return best
@@ -268,24 +285,31 @@ def _load_text(path: Path, *, name: str, sheet: Any = None, suffix: str = "") ->
     if not data[: 1 << 16].strip() and not data.strip():
         raise AgreeError("the file is empty", where=name, hint="check that the file was saved",
                          code="empty-file")
-    head = data[: 1 << 16].decode("utf-8", errors="ignore")
     notes = [f"{name}: {note}"] if note else []
     if delimiter is None:
-        delimiter = _sniff_delimiter(head)
+        delimiter = _sniff_delimiter(data)
         if delimiter != ",":
             notes.append(f"{name}: columns separated by {'tab' if delimiter == chr(9) else repr(delimiter)}")
-    n_columns = len(_first_record(head, delimiter))
+    n_columns = len(_first_record(data, delimiter))
     names = [f"c{i}" for i in range(n_columns)]
-    try:
-        table = pacsv.read_csv(
+    def parse(block_size: int):
+        return pacsv.read_csv(
             io.BytesIO(data),
-            read_options=pacsv.ReadOptions(column_names=names, block_size=1 << 24),
+            read_options=pacsv.ReadOptions(column_names=names, block_size=block_size),
             # quoted cells may hold line breaks (multi-line excerpts); without quotes they cannot
             parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=b'"' in data),
             convert_options=pacsv.ConvertOptions(column_types={c: pa.string() for c in names},
                                                  strings_can_be_null=True, null_values=[""],
                                                  quoted_strings_can_be_null=True),
         )
+
+    try:
+        try:
+            table = parse(1 << 24)
+        except pa.ArrowInvalid as exc:
+            if "straddl" not in str(exc):
+                raise
+            table = parse(len(data) + 1)  # a record longer than a block (very many or long cells)
     except pa.ArrowInvalid as exc:
         msg = str(exc).split("\n")[0]
         match = re.search(r"Expected (\d+) columns, got (\d+)", msg)
@@ -329,9 +353,160 @@ def read_lines(path: str | Path, *, name: str | None = None) -> tuple[list[tuple
 
 
 # -- workbooks ----------------------------------------------------------------------------------
-def _load_workbook(path: Path, *, name: str, sheet: Any = None, suffix: str = "") -> Loaded:
-    import openpyxl
+# A worksheet is streamed: openpyxl's parser of one sheet's XML (the one openpyxl's read-only
+# mode uses, so numbers, dates, shared and inline strings read as openpyxl reads them), with
+# only the cells that hold a value kept, as (row, column, value). Nothing is sized by what the
+# sheet declares (its dimension, a row numbered twenty million, styled empty cells up to the
+# last column): memory follows the cells that hold values, and the table is the block of rows
+# and columns that hold them. A block larger than the cell limit (`MAX_SHEET_CELLS`, or
+# `max_cells=`, `--max-cells`) stops with an error before it is built.
+_MAX_CELLS: ContextVar[int] = ContextVar("agree_max_cells", default=MAX_SHEET_CELLS)
+FORMULAS_SHOWN = 5  # formula cells without a stored result named in the note
 
+
+@contextmanager
+def cell_limit(max_cells: int | None) -> Iterator[int]:
+    """Within the block, worksheets of more than `max_cells` cells (rows x columns that hold
+    values) are refused; None keeps the limit in force (by default `MAX_SHEET_CELLS`)."""
+    if max_cells is None:
+        yield _MAX_CELLS.get()
+        return
+    if isinstance(max_cells, bool) or not isinstance(max_cells, (int, np.integer)) or max_cells < 1:
+        raise AgreeError(f"the cell limit must be a whole number of cells, 1 or more; got {max_cells!r}",
+                         code="bad-option", hint="e.g. --max-cells 50000000 (max_cells=50_000_000)")
+    token = _MAX_CELLS.set(int(max_cells))
+    try:
+        yield int(max_cells)
+    finally:
+        _MAX_CELLS.reset(token)
+
+
+@dataclass
+class _SheetCells:
+    """The cells of one worksheet that hold a value, and its formula cells without a result."""
+
+    rows: np.ndarray
+    columns: np.ndarray
+    values: np.ndarray  # object
+    blank: np.ndarray  # bool: the value is text of spaces only
+    formulas: int = 0  # formula cells with no stored result (read as empty)
+    formula_cells: tuple[str, ...] = ()  # the first few, as A1 references
+
+
+def _too_large(where: str, n_rows: int, n_columns: int, limit: int, last: str) -> AgreeError:
+    return AgreeError(
+        f"the sheet is too large to read: its values span at least {n_rows:,} rows and {n_columns:,} columns "
+        f"({n_rows * n_columns:,} cells), more than the limit of {limit:,} cells",
+        where=where, code="sheet-too-large",
+        hint=f"delete stray cells far from the table (values reach {last}), or raise the limit "
+             "with --max-cells (max_cells=...)")
+
+
+def _stream_sheet(book, target: str, *, where: str, limit: int) -> _SheetCells:
+    """The cells of one worksheet (its part `target` in the workbook `book`, an openpyxl
+    `ExcelReader`) that hold a value, streamed (see above)."""
+    from openpyxl.utils import get_column_letter
+    from openpyxl.worksheet._reader import CELL_TAG, DATA_TAG, FORMULA_TAG, ROW_TAG, WorkSheetParser
+    from openpyxl.xml.functions import iterparse
+
+    wb = book.wb
+    rows, columns, values, blank = array("q"), array("q"), [], array("b")
+    columns_seen: set[int] = set()
+    n_rows = 0
+    formulas, formula_cells = 0, []
+    with book.archive.open(target) as source:
+        parser = WorkSheetParser(source, book.shared_strings, data_only=True, epoch=wb.epoch,
+                                 date_formats=wb._date_formats, timedelta_formats=wb._timedelta_formats)
+        data = None
+        for event, element in iterparse(source, events=("start", "end")):
+            tag = element.tag
+            if event == "start":
+                if tag == DATA_TAG:
+                    data = element
+                continue
+            if tag == DATA_TAG:
+                break  # the cells are read; what follows is formatting
+            if tag != ROW_TAG:
+                continue
+            r = element.get("r")
+            parser.row_counter = int(float(r)) if r else parser.row_counter + 1
+            parser.col_counter = 0
+            held = False
+            for c in element:
+                if c.tag != CELL_TAG:
+                    continue
+                cell = parser.parse_cell(c)
+                value = cell["value"]
+                if value is None:
+                    if c.find(FORMULA_TAG) is not None:
+                        formulas += 1
+                        if len(formula_cells) < FORMULAS_SHOWN:
+                            formula_cells.append(f"{get_column_letter(cell['column'])}{cell['row']}")
+                    continue
+                held = True
+                rows.append(cell["row"])
+                columns.append(cell["column"])
+                columns_seen.add(cell["column"])
+                values.append(value)
+                blank.append(isinstance(value, str) and not value.strip())
+            if data is not None:
+                data.clear()  # rows already read are not kept
+            if held:
+                n_rows += 1
+                if n_rows * len(columns_seen) > limit:
+                    raise _too_large(where, n_rows, len(columns_seen), limit,
+                                     f"column {get_column_letter(max(columns_seen))} and row {parser.row_counter:,}")
+    cells = np.empty(len(values), dtype=object)
+    cells[:] = values
+    return _SheetCells(np.frombuffer(rows, dtype=np.int64) if rows else np.zeros(0, np.int64),
+                       np.frombuffer(columns, dtype=np.int64) if columns else np.zeros(0, np.int64),
+                       cells, np.frombuffer(blank, dtype=np.int8).astype(bool) if blank else np.zeros(0, bool),
+                       formulas, tuple(formula_cells))
+
+
+def _cells_to_grid(cells: _SheetCells, *, file: str, sheet: str) -> Grid | None:
+    """The block from the first to the last row holding a non-blank value, in the columns that
+    hold values; rows without any value are left out (their numbers are kept in `rows`). None
+    when the sheet holds nothing but blanks."""
+    solid = ~cells.blank
+    if not solid.any():
+        return None
+    first, last = cells.rows[solid].min(), cells.rows[solid].max()
+    inside = (cells.rows >= first) & (cells.rows <= last)
+    rows_at, columns_at, values = cells.rows[inside], cells.columns[inside], cells.values[inside]
+    row_numbers, r = np.unique(rows_at, return_inverse=True)
+    positions, c = np.unique(columns_at, return_inverse=True)
+    block = np.full((len(row_numbers), len(positions)), None, dtype=object)
+    block[r, c] = values
+    header = block[0].tolist()
+    frame = pd.DataFrame(block[1:], columns=range(len(positions)), dtype=object)
+    return Grid(file, sheet, header, frame, row_numbers[1:].astype(np.int64), letters=True, kind="workbook",
+                positions=tuple(int(p) for p in positions))
+
+
+def _open_workbook(path: Path, name: str):
+    """The workbook's parts as openpyxl reads them (manifest, shared strings, sheets, styles for
+    dates), without openpyxl's read-only worksheets: those measure every sheet when opened, at a
+    cost that follows the rows a sheet declares."""
+    from openpyxl.reader.excel import ExcelReader
+    from openpyxl.styles.stylesheet import apply_stylesheet
+
+    try:
+        book = ExcelReader(path, read_only=True, data_only=True)
+        book.read_manifest()
+        book.read_strings()
+        book.read_workbook()
+        apply_stylesheet(book.archive, book.wb)
+        sheets = [(sheet.name, sheet.state or "visible", rel.target) for sheet, rel in book.parser.find_sheets()
+                  if rel.target in book.valid_files and "chartsheet" not in rel.Type]
+    except Exception as exc:  # zip and XML errors of a damaged file, of assorted types
+        raise AgreeError(f"the workbook is damaged and cannot be opened ({type(exc).__name__})",
+                         where=name, hint="open it in a spreadsheet program and save it again",
+                         code="corrupt-workbook") from None
+    return book, sheets
+
+
+def _load_workbook(path: Path, *, name: str, sheet: Any = None, suffix: str = "") -> Loaded:
     head = _head(path)
     if head.startswith(_MAGIC_OLE):
         raise AgreeError("the workbook is password-protected (encrypted) or in an old format",
@@ -339,47 +514,52 @@ def _load_workbook(path: Path, *, name: str, sheet: Any = None, suffix: str = ""
                          hint="open it, remove the password and save it again as .xlsx")
     checksums = {name: sha256_file(path)}
     left_out: list[str] = []
+    notes: list[str] = []
     grids: list[Grid] = []
+    limit = _MAX_CELLS.get()
+    book, sheets = _open_workbook(path, name)
     try:
-        wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
-    except Exception as exc:  # zip and XML errors of a damaged file, of assorted types
-        raise AgreeError(f"the workbook is damaged and cannot be opened ({type(exc).__name__})",
-                         where=name, hint="open it in a spreadsheet program and save it again",
-                         code="corrupt-workbook") from None
-    try:
-        sheets = [ws for ws in wb.worksheets if hasattr(ws, "iter_rows")]
-        titles = [ws.title for ws in sheets]
+        titles = [title for title, _, _ in sheets]
         wanted = _select_sheets(sheet, titles, name)
-        hidden = [ws.title for ws in sheets if ws.sheet_state != "visible"]
+        hidden = [title for title, state, _ in sheets if state != "visible"]
         if sheet is None and hidden and len(hidden) < len(sheets):
             # hidden sheets hold lists for drop-downs and the like, not a coder's work
             wanted = [t for t in wanted if t not in hidden]
             left_out.append(f"{name}: hidden sheet(s) not read: {', '.join(repr(h) for h in hidden)} "
                             "(name them with --sheet to read them)")
         empty = []
-        for ws in sheets:
-            if ws.title not in wanted:
+        for title, _, target in sheets:
+            if title not in wanted:
                 continue
+            where = cell_location(name, title)
             try:
-                ws.reset_dimensions()
-                raw_rows = [list(r) for r in ws.iter_rows(values_only=True)]
+                cells = _stream_sheet(book, target, where=where, limit=limit)
+            except AgreeError:
+                raise
             except Exception as exc:
                 raise AgreeError(f"the worksheet cannot be read ({type(exc).__name__})",
-                                 where=cell_location(name, ws.title), code="corrupt-workbook",
+                                 where=where, code="corrupt-workbook",
                                  hint="open it in a spreadsheet program and save it again") from None
-            grid = _rows_to_grid(raw_rows, file=name, sheet=ws.title)
+            if cells.formulas:
+                n = cells.formulas
+                shown = ", ".join(cells.formula_cells) + (", ..." if n > len(cells.formula_cells) else "")
+                notes.append(f"warning: {where}: {n} formula cell{'s' * (n != 1)} without a stored result "
+                             f"read as empty ({shown}); open the workbook in a spreadsheet program and save "
+                             "it, so that the results are stored, or type the values in")
+            grid = _cells_to_grid(cells, file=name, sheet=title)
             if grid is None:
-                empty.append(ws.title)
+                empty.append(title)
             else:
                 grids.append(grid)
     finally:
-        wb.close()
+        book.archive.close()
     if empty and not grids:
-        raise AgreeError("the sheet is empty", where=cell_location(name, empty[0]), code="empty-sheet",
+        raise AgreeError("the sheet is empty" if len(empty) == 1 else "every sheet is empty",
+                         where=cell_location(name, empty[0]) if len(empty) == 1 else name, code="empty-sheet",
                          hint="choose a sheet with data" + (f" (sheets: {', '.join(titles)})" if len(titles) > 1 else ""))
     if empty:
         left_out.append(f"{name}: empty sheet(s) skipped: {', '.join(repr(e) for e in empty)}")
-    return Loaded(tuple(grids), left_out=tuple(left_out), checksums=checksums, kind="workbook")
+    return Loaded(tuple(grids), notes=tuple(notes), left_out=tuple(left_out), checksums=checksums, kind="workbook")
 
 
 def _select_sheets(sheet: Any, titles: list[str], name: str) -> list[str]:
@@ -400,26 +580,6 @@ def _select_sheets(sheet: Any, titles: list[str], name: str) -> list[str]:
             hint = f"did you mean '{close[0]}'?" if close else f"sheets: {', '.join(titles)}"
             raise AgreeError(f"there is no sheet '{s}'", where=name, hint=hint, code="no-sheet")
     return out
-
-
-def _rows_to_grid(raw_rows: list[list], *, file: str, sheet: str) -> Grid | None:
-    """The block from the first to the last non-blank row; None when the sheet is blank."""
-    def blank(row):
-        return all(v is None or (isinstance(v, str) and v.strip() == "") for v in row)
-
-    start = next((i for i, r in enumerate(raw_rows) if not blank(r)), None)
-    if start is None:
-        return None
-    end = len(raw_rows)
-    while end > start and blank(raw_rows[end - 1]):
-        end -= 1
-    body = raw_rows[start:end]
-    width = max(len(r) for r in body)
-    body = [r + [None] * (width - len(r)) for r in body]
-    frame = pd.DataFrame(body[1:], columns=range(width), dtype=object) if len(body) > 1 else \
-        pd.DataFrame(columns=range(width), dtype=object)
-    rows = np.arange(start + 2, end + 1, dtype=np.int64)
-    return Grid(file, sheet, body[0], frame, rows, letters=True, kind="workbook")
 
 
 # -- parquet ----------------------------------------------------------------------------------

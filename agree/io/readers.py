@@ -50,7 +50,7 @@ from agree.core.model import LEVELS, AgreeError, CodingData, ReadReport
 from agree.io.assemble import assemble
 from agree.io.codebook import Codebook, as_codebook, read_codebook
 from agree.io.layouts import LAYOUT_OPTIONS, Build, choose_layout, refuse_consensus
-from agree.io.loaders import load_tables
+from agree.io.loaders import cell_limit, load_tables
 
 __all__ = ["read", "read_codebook", "Codebook", "LAYOUTS"]
 # Exported by the package as `agree.read`, `agree.read_codebook` and `agree.Codebook`.
@@ -63,7 +63,7 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
          code: str | Sequence[str] | None = None, text: str | None = None,
          sheet: str | int | Sequence[str] | None = None, sep: str | None = ";",
          codebook: Any = None, trim: bool = False, casefold: bool = False,
-         level: str | None = None, keep: Sequence[str] = ()) -> CodingData:
+         level: str | None = None, keep: Sequence[str] = (), max_cells: int | None = None) -> CodingData:
     """Read one or more coding tables into `CodingData`.
 
     Parameters
@@ -86,6 +86,10 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
     level : "nominal", "ordinal", "interval" or "ratio". When None: "ordinal" if the codebook
         has an order column, else "nominal" (reported in the notes).
     keep : other per-unit columns to keep in ``data.columns`` (e.g. a round or cluster column).
+    max_cells : the largest worksheet read, in cells (the rows holding values times the columns
+        holding values); larger sheets are refused before they are built. Default
+        ``agree.core.constants.MAX_SHEET_CELLS`` (20 million). Memory follows the cells that hold
+        values, never the size a sheet declares.
 
     Returns
     -------
@@ -102,6 +106,12 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
     An empty cell is missing: the coder did not code the unit. Units that no coder coded are
     kept (all missing). Numbers written ``1`` and ``1.0`` are the same code.
     """
+    with cell_limit(max_cells):
+        return _read(paths, layout=layout, unit=unit, coder=coder, code=code, text=text, sheet=sheet, sep=sep,
+                     codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep)
+
+
+def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim, casefold, level, keep) -> CodingData:
     files = [paths] if isinstance(paths, (str, Path)) else list(paths)
     if not files:
         raise AgreeError("no input files given", hint="name one or more files", code="no-input")

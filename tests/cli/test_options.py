@@ -83,3 +83,22 @@ def test_counts_and_engine_flags_score_as_the_library(tmp_path, capsys):
     code, out, err = run_main(capsys, "disagreements", tmp_path / "log-0.parquet", "--engine", "duckdb",
                               "-o", tmp_path / "r.csv")
     assert code == 2 and "one row per unit" in err
+
+
+def test_max_cells_applies_to_every_workbook_a_command_reads(tmp_path, capsys):
+    from tests.cli.conftest import run_main
+    from tests.io.xlsx import raw_xlsx, sheet_xml, table_rows
+
+    path = tmp_path / "coding.xlsx"
+    records = [[f"u{i}", "a" if i % 2 else "b", "a"] for i in range(10)]
+    path.write_bytes(raw_xlsx(sheet_xml(table_rows(["unit", "ann", "bo"], records))))
+    code, _, err = run_main(capsys, "score", path, "--boot", "0", "--max-cells", "20")
+    assert code == 2 and "Traceback" not in err
+    assert "coding.xlsx, sheet 'coding': the sheet is too large to read" in err and "--max-cells" in err
+    code, out, err = run_main(capsys, "score", path, "--boot", "0", "--max-cells", "33")
+    assert code == 0, err
+    corpus = tmp_path / "corpus.xlsx"
+    corpus.write_bytes(raw_xlsx(sheet_xml(table_rows(["unit_id", "text"], [[f"u{i}", f"t {i}"] for i in range(9)]))))
+    code, _, err = run_main(capsys, "sample", corpus, "-n", "3", "--coders", "a,b", "-o", tmp_path / "s",
+                            "--max-cells", "10")
+    assert code == 2 and "corpus.xlsx, sheet 'coding': the sheet is too large" in err
