@@ -698,7 +698,7 @@ def _no_independent_se(r: AgreementResult) -> AgreementResult:
     return replace(r, se=r.se if boot else None, se_method=r.se_method if boot else None,
                    ci_low=r.ci_low if boot else None, ci_high=r.ci_high if boot else None,
                    lower_bound=r.lower_bound if boot else None, ci_method=r.ci_method if boot else None,
-                   p_below_min=r.p_below_min if boot else None, z=None, p_value=None, p_value_one_sided=None,
+                   p_value_min=r.p_value_min if boot else None, z=None, p_value=None, p_value_one_sided=None,
                    details=details)
 
 

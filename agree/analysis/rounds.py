@@ -133,7 +133,7 @@ class DriftCheck:
     estimate: float
     ci_low: float | None
     ci_high: float | None
-    p_below_min: float | None
+    p_value_min: float | None
     minimum: float
     change: RoundChange
     drifted: bool
@@ -155,7 +155,7 @@ class DriftCheck:
 
     def to_dict(self) -> dict[str, Any]:
         return json_safe({"round": self.round, "reference": self.reference, "estimate": self.estimate,
-                       "ci_low": self.ci_low, "ci_high": self.ci_high, "p_below_min": self.p_below_min,
+                       "ci_low": self.ci_low, "ci_high": self.ci_high, "p_value_min": self.p_value_min,
                        "minimum": self.minimum, "change": self.change.to_dict(), "drifted": self.drifted,
                        "below_minimum": self.below_minimum,
                        "clearly_below_minimum": self.clearly_below_minimum, "verdict": self.verdict})
@@ -310,7 +310,7 @@ class RoundsResult:
         for r in self.rounds:
             for code, res in [(None, r.overall)] + list(r.per_code.items()):
                 rows.append({"round": r.round, "code": code, "estimate": res.estimate, "ci_low": res.ci_low,
-                             "ci_high": res.ci_high, "p_below_min": res.p_below_min, "n_units": res.n_units,
+                             "ci_high": res.ci_high, "p_value_min": res.p_value_min, "n_units": res.n_units,
                              "drift": r.drift, "definition_changed": code in r.changed_codes,
                              "status": None if code is None else r.code_status.get(code)})
         return pd.DataFrame(rows)
@@ -418,14 +418,14 @@ def _finite(x: Any) -> float | None:
 
 
 def _shown(independent: AgreementResult, row: Mapping[str, Any], diag: Any) -> AgreementResult:
-    """A code's α as shown for a round: estimate, interval, one-sided bound and share below
+    """A code's α as shown for a round: estimate, interval, one-sided bound and p-value against
     the minimum from `diagnose_codes` (with `seed`); the replicates kept for the differences
     between rounds are the independent ones. The SE is left out: the interval shown and the
     independent replicates come from different resamples."""
     boot = diag.bootstrap
     return _replace(independent, estimate=float(row["alpha"]), ci_low=_finite(row["ci_low"]),
                     ci_high=_finite(row["ci_high"]), lower_bound=_finite(row["lower_bound"]),
-                    p_below_min=_finite(row["p_below_min"]), se=None, se_method=None,
+                    p_value_min=_finite(row["p_value_min"]), se=None, se_method=None,
                     ci_method=boot.method if boot is not None else independent.ci_method, bootstrap=boot)
 
 
@@ -643,7 +643,7 @@ def compare_rounds(data_by_round: Mapping[str, Any] | CodingData, *, level: str 
         est = res.estimate
         drift = DriftCheck(
             round=drift_round, reference=reference, estimate=est, ci_low=res.ci_low, ci_high=res.ci_high,
-            p_below_min=res.p_below_min, minimum=minimum, change=ch,
+            p_value_min=res.p_value_min, minimum=minimum, change=ch,
             drifted=bool(ch.ci_high is not None and ch.ci_high < 0),
             below_minimum=bool(math.isfinite(est) and est < minimum),
             clearly_below_minimum=bool(res.ci_high is not None and math.isfinite(res.ci_high)

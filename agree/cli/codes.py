@@ -28,6 +28,7 @@ from agree.cli.options import (
 )
 from agree.core.cells import frame_csv
 from agree.core.constants import DEFAULT_MINIMUM
+from agree.core.constants import CI_METHODS
 
 if TYPE_CHECKING:
     from agree.analysis.diagnostics import CodeDiagnostics
@@ -47,7 +48,11 @@ def resampling_note(bootstrap, cluster: str | None, n_clusters: int | None) -> s
                 else f"whole clusters ({format_value(n_clusters, 'count')})")
     else:
         what = "units"
-    return (f"intervals: {bootstrap.method}, {format_value(bootstrap.replicates, 'count')} resamples of "
+    method = bootstrap.method
+    for key, words in CI_METHODS.items():
+        method = method.replace(key, words) if method.startswith(key) else method
+    draws = "draws over" if bootstrap.method.startswith("pseudo-unit") else "resamples of"
+    return (f"intervals: {method}, {format_value(bootstrap.replicates, 'count')} {draws} "
             f"{what}, seed {bootstrap.seed}")
 
 
@@ -71,7 +76,7 @@ def codes_command(
     """Which codes drive disagreement: per-code alpha, specific agreement, confusions, unequal use.
 
     Codes are listed worst first, each with a status and a short reason. A code is "ok" when
-    its one-sided 95% lower confidence bound reaches the minimum (the rule of `agree score
+    its one-sided 95% lower confidence bound is above the minimum (the rule of `agree score
     --min`), "uncertain" when only the estimate does.
 
     Example: agree codes samples/round1.csv --codebook samples/codebook.csv --cluster interview
@@ -149,7 +154,7 @@ def print_codes(result: "CodeDiagnostics", top: int) -> None:
     if len(table.columns) < 9:
         for row in frame.itertuples(index=False):
             stdout.print(f"#{row.rank} {row.code}: {row.reason}", highlight=False)
-    judged = (f"ok: the {bound} reaches the minimum (as for agree score --min); uncertain: only the "
+    judged = (f"ok: the {bound} is above the minimum (as for agree score --min); uncertain: only the "
               f"estimate does; † bound: the {bound} (3 decimals, rounded down where rounding would reach the minimum)"
               if result.bootstrap is not None else
               "no bootstrap (--boot 0): statuses compare the estimate, not an interval, with the minimum")

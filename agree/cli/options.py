@@ -54,8 +54,9 @@ class SetDistance(str, Enum):
 
 
 MinOption = Annotated[Optional[float], typer.Option(
-    "--min", min=-1.0, max=1.0, help="Minimum acceptable value (e.g. 0.8): adds the share of bootstrap resamples "
-                  "below it and whether the one-sided lower bound clears it. A convention, not a law.")]
+    "--min", min=-1.0, max=1.0, help="Minimum acceptable value (e.g. 0.8): adds whether the one-sided lower bound "
+                  "clears it (is above it) and the p-value of the coefficient at or below it. A convention, "
+                  "not a law.")]
 BootOption = Annotated[int, typer.Option(
     "--boot", min=0, help="Bootstrap replicates (units resampled with all their values); 0 for none.")]
 SeedOption = Annotated[int, typer.Option("--seed", help="Seed of the bootstrap; the same seed repeats the run.")]

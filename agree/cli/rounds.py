@@ -153,18 +153,20 @@ def rounds(
 
 
 def _print_rounds(result: Any) -> None:
-    from agree.core.format import format_interval, format_value
+    from agree.core.format import format_interval, format_value, p_min_label, p_min_note
 
     minimum = format_value(result.minimum, "threshold")
-    table = Table(title=f"Agreement per round (Krippendorff's α, {result.level})", title_justify="left")
-    for header in ("Round", "Units", "α", f"{percent(result.confidence_level, None)} CI", f"P(below {minimum})",
+    table = Table(title=f"Agreement per round (Krippendorff's α, {result.level})", title_justify="left",
+                  caption=p_min_note(result.minimum, result.confidence_level, resampled=bool(result.n_resamples)),
+                  caption_justify="left")
+    for header in ("Round", "Units", "α", f"{percent(result.confidence_level, None)} CI", p_min_label(result.minimum),
                    f"Codes below {minimum}"):
         table.add_column(header, justify="left" if header in ("Round", f"Codes below {minimum}") else "right")
     for r in result.rounds:
         below = r.codes_below(result.minimum) + [f"{c} (too rare)" for c in r.too_rare]
         table.add_row(r.round + (" (drift)" if r.drift else ""), format_value(r.n_units, "count"),
                       format_value(r.overall.estimate), format_interval(r.overall.ci_low, r.overall.ci_high),
-                      format_value(r.overall.p_below_min, "probability"), ", ".join(below) or "none")
+                      format_value(r.overall.p_value_min, "probability"), ", ".join(below) or "none")
     stdout.print(table)
     codes = Table(title="Per code (presence/absence α)", title_justify="left")
     codes.add_column("Code")

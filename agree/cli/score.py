@@ -28,6 +28,7 @@ from agree.cli.options import (
     reading_options,
 )
 from agree.core.cells import csv_text
+from agree.core.constants import CI_METHODS
 from agree.core.errors import AgreeError
 from agree.core.registry import display_name, skipped_by_reason
 
@@ -36,11 +37,15 @@ if TYPE_CHECKING:
 
 
 class CIMethod(str, Enum):
+    pseudo_unit = "pseudo-unit"
     bca = "bca"
     percentile = "percentile"
 
 
-CIMethodOption = Annotated[CIMethod, typer.Option("--ci-method", help="Bootstrap interval: bca or percentile.")]
+CIMethodOption = Annotated[CIMethod, typer.Option(
+    "--ci-method", help="How intervals and bounds are made: pseudo-unit (Bayesian bootstrap with a "
+                        "least-favourable unit; keeps its level with few units and high agreement), "
+                        "or the ordinary bootstrap's bca or percentile, for comparison.")]
 
 
 
@@ -54,7 +59,7 @@ def score(
     boot: BootOption = DEFAULT_BOOT,
     seed: SeedOption = DEFAULT_SEED,
     ci: CIOption = 0.95,
-    ci_method: CIMethodOption = CIMethod.bca,
+    ci_method: CIMethodOption = CIMethod.pseudo_unit,
     output_format: FormatOption = TableFormat.table,
     cluster: ClusterOption = None,
     *,
@@ -89,16 +94,16 @@ def score(
 def score_csv(result: "ScoreResult") -> str:
     """The coefficients as CSV, by agree's one CSV writer (`agree.core.cells`)."""
     header = ["coefficient", "estimate", "se", "ci_low", "ci_high", "confidence_level", "ci_method",
-              "p_below_min", "lower_bound", "n_units", "n_coders", "level", "weights"]
+              "lower_bound", "p_value_min", "n_units", "n_coders", "level", "weights"]
     rows = ([name] + [None if isinstance(v, float) and not math.isfinite(v) else v for v in
                       (r.estimate, r.se, r.ci_low, r.ci_high, r.confidence_level, r.ci_method,
-                       r.p_below_min, r.lower_bound, r.n_units, r.n_coders, result.level, r.weights)]
+                       r.lower_bound, r.p_value_min, r.n_units, r.n_coders, result.level, r.weights)]
             for name, r in result.coefficients.items())
     return csv_text(header, rows)
 
 
 def print_score(result: "ScoreResult") -> None:
-    from agree.core.format import format_interval, format_value, result_label
+    from agree.core.format import format_bound, format_interval, format_value, p_min_label, p_min_note, result_label
 
     pct = percent(result.confidence_level, None)
     title = (f"Agreement: {result.units_used} units, {len(result.coders)} coders "
@@ -109,24 +114,31 @@ def print_score(result: "ScoreResult") -> None:
     table.add_column("SE", justify="right")
     table.add_column(f"{pct} CI", justify="right")
     if result.minimum is not None:
-        table.add_column(f"P(< {format_value(result.minimum, 'threshold')})", justify="right")
+        table.add_column("bound†", justify="right")
+        table.add_column(p_min_label(result.minimum), justify="right")
     for r in result.coefficients.values():
         ci = format_interval(r.ci_low, r.ci_high, 3)
         row = [result_label(r, result.level), format_value(r.estimate, digits=3), format_value(r.se, "se", 3), ci]
         if result.minimum is not None:
-            row.append(format_value(r.p_below_min, "probability"))
+            row.append(format_bound(r.lower_bound, result.minimum))
+            row.append(format_value(r.p_value_min, "probability"))
         table.add_row(*row)
     stdout.print(table)
     over = ("units" if result.resampled == "unit" else
             f"whole groups of '{result.resampled.partition(':')[2]}'" if ":" in result.resampled else "whole groups")
-    boot = (f"{result.n_resamples} bootstrap replicates over {over} ({result.ci_method}), seed {result.seed}"
-            if result.n_resamples else "no bootstrap; analytic intervals where published"
-            + (f"; P(< {format_value(result.minimum, 'threshold')}) is then the normal approximation from the "
-               "analytic SE, not a share of resamples" if result.minimum is not None else ""))
+    how = CI_METHODS.get(result.ci_method, result.ci_method)
+    boot = (f"{how}, {result.n_resamples} {'draws' if result.ci_method == 'pseudo-unit' else 'resamples'} "
+            f"over {over}, seed {result.seed}" if result.n_resamples else
+            "no resampling; analytic intervals where published (normal or t approximation, Wilson for "
+            "two coders' percent agreement)")
     se_rule = ("the bootstrap SD (published SEs assume independent units)" if result.resampled != "unit"
                else "analytic where published, else the bootstrap SD" if result.n_resamples
                else "analytic where published, else none (no bootstrap)")
     stdout.print(f"Intervals: {boot}. SE: {se_rule}.", highlight=False)
+    if result.minimum is not None:
+        stdout.print(f"† bound: the one-sided {pct} lower bound, which decides against the minimum (it clears it "
+                     "when above it). " + p_min_note(result.minimum, result.confidence_level,
+                                                     resampled=bool(result.n_resamples)), highlight=False)
     stdout.print(f"Units: {result.units_read} read, {result.units_used} used, {result.units_read - result.units_used} left out "
                  f"(fewer than two coders). Values: {result.values_read} read, {result.values_missing} empty cells.",
                  highlight=False)

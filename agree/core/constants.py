@@ -20,8 +20,15 @@ MIN_UNITS_PER_CODE = 5
 DEFAULT_RESAMPLES = 2000
 #: Confidence level of intervals and of the one-sided lower bound.
 DEFAULT_CONFIDENCE = 0.95
-#: Bootstrap interval method.
-DEFAULT_CI_METHOD = "bca"
+#: Interval methods, by the name options take, with the words outputs use for them
+#: (`agree.stats.resampling` describes each). "pseudo-unit" decides by default everywhere.
+CI_METHODS = {
+    "pseudo-unit": "Bayesian bootstrap with a least-favourable pseudo-unit",
+    "bca": "BCa bootstrap",
+    "percentile": "percentile bootstrap",
+}
+#: Interval method (the one-sided bound that decides against a minimum comes from it).
+DEFAULT_CI_METHOD = "pseudo-unit"
 #: The seed the commands use unless told otherwise (the library draws and records one when
 #: given seed=None), so every command repeats exactly.
 DEFAULT_SEED = 1

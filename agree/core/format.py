@@ -27,6 +27,7 @@ from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
+from agree.core.constants import CI_METHODS
 from agree.core.registry import ORDERED_LEVELS, coefficient
 
 if TYPE_CHECKING:
@@ -256,17 +257,50 @@ def _coef(x: float, digits: int) -> str:
     return format_value(x, "coefficient", digits)
 
 
+_APPROXIMATIONS = {"wilson": "Wilson score bound, no resampling",
+                   "wald": "normal approximation from the analytic SE, no resampling",
+                   "t": "t approximation from the analytic SE, no resampling"}
+
+
+def bound_method(result: "AgreementResult") -> str:
+    """How a result's interval and bound were made, in words: "Bayesian bootstrap with a
+    least-favourable pseudo-unit, 2,000 draws", "BCa bootstrap, 2,000 resamples of whole
+    interview groups", "t approximation from the analytic SE, no resampling"."""
+    method = result.ci_method or ""
+    if method in _APPROXIMATIONS:
+        return _APPROXIMATIONS[method]
+    words = CI_METHODS.get(method, method.replace("_", " "))
+    b = result.bootstrap
+    if b is None:
+        return words
+    what = "draws" if b.method == "pseudo-unit" else "resamples"
+    if b.unit != "unit":
+        group = b.unit.partition(":")[2]
+        what += f" of whole {group} groups" if group else " of whole groups"
+    return f"{words}, {b.replicates:,} {what}"
+
+
 def decision_sentence(result: "AgreementResult", minimum: float, confidence_level: float | None = None,
                       *, digits: int = DEFAULT_DIGITS) -> str:
-    """Whether a coefficient's lower confidence bound clears a minimum, as one sentence.
+    """Whether a coefficient's lower confidence bound clears a minimum, as one sentence that
+    says what the bound rests on.
 
     Uses the one-sided lower bound (`result.lower_bound`) when there is one, else the lower end
-    of the two-sided interval, and says which. "Clears" means strictly above the minimum. When
-    rounding would show the bound and the minimum as equal, more digits are shown.
+    of the two-sided interval, and says which and how it was made (`bound_method`). "Clears"
+    means strictly above the minimum (`agree.core.results.reaches_minimum`, the rule of every
+    output): a bound equal to the minimum does not clear it. When rounding would show the
+    bound and the minimum as equal, more digits are shown. With no disagreement among the
+    units (``details["disagreeing_units"] == 0``) the sentence says so first, and with fewer
+    than five disagreeing units that the bound rests mainly on their number.
 
-    Examples: "alpha = .843; the one-sided 95% lower bound .801 clears the minimum .800"; a bound
-    of .8003 is shown as ".8003 clears the minimum .8000" rather than as equal to it.
+    Examples: "alpha = .913; the one-sided 95% lower bound .831 (Bayesian bootstrap with a
+    least-favourable pseudo-unit, 2,000 draws) clears the minimum .800"; "alpha = 1.000: no
+    disagreement among the 20 units; with so few units the one-sided 95% lower bound .717
+    (...) does not clear the minimum .800"; a bound of .8003 is shown as ".8003 clears the
+    minimum .8000" rather than as equal to it.
     """
+    from agree.core.results import reaches_minimum
+
     row = coefficient(result.name)
     name = row.sentence_name if row is not None else result.name.replace("_", " ")
     level = result.confidence_level if confidence_level is None else confidence_level
@@ -280,10 +314,45 @@ def decision_sentence(result: "AgreementResult", minimum: float, confidence_leve
     else:
         return (f"{name} = {_coef(estimate, digits)}; no confidence bound is available, so the minimum "
                 f"{_coef(minimum, digits)} cannot be tested")
-    clears = bound > minimum
+    clears = reaches_minimum(bound, minimum)
     shown = digits
     while shown < 4 and bound != minimum and _coef(bound, shown) == _coef(minimum, shown):
         shown += 1
     verb = "clears" if clears else "does not clear"
-    return (f"{name} = {_coef(estimate, shown)}; {kind} {_coef(bound, shown)} {verb} the minimum "
-            f"{_coef(minimum, shown)}")
+    how = bound_method(result)
+    how = f" ({how})" if how else ""
+    rest = f"{kind} {_coef(bound, shown)}{how} {verb} the minimum {_coef(minimum, shown)}"
+    if bound == minimum:
+        rest = (f"{kind} {_coef(bound, shown)}{how} equals the minimum {_coef(minimum, shown)}, "
+                "so it does not clear it")
+    d = result.details.get("disagreeing_units") if result.details else None
+    n = result.n_units
+    if d == 0 and n:
+        few = "with so few units " if not clears else ""
+        return f"{name} = {_coef(estimate, shown)}: no disagreement among the {n:,} units; {few}{rest}"
+    text = f"{name} = {_coef(estimate, shown)}; {rest}"
+    if d is not None and 0 < d < 5 and n:
+        text += (f"; with only {d} of {n:,} units disagreeing, the bound rests mainly on how many "
+                 "units disagree")
+    return text
+
+
+def p_min_label(minimum: float, *, markup: bool = False) -> str:
+    """The column heading of the p-value against the minimum: ``p(≤ .800)`` (markup: *p*)."""
+    return f"{'*p*' if markup else 'p'}(≤ {format_value(minimum, 'threshold')})"
+
+
+def p_min_note(minimum: float, confidence_level: float, *, resampled: bool = True, markup: bool = False) -> str:
+    """What the p-value column against the minimum is, in one sentence for a table's note: the
+    one-sided p-value of the coefficient at or below the minimum, from the same draws as the
+    bound (or, without resampling, from the analytic approximation), never a substitute for it."""
+    label = p_min_label(minimum, markup=markup)
+    eps = format_value(1 - confidence_level, "probability")
+    source = ("read off the same draws as the one-sided lower bound (with the pseudo-unit method the "
+              f"posterior probability that the coefficient is at or below {format_value(minimum, 'threshold')})"
+              if resampled else
+              "from the normal or t approximation with the analytic SE (the score test for the Wilson bound); "
+              "none where no analytic SE is published")
+    return (f"{label}: one-sided p-value of the coefficient being at or below the minimum, {source}; "
+            f"the bound clears the minimum exactly when {'*p*' if markup else 'p'} < {eps}. "
+            "The decision rests on the bound.")

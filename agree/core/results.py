@@ -20,13 +20,26 @@ class Note:
         return {"code": self.code, "message": self.message}
 
 
+def reaches_minimum(bound: float | None, minimum: float) -> bool | None:
+    """The one rule for deciding against a minimum, used by every output: a lower confidence
+    bound *reaches* (clears) the minimum when it is strictly above it. A bound equal to the
+    minimum leaves the minimum inside the one-sided interval, so the data do not exclude a
+    coefficient at the minimum. None when there is no bound (None or NaN).
+
+    The point estimate is compared as Krippendorff's convention writes it (α ≥ .800) only to
+    label where an estimate stands; decisions rest on the bound."""
+    if bound is None or not math.isfinite(float(bound)):
+        return None
+    return bool(float(bound) > float(minimum))
+
+
 @dataclass(frozen=True)
 class BootstrapInfo:
     """How an interval was resampled, recorded so it can be reported and repeated."""
 
     replicates: int
     seed: int | None
-    method: str              # "bca" or "percentile"
+    method: str              # "pseudo-unit", "bca" or "percentile" (agree.core.constants.CI_METHODS)
     unit: str = "unit"       # "unit", or "cluster:<column>" when whole groups were resampled
     n_undefined: int = 0     # replicates where the coefficient was undefined (left out)
 
@@ -61,9 +74,15 @@ class AgreementResult:
     `se` is the analytic standard error where a published estimator exists (`se_method`
     names it), otherwise the bootstrap standard deviation, otherwise None.
     `ci_low`/`ci_high` is a two-sided interval at `confidence_level`, made by `ci_method`.
-    `lower_bound` is the one-sided lower confidence bound at the same level (bootstrap).
-    `p_below_min` is the share of bootstrap replicates below `minimum`; without a bootstrap,
-    where an analytic SE exists, it is the normal (or t) approximation P(θ < minimum).
+    `lower_bound` is the one-sided lower confidence bound at the same level; it decides
+    against `minimum` (`reaches_minimum`: strictly above).
+    `p_value_min` is the one-sided p-value for H0: θ ≤ `minimum`, read off the same draws as
+    the bound (the level at which the bound equals the minimum), so the bound clears the
+    minimum exactly when `p_value_min` < 1 - `confidence_level`. With the pseudo-unit method it
+    is the Bayesian-bootstrap posterior probability P(θ ≤ minimum); without a bootstrap, where
+    an analytic SE exists, the normal (or t) approximation Φ((minimum - θ̂)/SE); with the
+    Wilson interval the score test. (It replaces `p_below_min`, the raw share of resamples
+    below the minimum, which could contradict the bound.)
     Kappa-type results carry `z`, `p_value` (two-sided) and `p_value_one_sided` for
     H0: no agreement beyond chance.
     `replicates` holds the bootstrap values the interval was made from (not in `to_dict()`),
@@ -88,7 +107,7 @@ class AgreementResult:
     p_value: float | None = None
     p_value_one_sided: float | None = None
     minimum: float | None = None
-    p_below_min: float | None = None
+    p_value_min: float | None = None
     lower_bound: float | None = None
     bootstrap: BootstrapInfo | None = None
     details: Mapping[str, Any] = field(default_factory=dict)
@@ -119,7 +138,7 @@ class AgreementResult:
             "p_value": self.p_value,
             "p_value_one_sided": self.p_value_one_sided,
             "minimum": self.minimum,
-            "p_below_min": self.p_below_min,
+            "p_value_min": self.p_value_min,
             "lower_bound": self.lower_bound,
             "bootstrap": None if self.bootstrap is None else self.bootstrap.to_dict(),
             "details": dict(self.details),
@@ -134,7 +153,7 @@ class AgreementResult:
         row = {"estimate": self.estimate, "se": self.se, "ci_low": self.ci_low, "ci_high": self.ci_high,
                "n_units": self.n_units, "n_coders": self.n_coders}
         if self.minimum is not None:
-            row.update(minimum=self.minimum, p_below_min=self.p_below_min, lower_bound=self.lower_bound)
+            row.update(minimum=self.minimum, lower_bound=self.lower_bound, p_value_min=self.p_value_min)
         how = [f"level {self.level}" if self.level else "", f"{self.weights} weights" if self.weights else "",
                f"SE: {self.se_method}" if self.se_method else "",
                f"{percent_label(self.confidence_level)} CI: {self.ci_method}" if self.ci_method else ""]

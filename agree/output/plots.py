@@ -33,6 +33,7 @@ from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, Scalar
 from agree.core.constants import TENTATIVE  # noqa: E402
 from agree.core.files import atomic_write  # noqa: E402
 from agree.core.format import DEFAULT_DIGITS, format_value, percent_label  # noqa: E402
+from agree.core.results import reaches_minimum  # noqa: E402
 
 # Okabe & Ito (2008), "Color universal design": black first, then the seven colours.
 OKABE_ITO = ("#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7")
@@ -226,7 +227,7 @@ def judged_status(estimate: float | None, bound: float | None, minimum: float) -
 
 def _status_marker(estimate: float, low: float | None, minimum: float) -> tuple[str, str]:
     if estimate >= minimum:
-        return ("o", OKABE_ITO[5]) if _finite(low) and low >= minimum else ("o", "white")
+        return ("o", OKABE_ITO[5]) if reaches_minimum(low, minimum) else ("o", "white")
     if estimate >= TENTATIVE:
         return "s", "white"
     return "^", "white"
@@ -234,7 +235,7 @@ def _status_marker(estimate: float, low: float | None, minimum: float) -> tuple[
 
 MARKER_LEGEND = ("Each code's bar is its one-sided confidence interval, from its lower bound (the tick) up; the "
                  "status is judged on that bound, as in the per-code table. Markers (the estimate): filled circle, "
-                 "ok (the bound reaches the minimum); open circle, uncertain (the estimate does, the bound does "
+                 "ok (the bound is above the minimum); open circle, uncertain (the estimate does, the bound does "
                  "not); triangle, below the minimum; diamond, too rare to judge.")
 
 

@@ -47,12 +47,12 @@ from agree.core.seeds import make_rng
 from agree.stats.kernels import alpha_features, alpha_finish, coincidences, level_delta, set_delta
 from agree.stats.patterns import Patterns, cluster_sums, compress
 from agree.stats.resampling import (
-    bootstrap_interval,
-    bootstrap_replicates,
+    PseudoUnits,
     check_settings,
-    jackknife_values,
+    interval_of,
     norm_cdf,
     norm_ppf,
+    resample,
     resolve_clusters,
 )
 
@@ -443,30 +443,42 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
             details[key] = extra[key]
     se = extra.get("se")
     se_method = extra.get("se_method")
-    ci_low = ci_high = lower = p_below = None
+    ci_low = ci_high = lower = p_min = None
     method = None
     boot = None
     reps = None
+    n_used = int(counts[_used_patterns(pat, stat)].sum()) if len(counts) else 0
+    disagreeing = disagreeing_units(pat, stat) if len(counts) else 0
+    details["disagreeing_units"] = disagreeing
     if n_resamples and n_resamples > 0 and len(counts) and np.isfinite(estimate):
         rng, used_seed = make_rng(seed)
+        scale = 1.0
         if clusters is not None:
             items, n_items = cluster_sums(F, pat.inverse, clusters, unit_w)
             item_counts = np.ones(n_items, dtype=np.int64)
+            scale = float(counts.sum()) / n_items    # a pseudo-cluster of the mean cluster size
         else:
             items, item_counts = F, counts
-        reps = bootstrap_replicates(items, item_counts, stat.finish, int(n_resamples), rng)
-        jack = jackknife_values(items, item_counts, stat.finish) if ci_method == "bca" else None
-        iv = bootstrap_interval(estimate, reps, confidence_level=confidence_level, method=ci_method,
-                                jack=jack, jack_weights=item_counts, minimum=minimum)
-        ci_low, ci_high, lower, p_below, method = iv.low, iv.high, iv.lower_bound, iv.p_below_min, iv.method
+        space = pseudo_units(stat, pat, scale=scale) if ci_method == "pseudo-unit" else None
+        bounds = resample(items, item_counts, stat.finish, method=ci_method, n_resamples=int(n_resamples),
+                          confidence_level=confidence_level, rng=rng, minimum=minimum, pseudo=space,
+                          keep_replicates=True)
+        iv = interval_of(bounds, minimum=minimum, disagreeing=disagreeing, n_items=n_used)
+        reps = bounds.replicates[:, 0, 0]
+        ci_low, ci_high, lower, p_min, method = iv.low, iv.high, iv.lower_bound, iv.p_value_min, iv.method
         warnings.extend(iv.notes)
+        if iv.pseudo_unit is not None:
+            details["pseudo_unit"] = _describe_unit(iv.pseudo_unit, data, stat.ordered)
+            if scale != 1.0:
+                details["pseudo_cluster_units"] = scale
+        how = "bootstrap standard deviation"
         if clusters is not None:
             # published SEs assume independent units; with groups resampled the bootstrap SD is the SE
             if se is not None:
                 details["se_independent_units"] = se
-            se, se_method = iv.se, "bootstrap standard deviation (whole groups resampled)"
+            se, se_method = iv.se, f"{how} (whole groups resampled)"
         elif se is None:
-            se, se_method = iv.se, "bootstrap standard deviation"
+            se, se_method = iv.se, how
         boot = BootstrapInfo(replicates=int(n_resamples), seed=used_seed, method=iv.method,
                              unit=unit_label, n_undefined=iv.n_undefined)
         if clusters is not None and n_items < FEW_CLUSTERS:
@@ -477,6 +489,8 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         ci_low, ci_high = _wilson(estimate, n, confidence_level)
         lower = _wilson(estimate, n, 1 - 2 * (1 - confidence_level))[0]
         se, se_method, method = float(np.sqrt(estimate * (1 - estimate) / n)), "binomial", "wilson"
+        if minimum is not None:
+            p_min = _score_test(estimate, n, minimum, lower)
     elif se is not None and np.isfinite(estimate):
         eps = 1 - confidence_level
         df = extra.get("df")
@@ -495,22 +509,58 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         method = "t" if df else "wald"
         if minimum is not None and se > 0:
             t = (minimum - estimate) / se
-            p_below = float(special.stdtr(df, t) if df else norm_cdf(t))
+            p_min = float(special.stdtr(df, t) if df else norm_cdf(t))
     z = p_two = p_one = None
     se0 = details.get("se0")
     if se0 and np.isfinite(estimate) and se0 > 0:
         z = estimate / se0
         p_two, p_one = float(2 * norm_cdf(-abs(z))), float(norm_cdf(-z))
         details["z_method"] = "kappa / SE under H0 (Fleiss, Cohen & Everitt 1969)"
-    n_used = int(counts[_used_patterns(pat, stat)].sum()) if len(counts) else 0
     return AgreementResult(
         name=stat.name, estimate=estimate, se=se, se_method=se_method, ci_low=ci_low, ci_high=ci_high,
         confidence_level=confidence_level, ci_method=method, n_units=n_used, n_coders=data.n_coders,
         n_values=_n_values(pat, stat),
         n_categories=n_categories if n_categories is not None else len(data.values),
         level=level, weights=weights, z=z, p_value=p_two, p_value_one_sided=p_one, minimum=minimum,
-        p_below_min=p_below, lower_bound=lower, bootstrap=boot, details=details, warnings=tuple(warnings),
+        p_value_min=p_min, lower_bound=lower, bootstrap=boot, details=details, warnings=tuple(warnings),
         replicates=reps)
+
+
+def pseudo_units(stat: _Statistic, pat: Patterns, *, scale: float = 1.0) -> PseudoUnits:
+    """The units a pseudo-unit of `stat` may be: every tuple of values of the coders (ordered
+    statistics), or every multiset of 1 up to the most values any unit has (the others); each
+    turned into features by the statistic itself. `scale` > 1 makes it a pseudo-cluster."""
+    V = pat.n_values
+    m = pat.codes.shape[1]
+    width = m if stat.ordered else max(2, int((pat.codes >= 0).sum(axis=1).max(initial=2)))
+
+    def features(rows: np.ndarray) -> np.ndarray:
+        return stat.features(Patterns(np.asarray(rows, np.int32), np.ones(len(rows), np.int64), None, V))
+
+    return PseudoUnits(features=features, n_values=V, width=width, ordered=stat.ordered, scale=scale)
+
+
+def disagreeing_units(pat: Patterns, stat: _Statistic) -> int:
+    """Units (of those the statistic uses) whose values are not all alike."""
+    seen = pat.codes >= 0
+    high = np.where(seen, pat.codes, -1).max(axis=1, initial=-1)
+    low = np.where(seen, pat.codes, np.iinfo(np.int32).max).min(axis=1, initial=np.iinfo(np.int32).max)
+    return int(pat.counts[_used_patterns(pat, stat) & (high != low)].sum())
+
+
+def _describe_unit(row: Sequence[int], data: CodingData, ordered: bool) -> Any:
+    """The pseudo-unit for the record: the coders' values (ordered) or the list of values."""
+    if ordered:
+        return {c: value_label(data.values[v]) if v >= 0 else None for c, v in zip(data.coders, row)}
+    return [value_label(data.values[v]) for v in row if v >= 0]
+
+
+def _score_test(estimate: float, n: float, minimum: float, lower: float) -> float:
+    """One-sided p-value of the score test of H0: p <= minimum, the test the Wilson bound
+    inverts (so the bound clears the minimum exactly when this is below 1 - level)."""
+    if 0 < minimum < 1:
+        return float(norm_cdf(-(estimate - minimum) / np.sqrt(minimum * (1 - minimum) / n)))
+    return 0.0 if lower > minimum else 1.0
 
 
 def _used_patterns(pat: Patterns, stat: _Statistic) -> np.ndarray:
@@ -545,25 +595,32 @@ _COMMON_PARAMETERS = """
         AC1 and Brennan-Prediger). By default the data's own values; a codebook read with the
         data fixes them.
     confidence_level : float
-        Level of the two-sided interval (default 0.95).
+        Level of the two-sided interval and of the one-sided lower bound (default 0.95).
     n_resamples : int
-        Bootstrap replicates (units resampled with all their values); 0 for none, in which
-        case the interval is analytic where a published SE exists.
-    ci_method : {{"bca", "percentile"}}
-        Bootstrap interval (default BCa).
+        Resamples (units drawn with all their values); 0 for none, in which case the interval
+        is analytic where a published SE exists.
+    ci_method : {{"pseudo-unit", "bca", "percentile"}}
+        How the interval and the bound are made (`agree.stats.resampling`). "pseudo-unit"
+        (default): Rubin's Bayesian bootstrap with one least-favourable unit added, which
+        keeps its level with few units and high agreement; "bca" and "percentile": the
+        ordinary unit bootstrap, for comparison.
     seed : int, optional
-        Seed of the bootstrap; None draws one and records it in the result.
+        Seed of the resampling; None draws one and records it in the result.
     minimum : float, optional
-        A minimum acceptable value: the result gives the share of replicates below it and
-        the one-sided lower bound to compare with it.
+        A minimum acceptable value: the result gives the one-sided lower bound that decides
+        against it (it reaches the minimum when strictly above) and the p-value of
+        θ ≤ minimum from the same draws.
     cluster : array or str, optional
-        Per-unit group labels, or the name of a kept column: whole groups are resampled.
+        Per-unit group labels, or the name of a kept column: whole groups are resampled (the
+        pseudo-unit is then a group of the mean size).
 
     Returns
     -------
     AgreementResult
         Estimate (NaN with a warning when undefined), SE and how it was obtained, interval,
-        one-sided lower bound, share below the minimum, counts, bootstrap record and warnings.
+        one-sided lower bound, p-value against the minimum, counts, bootstrap record and
+        warnings; details["disagreeing_units"] counts the units whose values differ and
+        details["pseudo_unit"] records the least-favourable unit.
 """
 
 _SPECIFIC = {

@@ -12,7 +12,7 @@ from agree.core.constants import DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_
 from agree.core.format import format_value, percent_label
 from agree.core.model import LEVELS, AgreeError, CodingData, value_label
 from agree.core.registry import display_name, family, skipped_by_reason, standard_set
-from agree.core.results import AgreementResult, Note, json_safe
+from agree.core.results import AgreementResult, Note, json_safe, reaches_minimum
 from agree.core.seeds import draw_seed
 from agree.stats import coefficients as coef
 
@@ -51,19 +51,24 @@ class ScoreResult:
         return next(iter(self.coefficients), "")
 
     def decision(self) -> dict[str, Any] | None:
-        """Against the minimum: the one-sided lower bound, whether it clears the minimum, the
-        probability of lying below it, and the sentence saying so (None without a minimum)."""
+        """Against the minimum: the one-sided lower bound and how it was made, whether it clears
+        the minimum (strictly above it: `agree.core.results.reaches_minimum`), the p-value of
+        the coefficient at or below the minimum from the same draws, the units whose values
+        differ, and the sentence saying so (None without a minimum)."""
         if self.minimum is None or self.primary not in self.coefficients:
             return None
-        from agree.core.format import decision_sentence
+        from agree.core.format import bound_method, decision_sentence
 
         r = self.coefficients[self.primary]
         bound = r.lower_bound if r.lower_bound is not None and math.isfinite(r.lower_bound) else None
         return json_safe({
             "coefficient": self.primary, "minimum": self.minimum, "estimate": r.estimate, "lower_bound": bound,
-            "bound": None if bound is None else f"one-sided {percent_label(self.confidence_level)} lower bound ({r.ci_method})",
-            "clears_minimum": None if bound is None else bool(bound > self.minimum),
-            "p_below_min": r.p_below_min, "sentence": decision_sentence(r, self.minimum),
+            "bound": None if bound is None else
+            f"one-sided {percent_label(self.confidence_level)} lower bound ({bound_method(r)})",
+            "clears_minimum": reaches_minimum(bound, self.minimum),
+            "rule": "clears = lower bound strictly above the minimum",
+            "p_value_min": r.p_value_min, "disagreeing_units": r.details.get("disagreeing_units"),
+            "sentence": decision_sentence(r, self.minimum),
         })
 
     def to_dict(self) -> dict[str, Any]:
@@ -92,7 +97,7 @@ class ScoreResult:
 
         return pd.DataFrame([{
             "coefficient": display_name(name), "estimate": r.estimate, "se": r.se, "ci_low": r.ci_low,
-            "ci_high": r.ci_high, "p_below_min": r.p_below_min, "lower_bound": r.lower_bound,
+            "ci_high": r.ci_high, "lower_bound": r.lower_bound, "p_value_min": r.p_value_min,
             "n_units": r.n_units, "weights": r.weights or ("" if family(name) in ("alpha", "percent") else "unweighted"),
             "se_method": r.se_method, "ci_method": r.ci_method} for name, r in self.coefficients.items()])
 

@@ -248,16 +248,22 @@ def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, conf
         if not np.isfinite(est):
             notes.append(Note("undefined", "Krippendorff's alpha for unitizing is undefined: no unit of this code "
                               "(no expected disagreement)."))
-        low = high = lower = p_below = se = None
+        low = high = lower = p_min = se = None
         method = boot = None
         reps = None
         if draws is not None and np.isfinite(est):
             reps = _alpha(sums, draws, m)
-            iv = bootstrap_interval(est, reps, confidence_level=confidence_level, method=ci_method,
-                                    jack=_alpha(sums, jack, m) if ci_method == "bca" else None,
+            # no pseudo-unit here: a document has no least favourable content to add
+            boot_method = "bca" if ci_method == "pseudo-unit" else ci_method
+            iv = bootstrap_interval(est, reps, confidence_level=confidence_level, method=boot_method,
+                                    jack=_alpha(sums, jack, m) if boot_method == "bca" else None,
                                     jack_weights=np.ones(D), minimum=minimum)
-            low, high, lower, p_below, method, se = iv.low, iv.high, iv.lower_bound, iv.p_below_min, iv.method, iv.se
+            low, high, lower, p_min, method, se = iv.low, iv.high, iv.lower_bound, iv.p_value_min, iv.method, iv.se
             notes.extend(iv.notes)
+            if boot_method != ci_method:
+                notes.append(Note("no-pseudo-unit", "Unitizing alpha has no least-favourable pseudo-unit (a "
+                                  "document has no worst content to add), so its interval is the BCa bootstrap "
+                                  "of whole documents, which can fall short of its level with few documents."))
             boot = BootstrapInfo(replicates=int(n_resamples), seed=used_seed, method=iv.method,
                                  unit="cluster:document", n_undefined=iv.n_undefined)
             if D < 20:
@@ -268,7 +274,7 @@ def unitizing_alpha(spans: SpanData, *, codes: Sequence[str] | None = None, conf
             name=NAME, estimate=est, se=se, se_method="bootstrap standard deviation (whole documents resampled)"
             if se is not None else None, ci_low=low, ci_high=high, confidence_level=confidence_level,
             ci_method=method, n_units=n_units, n_coders=m, n_values=total_units, n_categories=len(sums),
-            level="unitizing", minimum=minimum, p_below_min=p_below, lower_bound=lower, bootstrap=boot,
+            level="unitizing", minimum=minimum, p_value_min=p_min, lower_bound=lower, bootstrap=boot,
             details={"method": METHOD, "experimental": True, "continuum_length": int(spans.lengths.sum()),
                      "documents": D, "units": n_units}, warnings=tuple(notes), replicates=reps)
     return out

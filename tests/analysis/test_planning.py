@@ -342,37 +342,6 @@ def test_several_problems_reported_together():
 
 # -- decision text ----------------------------------------------------------------------------------
 
-def _result(estimate, lower=None, ci_low=None, level=0.95):
-    return AgreementResult(name="krippendorff_alpha", estimate=estimate, lower_bound=lower,
-                           ci_low=ci_low, confidence_level=level)
-
-
-def test_decision_sentence_clears():
-    text = decision_sentence(_result(0.84, lower=0.81), 0.8, 0.95)
-    assert text == "alpha = .840; the one-sided 95% lower bound .810 clears the minimum .800"   # three decimals
-
-
-def test_decision_sentence_does_not_clear():
-    text = decision_sentence(_result(0.84, lower=0.77), 0.8, 0.95)
-    assert text == "alpha = .840; the one-sided 95% lower bound .770 does not clear the minimum .800"
-
-
-def test_decision_sentence_shows_digits_that_decide():
-    text = decision_sentence(_result(0.84, lower=0.8003), 0.8, 0.95)
-    assert "lower bound .8003 clears the minimum .8000" in text
-    text = decision_sentence(_result(0.84, lower=0.7996), 0.8, 0.95)
-    assert "does not clear" in text and ".7996" in text
-
-
-def test_decision_sentence_two_sided_fallback_and_undefined():
-    text = decision_sentence(_result(0.9, ci_low=0.85, level=0.9), 0.8)
-    assert "the lower end of the two-sided 90% interval .850 clears the minimum .800" in text
-    assert "undefined" in decision_sentence(_result(float("nan")), 0.8)
-    assert "no confidence bound" in decision_sentence(_result(0.9), 0.8)
-    neg = decision_sentence(_result(-0.12, lower=-0.3), 0.667, 0.95)
-    assert neg.startswith("alpha = \u2212.120;") and ".667" in neg      # the minus sign, as everywhere
-
-
 def test_plan_to_frame_and_notebook_display():
     p = plan_sample(coders=2, categories=2, expected=0.9, seed=7, **FAST)
     frame = p.to_frame()

@@ -295,7 +295,7 @@ def test_per_code_figures_shown_per_round_equal_diagnose_codes_with_the_seed(sam
             row = rows.loc[code]
             assert res.estimate == row.alpha
             assert (res.ci_low, res.ci_high) == (row.ci_low, row.ci_high)
-            assert res.lower_bound == row.lower_bound and res.p_below_min == row.p_below_min
+            assert res.lower_bound == row.lower_bound and res.p_value_min == row.p_value_min
             assert shown.code_status[code] == row.status
     # the figure plots the same numbers
     frame = result.to_frame()

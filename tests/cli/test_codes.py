@@ -45,7 +45,7 @@ def test_codes_table_shows_worst_first_and_notes(coding_csv, monkeypatch):
     assert "worst first" in out and "reason" in out
     assert out.index(first) < out.index("Most confused pairs")
     assert "read 15 units" in result.stderr          # the reading note goes to stderr
-    assert "resamples of units, seed 1" in result.stderr
+    assert "least-favourable pseudo-unit, 100 draws over units, seed 1" in result.stderr
 
 
 def test_two_coders_show_directed_counts_and_stuart_maxwell(tmp_path):
@@ -144,8 +144,9 @@ def test_codes_notes_name_the_code_and_paradox_is_filtered(tmp_path):
     pd.DataFrame(rows, columns=["unit", "a", "b"]).to_csv(path, index=False)
     result = run(["codes", str(path), "--boot", "300", "--min-units", "1"])
     assert result.exit_code == 0, result.output
-    lines = [ln for ln in result.stderr.splitlines() if "bootstrap replicates were undefined" in ln]
+    lines = [ln for ln in result.stderr.splitlines() if "show any disagreement" in ln]
     assert lines and all("code '" in ln for ln in lines)
+    assert any("code 'rare', α: Only 1 of 31 units show any disagreement" in ln for ln in lines)
 
 
 def test_codes_table_shows_the_one_sided_bound_and_says_so():

@@ -111,7 +111,7 @@ def test_demo_at_80_columns_cuts_nothing_and_shows_one_interval_per_coefficient(
     score_interval = re.search(r"\[[.\d]+, [.\d]+\]", alpha_rows[0]).group(0)
     codes_line = next(line for line in lines if line.startswith("Krippendorff's α (nominal), all codes:"))
     assert codes_line.endswith(score_interval)
-    assert "60 resamples of units" in res.stderr and "2,000" not in res.stdout + res.stderr
+    assert "60 draws over units" in res.stderr and "2,000" not in res.stdout + res.stderr
     # the last line names every file and folder written, the figure folders included
     final = lines[lines.index(next(line for line in lines if line.startswith("Done"))) + 1]
     for entry in out.iterdir():

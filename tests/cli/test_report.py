@@ -202,10 +202,10 @@ def test_cli_report_refuses_a_consensus_of_another_round(tmp_path):
     assert not (tmp_path / "r.html").exists()
 
 
-def test_cli_report_says_when_the_share_below_is_a_normal_approximation(tmp_path):
+def test_cli_report_says_when_the_p_value_is_a_normal_approximation(tmp_path):
     src = tmp_path / "two.csv"
     src.write_text("unit,a,b\n" + "".join(f"{i},{'xy'[i % 2]},{'xy'[(i // 3) % 2]}\n" for i in range(40)))
     result = CliRunner().invoke(_cli(), ["report", str(src), "--boot", "0", "--min", "0.6", "-o",
                                          str(tmp_path / "r.html")])
     assert result.exit_code == 0, result.output
-    assert "no bootstrap resamples were drawn, so it is the normal approximation" in " ".join(result.stdout.split())
+    assert "from the normal or t approximation with the analytic SE" in " ".join(result.stdout.split())

@@ -74,7 +74,8 @@ def test_json_equals_library_to_dict():
     assert set(printed["coefficients"]) == {"percent_agreement", "scott_pi", "fleiss_kappa", "conger_kappa",
                                             "brennan_prediger", "gwet_ac1", "krippendorff_alpha"}
     for name, entry in printed["coefficients"].items():
-        assert {"estimate", "se", "ci_low", "ci_high", "p_below_min"} <= set(entry), name
+        assert {"estimate", "se", "ci_low", "ci_high", "lower_bound", "p_value_min"} <= set(entry), name
+        assert "p_below_min" not in entry      # renamed: it was the raw share of resamples below the minimum
     assert "read 120 units" in result.stderr      # the reading report goes to stderr, not into the JSON
 
 
@@ -84,7 +85,8 @@ def test_json_with_minimum_equals_library_and_has_decision():
     printed = json.loads(result.stdout)
     assert printed == json_roundtrip(library(ROUND1, codebook=CODEBOOK, minimum=0.5).to_dict())
     assert printed["decision"]["coefficient"] == "krippendorff_alpha"
-    assert printed["coefficients"]["krippendorff_alpha"]["p_below_min"] is not None
+    assert printed["coefficients"]["krippendorff_alpha"]["p_value_min"] is not None
+    assert printed["decision"]["clears_minimum"] is (printed["decision"]["p_value_min"] < 0.05)
 
 
 def test_csv_has_one_row_per_coefficient():
@@ -98,7 +100,7 @@ def test_csv_has_one_row_per_coefficient():
         assert float(r["estimate"]) == pytest.approx(res.estimate, rel=1e-12)
         assert float(r["ci_low"]) == pytest.approx(res.ci_low, rel=1e-12)
         assert float(r["ci_high"]) == pytest.approx(res.ci_high, rel=1e-12)
-        assert r["ci_method"] == "bca" and r["n_coders"] == "3"
+        assert r["ci_method"] == "pseudo-unit" and r["n_coders"] == "3"
 
 
 @pytest.fixture
@@ -122,7 +124,8 @@ def test_table_names_units_method_seed_and_decision(with_left_out):
     assert lib.units_left_out == ("u03", "u07", "u11")
     assert "12 read, 9 used, 3 left out" in out
     assert "Left out: u03, u07, u11" in out
-    assert "150 bootstrap replicates" in out and "(bca)" in out and "seed 7" in out
+    assert "least-favourable pseudo-unit, 150 draws over units" in out and "seed 7" in out
+    assert "p(≤ .200): one-sided p-value" in out and "The decision rests on the bound." in out
     assert "Cohen's kappa" in out and "Krippendorff's alpha" in out
     decision = next(line for line in out.splitlines() if line.startswith("Decision:"))
     assert "one-sided" in decision and decision == f"Decision: {lib.decision()['sentence']}."

@@ -19,7 +19,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from agree.core.format import format_interval, format_value
+from agree.core.format import format_bound, format_interval, format_value
 from agree.core.model import AgreeError, from_table
 from agree.io.readers import read
 from agree.output.report import (
@@ -164,8 +164,9 @@ def test_methods_paragraph_states_facts_and_leaves_placeholders(sample_report):
     assert "N = 150 units" in text
     assert "25.0% of the 600 units" in text
     assert f"random seed {SEED}" in text
-    assert "400 resamples of units" in text
-    assert "bias-corrected and accelerated" in text
+    assert "400 draws of the Bayesian bootstrap (Rubin, 1981) with one least-favourable pseudo-unit" in text
+    assert "of the units" in text and "keeps its level when few units disagree" in text
+    assert "Bayesian bootstrap" in text and "bias-corrected and accelerated" not in text
     assert f"α = {format_value(prim.estimate)}, 95% CI {format_interval(prim.ci_low, prim.ci_high)}" in text
     for placeholder in ("[who the coders were and how they were trained]", "[describe the coding unit]",
                         "[how the sample was selected", "[how disagreements were resolved]"):
@@ -368,9 +369,11 @@ def test_interpretation_uses_exactly_the_per_code_statuses(sample_report):
 def test_methods_wording_of_the_share_below_and_the_default_minimum(sample_report):
     text = sample_report.to_dict()["methods"]
     prim = sample_report.primary_result
-    share = format_value(prim.p_below_min, "probability")
-    assert f"a share of {share} of the bootstrap resamples fell below the minimum of .800" in text
-    assert "probability that" not in text
+    bound = format_bound(prim.lower_bound, 0.8)
+    verdict = "above" if prim.lower_bound > 0.8 else "not above"
+    assert f"its one-sided 95% lower bound was {bound}, {verdict} the minimum of .800" in text
+    # the p-value against the minimum is never offered as if it were the bound
+    assert "probability that" not in text and "share of" not in text and "p-value" not in text
     # text to paste into a paper: no tool-speak about defaults, the reason left to the author
     assert ("The minimum acceptable value was set at .800, following Krippendorff's (2004) convention, "
             "because [why this minimum]") in text
@@ -389,8 +392,9 @@ def test_methods_wording_of_the_share_below_and_the_default_minimum(sample_repor
 def test_cluster_resampling_is_stated_in_the_methods():
     report = build_report(_sample_round2(), n_resamples=200, seed=3, cluster="interview")
     text = report.to_dict()["methods"]
-    assert "whole interview groups (n = 12 groups) were resampled" in text
-    assert "resamples of units" not in text
+    assert "whole interview groups (n = 12 groups) are weighted" in text
+    assert "pseudo-unit is a group of the mean size" in text
+    assert "resamples of units" not in text and "of the units" not in text
     assert report.primary_result.bootstrap.unit == "cluster:interview"
     assert report.n_clusters == 12 and report.to_dict()["settings"]["cluster"] == "interview"
     few = [w for w in report.warnings if w.code == "few-clusters"]

@@ -20,7 +20,7 @@ from agree.core.model import AgreeError, from_table
 from agree.io.readers import read
 from agree.output.report import (
     Variable,
-    below_note,
+    p_min_column_note,
     build_report,
     build_study_report,
     plain,
@@ -171,20 +171,19 @@ def test_two_coders_have_pairs_but_no_leave_one_out():
 
 # -- resamples below the minimum without a bootstrap ------------------------------------------------
 
-def test_without_resamples_the_share_below_is_called_a_normal_approximation():
+def test_without_resamples_the_p_value_column_is_called_a_normal_approximation():
     x = np.array([[0, 0], [1, 1], [0, 1], [1, 1], [0, 0], [1, 0], [1, 1], [0, 0], [1, 1], [0, 0]] * 4)
     report = build_report(x, n_resamples=0, seed=1)
-    normal = [r for r in report.coefficients if r.p_below_min is not None]
+    normal = [r for r in report.coefficients if r.p_value_min is not None]
     assert normal and all(r.bootstrap is None for r in normal)
     note = plain(report_tables(report)[0].note)
-    assert "no bootstrap resamples were drawn, so it is the normal approximation" in note
-    assert "share of bootstrap resamples below" not in note
+    assert "from the normal or t approximation with the analytic SE" in note
+    assert "same draws" not in note
     boot = build_report(x, n_resamples=200, seed=1)
-    assert "is the share of bootstrap resamples below the minimum." in plain(report_tables(boot)[0].note)
-    mixed = below_note([boot.coefficients[0], normal[0]], 0.8, "nominal")
-    assert "share of bootstrap resamples below the minimum for" in plain(mixed)
-    assert "normal approximation" in plain(mixed)
-    assert "no bootstrap resamples" in plain(report_tables(report)[0].note)
+    assert "read off the same draws as the one-sided lower bound" in plain(report_tables(boot)[0].note)
+    mixed = p_min_column_note([boot.coefficients[0], normal[0]], 0.8, 0.95, "nominal")
+    assert "read off the same draws" in plain(mixed)
+    assert "no resamples were drawn: there it is from the normal or t approximation" in plain(mixed)
 
 
 # -- a consensus file of other units ----------------------------------------------------------------

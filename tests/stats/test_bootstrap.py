@@ -182,22 +182,28 @@ def test_pattern_bootstrap_matches_brute_force_unit_bootstrap(f, coders, kw):
 # Tail probability below a minimum
 # --------------------------------------------------------------------------------------------
 
-def test_p_below_min_is_a_monotone_probability(typical):
+@pytest.mark.parametrize("method", ["pseudo-unit", "bca", "percentile"])
+def test_p_value_min_is_monotone_and_agrees_with_the_bound(typical, method):
+    """The p-value against the minimum is the level at which the one-sided bound equals the
+    minimum: it grows with the minimum, and the bound clears the minimum exactly when the
+    p-value is below 1 - level (property of inverting a bound)."""
     minima = [-0.2, 0.3, 0.5, 0.55, 0.6, 0.65, 0.7, 0.9, 1.0]
     shares = []
     for minimum in minima:
-        result = agree.krippendorff_alpha(typical, n_resamples=800, seed=9, minimum=minimum)
+        result = agree.krippendorff_alpha(typical, n_resamples=800, seed=9, minimum=minimum, ci_method=method)
         assert result.minimum == minimum
-        assert 0.0 <= result.p_below_min <= 1.0
-        shares.append(result.p_below_min)
+        assert 0.0 <= result.p_value_min <= 1.0
+        assert (result.lower_bound > minimum) is (result.p_value_min < 0.05)
+        shares.append(result.p_value_min)
     assert shares == sorted(shares)
     assert shares[0] == 0.0 and shares[-1] == 1.0
-    assert result.to_dict()["p_below_min"] == shares[-1]
+    assert result.to_dict()["p_value_min"] == shares[-1]
+    assert "p_below_min" not in result.to_dict()
 
 
 def test_no_minimum_no_tail_probability(typical):
     result = agree.krippendorff_alpha(typical, n_resamples=100, seed=9)
-    assert result.minimum is None and result.p_below_min is None
+    assert result.minimum is None and result.p_value_min is None
 
 
 # --------------------------------------------------------------------------------------------
@@ -228,7 +234,7 @@ def test_cluster_bootstrap_widens_interval_for_homogeneous_clusters():
 
 def test_cluster_bca_interval():
     codes, labels = _clustered(seed=6)
-    result = agree.krippendorff_alpha(as_float(codes), n_resamples=1500, seed=8, cluster=labels)
+    result = agree.krippendorff_alpha(as_float(codes), n_resamples=1500, seed=8, cluster=labels, ci_method="bca")
     assert result.ci_method == "bca"  # the jackknife over clusters gives the acceleration
     assert result.ci_low < result.estimate < result.ci_high
 

@@ -230,8 +230,8 @@ def test_one_category_skips_the_kappa_family_with_reasons():
 
 
 # -- the decision against a minimum --------------------------------------------------------------
-DECISION_KEYS = {"coefficient", "minimum", "estimate", "lower_bound", "bound", "clears_minimum",
-                 "p_below_min", "sentence"}
+DECISION_KEYS = {"coefficient", "minimum", "estimate", "lower_bound", "bound", "clears_minimum", "rule",
+                 "p_value_min", "disagreeing_units", "sentence"}
 
 
 @pytest.fixture(scope="module")
@@ -249,7 +249,9 @@ def test_decision_with_a_minimum(round1, minimum):
     assert dec["estimate"] == alpha.estimate and dec["lower_bound"] == alpha.lower_bound
     assert dec["clears_minimum"] is (alpha.lower_bound > minimum)
     assert dec["clears_minimum"] is (minimum == 0.4)   # alpha ≈ .59 with a lower bound above .5
-    assert dec["p_below_min"] == alpha.p_below_min
+    assert dec["p_value_min"] == alpha.p_value_min
+    assert dec["clears_minimum"] is (alpha.p_value_min < 0.05)
+    assert dec["disagreeing_units"] == alpha.details["disagreeing_units"] > 0
     assert "one-sided" in dec["sentence"] and "one-sided" in dec["bound"]
     assert ("does not clear" in dec["sentence"]) is (not dec["clears_minimum"])
     assert r.to_dict()["decision"] == dec
@@ -338,7 +340,7 @@ def test_same_seed_same_result_and_json_safe(round1):
     text = json.dumps(a, allow_nan=False)
     assert json.loads(text) == a
     assert a["bootstrap"]["seed"] == 42 and a["bootstrap"]["replicates"] == 150
-    assert a["bootstrap"]["method"] == "bca"
+    assert a["bootstrap"]["method"] == "pseudo-unit"
     c = agree.score(round1, minimum=0.6, n_resamples=150, seed=43).to_dict()
     alpha_a, alpha_c = a["coefficients"]["krippendorff_alpha"], c["coefficients"]["krippendorff_alpha"]
     assert alpha_a["estimate"] == alpha_c["estimate"]

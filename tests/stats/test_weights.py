@@ -22,7 +22,7 @@ from agree.stats.patterns import compress
 from tests.conftest import as_float, as_labels, simulate_codes
 
 BOOT = 150
-FIELDS = ("estimate", "se", "ci_low", "ci_high", "lower_bound", "p_below_min", "n_units", "n_values", "z",
+FIELDS = ("estimate", "se", "ci_low", "ci_high", "lower_bound", "p_value_min", "n_units", "n_values", "z",
           "p_value")
 
 

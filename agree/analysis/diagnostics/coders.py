@@ -26,7 +26,7 @@ from agree.stats.kernels import (
     value_counts,
 )
 from agree.stats.patterns import compress
-from agree.stats.resampling import check_settings
+from agree.stats.resampling import PseudoUnits, check_settings
 
 
 def _level_of(data: CodingData, level: str | None, distance: str | None = None) -> str:
@@ -68,8 +68,10 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = D
       match), Cohen's kappa (values as nominal categories) and alpha at `level`.
     - Leave one coder out (METHODS 6.6): alpha_(-i) on the data without coder i, and
       Δ_i = alpha_(-i) - alpha. Δ_i > 0 means coder i lowers reliability. Dropping a coder
-      changes which units are pairable. The interval for Δ_i is a paired bootstrap: alpha and
-      alpha_(-i) are recomputed on the same unit resamples. Needs three or more coders.
+      changes which units are pairable. The interval for Δ_i is paired: alpha and alpha_(-i)
+      are recomputed from the same draws, by the interval method of every coefficient (by
+      default the Bayesian bootstrap with, at each end, the unit that moves Δ_i most). Needs
+      three or more coders.
     - Code use: each coder's share of the units they coded that got each value (set-valued:
       each code), against the pooled share of the other coders.
 
@@ -118,7 +120,10 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = D
     if m >= 3:
         # Leave-one-out needs coder identity: resample ordered patterns (METHODS 7.5).
         pat = compress(codes, V, ordered=True, keep_inverse=clusters is not None)
-        features = np.hstack([alpha_features(value_counts(pat.codes[:, cols], V), delta) for cols in subsets])
+        def unit_features(rows: np.ndarray) -> np.ndarray:
+            return np.hstack([alpha_features(value_counts(rows[:, cols], V), delta) for cols in subsets])
+
+        features = unit_features(pat.codes)
         width = features.shape[1] // (m + 1)
         without = np.array([alpha_of(cols) for cols in subsets[1:]])
         pairable_without = [int(((codes[:, cols] >= 0).sum(axis=1) >= 2).sum()) for cols in subsets[1:]]
@@ -131,7 +136,7 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = D
         iv = bootstrap_intervals(without - alpha, features, finish, n_resamples=n_resamples, seed=seed,
                                  confidence_level=confidence_level, ci_method=ci_method, counts=pat.counts,
                                  clusters=clusters, inverse=pat.inverse, cluster_name=cluster_name,
-                                 labels=names)
+                                 labels=names, pseudo=PseudoUnits(unit_features, V, m, ordered=True))
         low, high, boot_info = iv.low, iv.high, iv.bootstrap
         notes.extend(iv.notes)
     else:

@@ -33,10 +33,10 @@ from agree.core.constants import (
 )
 from agree.core.format import format_value, percent_label, signed
 from agree.core.model import CodingData
-from agree.core.results import BootstrapInfo, Note, json_safe
+from agree.core.results import BootstrapInfo, Note, json_safe, reaches_minimum
 from agree.stats.coefficients import krippendorff_alpha
 from agree.stats.kernels import alpha_from_sums, delta_for, presence
-from agree.stats.resampling import check_settings
+from agree.stats.resampling import PseudoUnits, check_settings
 
 SIGNIFICANCE = 0.05          # Holm-adjusted p below this flags unequal use
 CONFUSION_REASON = 0.25      # name the main confusion in a reason from this share upward
@@ -125,12 +125,26 @@ class _Agreement:
     alpha_low: np.ndarray
     alpha_high: np.ndarray
     lower_bound: np.ndarray
-    p_below_min: np.ndarray
+    p_value_min: np.ndarray
     specific: np.ndarray
     specific_low: np.ndarray
     specific_high: np.ndarray
     bootstrap: BootstrapInfo | None
     notes: tuple[Note, ...]
+
+
+def _pseudo_units(q: int, m_u: np.ndarray) -> PseudoUnits:
+    """The units a pseudo-unit may be, as far as the per-code statistics see them: s coders
+    (2 up to the most any unit has), t of whom (0..s) apply code k. Each code's statistics
+    depend on its own r_uk and m_u only, so these cover every possible unit."""
+    width = max(2, int(m_u.max(initial=2)))
+    sizes = [(s, t) for s in range(2, width + 1) for t in range(s + 1)]
+    r = np.zeros((q * len(sizes), q))
+    m = np.zeros(q * len(sizes))
+    for i, (k, (s, t)) in enumerate(itertools.product(range(q), sizes)):  # candidates, not units
+        r[i, k] = t
+        m[i] = s
+    return PseudoUnits(features=None, n_values=0, width=0, fixed=_code_features(r, m))
 
 
 def _agreement(pres: _Presence, cats: list, *, clusters, cluster_name, **boot) -> _Agreement:
@@ -139,10 +153,13 @@ def _agreement(pres: _Presence, cats: list, *, clusters, cluster_name, **boot) -
     finish = _code_finish(q)
     point = finish(features.sum(axis=0))
     names = [f"code '{c}', α" for c in cats] + [f"code '{c}', specific agreement" for c in cats]
+    # units where the coders split on the code: what each code's interval rests on
+    split = ((pres.r > 0) & (pres.r < pres.m_u[:, None]))[pres.pairable].sum(axis=0)
     iv = bootstrap_intervals(point, features, finish, clusters=clusters, cluster_name=cluster_name,
-                             labels=names, **boot)
+                             labels=names, pseudo=_pseudo_units(q, pres.m_u), disagreeing=np.tile(split, 2),
+                             n_units=float(pres.pairable.sum()), **boot)
     return _Agreement(alpha=point[:q], alpha_low=iv.low[:q], alpha_high=iv.high[:q],
-                      lower_bound=iv.lower_bound[:q], p_below_min=iv.p_below_min[:q],
+                      lower_bound=iv.lower_bound[:q], p_value_min=iv.p_value_min[:q],
                       specific=point[q:], specific_low=iv.low[q:], specific_high=iv.high[q:],
                       bootstrap=iv.bootstrap, notes=iv.notes)
 
@@ -415,11 +432,11 @@ def _status(f: _CodeFacts, rules: _Rules) -> _Verdict:
         level = percent_label(rules.confidence_level)
         if f.alpha < minimum:
             return _Verdict("below minimum", (), judged_on="interval")
-        if f.lower_bound >= minimum:
-            return _Verdict("ok", (f"the one-sided {level} lower bound is at or above the minimum",),
+        if reaches_minimum(f.lower_bound, minimum):
+            return _Verdict("ok", (f"the one-sided {level} lower bound is above the minimum",),
                             judged_on="interval")
         return _Verdict("uncertain", (f"the estimate reaches the minimum but its one-sided {level} lower bound "
-                                      "is below it",), judged_on="interval")
+                                      "does not (it is not above the minimum)",), judged_on="interval")
     why = "no bootstrap" if not rules.bootstrapped else "no interval could be formed"
     if f.alpha < minimum:
         return _Verdict("below minimum", (f"estimate below the minimum ({why}: judged on the estimate alone)",),
@@ -510,7 +527,7 @@ def _per_code(cats: list, coders: tuple, agree: _Agreement, chance: _Chance, use
         row = {"code": cats[k], "status": v.status, "judged_on": v.judged_on,
                "reason": "; ".join(v.reasons), "rank": 0,
                "alpha": agree.alpha[k], "ci_low": agree.alpha_low[k], "ci_high": agree.alpha_high[k],
-               "lower_bound": agree.lower_bound[k], "p_below_min": agree.p_below_min[k],
+               "lower_bound": agree.lower_bound[k], "p_value_min": agree.p_value_min[k],
                "specific_agreement": agree.specific[k], "specific_ci_low": agree.specific_low[k],
                "specific_ci_high": agree.specific_high[k], "kappa": chance.kappa[k],
                "kappa_method": chance.kappa_method, "percent_agreement": chance.percent[k],
@@ -572,7 +589,8 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     confidence_level : of the intervals.
     min_units_per_code : a code used on fewer pairable units than this is "too rare" to judge
         (default 5: common practice, not a published threshold).
-    ci_method : "bca" (default) or "percentile".
+    ci_method : "pseudo-unit" (default: Bayesian bootstrap with a least-favourable unit, the rule
+        of every coefficient), "bca" or "percentile".
     distance : set-valued data: the distance between sets of codes for the overall alpha and
         the alpha after merging two codes, "masi" (default, as in :func:`agree.score`, so
         the overall alpha is the same figure) or "jaccard". Ignored for single codes.
@@ -623,11 +641,12 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     - status: "undefined" (nobody, or every value, has the code, or alpha is undefined),
       "too rare" (used on fewer than `min_units_per_code` pairable units), "below minimum"
       (alpha < minimum), "uncertain" (alpha at or above the minimum, but its one-sided lower
-      confidence bound at `confidence_level` below it), "ok" (the one-sided lower bound at or
-      above the minimum). The one-sided bound is the bootstrap quantile at 1 - level (BCa-
-      adjusted like the interval; column ``lower_bound``), the same rule as the overall
-      decision of ``agree score --min``; it lies above the lower end of the two-sided
-      interval. This follows the advice to judge a coefficient by its interval, not its
+      confidence bound at `confidence_level` not above it), "ok" (the one-sided lower bound
+      strictly above the minimum: `agree.core.results.reaches_minimum`, the rule of every
+      output). The one-sided bound (column ``lower_bound``) is made by the method of every
+      coefficient (`agree.stats.resampling.resample`; by default the Bayesian bootstrap with a
+      least-favourable unit, one such unit per code), the same rule as the overall decision of
+      ``agree score --min``; it lies above the lower end of the two-sided interval. This follows the advice to judge a coefficient by its interval, not its
       estimate (Krippendorff 2004). Without an interval (``n_resamples=0``, or too few defined
       replicates) the estimate is compared with the minimum and the reason says so
       (``judged_on`` = "estimate"). Codes are ranked by status in the order of concern —

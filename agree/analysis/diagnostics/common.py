@@ -4,7 +4,7 @@ several statistics from the same resamples."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -15,12 +15,7 @@ from agree.core.results import BootstrapInfo, Note
 from agree.core.seeds import make_rng
 from agree.stats.kernels import SET_DISTANCES
 from agree.stats.patterns import cluster_sums
-from agree.stats.resampling import (
-    bootstrap_interval,
-    bootstrap_replicates,
-    jackknife_values,
-    resolve_clusters,
-)
+from agree.stats.resampling import PseudoUnits, interval_of, resample, resolve_clusters
 
 
 def check_data(data: Any, allow_empty: bool = False) -> CodingData:
@@ -84,12 +79,13 @@ class CoderShares:
 
 @dataclass(frozen=True)
 class Intervals:
-    """Bootstrap intervals of several statistics from the same resamples (arrays, one entry
-    per statistic; NaN without a bootstrap)."""
+    """Intervals of several statistics from the same resamples (arrays, one entry per
+    statistic; NaN without resampling), by the rule of every coefficient
+    (`agree.stats.resampling.resample`)."""
 
     low: np.ndarray
     high: np.ndarray
-    p_below_min: np.ndarray
+    p_value_min: np.ndarray
     lower_bound: np.ndarray      # one-sided lower confidence bound at the same level
     bootstrap: BootstrapInfo | None
     notes: tuple[Note, ...]
@@ -99,15 +95,20 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
                         *, n_resamples: int, seed: Any, confidence_level: float, ci_method: str,
                         minimum: float | None = None, counts: np.ndarray | None = None,
                         clusters: np.ndarray | None = None, inverse: np.ndarray | None = None,
-                        cluster_name: str | None = None, labels: Sequence[str] | None = None) -> Intervals:
-    """Bootstrap intervals for several statistics from the same unit (or cluster) resamples.
+                        cluster_name: str | None = None, labels: Sequence[str] | None = None,
+                        pseudo: PseudoUnits | None = None, disagreeing: np.ndarray | None = None,
+                        n_units: float | None = None) -> Intervals:
+    """Intervals for several statistics from the same unit (or cluster) resamples.
 
     Items are the distinct rows of `features` (units with the same features resample alike),
     or, with `counts`, the rows of `features` are already distinct patterns occurring
     `counts` times. With `clusters` (one label per unit) the items are the clusters: the
     features of their units summed, each drawn whole; the rows of `features` are then units, or
-    patterns when `inverse` gives the pattern of each unit.
-    `labels` name the statistics in the notes ("code 'X', α"). The lower bound is the
+    patterns when `inverse` gives the pattern of each unit. `pseudo` says which units a
+    pseudo-unit may be (needed by the default method, "pseudo-unit"; with clusters it stands
+    for a cluster of the mean size).
+    `labels` name the statistics in the notes ("code 'X', α"); `disagreeing` (units whose values
+    differ on each statistic) and `n_units` only word the notes. The lower bound is the
     one-sided lower confidence bound at `confidence_level` (the rule of ``agree score --min``).
     """
     k = len(estimates)
@@ -122,6 +123,8 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
         items, n_items = cluster_sums(features, rows, clusters)
         counts = np.ones(n_items, dtype=np.int64)
         unit = f"cluster:{cluster_name or 'cluster'}"
+        if pseudo is not None:
+            pseudo = replace(pseudo, scale=len(rows) / n_items)
         if n_items < FEW_CLUSTERS:
             notes.append(Note("few-clusters", f"Only {n_items} clusters ({cluster_name or 'cluster'}) were "
                               "resampled; bootstrap intervals from fewer than "
@@ -130,20 +133,17 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
         items, counts = np.unique(features, axis=0, return_counts=True)
     else:
         items = features
-    boot = bootstrap_replicates(items, counts, finish, n_resamples, rng).reshape(n_resamples, k)
-    informative = np.any(items != 0, axis=1)
-    jack = jackknife_values(items[informative], counts[informative], finish) if informative.any() else None
-    weights = counts[informative]
+    bounds = resample(items, counts, finish, method=ci_method, n_resamples=n_resamples,
+                      confidence_level=confidence_level, rng=rng, minimum=minimum, pseudo=pseudo)
     low, high, below, bound = nan.copy(), nan.copy(), nan.copy(), nan.copy()
     n_undefined = 0
     method_used = ci_method
     fallback = []
     for j in range(k):  # a loop over statistics (codes, coders), not units
-        iv = bootstrap_interval(float(estimates[j]), boot[:, j], confidence_level=confidence_level,
-                                method=ci_method, jack=None if jack is None else jack[:, j],
-                                jack_weights=weights, minimum=minimum)
+        iv = interval_of(bounds, j, minimum=minimum, n_items=n_units,
+                         disagreeing=None if disagreeing is None else float(disagreeing[j]))
         low[j], high[j], bound[j] = iv.low, iv.high, iv.lower_bound
-        below[j] = np.nan if iv.p_below_min is None else iv.p_below_min
+        below[j] = np.nan if iv.p_value_min is None else iv.p_value_min
         n_undefined = max(n_undefined, iv.n_undefined)
         if iv.method != ci_method and np.isfinite(estimates[j]):
             method_used = f"{ci_method} (percentile where BCa could not be formed)"
@@ -151,6 +151,8 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
         for n in iv.notes:
             if n.code == "bca-fallback":
                 fallback.append(name)
+            elif n.code in ("pseudo-unit-greedy", "few-replicates"):
+                notes.append(n)
             else:
                 notes.append(Note(n.code, f"{name}: {n.message}"))
     if fallback:

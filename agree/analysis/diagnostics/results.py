@@ -39,8 +39,9 @@ class CodeDiagnostics:
         - ``alpha``, ``ci_low``, ``ci_high``: Krippendorff's alpha for the code against all
           others (nominal alpha on ``data.presence(code)``) and its two-sided bootstrap
           interval; ``lower_bound``: the one-sided lower confidence bound at the same level
-          (what the status compares with the minimum); ``p_below_min``: share of replicates
-          below the minimum.
+          (what the status compares with the minimum); ``p_value_min``: the one-sided p-value of
+          alpha at or below the minimum from the same draws (the bound is above the minimum
+          exactly when it is below 1 - the confidence level).
         - ``specific_agreement`` (p_s) with ``specific_ci_low``, ``specific_ci_high``.
         - ``kappa`` and ``kappa_method`` ("cohen" for two coders, "fleiss" otherwise),
           ``percent_agreement`` (presence/absence agreement, mean over pairable units).

@@ -51,7 +51,7 @@ from agree.output.report.model import (
     StudyReport,
     Variable,
 )
-from agree.output.report.tables import Cell, Table, below_note, report_tables, rounds_tables, se_note
+from agree.output.report.tables import Cell, Table, p_min_column_note, report_tables, rounds_tables, se_note
 from agree.output.report.text import (
     BAND_TEXT,
     CAUTIONS,
@@ -78,7 +78,7 @@ from agree.output.report.write import FORMATS, figure_folder, write_report
 __all__ = [
     "BAND_TEXT", "CAUTIONS", "DEFAULT_MINIMUM", "DEFAULT_TITLE", "FORMATS", "HEADINGS", "HOW_DECIDED", "HOW_ORDER",
     "INTERVAL_METHODS", "PLACEHOLDER_NOTE", "STATUS_TEXT", "TENTATIVE", "Cell", "CoderSummary", "ConsensusSummary",
-    "CrossTable", "Report", "ReportFigure", "SampleSummary", "StudyReport", "Table", "Variable", "below_note",
+    "CrossTable", "Report", "ReportFigure", "SampleSummary", "StudyReport", "Table", "Variable", "p_min_column_note",
     "build_report", "build_study_report", "cautions", "coefficient_label", "document_figures", "document_headings",
     "figure_folder", "format_bound", "format_interval", "format_value", "interpretation", "krippendorff_band",
     "landis_koch", "latex_escape", "lit", "methods_paragraph", "notes_markup", "plain", "render_docx",

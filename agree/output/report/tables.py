@@ -15,6 +15,8 @@ from agree.core.format import (
     format_interval,
     format_value,
     lit,
+    p_min_label,
+    p_min_note,
     percent_label,
     signed,
     signed_interval,
@@ -67,22 +69,20 @@ def se_note(results: Sequence[AgreementResult], level: str) -> str:
     return "*SE*: " + "; ".join(parts) + "."
 
 
-def below_note(results: Sequence[AgreementResult], minimum: float, level: str) -> str:
-    """What the *P*(below the minimum) column holds for each result: the share of bootstrap
-    resamples below the minimum or, for a result computed without resamples (``--boot 0``), the
-    normal approximation from its analytic *SE*."""
-    threshold = format_value(minimum, "threshold")
-    column = f"*P*(below {threshold})"
-    boot = [result_label(r, level) for r in results if r.p_below_min is not None and r.bootstrap is not None]
-    normal = [result_label(r, level) for r in results if r.p_below_min is not None and r.bootstrap is None]
-    share = "the share of bootstrap resamples below the minimum"
-    approx = (f"not a share of resamples: no bootstrap resamples were drawn, so it is the normal approximation "
-              f"*P*(θ < {threshold}) from the analytic *SE*")
-    if not normal:
-        return f"{column} is {share}."
+def p_min_column_note(results: Sequence[AgreementResult], minimum: float, confidence_level: float,
+                      level: str) -> str:
+    """What the *p*(≤ minimum) column holds for each result: the one-sided p-value of the
+    coefficient at or below the minimum, read off the draws of its bound or, for a result computed
+    without resamples (``--boot 0``), from the normal or t approximation with its analytic *SE*."""
+    boot = [result_label(r, level) for r in results if r.p_value_min is not None and r.bootstrap is not None]
+    approx = [result_label(r, level) for r in results if r.p_value_min is not None and r.bootstrap is None]
+    if not approx:
+        return p_min_note(minimum, confidence_level, markup=True)
     if not boot:
-        return f"{column} is {approx} (– where there is no analytic *SE*)."
-    return f"{column} is {share} for {join_words(boot)}; for {join_words(normal)} it is {approx}."
+        return p_min_note(minimum, confidence_level, resampled=False, markup=True)
+    return (p_min_note(minimum, confidence_level, markup=True) + f" For {join_words(approx)} no resamples were "
+            "drawn: there it is from the normal or t approximation with the analytic *SE* (the score test "
+            "for the Wilson bound).")
 
 
 def _coder_tables(report: Report) -> list[Table]:
@@ -149,23 +149,27 @@ def report_tables(report: Report) -> list[Table]:
         path = f"coefficients.{i}"
         rows.append((Cell(result_label(r, report.level)), _c(r.estimate, "coefficient", dg, f"{path}.estimate"),
                      _c(r.se, "se", dg, f"{path}.se"), _ci(r.ci_low, r.ci_high, dg, path),
-                     _c(r.p_below_min, "probability", dg, f"{path}.p_below_min"),
+                     Cell(format_bound(r.lower_bound, report.minimum), (f"{path}.lower_bound",), True),
+                     _c(r.p_value_min, "probability", dg, f"{path}.p_value_min"),
                      _c(r.n_units, "count", dg, f"{path}.n_units"),
                      Cell(lit(INTERVAL_METHODS.get(r.ci_method or "", r.ci_method or "–")))))
     skipped = "; ".join(f"{join_words([coefficient_label(k) for k in names])}: {lit(reason)}"
                         for reason, names in skipped_by_reason(report.skipped).items())
     tables.append(Table(
         "coefficients", "Agreement coefficients",
-        ("Coefficient", "Estimate", "*SE*", level, f"*P*(below {minimum})", "*n* units", "Interval"),
+        ("Coefficient", "Estimate", "*SE*", level, "One-sided bound", p_min_label(report.minimum, markup=True),
+         "*n* units", "Interval"),
         tuple(rows),
-        note=(se_note(report.coefficients, report.level) + " " + below_note(report.coefficients, report.minimum,
-                                                                           report.level)
+        note=(se_note(report.coefficients, report.level) + f" One-sided bound: the one-sided "
+              f"{percent_label(report.confidence_level)} lower bound, which decides against the minimum (it must be "
+              "above it). " + p_min_column_note(
+            report.coefficients, report.minimum, report.confidence_level, report.level)
               + " *n* units: units entering the coefficient." + (f" Not computed: {skipped}." if skipped else ""))))
     if report.per_code:
         columns = report.per_code[0].keys()
         bound = f"One-sided {100 * report.confidence_level:g}% lower bound"
         spec = [("alpha", "α", "coefficient"), ("ci", level, None), ("lower_bound", bound, "bound"),
-                ("p_below_min", f"*P*(below {minimum})", "probability"),
+                ("p_value_min", p_min_label(report.minimum, markup=True), "probability"),
                 ("specific_agreement", "Specific agreement", "coefficient"), ("kappa", "κ", "coefficient"),
                 ("units_with_code", "Units with code", "count")]
         spec = [s for s in spec if s[0] in columns or (s[0] == "ci" and "ci_low" in columns)]
@@ -246,10 +250,10 @@ def rounds_tables(rounds: Any, dg: int, prefix: str = "") -> list[Table]:
                      _c(r.overall.n_units, "count", dg, f"{path}.overall.n_units"),
                      _c(r.overall.estimate, "coefficient", dg, f"{path}.overall.estimate"),
                      _ci(r.overall.ci_low, r.overall.ci_high, dg, f"{path}.overall"),
-                     _c(r.overall.p_below_min, "probability", dg, f"{path}.overall.p_below_min"),
+                     _c(r.overall.p_value_min, "probability", dg, f"{path}.overall.p_value_min"),
                      Cell(", ".join(below) or "none")))
     out.append(Table("rounds", "Agreement per coding round",
-                     ("Round", "Units", "*n* pairable", "α", level, f"*P*(below {minimum})",
+                     ("Round", "Units", "*n* pairable", "α", level, p_min_label(rounds.minimum, markup=True),
                       f"Codes below {minimum}"), tuple(rows),
                      note=f"α: Krippendorff's α ({lit(rounds.level)}) over all codes; per code, α on the "
                           "presence/absence recoding, as in the per-code diagnostics with the same seed. "

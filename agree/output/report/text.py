@@ -25,7 +25,7 @@ from agree.core.constants import TENTATIVE, VERSION
 from agree.core.format import format_bound, format_interval, format_value, lit, percent_label
 from agree.core.format import result_label as format_result_label
 from agree.core.registry import coefficient, family
-from agree.core.results import AgreementResult
+from agree.core.results import AgreementResult, reaches_minimum
 
 if TYPE_CHECKING:
     from agree.output.report.model import ConsensusSummary, Report, StudyReport
@@ -53,6 +53,7 @@ HEADINGS = {
 # names of coefficients, in markup: from the registry (agree.core.registry)
 
 INTERVAL_METHODS = {
+    "pseudo-unit": "Bayesian bootstrap with a least-favourable pseudo-unit",
     "bca": "bias-corrected and accelerated (BCa) bootstrap",
     "percentile": "percentile bootstrap",
     "wilson": "Wilson score interval",
@@ -87,20 +88,21 @@ def landis_koch(value: float) -> str:
 
 def krippendorff_band(estimate: float, lower: float | None, minimum: float) -> str:
     """Where an α stands against the minimum and Krippendorff's .667: one of "reliable"
-    (`lower` at or above the minimum; the report passes the one-sided lower bound, as
-    ``agree score --min``), "estimate-only" (the estimate reaches it, the bound does not), "tentative" (.667 up to the minimum), "below", "undefined"."""
+    (`lower` above the minimum, `agree.core.results.reaches_minimum`; the report passes the
+    one-sided lower bound, as ``agree score --min``), "estimate-only" (the estimate reaches it,
+    the bound does not), "tentative" (.667 up to the minimum), "below", "undefined"."""
     if estimate is None or not math.isfinite(estimate):
         return "undefined"
     if estimate >= minimum:
-        return "reliable" if lower is not None and math.isfinite(lower) and lower >= minimum else "estimate-only"
+        return "reliable" if reaches_minimum(lower, minimum) else "estimate-only"
     if estimate >= TENTATIVE:
         return "tentative"
     return "below"
 
 
 BAND_TEXT = {
-    "reliable": "meets the minimum (one-sided lower bound at or above it)",
-    "estimate-only": "estimate at or above the minimum, one-sided lower bound below it",
+    "reliable": "meets the minimum (one-sided lower bound above it)",
+    "estimate-only": "estimate at or above the minimum, one-sided lower bound not above it",
     "tentative": "tentative (.667 up to the minimum)",
     "below": "below .667",
     "undefined": "undefined",
@@ -115,8 +117,7 @@ BAND_TEXT = {
 CAUTIONS = (
     "Conventions are not laws: the thresholds are conventions, not derived cut-offs (Landis and Koch "
     "call their bands arbitrary). Choose the minimum by the cost of drawing a wrong conclusion, and "
-    "judge it by the one-sided lower confidence bound (or the share of bootstrap resamples below it), not "
-    "by the point estimate alone (Krippendorff, 2004).",
+    "judge it by the one-sided lower confidence bound, not by the point estimate alone (Krippendorff, 2004).",
     "Kappa and skewed prevalence: when a code is very common or very rare, κ and α can be low although "
     "the coders mostly agree, because chance agreement is high (Feinstein & Cicchetti, 1990). The bands "
     "of one coefficient do not carry over to another; read the per-code table beside the overall figure.",
@@ -265,16 +266,30 @@ def _metric_phrase(report: Report, prim: AgreementResult) -> str:
 
 
 def _interval_text(report: Report, prim: AgreementResult) -> str:
-    """How the confidence intervals were made ("" when there are none)."""
+    """How the confidence intervals and the one-sided bound were made ("" when there are none)."""
     if prim.bootstrap is not None:
         b = prim.bootstrap
         seed_text = f", random seed {b.seed}" if b.seed is not None else ""
         method = INTERVAL_METHODS.get(b.method, lit(b.method))
-        if b.unit != "unit" or report.cluster is not None:
+        clustered = b.unit != "unit" or report.cluster is not None
+        column = report.cluster or b.unit.split(":", 1)[-1]
+        groups = ("" if report.n_clusters is None else
+                  f" (*n* = {format_value(report.n_clusters, 'count')} groups)")
+        if clustered:
             seed_text = f" (random seed {b.seed})" if b.seed is not None else ""
-            column = report.cluster or b.unit.split(":", 1)[-1]
-            groups = ("" if report.n_clusters is None else
-                      f" (*n* = {format_value(report.n_clusters, 'count')} groups)")
+        if b.method == "pseudo-unit":
+            draws = (f"{format_value(b.replicates, 'count')} draws of the Bayesian bootstrap (Rubin, 1981) "
+                     "with one least-favourable pseudo-unit added (the unit that would lower the coefficient "
+                     "most; Gaffke, 2005; Learned-Miller & Thomas, 2019)")
+            keeps = "; unlike the percentile and BCa bootstrap, this bound keeps its level when few units disagree"
+            if clustered:
+                return (f"Confidence intervals ({percent_label(prim.confidence_level)}) and the one-sided lower "
+                        f"bound come from {draws}{seed_text}, in which whole {lit(column)} groups{groups} are "
+                        f"weighted, each with all its units, and the pseudo-unit is a group of the mean size"
+                        f"{keeps}.")
+            return (f"Confidence intervals ({percent_label(prim.confidence_level)}) and the one-sided lower "
+                    f"bound come from {draws} of the units{seed_text}{keeps}.")
+        if clustered:
             return (f"Confidence intervals ({percent_label(prim.confidence_level)}) are {method} intervals from "
                     f"{format_value(b.replicates, 'count')} bootstrap resamples{seed_text} in which "
                     f"whole {lit(column)} groups{groups} were resampled, each with all its units, so "
@@ -286,23 +301,21 @@ def _interval_text(report: Report, prim: AgreementResult) -> str:
     return ""
 
 
-def below_minimum_text(result: AgreementResult, minimum: float) -> str:
-    """What `p_below_min` is, as a clause: the share of bootstrap resamples below the minimum, or,
-    without a bootstrap, the normal approximation from the analytic standard error ("" if none)."""
-    if result.p_below_min is None:
+def bound_text(result: AgreementResult, minimum: float) -> str:
+    """The one-sided lower bound against the minimum, as a clause ("" without a bound): "its
+    one-sided 95% lower bound was .812, above the minimum of .800" (above = strictly,
+    `agree.core.results.reaches_minimum`)."""
+    if result.lower_bound is None or not math.isfinite(result.lower_bound):
         return ""
-    share = format_value(result.p_below_min, "probability")
-    threshold = format_value(minimum, "threshold")
-    if result.bootstrap is None:
-        return (f"without bootstrap resamples, the normal approximation from its standard error gives a "
-                f"probability of {share} of a value below the minimum of {threshold}")
-    return f"a share of {share} of the bootstrap resamples fell below the minimum of {threshold}"
+    verdict = "above" if reaches_minimum(result.lower_bound, minimum) else "not above"
+    return (f"its one-sided {percent_label(result.confidence_level)} lower bound was "
+            f"{format_bound(result.lower_bound, minimum)}, {verdict} the minimum of {format_value(minimum, 'threshold')}")
 
 
 def _result_text(report: Report, prim: AgreementResult, lead: str = "Overall, ") -> str:
     text = f"{lead}{_stat_markup(prim, report.digits)}"
-    below = below_minimum_text(prim, report.minimum)
-    return text + (f"; {below}" if below else "")
+    bound = bound_text(prim, report.minimum)
+    return text + (f"; {bound}" if bound else "")
 
 
 def _minimum_text(minimum: float, minimum_default: bool, per_code: bool) -> str:
@@ -483,11 +496,12 @@ def interpretation(report: Report) -> tuple[str, ...]:
         sym = _symbol(prim.name)
         level = f"{100 * prim.confidence_level:g}%"
         text = f"{coefficient_label(prim.name)}: {_stat_markup(prim, digits)}. "
-        reached = (f"The one-sided {level} lower bound ({format_bound(bound, report.minimum)}) is at or above the minimum of "
+        reached = (f"The one-sided {level} lower bound ({format_bound(bound, report.minimum)}) is above the minimum of "
                    f"{minimum}." if one_sided else
-                   f"The whole interval lies at or above the minimum of {minimum}.")
+                   f"The whole interval lies above the minimum of {minimum}.")
         short = (f"The estimate reaches the minimum of {minimum}, but its one-sided {level} lower bound "
-                 f"({format_bound(bound, report.minimum)}) is below it, so the data do not show with confidence that it is reached"
+                 f"({format_bound(bound, report.minimum)}) is not above it, so the data do not show with confidence "
+                 "that it is reached"
                  if one_sided else
                  f"The estimate reaches the minimum of {minimum}, but the interval extends below "
                  "it, so the data do not show with confidence that it is reached")
@@ -501,8 +515,11 @@ def interpretation(report: Report) -> tuple[str, ...]:
             "undefined": f"{sym} is undefined for these data (see the notes).",
         }[band]
         if band == "estimate-only":
-            below = below_minimum_text(prim, report.minimum)
-            text += f" ({below})." if below else "."
+            text += "."
+        disagreeing = prim.details.get("disagreeing_units") if prim.details else None
+        if disagreeing == 0 and prim.n_units and band in ("reliable", "estimate-only"):
+            text += (f" There was no disagreement among the {format_value(prim.n_units, 'count')} units, so the "
+                     "bound rests on their number alone.")
         out.append(text)
     rest = []
     for r in report.coefficients:
@@ -542,10 +559,10 @@ def interpretation(report: Report) -> tuple[str, ...]:
 #: Plain meaning of each per-code status of `agree.analysis.diagnostics.diagnose_codes`, worst first.
 STATUS_TEXT = {
     "below minimum": "estimate below the minimum",
-    "uncertain": "estimate at or above the minimum, one-sided 95% lower bound below it",
+    "uncertain": "estimate at or above the minimum, one-sided 95% lower bound not above it",
     "too rare": "used on too few units to judge",
     "undefined": "α undefined",
-    "ok": "one-sided 95% lower bound at or above the minimum",
+    "ok": "one-sided 95% lower bound above the minimum",
 }
 
 
