@@ -24,9 +24,12 @@ from __future__ import annotations
 import contextlib
 import contextvars
 import errno
+import gc
 import hashlib
+import io
 import os
 import re
+import sys
 import tempfile
 import time
 from pathlib import Path
@@ -120,10 +123,12 @@ def record_input(path: str | os.PathLike) -> None:
 
 
 def _refuse_input(out: Path, source: str) -> AgreeError:
-    shown = str(out) if os.fspath(source) == str(out) else f"{out} (the same file as the input {source})"
-    return AgreeError(f"refusing to overwrite the input file {shown}",
-                      hint="an output may replace an earlier output, never a file the same run reads; "
-                           "choose another output name", code="overwrite-input")
+    if os.fspath(source) == str(out):
+        message = f"refusing to overwrite the input file {out}"
+    else:
+        message = f"refusing to write {out}: it is the input file {source} under another name"
+    return AgreeError(message, hint="an output may replace an earlier output, never a file the same run "
+                                    "reads; choose another output name", code="overwrite-input")
 
 
 def check_output(path: str | os.PathLike, inputs: Sequence[str | os.PathLike | None] = (), *,
@@ -293,8 +298,54 @@ def atomic_write(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
             os.unlink(tmp)
         if isinstance(exc, OSError):
             raise write_error(path, exc) from exc
-        raise
+        cause = _io_error(exc)
+        if cause is None:
+            raise
+        _let_go(exc)
+        raise write_error(path, cause) from None
     return path
+
+
+_LIBXML_IO = re.compile(r"\bIO_(E[A-Z]+)\b")
+
+
+def _io_error(exc: BaseException) -> OSError | None:
+    """The disk error behind a library's own exception: an OSError it was raised from, or
+    libxml2's IO_<errno> (openpyxl writes through lxml, into temporary files of its own)."""
+    seen = exc
+    while seen is not None:
+        if isinstance(seen, OSError):
+            return seen
+        seen = seen.__cause__ or seen.__context__
+    match = _LIBXML_IO.search(str(exc))
+    if match and isinstance(getattr(errno, match.group(1), None), int):
+        code = getattr(errno, match.group(1))
+        return OSError(code, os.strerror(code))
+    return None
+
+
+def _let_go(exc: BaseException) -> None:
+    """Free the failed writer's frames now, quietly: a half-closed XML stream would otherwise
+    print "Exception ignored ..." with a traceback when it is collected, after the clear error."""
+    hook = sys.unraisablehook
+    sys.unraisablehook = lambda unraisable: None
+    try:
+        while exc is not None:
+            exc.__traceback__ = None
+            exc = exc.__context__
+        gc.collect()
+    finally:
+        sys.unraisablehook = hook
+
+
+def through_memory(save: Callable[[io.BytesIO], None], tmp: str | os.PathLike) -> None:
+    """Let a library save into memory, then write the bytes to `tmp` in one call. Libraries that
+    write files themselves (openpyxl through lxml, matplotlib) report a full disk with their own
+    exception types and half-closed streams; this way the disk sees one write, whose OSError
+    `atomic_write` turns into a clear error."""
+    buffer = io.BytesIO()
+    save(buffer)
+    Path(tmp).write_bytes(buffer.getvalue())
 
 
 def atomic_write_bytes(path: str | os.PathLike, payload: bytes) -> Path:

@@ -31,7 +31,7 @@ from matplotlib.patches import Rectangle  # noqa: E402
 from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, ScalarFormatter  # noqa: E402
 
 from agree.core.constants import TENTATIVE  # noqa: E402
-from agree.core.files import atomic_write  # noqa: E402
+from agree.core.files import atomic_write, through_memory  # noqa: E402
 from agree.core.format import DEFAULT_DIGITS, format_value, percent_label  # noqa: E402
 from agree.core.results import reaches_minimum  # noqa: E402
 
@@ -378,5 +378,5 @@ def save_figure(fig: Figure, path: str | os.PathLike, *, dpi: int = 150) -> Path
     """Write a figure to `path` in the format its suffix names (.png, .svg, .pdf), atomically."""
     path = Path(path)
     fmt = path.suffix.lower().lstrip(".") or "png"
-    return atomic_write(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=dpi, bbox_inches="tight",
-                                                      facecolor="white"))
+    return atomic_write(path, lambda tmp: through_memory(
+        lambda buffer: fig.savefig(buffer, format=fmt, dpi=dpi, bbox_inches="tight", facecolor="white"), tmp))

@@ -55,8 +55,8 @@ import numpy as np
 import pandas as pd
 
 from agree.core.constants import VERSION
-from agree.core.cells import frame_csv, protect_text, put_cell, unprotect_text  # noqa: F401 (re-exported)
-from agree.core.files import atomic_write, check_output, record_input, sha256_file  # noqa: F401
+from agree.core.cells import frame_csv, protect_text, put_cell, unprotect_text, xml_safe  # noqa: F401 (re-exported)
+from agree.core.files import atomic_write, check_output, record_input, sha256_file, through_memory  # noqa: F401
 from agree.core.model import CONSENSUS_FINAL as FINAL
 from agree.core.model import CONSENSUS_SOURCE as SOURCE
 from agree.core.model import CONSENSUS_SOURCES as SOURCES
@@ -652,7 +652,7 @@ def _list_source(wb: Any, name: str, labels: Sequence[str], column: int) -> str:
     from openpyxl.utils import get_column_letter
 
     inline = '"' + ",".join(labels) + '"'
-    if len(inline) <= _LIST_LITERAL_LIMIT and not any("," in x or '"' in x for x in labels):
+    if len(inline) <= _LIST_LITERAL_LIMIT and not any("," in x or '"' in x or xml_safe(x) != x for x in labels):
         return inline
     if LISTS_SHEET in wb.sheetnames:
         ws = wb[LISTS_SHEET]
@@ -721,7 +721,7 @@ def _write_review_xlsx(tmp: str, data: CodingData, table: pd.DataFrame, pairs: p
     about_ws = wb.create_sheet(ABOUT_SHEET, 2)
     _fill_sheet(about_ws, ["item", "value"], about, max_width=90)
     about_ws.freeze_panes = "A2"
-    wb.save(tmp)
+    through_memory(wb.save, tmp)
 
 
 # -- reading decisions back ----------------------------------------------------------------
@@ -1209,4 +1209,4 @@ def write_table_xlsx(tmp: str, frame: pd.DataFrame, *, title: str, freeze: str =
     ws.title = title
     _fill_sheet(ws, list(frame.columns), frame.itertuples(index=False))
     ws.freeze_panes = freeze
-    wb.save(tmp)
+    through_memory(wb.save, tmp)

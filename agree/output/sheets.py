@@ -134,7 +134,7 @@ def _workbook_bytes(ids: Sequence[Any], context: Mapping[str, Sequence[Any]], te
     inline = ",".join(categories or ())
     # Excel caps an inline list at 255 characters and splits it on commas. A longer list would
     # need a second sheet, which would stop the sheet reading back as a plain per-coder file.
-    if categories and len(inline) <= 250 and not any(("," in c) or ('"' in c) for c in categories):
+    if categories and len(inline) <= 250 and not any("," in c or '"' in c or xml_safe(c) != c for c in categories):
         dv = DataValidation(type="list", formula1=f'"{inline}"', allow_blank=True)
         dv.error = "Pick a code from the codebook list."
         dv.errorTitle = "Not a codebook code"

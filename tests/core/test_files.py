@@ -171,7 +171,8 @@ def _read_only(folder):
         return
     probe.unlink()
     os.chmod(folder, 0o755)
-    pytest.skip("this user can write into read-only folders (root); tests/hostile runs this case as another user")
+    pytest.skip("this user writes into read-only folders (root); tests/hostile runs this case in a process "
+                "without that power")
 
 
 def test_a_read_only_folder_names_the_output(tmp_path):
