@@ -24,7 +24,7 @@ import pandas as pd
 from agree.core.model import AgreeError, cell_location, normalise_value
 from agree.core.seeds import resolve_seed
 from agree.io.codebook import read_codebook
-from agree.io.columns import LIST_ID_NAMES, LIST_TEXT_NAMES, find_column
+from agree.io.columns import LIST_ID_NAMES, LIST_TEXT_NAMES, list_text_column, list_unit_column
 from agree.io.lists import id_key as _id_key
 from agree.io.lists import read_corpus, read_unit_ids  # noqa: F401 (the sample command's readers, re-exported)
 
@@ -38,31 +38,24 @@ TEXT_COLUMN_NAMES = LIST_TEXT_NAMES
 # ---------------------------------------------------------------------------------------
 
 def detect_id_column(corpus: pd.DataFrame, id_col: str | None = None) -> str:
-    """The unit-id column: `id_col` if given, else the first column whose name is a usual id
-    name (unit_id, unit, id, ...; case and spaces ignored)."""
-    found = _find_column(corpus, id_col, ID_COLUMN_NAMES, code="no-id-column")
-    if found is None:
-        columns = ", ".join(str(c) for c in corpus.columns)
-        raise AgreeError("could not find the unit-id column",
-                         hint=f"name it unit_id or pass --unit-col; columns are: {columns}", code="no-id-column")
-    return found
+    """The unit-id column: `id_col` if given, else found as every reader finds it
+    (`agree.io.columns.list_unit_column`: usual and id-shaped names, then unique values)."""
+    _given(corpus, id_col, code="no-id-column")
+    return list_unit_column(corpus, id_col, where=corpus.attrs.get("source"))
 
 
-def detect_text_column(corpus: pd.DataFrame, text_col: str | None = None) -> str | None:
-    """The text column: `text_col` if given, else the first usual text name; None if none."""
-    return _find_column(corpus, text_col, TEXT_COLUMN_NAMES, code="no-text-column")
+def detect_text_column(corpus: pd.DataFrame, text_col: str | None = None) -> str:
+    """The text column: `text_col` if given, else found as every reader finds it
+    (`agree.io.columns.list_text_column`); an error listing the candidates when there is none."""
+    _given(corpus, text_col, code="no-text-column")
+    return list_text_column(corpus, text_col, where=corpus.attrs.get("source"))
 
 
-def _find_column(corpus: pd.DataFrame, given: str | None, names: Sequence[str], *, code: str) -> str | None:
-    """`given` if it is a column (else an error), or the first column named like one of `names`
-    (case and spaces ignored), or None."""
+def _given(corpus: pd.DataFrame, given: str | None, *, code: str) -> None:
     columns = [str(c) for c in corpus.columns]
-    if given is not None:
-        if given not in columns:
-            raise AgreeError(f"no column '{given}' in the list of units",
-                             hint=f"columns are: {', '.join(columns)}", code=code)
-        return given
-    return find_column(columns, names)
+    if given is not None and given not in columns:
+        raise AgreeError(f"no column '{given}' in the list of units",
+                         hint=f"columns are: {', '.join(columns)}", code=code)
 
 
 def _row_where(corpus: pd.DataFrame, position: int, column: str) -> str:

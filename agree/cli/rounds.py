@@ -67,6 +67,16 @@ def read_rounds(files: list[Path], *, round_files: bool, round_column: str | Non
             note(f"round {f.stem}:")
             parts[f.stem] = load_data([f], keep=keep, **reading)
         return None, parts, None
+    if len(files) >= 2 and round_column is None:
+        try:
+            return load_data(files, keep=keep, **reading), None, None
+        except AgreeError as exc:
+            if exc.code != "files-are-rounds":
+                raise
+            note("note: each file has several coder columns: the files are read as rounds, one a file "
+                 "(--round-files)")
+            return read_rounds(files, round_files=True, round_column=None, reading={**reading, "keep": keep},
+                               required=required, cluster=None)
     column = round_column or "round"
     if round_column or required:
         try:

@@ -15,6 +15,7 @@ import pandas as pd
 
 from agree.core.model import MISSING, AgreeError, Provenance, cell_location, normalise_value
 from agree.io.cells import factorize, rows_text
+from agree.io.columns import ROUND_NAMES, column_key, unit_candidates
 from agree.io.layouts import Build
 from agree.io.loaders import raise_all
 from agree.io.values import CellFinder, Values
@@ -116,6 +117,10 @@ def _check_duplicates(b: Build, key, units, rows, source, unit_ids, n, m) -> Non
     if not dup_keys.size:
         return
     problems = []
+    unit_col = b.roles[0].unit
+    others = [c for c in unit_candidates(b.tables[0].frame.columns) if c != unit_col][:4]
+    choose = (f"; if '{unit_col}' does not name the units, choose the unit column with --unit-col (unit=...)"
+              + (f": perhaps {', '.join(repr(c) for c in others)}" if others else ""))
     if b.layout.name == "wide":
         dup_units = np.unique(dup_keys // m)
         for u in dup_units[:20]:
@@ -125,7 +130,7 @@ def _check_duplicates(b: Build, key, units, rows, source, unit_ids, n, m) -> Non
             problems.append(AgreeError(
                 f"unit '{unit_ids[u]}' is in more than one row (rows {rows_text(r)})",
                 where=cell_location(s[0], s[1], int(r[0]), b.roles[0].unit),
-                code="duplicate-unit", hint="each unit must have one row; merge or rename the rows"))
+                code="duplicate-unit", hint="each unit must have one row; merge or rename the rows" + choose))
         total = len(dup_units)
         what = "units are in more than one row"
     else:
@@ -138,7 +143,7 @@ def _check_duplicates(b: Build, key, units, rows, source, unit_ids, n, m) -> Non
                 f"(rows {rows_text(rows[sel])})",
                 where=cell_location(s[0], s[1], int(rows[sel[0]]), s[2]), code="duplicate-coding",
                 hint="keep one row per unit and coder; for several codes put them in one cell "
-                     f"separated by '{b.sep or ';'}', or use 0/1 code columns"))
+                     f"separated by '{b.sep or ';'}', or use 0/1 code columns" + choose + _rounds_hint(b)))
         total = len(dup_keys)
         what = "(unit, coder) pairs are coded more than once"
     if total > len(problems):
@@ -148,6 +153,15 @@ def _check_duplicates(b: Build, key, units, rows, source, unit_ids, n, m) -> Non
     first = problems[0]
     raise AgreeError(f"{total} {what}; first: {first.message}", hint=first.hint, where=first.where,
                      code=first.code, problems=problems)
+
+
+def _rounds_hint(b: Build) -> str:
+    """When the table has a round column, the units may repeat across rounds: say how to analyse them."""
+    rounds = [c for c in b.tables[0].frame.columns if column_key(c) in ROUND_NAMES]
+    if not rounds:
+        return ""
+    return (f"; if units were coded again in another round of '{rounds[0]}', give each round its own file "
+            "and compare them with 'agree rounds FILE1 FILE2 --round-files'")
 
 
 def _per_unit(b: Build, name, entries, unit_ids, table_maps) -> np.ndarray:

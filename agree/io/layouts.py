@@ -95,7 +95,18 @@ class Build:
 
     def run(self) -> "Build":
         single = len(self.tables) == 1
-        roles = [assign_roles(t, self.layout.name, single_table=single, **self.opts) for t in self.tables]
+        try:
+            roles = [assign_roles(t, self.layout.name, single_table=single, **self.opts) for t in self.tables]
+        except AgreeError as exc:
+            if self.layout.per_coder and not single and exc.code == "no-column" and self.opts["code"] is None \
+                    and all(_several_coders(t, self.opts) for t in self.tables):
+                raise AgreeError(
+                    f"each of the {len(self.tables)} files or sheets has several coder columns, so they are not "
+                    "one coder each: they look like rounds (or batches) of the same coding",
+                    where=exc.where, code="files-are-rounds",
+                    hint="compare them with 'agree rounds FILE1 FILE2 --round-files', or read one at a time; "
+                         "for one coder per file name the code column with --code-col (code=...)") from None
+            raise
         if self.layout.as_presence:
             kinds = {bool(r.presence) for r in roles}
             if len(kinds) > 1:
@@ -204,6 +215,15 @@ class Build:
                              hint="coders are named after the file name (or sheet name): rename one")
 
 
+def _several_coders(t: Table, opts: dict) -> bool:
+    """Whether the table alone reads as a wide table of two or more coders."""
+    try:
+        roles = assign_roles(t, "wide", single_table=True, **{**opts, "coder": None, "code": None})
+    except AgreeError:
+        return False
+    return len(roles.coders) >= 2
+
+
 # -- one builder per layout ---------------------------------------------------------------------
 def _add_wide(b: Build, ti: int, t: Table, r: Roles) -> None:
     _, blank = b.unit_rows(ti, t, r)
@@ -253,7 +273,7 @@ def _common(b: Build, r: Roles) -> tuple[str, str, str, int]:
     if r.keep:
         extra += f", kept column(s) {', '.join(repr(k) for k in r.keep)}"
     names = ", ".join(b.coders[:8]) + (", ..." if len(b.coders) > 8 else "")
-    unit_txt = f"unit column '{r.unit}'" + (" (first column)" if r.unit_guessed else "")
+    unit_txt = f"unit column '{r.unit}'" + (f" ({r.unit_how})" if r.unit_how else "")
     return unit_txt, extra, names, len(b.coders)
 
 

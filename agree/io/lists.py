@@ -19,7 +19,7 @@ from typing import Any, Mapping, Sequence
 import pandas as pd
 
 from agree.core.model import AgreeError, cell_location, normalise_value
-from agree.io.columns import LIST_ID_NAMES, column_key, find_column
+from agree.io.columns import LIST_ID_NAMES, column_key, id_column_by_name
 from agree.io.loaders import load, load_tables, loader_for, read_lines
 
 __all__ = ["read_corpus", "read_unit_ids", "read_consensus", "find_records", "Records", "plain_list",
@@ -113,7 +113,7 @@ def read_unit_ids(paths: str | os.PathLike | Sequence[str | os.PathLike], *,
         found = False
         for table in tables:
             columns = [str(c) for c in table.frame.columns]
-            column = id_col if id_col in columns else find_column(columns, LIST_ID_NAMES)
+            column = id_col if id_col in columns else id_column_by_name(columns)
             if column is None:
                 continue
             found = True
@@ -122,9 +122,11 @@ def read_unit_ids(paths: str | os.PathLike | Sequence[str | os.PathLike], *,
                 if key is not None:
                     seen.setdefault(key, None)
         if not found:
+            columns = [str(c) for t in tables for c in t.frame.columns]
             raise AgreeError(f"could not find the unit-id column in {path.name}", where=str(path),
-                             hint="name it unit_id (or excerpt_id, id, ...), pass --unit-col, or give "
-                                  "a .txt list of ids", code="no-id-column")
+                             hint="name it unit_id (or excerpt_id, msg_id, id, ...), pass --unit-col, or give "
+                                  f"a .txt list of ids (columns: {', '.join(repr(c) for c in dict.fromkeys(columns))})",
+                             code="no-id-column")
     return tuple(seen)
 
 

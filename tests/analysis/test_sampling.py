@@ -121,8 +121,8 @@ def test_bad_draws(kwargs, code):
 
 def test_id_column_must_be_found():
     with pytest.raises(AgreeError) as err:
-        draw_sample(pd.DataFrame({"x": [1, 2]}), 1)
-    assert err.value.code == "no-id-column"
+        draw_sample(pd.DataFrame({"round": [1, 1, 2], "x": [1, 1, 2]}), 1)
+    assert err.value.code == "no-id-column" and "--unit-col" in err.value.hint and "'round'" in err.value.hint
 
 
 # -- the workbooks --------------------------------------------------------------------------------

@@ -65,3 +65,20 @@ def test_cli_rounds_cluster():
     assert printed["settings"]["cluster"] == "interview"
     assert printed["settings"]["n_clusters"] == {"round1": 12, "round2": 12}
     assert "12 interview groups" in result.stderr
+
+
+def test_two_complete_multi_coder_files_are_rounds(tmp_path, capsys):
+    import pandas as pd
+
+    from tests.cli.conftest import run_main
+
+    for i in (1, 2):
+        pd.DataFrame({"unit": [f"u{i}{k}" for k in range(6)], "ann": list("abab" + "aa"),
+                      "bo": list("abba" + "aa")}).to_csv(tmp_path / f"r{i}.csv", index=False)
+    code, out, err = run_main(capsys, "rounds", tmp_path / "r1.csv", tmp_path / "r2.csv", "--boot", "0",
+                              "--format", "json")
+    assert code == 0, err
+    assert "the files are read as rounds" in err and "--round-files" in err
+    import json
+
+    assert [r["round"] for r in json.loads(out)["rounds"]] == ["r1", "r2"]

@@ -164,3 +164,25 @@ def test_cli_sample_read_back_resamples_units_not_strata(tmp_path):
     scored = CliRunner().invoke(app, words + ["--format", "json", "--boot", "200"])
     assert scored.exit_code == 0, scored.output
     assert json.loads(scored.stdout)["bootstrap"]["unit"] == "cluster:school"
+
+
+def test_sample_finds_msg_id_and_message_and_stops_without_text(tmp_path, capsys):
+    import openpyxl
+    import pandas as pd
+
+    from tests.cli.conftest import run_main
+
+    corpus = tmp_path / "chats.csv"
+    pd.DataFrame({"round": [1] * 6, "msg_id": [f"m{i}" for i in range(6)],
+                  "message": [f"message number {i} about a late delivery" for i in range(6)]}).to_csv(corpus, index=False)
+    code, out, err = run_main(capsys, "sample", corpus, "-n", "3", "--coders", "ann,bo", "-o", tmp_path / "s")
+    assert code == 0, err
+    ws = openpyxl.load_workbook(tmp_path / "s" / "ann.xlsx").active
+    rows = list(ws.iter_rows(values_only=True))
+    assert rows[0][0] == "unit_id" and all(r[0].startswith("m") for r in rows[1:])
+    assert all(r[rows[0].index("text")].startswith("message number") for r in rows[1:])
+    bare = tmp_path / "bare.csv"
+    pd.DataFrame({"msg_id": ["m1", "m2", "m3"], "channel": ["mail", "chat", "mail"]}).to_csv(bare, index=False)
+    code, _, err = run_main(capsys, "sample", bare, "-n", "2", "--coders", "ann,bo", "-o", tmp_path / "t")
+    assert code == 2 and "could not find the column with the units' text" in err and "--text-col" in err
+    assert not (tmp_path / "t").exists()
