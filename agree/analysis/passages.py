@@ -659,6 +659,13 @@ class PassageAgreement:
     notes: tuple[Note, ...] = ()
     data: CodingData | None = field(default=None, repr=False)
 
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        return notebook_text("PassageAgreement", self.view,
+                             self.to_frame(), notes=[n.message for n in self.notes],
+                             columns=["code", "coefficient", "estimate", "ci_low", "ci_high", "n_units"])
+
     def to_frame(self) -> pd.DataFrame:
         """One row per code and coefficient (the overall set-valued alpha first), with the view."""
         rows = []

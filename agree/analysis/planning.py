@@ -145,8 +145,18 @@ class Plan:
         return pd.DataFrame([(p.units, p.assurance, p.mc_error, p.smoothed) for p in self.curve],
                             columns=["units", "assurance", "mc_error", "smoothed"])
 
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        return notebook_text("Plan", self._summary(), self.to_frame(), notes=[w.message for w in self.warnings])
+
     def _repr_html_(self) -> str:
-        from agree.core.format import format_value, notebook_html
+        from agree.core.format import notebook_html
+
+        return notebook_html(self._summary(), self.to_frame(), notes=[w.message for w in self.warnings])
+
+    def _summary(self) -> str:
+        from agree.core.format import format_value
 
         wanted = self.inputs.get("assurance")
         minimum = self.inputs.get("minimum")
@@ -160,9 +170,8 @@ class Plan:
             at = ("" if self.assurance_at_units_needed is None else
                   f" (assurance there {format_value(self.assurance_at_units_needed, 'number', 3)})")
             head = f"Plan: {self.units_needed} units coded by every coder so that {target}{at}."
-        summary = (f"{head} {self.replicates} simulated studies per size, {self.n_resamples} "
-                   f"bootstrap resamples each, seed {self.seed}.")
-        return notebook_html(summary, self.to_frame(), notes=[w.message for w in self.warnings])
+        return (f"{head} {self.replicates} simulated studies per size, {self.n_resamples} "
+                f"bootstrap resamples each, seed {self.seed}.")
 
     def to_dict(self) -> dict[str, Any]:
         return json_safe({

@@ -331,6 +331,13 @@ class RoundsResult:
             "warnings": [w.to_dict() for w in self.warnings],
         })
 
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        return notebook_text("RoundsResult", " ".join(self.summary), self.to_frame(),
+                             notes=[w.message for w in self.warnings],
+                             columns=["round", "code", "estimate", "ci_low", "ci_high", "n_units", "status"])
+
     def _repr_html_(self) -> str:
         from agree.core.format import notebook_html
 

@@ -216,18 +216,46 @@ def _notebook_cell(v: Any, counts: bool = False) -> str:
     return str(v)
 
 
-def notebook_html(summary: str, frame: "pd.DataFrame", *, notes: Sequence[str] = (),
-                  max_rows: int = 60) -> str:
-    """A result for a notebook: one summary line and its main table (an HTML fragment).
-
-    All text is HTML-escaped; missing values and NaN show as an en dash; numbers get three
-    decimals (whole counts none). Long tables show their first and last rows."""
+def _notebook_frame(frame: "pd.DataFrame") -> "pd.DataFrame":
+    """The cells of a result table as text: three decimals, whole counts, '–' where missing."""
     shown = frame.astype(object).copy()
     for j in range(frame.shape[1]):
         column = frame.iloc[:, j]
         finite = column[np.isfinite(column)] if column.dtype.kind in "fiu" else column.iloc[:0]
         counts = bool(len(finite) and (finite == np.round(finite)).all() and (finite.abs() > 1).any())
         shown.iloc[:, j] = [_notebook_cell(v, counts) for v in column]
+    return shown
+
+
+def notebook_text(name: str, summary: str, frame: "pd.DataFrame | None" = None, *,
+                  notes: Sequence[str] = (), columns: Sequence[str] | None = None,
+                  max_rows: int = 10, max_cell: int = 28) -> str:
+    """A result's ``repr``: its name and summary line, its main table as `notebook_html` shows it
+    (the `columns` given, first and last rows when long, long cells shortened) and its first
+    notes. A screenful that says what the result says, as pandas and scipy objects do, never
+    every array it holds."""
+    said, _, rest = summary.partition(": ")
+    if rest and said.replace(" ", "").lower() == name.lower():     # "Plan: ..." under the name Plan
+        summary = rest
+    lines = [f"{name}: {summary}"]
+    if frame is not None and columns is not None:
+        frame = frame[[c for c in columns if c in frame.columns]]
+    if frame is not None and frame.shape[1]:
+        lines.append(_notebook_frame(frame).to_string(index=False, max_rows=max_rows, max_colwidth=max_cell))
+    shown = list(notes)[:3]
+    lines += [f"note: {n}" for n in shown]
+    if len(notes) > len(shown):
+        lines.append(f"({len(notes) - len(shown)} more notes)")
+    return "\n".join(lines)
+
+
+def notebook_html(summary: str, frame: "pd.DataFrame", *, notes: Sequence[str] = (),
+                  max_rows: int = 60) -> str:
+    """A result for a notebook: one summary line and its main table (an HTML fragment).
+
+    All text is HTML-escaped; missing values and NaN show as an en dash; numbers get three
+    decimals (whole counts none). Long tables show their first and last rows."""
+    shown = _notebook_frame(frame)
     table = shown.to_html(index=False, escape=True, na_rep="–", max_rows=max_rows,
                           border=0, classes="agree-table")
     notes_html = "".join(f"<p><small>{html.escape(str(n))}</small></p>" for n in notes)

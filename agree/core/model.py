@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.errors import AgreeError, cell_location  # noqa: F401  (re-exported: agree.core.model.AgreeError)
+from agree.core.format import notebook_html, percent_label
 
 LEVELS = ("nominal", "ordinal", "interval", "ratio")
 MISSING = -1
@@ -191,6 +192,53 @@ class CodingData:
             return False
         return True
 
+    # -- how it prints -----------------------------------------------------------------
+    def summary(self) -> str:
+        """One line: units, coders, level and categories (and weights, when rows stand for
+        several units)."""
+        rows = (f"{self.n_units:,} units" if self.weights is None else
+                f"{self.n_units:,} rows standing for {self.units_represented:,} units")
+        kind = "sets of codes from " if self.set_valued else ""
+        return (f"{rows} × {self.n_coders} coders, level {self.level}, {kind}"
+                f"{len(self.categories)} categor{'y' if len(self.categories) == 1 else 'ies'}")
+
+    def _details(self) -> list[tuple[str, str]]:
+        """(item, value) lines of the repr: short, whatever the size of the data."""
+        cells = self.codes.size
+        missing = int((self.codes < 0).sum())
+        out = [("coders", _shown(self.coders, 6, "coders")),
+               ("categories", _shown([value_label(c) for c in self.categories], 8, "categories")),
+               ("missing", f"{missing:,} of {cells:,} cells ({percent_label(missing / cells if cells else 0, 1)}): "
+                           "the coder did not code the unit")]
+        if self.set_valued:
+            empty = [i for i, v in enumerate(self.values) if not v]
+            n_empty = int(np.isin(self.codes, empty).sum()) if empty else 0
+            out.append(("set-valued", f"several codes per cell; {n_empty:,} empty set{'' if n_empty == 1 else 's'} "
+                                          "(coded, no code applied)"))
+        if self.weights is not None:
+            out.append(("weights", f"{int(self.weights.min()):,} to {int(self.weights.max()):,} units per row"))
+        other = list(self.columns) + (["unit text"] if self.text is not None else [])
+        if other:
+            out.append(("columns", _shown(other, 6, "columns")))
+        if self.codebook:
+            out.append(("codebook", f"{len(self.codebook)} definitions"))
+        if not self.coder_identity:
+            out.append(("coders", "positions of values, not coder identities"))
+        if self.report is not None and self.report.files:
+            files = _shown([str(f) for f in self.report.files], 3, "files")
+            layout = self.report.detected.split(":")[0] if self.report.detected else ""
+            out.append(("read from", files + (f" ({layout})" if layout and len(layout) < 40 else "")))
+        return out
+
+    def __repr__(self) -> str:
+        details = self._details()
+        width = max(len(k) for k, _ in details)
+        return "\n".join([f"CodingData: {self.summary()}"] + [f"  {k:<{width}}  {v}" for k, v in details])
+
+    def _repr_html_(self) -> str:
+        return notebook_html(f"CodingData: {self.summary()}",
+                             pd.DataFrame(self._details(), columns=["", "value"]))
+
     # -- derived data ------------------------------------------------------------------
     def labels(self) -> pd.DataFrame:
         """The codes as a units x coders DataFrame of values (None for missing)."""
@@ -244,6 +292,12 @@ class CodingData:
 
     def with_level(self, level: str) -> "CodingData":
         return replace(self, level=level)
+
+
+def _shown(items: Sequence[str], limit: int, what: str, width: int = 30) -> str:
+    """'a, b, c' or 'a, b, ... (40 coders)': at most `limit` items, each at most `width` characters."""
+    cut = [x if len(x) <= width else x[:width - 1] + "…" for x in map(str, items[:limit])]
+    return ", ".join(cut) + (f", … ({len(items):,} {what})" if len(items) > limit else "")
 
 
 def _unit_weights(weights: Any, n: int) -> np.ndarray:

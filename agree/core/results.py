@@ -145,10 +145,11 @@ class AgreementResult:
             "warnings": [w.to_dict() for w in self.warnings],
         })
 
-    def _repr_html_(self) -> str:
+    def _view(self) -> tuple[str, Any, list[str]]:
+        """Summary line, one-row table and notes, for the notebook and the repr."""
         import pandas as pd
 
-        from agree.core.format import notebook_html, percent_label
+        from agree.core.format import percent_label
 
         row = {"estimate": self.estimate, "se": self.se, "ci_low": self.ci_low, "ci_high": self.ci_high,
                "n_units": self.n_units, "n_coders": self.n_coders}
@@ -158,4 +159,16 @@ class AgreementResult:
                f"SE: {self.se_method}" if self.se_method else "",
                f"{percent_label(self.confidence_level)} CI: {self.ci_method}" if self.ci_method else ""]
         summary = display_name(self.name) + ": " + "; ".join(h for h in how if h)
-        return notebook_html(summary, pd.DataFrame([row]), notes=[w.message for w in self.warnings])
+        return summary, pd.DataFrame([row]), [w.message for w in self.warnings]
+
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        summary, frame, notes = self._view()
+        return notebook_text("AgreementResult", summary, frame, notes=notes)
+
+    def _repr_html_(self) -> str:
+        from agree.core.format import notebook_html
+
+        summary, frame, notes = self._view()
+        return notebook_html(summary, frame, notes=notes)

@@ -55,6 +55,7 @@ import numpy as np
 import pandas as pd
 
 from agree.core.constants import VERSION
+from agree.core.format import notebook_html, notebook_text
 from agree.core.cells import frame_csv, protect_text, put_cell, unprotect_text, xml_safe  # noqa: F401 (re-exported)
 from agree.core.files import atomic_write, check_output, record_input, sha256_file, through_memory  # noqa: F401
 from agree.core.model import CONSENSUS_FINAL as FINAL
@@ -188,18 +189,17 @@ class Consensus:
 
     def summary(self) -> str:
         """One line: the units read and how each got its final code."""
-        return (f"Consensus from {self.review}: {self.units_read} units read; {self.agreed} agreed, "
-                f"{self.decided} decided, {self.majority} by majority, {len(self.single_coder)} kept "
-                f"from a single coder, {len(self.unresolved)} unresolved, {len(self.not_coded)} coded "
-                "by no coder.")
+        return (f"{self.units_read} units read; {self.agreed} agreed, {self.decided} decided, "
+                f"{self.majority} by majority, {len(self.single_coder)} kept from a single coder, "
+                f"{len(self.unresolved)} unresolved, {len(self.not_coded)} coded by no coder "
+                f"(decisions from {self.review}).")
 
     def __repr__(self) -> str:
-        return f"<{self.summary()}>"
+        return notebook_text("Consensus", self.summary(), consensus_frame(self), notes=self.notes,
+                             columns=[UNIT, FINAL, SOURCE, HOW])
 
     def _repr_html_(self) -> str:
-        from agree.core.format import notebook_html
-
-        return notebook_html(self.summary(), consensus_frame(self), notes=self.notes)
+        return notebook_html("Consensus: " + self.summary(), consensus_frame(self), notes=self.notes)
 
     def to_dict(self) -> dict[str, Any]:
         return {

@@ -101,9 +101,8 @@ class ScoreResult:
             "n_units": r.n_units, "weights": r.weights or ("" if family(name) in ("alpha", "percent") else "unweighted"),
             "se_method": r.se_method, "ci_method": r.ci_method} for name, r in self.coefficients.items()])
 
-    def _repr_html_(self) -> str:
-        from agree.core.format import notebook_html
-
+    def _view(self) -> tuple[str, Any, list[str]]:
+        """Summary line, table and notes, for the notebook and the repr."""
         summary = (f"{self.units_used} of {self.units_read} units used, {len(self.coders)} coders "
                    f"({', '.join(self.coders)}), level {self.level}; {percent_label(self.confidence_level)} intervals"
                    + (f" from {self.n_resamples} bootstrap replicates ({self.ci_method}, {self.resampled}), seed "
@@ -114,7 +113,20 @@ class ScoreResult:
         decision = self.decision()
         if decision is not None:
             notes.insert(0, "Decision: " + decision["sentence"] + ".")
-        return notebook_html(summary, self.to_frame(), notes=notes)
+        return summary, self.to_frame(), notes
+
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        summary, frame, notes = self._view()
+        return notebook_text("ScoreResult", summary, frame, notes=notes,
+                             columns=["coefficient", "estimate", "se", "ci_low", "ci_high", "lower_bound"])
+
+    def _repr_html_(self) -> str:
+        from agree.core.format import notebook_html
+
+        summary, frame, notes = self._view()
+        return notebook_html(summary, frame, notes=notes)
 
 
 def score(data: Any, *, level: str | None = None, minimum: float | None = None, n_resamples: int = DEFAULT_RESAMPLES,

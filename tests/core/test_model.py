@@ -77,3 +77,41 @@ def test_non_finite_numbers_are_refused_naming_the_cell(table):
                 min_size=1, max_size=12))
 def test_mixed_tables_follow_the_cell_rule(rows):
     assert _decoded(from_table(rows)) == _cellwise(rows)
+
+
+# -- how a CodingData prints -------------------------------------------------------------------
+def _bigger(n_units: int):
+    rng = np.random.default_rng(0)
+    codes = rng.integers(0, 6, size=(n_units, 3)).astype(float)
+    codes[rng.random(codes.shape) < 0.05] = np.nan
+    return from_table(codes, coders=["amara", "bastien", "chen"])
+
+
+def test_repr_is_a_short_summary_whatever_the_size():
+    """Before: printing CodingData dumped every array (about 5,000 characters for 80 units and
+    growing with them). Now a few lines say units, coders, level, categories and missing cells,
+    the same length for 80 units as for 200,000, as pandas and scipy objects do."""
+    small, large = _bigger(80), _bigger(200_000)
+    for data in (small, large):
+        text = repr(data)
+        assert text.startswith(f"CodingData: {data.n_units:,} units × 3 coders, level ")
+        assert "array(" not in text and len(text.splitlines()) <= 10
+        assert "amara, bastien, chen" in text and "6 categories" in text
+        missing = int(np.sum(data.codes < 0))
+        assert f"missing     {missing:,} of {data.codes.size:,} cells" in text
+    assert abs(len(repr(large)) - len(repr(small))) < 30
+    page = small._repr_html_()
+    assert "<table" in page and "CodingData: 80 units" in page and "array(" not in page
+
+
+def test_repr_says_weights_sets_and_long_lists_shortened():
+    from dataclasses import replace
+
+    weighted = replace(from_table([[1, 1], [1, 2]], coders=["a", "b"]), weights=np.array([1000, 5]))
+    text = repr(weighted)
+    assert "2 rows standing for 1,005 units" in text and "weights     5 to 1,000 units per row" in text
+    sets = from_table([[{"x", "y"}, set()], [{"x"}, None]], coders=["a", "b"])
+    assert "set-valued  several codes per cell; 1 empty set (coded, no code applied)" in repr(sets)
+    many = from_table([[f"code {i}" for i in range(40)]], coders=[f"coder {i}" for i in range(40)])
+    text = repr(many)
+    assert "… (40 coders)" in text and "… (40 categories)" in text and len(text) < 600

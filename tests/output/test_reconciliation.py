@@ -677,7 +677,7 @@ def test_consensus_from_a_dataframe_names_it_review_table_and_displays_in_a_note
     assert cons.review == "review table"           # as the docstring says
     assert Consensus.__dataclass_fields__["review"].default == "review table"
     page = cons._repr_html_()
-    assert "Consensus from review table" in page and "<table" in page
+    assert "Consensus: " in page and "(decisions from review table)" in page and "<table" in page
     assert "&lt;i&gt;b&lt;/i&gt;" in page and "<i>b</i>" not in page
     assert "–" in page and "None" not in page      # missing codes shown as an en dash
 

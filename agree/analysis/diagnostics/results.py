@@ -114,9 +114,22 @@ class CodeDiagnostics:
         """One row per code, worst first (see ``per_code`` for the columns)."""
         return self.per_code.sort_values("rank", kind="stable").reset_index(drop=True)
 
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        summary, frame = self._view()
+        return notebook_text("CodeDiagnostics", summary, frame, notes=[n.message for n in self.notes],
+                             columns=["rank", "code", "status", "alpha", "ci_low", "ci_high", "lower_bound"])
+
     def _repr_html_(self) -> str:
         from agree.core.format import notebook_html
 
+        summary, frame = self._view()
+        shown = ["rank", "code", "status", "alpha", "ci_low", "ci_high", "lower_bound", "specific_agreement",
+                 "kappa", "units_with_code", "top_confusion", "reason"]
+        return notebook_html(summary, frame[shown], notes=[n.message for n in self.notes])
+
+    def _view(self) -> tuple[str, pd.DataFrame]:
         frame = self.to_frame()
         counts = frame["status"].value_counts()
         statuses = ", ".join(f"{int(counts[s])} {s}" for s in STATUSES if s in counts)
@@ -124,9 +137,7 @@ class CodeDiagnostics:
         summary = (f"Code diagnostics: {len(frame)} codes, {len(self.coders)} coders, "
                    f"{self.n_pairable_units} of {self.n_units} units pairable; "
                    f"overall α = {_display(self.alpha)} ({self.alpha_label}); {minimum}: {statuses}.")
-        shown = ["rank", "code", "status", "alpha", "ci_low", "ci_high", "lower_bound", "specific_agreement",
-                 "kappa", "units_with_code", "top_confusion", "reason"]
-        return notebook_html(summary, frame[shown], notes=[n.message for n in self.notes])
+        return summary, frame
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe dict: ``codes`` (rows of ``to_frame()``), ``confused_pairs``, ``usage``,
@@ -229,12 +240,22 @@ class CoderDiagnostics:
                          "mean_kappa": _nanmean(pairs.kappa), "mean_alpha": _nanmean(pairs.alpha)})
         return pd.DataFrame(rows)
 
+    def _summary(self) -> str:
+        return (f"Coder diagnostics: {len(self.coders)} coders, {self.n_units} units; "
+                f"α = {_display(self.alpha)} ({self.level_label}).")
+
+    def __repr__(self) -> str:
+        from agree.core.format import notebook_text
+
+        return notebook_text("CoderDiagnostics", self._summary(), self.to_frame(),
+                             notes=[n.message for n in self.notes],
+                             columns=["coder", "units_coded", "alpha_without", "delta", "delta_ci_low",
+                                      "delta_ci_high", "mean_alpha"])
+
     def _repr_html_(self) -> str:
         from agree.core.format import notebook_html
 
-        summary = (f"Coder diagnostics: {len(self.coders)} coders, {self.n_units} units; "
-                   f"α = {_display(self.alpha)} ({self.level_label}).")
-        return notebook_html(summary, self.to_frame(), notes=[n.message for n in self.notes])
+        return notebook_html(self._summary(), self.to_frame(), notes=[n.message for n in self.notes])
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-safe dict: ``coders`` (rows of ``to_frame()``), ``pairwise``,

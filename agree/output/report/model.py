@@ -8,7 +8,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
-from agree.core.format import plain
+from agree.core.format import notebook_text, plain
+from agree.core.registry import display_name
 from agree.core.results import AgreementResult, Note, json_safe
 from agree.output.report.html import render_html
 
@@ -215,6 +216,15 @@ class Report:
             "warnings": [w.to_dict() for w in self.warnings],
         })
 
+    def _summary(self) -> str:
+        name = f"{self.variable}: " if self.variable else ""
+        return (f"{self.title} — {name}{self.sample.units_used} of {self.sample.units_read} units used, "
+                f"{self.sample.n_coders} coders, level {self.level}, minimum {self.minimum:g}")
+
+    def __repr__(self) -> str:
+        return notebook_text("Report", self._summary(), coefficient_frame(self.coefficients),
+                             notes=[w.message for w in self.warnings])
+
     def _repr_html_(self) -> str:
         return render_html(self, standalone=False)
 
@@ -293,5 +303,23 @@ class StudyReport:
             "sections": [r.to_dict() for r in self.sections],
         })
 
+    def __repr__(self) -> str:
+        return notebook_text("StudyReport", f"{self.title} — {len(self.sections)} variables",
+                             coefficient_frame([r.primary_result for r in self.sections
+                                                if r.primary_result is not None],
+                                               [r.variable for r in self.sections if r.primary_result is not None]))
+
     def _repr_html_(self) -> str:
         return render_html(self, standalone=False)
+
+
+def coefficient_frame(results: Any, variables: Any = None) -> Any:
+    """Coefficients as a small table (coefficient, estimate, interval, units), for the reprs."""
+    import pandas as pd
+
+    rows = [{"coefficient": display_name(r.name), "estimate": r.estimate, "ci_low": r.ci_low,
+             "ci_high": r.ci_high, "n_units": r.n_units} for r in results]
+    frame = pd.DataFrame(rows, columns=["coefficient", "estimate", "ci_low", "ci_high", "n_units"])
+    if variables is not None:
+        frame.insert(0, "variable", list(variables))
+    return frame
