@@ -44,6 +44,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
+from agree.core.files import record_input
 from agree.core.model import LEVELS, AgreeError, CodingData, ReadReport, cell_location, normalise_value
 from agree.io.counts import Atoms, as_book, resolve_values
 from agree.io.columns import CODE_NAMES, CODER_NAMES, TEXT_NAMES, UNIT_NAMES, find_column
@@ -291,6 +292,8 @@ def read_duckdb(paths: str | Path | Sequence[str | Path], *, unit: str | None = 
         raise AgreeError("the DuckDB engine needs the duckdb package", code="missing-dependency",
                          hint="pip install duckdb, or use --engine pandas") from None
     files = expand_paths(paths)
+    for f in files:
+        record_input(f)          # an input of this run: no output of the run may replace it
     if level is not None and level not in LEVELS:
         raise AgreeError(f"level must be one of {', '.join(LEVELS)}; got '{level}'", code="bad-option")
     book = as_book(codebook, trim=trim)

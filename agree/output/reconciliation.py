@@ -57,7 +57,7 @@ import pandas as pd
 from agree.core.constants import VERSION
 from agree.core.format import notebook_html, notebook_text
 from agree.core.cells import frame_csv, protect_text, put_cell, unprotect_text, xml_safe  # noqa: F401 (re-exported)
-from agree.core.files import atomic_write, check_output, record_input, sha256_file, through_memory  # noqa: F401
+from agree.core.files import atomic_write, check_output, sha256_file, through_memory  # noqa: F401
 from agree.core.model import CONSENSUS_FINAL as FINAL
 from agree.core.model import CONSENSUS_SOURCE as SOURCE
 from agree.core.model import CONSENSUS_SOURCES as SOURCES
