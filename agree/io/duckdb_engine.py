@@ -287,7 +287,7 @@ def read_duckdb(paths: str | Path | Sequence[str | Path], *, unit: str | None = 
         how many and the first offending rows (file and row).
     """
     try:
-        import duckdb  # noqa: F401
+        import duckdb
     except ImportError:  # pragma: no cover - a dependency
         raise AgreeError("the DuckDB engine needs the duckdb package", code="missing-dependency",
                          hint="pip install duckdb, or use --engine pandas") from None
@@ -305,6 +305,12 @@ def read_duckdb(paths: str | Path | Sequence[str | Path], *, unit: str | None = 
         return _reduce(con, src, _Progress(con, progress), unit=unit, coder=coder, code=code,
                        keep=list(dict.fromkeys([*([cluster] if cluster else []), *keep])), book=book, level=level,
                        sep=sep, trim=trim, casefold=casefold)
+    except duckdb.OutOfMemoryException as exc:
+        limit = memory_limit or os.environ.get("AGREE_DUCKDB_MEMORY", DEFAULT_MEMORY)
+        raise AgreeError(f"DuckDB ran out of its memory limit ({limit}) while reducing the files "
+                         f"({str(exc).splitlines()[0]})", where=files[0], code="out-of-memory",
+                         hint="raise the limit (AGREE_DUCKDB_MEMORY=2GB, or memory_limit='2GB'): counts per cluster "
+                              "of 1e8 rows need about 1.5 GB; fewer threads also help") from None
     finally:
         con.close()
         shutil.rmtree(temp, ignore_errors=True)
