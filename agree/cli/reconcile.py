@@ -102,7 +102,7 @@ def reconcile_command(
     inputs = [review_file, *files] + ([codebook] if codebook else [])
     write_consensus(consensus, output, format=file_format, inputs=inputs, force=force, data=data)
     for line in consensus.notes:
-        note(f"note: {line}")
+        note(line if line.startswith("warning:") else f"note: {line}")
     if consensus.unresolved:
         n = len(consensus.unresolved)
         note(f"{n} unit{'s' if n != 1 else ''} written without a final code (unresolved): "

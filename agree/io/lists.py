@@ -148,6 +148,7 @@ class Records:
     rows : the spreadsheet row of each record.
     kind : the loader's kind ("text": every cell is text as written).
     sheets : every record (header row included) of each sheet of the file, by sheet name.
+    notes : warnings about the sheet the records come from (formula cells read as empty).
     """
 
     file: str
@@ -157,6 +158,7 @@ class Records:
     rows: list[int]
     kind: str
     sheets: Mapping[str, list[list]]
+    notes: tuple[str, ...] = ()  # warnings about the file (formula cells without a stored result)
 
 
 def find_records(path: str | os.PathLike, *, columns: Sequence[str], prefer: str | None = None,
@@ -176,8 +178,10 @@ def find_records(path: str | os.PathLike, *, columns: Sequence[str], prefer: str
         below = records[id(grid)]
         for k, cells in enumerate([grid.header] + below[: search - 1]):
             if all(w in {_cell_key(v) for v in cells} for w in wanted):
+                here = cell_location(name, grid.sheet)
+                notes = tuple(n for n in loaded.notes if f" {here}:" in n or n.startswith(f"{here}:"))
                 return Records(name, grid.sheet, list(cells), below[k:], [int(r) for r in grid.rows[k:]],
-                               loaded.kind, sheets)
+                               loaded.kind, sheets, notes)
     if len(grids) == 1 and grids[0].sheet is None:
         keys = {_cell_key(v) for v in grids[0].header}
         missing = [c for c, w in zip(columns, wanted) if w not in keys]

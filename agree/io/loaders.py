@@ -583,24 +583,73 @@ def _select_sheets(sheet: Any, titles: list[str], name: str) -> list[str]:
 
 
 # -- parquet ----------------------------------------------------------------------------------
+def _nested(kind) -> str | None:
+    """How a sentence names an Arrow type agree cannot read as a cell (None: it can; lists of
+    plain values can: they are read as sets of codes)."""
+    import pyarrow.types as pat
+
+    if pat.is_dictionary(kind):
+        kind = kind.value_type
+    if pat.is_list(kind) or pat.is_large_list(kind) or pat.is_fixed_size_list(kind):
+        inner = _nested(kind.value_type)
+        return None if inner is None else f"lists of {inner}" if not inner.startswith("lists") else inner
+    if pat.is_struct(kind):
+        return "structs (records of named fields)"
+    if pat.is_map(kind):
+        return "maps (key-value pairs)"
+    if pat.is_union(kind):
+        return "unions of types"
+    if pat.is_binary(kind) or pat.is_large_binary(kind) or pat.is_fixed_size_binary(kind):
+        return "binary values"
+    return None
+
+
+def _as_tuples(values: np.ndarray) -> np.ndarray:
+    """A column of lists as tuples (hashable, order and repeats kept; None for a missing list):
+    the readers take a tuple of codes as a set of codes (`normalise_value`), an empty one as the
+    empty set; a multiset of a pattern-count table keeps its repeats."""
+    out = np.empty(len(values), dtype=object)
+    out[:] = [None if v is None else tuple(v) for v in values]
+    return out
+
+
 def _load_parquet(path: Path, *, name: str, sheet: Any = None, suffix: str = "") -> Loaded:
     import pyarrow as pa
     import pyarrow.parquet as pq
+    import pyarrow.types as pat
 
     try:
-        frame = pq.read_table(path).to_pandas()
+        table = pq.read_table(path)
     except (pa.ArrowException, OSError) as exc:
         raise AgreeError(f"the Parquet file is damaged and cannot be read ({str(exc).splitlines()[0]})",
                          where=name, hint="write the file again", code="corrupt-parquet") from None
-    if frame.shape[1] == 0:
+    if table.num_columns == 0:
         raise AgreeError("the file has no columns", where=name, code="empty-file",
                          hint="check that the data were saved")
+    problems = []
+    for column, field_ in zip(table.column_names, table.schema):
+        what = _nested(field_.type)
+        if what is not None:
+            problems.append(AgreeError(
+                f"column '{column}' holds {what} ({field_.type}), which cannot be read as codes, unit ids or text",
+                where=cell_location(name, None, 1, column), code="nested-column",
+                hint="write that column as text or numbers (several codes per unit as a list of codes, or as "
+                     "text separated by ';'), or leave it out of the file"))
+    raise_all(problems, "columns hold values that cannot be read")
+    lists = [c for c, f in zip(table.column_names, table.schema)
+             if pat.is_list(f.type) or pat.is_large_list(f.type) or pat.is_fixed_size_list(f.type)]
+    frame = table.to_pandas()
+    del table
+    for c in lists:  # several codes per unit: sets, as the readers make of "a; b"
+        frame[c] = _as_tuples(frame[c].to_numpy(dtype=object))
     frame = frame.reset_index(drop=True)
     header = [str(c) for c in frame.columns]
     frame.columns = range(frame.shape[1])
     rows = np.arange(2, len(frame) + 2, dtype=np.int64)
+    notes = ((f"{name}: list column(s) {', '.join(repr(c) for c in lists)} read as sets of codes (the data are "
+              "analysed as sets; an empty list is a unit coded with no code applied)",) if lists else ())
     grid = Grid(name, None, header, frame, rows, letters=False, kind="parquet")
-    return Loaded((grid,), checksums={name: sha256_file(path)}, kind="parquet")
+    return Loaded((grid,), notes=notes, checksums={name: sha256_file(path)}, kind="parquet")
 
 
 # -- the table of formats ---------------------------------------------------------------------

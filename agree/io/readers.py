@@ -147,6 +147,10 @@ def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim,
     fields = assemble(build, book=book, level=level)
     codes = fields["codes"]
     observed = int((codes >= 0).sum())
+    if observed == 0:
+        raise AgreeError(f"no codes were read: every code cell of the {len(build.coders)} coders is empty "
+                         f"({codes.shape[0]} units)", where=", ".join(str(f) for f in files), code="no-values",
+                         hint=f"fill in the coding sheets; read as {build.detected}")
     report = ReadReport(
         detected=build.detected,
         files=tuple(str(f) for f in files),

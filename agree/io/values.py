@@ -94,7 +94,9 @@ class Values:
             book_atoms = self._presence_codebook_check(book)
         else:
             atoms = list(self.enc.vocab)
-            set_valued = self.sep is not None and any(isinstance(a, str) and self.sep in a for a in atoms)
+            listed = any(isinstance(a, frozenset) for a in atoms)  # list cells (Parquet lists of codes)
+            split = self.sep is not None and any(isinstance(a, str) and self.sep in a for a in atoms)
+            set_valued = listed or split
             if set_valued:
                 atoms_sets = [self._split(a) for a in atoms]
         if set_valued:
@@ -115,7 +117,7 @@ class Values:
                 categories = [cat for _, cat, _ in self.enc.presence_columns]
             else:
                 categories = sorted(parts, key=value_sort_key)
-            if not self.presence:
+            if not self.presence and split:   # (lists of codes: the loader's note says so)
                 self.notes.append(self._multi_note(atoms, atoms_sets, value, cell_of))
             values = sorted(set(atoms_sets), key=value_sort_key)
             pos = {v: i for i, v in enumerate(values)}
@@ -214,6 +216,9 @@ class Values:
                 "leave those cells empty")
 
     def _split(self, a):
+        if isinstance(a, frozenset):
+            parts = (canonical_code(p, trim=True, casefold=self.casefold) for p in a)
+            return frozenset(p for p in parts if p is not None)
         if not isinstance(a, str):
             return frozenset([a])
         parts = (canonical_code(p, trim=True, casefold=self.casefold) for p in a.split(self.sep))

@@ -741,6 +741,7 @@ class _ReviewFile:
     sheet: str | None
     rows: tuple[_ReviewRow, ...]
     checksums: Mapping[str, str]
+    notes: tuple[str, ...] = ()  # the reader's warnings (formula cells without a stored result)
 
 
 def _header_key(value: Any) -> str:
@@ -813,7 +814,8 @@ def _read_review(review: Any) -> _ReviewFile:
     found = find_records(path, columns=(UNIT, DECISION), prefer=REVIEW_SHEET, code="review-columns",
                          hint="the review file is read by its header names; restore them")
     rows = _rows_from_records(found.records, found.header, found.rows, found.file, found.sheet)
-    return _ReviewFile(found.file, found.sheet, rows, _recorded_checksums(found.sheets.get(ABOUT_SHEET, [])))
+    return _ReviewFile(found.file, found.sheet, rows, _recorded_checksums(found.sheets.get(ABOUT_SHEET, [])),
+                       found.notes)
 
 
 def _recorded_checksums(about: Sequence[Sequence[Any]]) -> dict[str, str]:
@@ -1103,7 +1105,8 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
                                  ", or --majority to take a strict majority")
                               + ("" if not n_single else
                                  ", or --accept-single (accept_single=True) to keep the code of "
-                                 "the one coder who coded a unit"))
+                                 "the one coder who coded a unit")
+                              + "".join(f"; {n.removeprefix('warning: ')}" for n in source.notes))
 
     table: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids]}
     for name, header in _kept_headers(data, [UNIT, TEXT, FINAL, SOURCE, HOW, WHO, NOTES]).items():
@@ -1117,7 +1120,7 @@ def _build_consensus(data: CodingData, status: _Status, decided: Mapping[int, tu
     counts = {s: int((origin == s).sum()) for s in SOURCES}
     ids = lambda kind: tuple(str(u) for u in data.unit_ids[origin == kind])  # noqa: E731
     kept = ids("single coder")
-    notes = _changed_inputs(data, source)
+    notes = source.notes + _changed_inputs(data, source)
     if kept:
         notes += (f"{len(kept)} unit{'s' if len(kept) != 1 else ''} coded by one coder only "
                   f"kept that coder's code without review (accept single): {_listed(list(kept))}",)

@@ -64,3 +64,24 @@ def test_unknown_format_is_one_line_before_reading(tmp_path, capsys):
     assert code == 2
     assert err.count("\n") == 1 and "table or json" in err and "--file-format" in err
 
+
+
+def test_blank_or_empty_sheets_stop_naming_the_file(tmp_path, capsys):
+    """A coding sheet nobody filled in (or a workbook with nothing in it) is an error naming the
+    file, never an empty review with exit code 0."""
+    import openpyxl
+
+    from tests.cli.conftest import run_main
+
+    blank = tmp_path / "blank.xlsx"
+    wb = openpyxl.Workbook()
+    wb.active.append(["unit_id", "text", "ann", "bo"])
+    for i in range(3):
+        wb.active.append([f"u{i}", f"text {i}", None, None])
+    wb.save(blank)
+    empty = tmp_path / "empty.xlsx"
+    openpyxl.Workbook().save(empty)
+    for path, words in ((blank, "no codes were read"), (empty, "the sheet is empty")):
+        code, _, err = run_main(capsys, "disagreements", path, "-o", tmp_path / "review.xlsx")
+        assert code == 2 and words in err and path.name in err and "Traceback" not in err
+        assert not (tmp_path / "review.xlsx").exists()

@@ -201,3 +201,32 @@ def test_accept_single_in_both_commands(tmp_path, data_file, capsys):
     code, out, err = run(capsys, "reconcile", review, "--data", data_file, "-o", consensus, "--force",
                          "--accept-single")
     assert code == 0 and "coded by one coder only, kept as coded" in " ".join(out.split())
+
+
+def test_formula_decisions_without_a_stored_result_are_named(tmp_path, data_file, capsys):
+    review = tmp_path / "review.xlsx"
+    assert run(capsys, "disagreements", data_file, "-o", review)[0] == 0
+    fill(review, {"=SUM(A1)": "=C2", "@here": "pos", "u3": "neg"})   # a formula written without its result
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv")
+    assert code == 2 and "1 unit still needs a decision" in err
+    assert "1 formula cell without a stored result read as empty (H3)" in err
+    code, _, err = run(capsys, "reconcile", review, "--data", data_file, "-o", tmp_path / "c.csv",
+                       "--allow-unresolved")
+    assert code == 0 and "warning: " in err and "formula cell without a stored result" in err
+
+
+def test_a_review_csv_saved_by_a_spreadsheet_in_a_legacy_encoding_with_semicolons(tmp_path, capsys):
+    data = tmp_path / "coding.csv"
+    data.write_text("unit,ann,bo\ncafé,süß,bitter\nthé,süß,süß\nu3,bitter,süß\n", encoding="utf-8")
+    review = tmp_path / "review.csv"
+    assert run(capsys, "disagreements", data, "-o", review)[0] == 0
+    frame = pd.read_csv(review, dtype=str, keep_default_na=False)
+    frame.loc[frame["unit"] == "café", "decision"] = "süß"
+    frame.loc[frame["unit"] == "u3", "decision"] = "bitter"
+    frame.to_csv(review, sep=";", index=False, encoding="cp1252", lineterminator="\r\n")   # as a spreadsheet saves it
+    before = review.read_bytes()
+    code, _, err = run(capsys, "reconcile", review, "--data", data, "-o", tmp_path / "consensus.csv")
+    assert code == 0, err
+    consensus = pd.read_csv(tmp_path / "consensus.csv", dtype=str)
+    assert dict(zip(consensus["unit"], consensus["final code"])) == {"café": "süß", "thé": "süß", "u3": "bitter"}
+    assert review.read_bytes() == before

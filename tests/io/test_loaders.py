@@ -129,3 +129,39 @@ def test_a_csv_with_many_thousand_columns(tmp_path):
     assert table.frame.shape == (6, k + 1)
     data = read(path)
     assert len(data.coders) == k and data.codes.shape == (6, k)
+
+
+def test_parquet_lists_of_codes_are_sets(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    path = tmp_path / "sets.parquet"
+    pq.write_table(pa.table({"unit": ["u1", "u2", "u3", "u4"],
+                             "ann": [["praise", "blame"], ["praise"], [], None],
+                             "bo": [["blame", "praise", "praise"], ["blame"], [], ["praise"]]}), path)
+    data = read(path)
+    assert data.set_valued
+    as_sets = {u: tuple(None if c < 0 else data.values[c] for c in row) for u, row in zip(data.unit_ids, data.codes)}
+    assert as_sets == {"u1": (frozenset({"praise", "blame"}),) * 2, "u2": (frozenset({"praise"}), frozenset({"blame"})),
+                       "u3": (frozenset(),) * 2, "u4": (None, frozenset({"praise"}))}
+    assert any("list column(s) 'ann', 'bo' read as sets of codes" in n for n in data.report.notes)
+    # the same sets written as "a; b" text read the same
+    text = tmp_path / "sets.csv"
+    text.write_text("unit,ann,bo\nu1,praise; blame,blame;praise\nu2,praise,blame\n")
+    assert set(read(text).values) == {frozenset({"praise", "blame"}), frozenset({"praise"}), frozenset({"blame"})}
+
+
+@pytest.mark.parametrize("column, words", [
+    ({"type": "struct"}, "structs"), ({"type": "binary"}, "binary values"), ({"type": "list_struct"}, "lists of structs")])
+def test_parquet_structs_and_binary_are_refused_naming_the_column(tmp_path, column, words):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    values = {"struct": [{"a": 1}, {"a": 2}], "binary": [b"\x00\x01", b"x"],
+              "list_struct": [[{"a": 1}], [{"a": 2}]]}[column["type"]]
+    path = tmp_path / "nested.parquet"
+    pq.write_table(pa.table({"unit": ["u1", "u2"], "ann": values, "bo": ["x", "y"]}), path)
+    with pytest.raises(AgreeError) as err:
+        read(path)
+    assert err.value.code == "nested-column" and "column 'ann' holds " + words in str(err.value)
+    assert "nested.parquet" in str(err.value)
