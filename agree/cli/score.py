@@ -131,7 +131,8 @@ def print_score(result: "ScoreResult") -> None:
             f"over {over}, seed {result.seed}" if result.n_resamples else
             "no resampling; analytic intervals where published (normal or t approximation, Wilson for "
             "two coders' percent agreement)")
-    se_rule = ("the bootstrap SD (published SEs assume independent units)" if result.resampled != "unit"
+    se_rule = ("the bootstrap SD (published SEs, and the z-tests of no agreement beyond chance, assume "
+               "independent units: no z or p-value is given for groups)" if result.resampled != "unit"
                else "analytic where published, else the bootstrap SD" if result.n_resamples
                else "analytic where published, else none (no bootstrap)")
     stdout.print(f"Intervals: {boot}. SE: {se_rule}.", highlight=False)

@@ -276,28 +276,59 @@ class _ChanceCorrected(_Statistic):
         share = F[:, 1:1 + q]
         coded = F[:, 0] > 0
         pair = F[:, -2] > 0
+        # influence of unit u on p_e: the chance term is quadratic in pi and
+        # IF_u(pi_k) = r_uk / r_u - pi_k, so IF_u(p_e) = 2 (p_e|u - p_e) (METHODS 5.2)
         if self.kind == "pi":
-            pe_u = share @ (self.w @ pi)
+            pe_u = share @ (0.5 * (self.w + self.w.T) @ pi)  # symmetric part: exact for any w
+            pe_if = 2.0 * (pe_u - pe)
         elif self.kind == "ac":
             pe_u = self.w.sum() / (q * (q - 1)) * (share @ (1 - pi))
+            pe_if = 2.0 * (pe_u - pe)
         else:
-            pe_u = np.full(len(F), pe)
-        return _linearised(c, coded, pair, F[:, -1], pa, pe, pe_u, estimate,
-                           second_term=self.kind != "bp")
+            pe_if = np.zeros(len(F))  # Brennan-Prediger: p_e is fixed
+        out = _linearised(c, coded, pair, F[:, -1], pa, pe, pe_if, estimate)
+        return {**out, "p_o": float(pa), "p_e": float(pe)} if out else out
 
 
-def _linearised(c, coded, pair, a, pa, pe, pe_u, gamma, second_term=True) -> dict[str, Any]:
-    """Gwet's (2008; 2014) linearisation: Var = sum_u e_u^2 / (n1 (n1 - 1)) with
-    e_u = (n1/n') [r_u>=2] (p_a|u - p_a)/(1 - p_e) - 2 (1 - γ)(p_e|u - p_e)/(1 - p_e)."""
+SE_LINEARISED = "linearisation (Gwet 2008; 2014)"
+SE_LINEARISED_PA = ("linearisation (delta method of the ratio estimator, unit terms centred at p_a; "
+                    "Gwet's 2014 formula centres them at p_e: details se_handbook)")
+SE_HANDBOOK = "linearisation as in Gwet (2014), unit terms centred at p_e"
+
+
+def _linearised(c, coded, pair, a, pa, pe, pe_if, gamma) -> dict[str, Any]:
+    """Linearisation (delta-method) SE of γ = (p_a - p_e) / (1 - p_e), units sampled, coders fixed.
+
+    Over the n1 units with a value (n' of them with two or more), each unit's influence is
+
+        e_u = (n1/n') [r_u >= 2] (p_a|u - p_a) / (1 - p_e)  -  (1 - γ) IF_u(p_e) / (1 - p_e)
+
+    and Var = Σ_u e_u² / (n1 (n1 - 1)) (METHODS 5.2). `pe_if` is IF_u(p_e), unit u's influence
+    on the chance term (zero for Brennan-Prediger). p_a is a ratio estimator (a mean over the
+    pairable units, whose number is itself random when some units have a single value), and
+    its influence is centred at p_a. Gwet (2014) centres the unit term at p_e instead,
+    γ_u = (n1/n') [r_u >= 2] (p_a|u - p_e)/(1 - p_e), which adds γ ((n1/n') [r_u >= 2] - 1) to
+    e_u; the two coincide when every unit has two or more values. The handbook form is
+    returned beside the default as ``se_handbook``. The default is the delta method of the
+    estimator as computed (tests/stats/test_coefficients_reference.py checks it against
+    numerical differentiation). By simulation (bench/se_checks.py: 3 coders, 4 categories, 150
+    units, 30% of them coded once, 2,000 data sets; ± one Monte Carlo error) AC1's SD was
+    .0450 ± .0007, the mean p_a-centred SE .0445 and the p_e-centred .0561, and the 95% t
+    intervals covered .950 ± .005 and .988 ± .002; for Fleiss' kappa SD .0501 ± .0008, SEs .0487
+    and .0584, coverage .938 ± .005 and .975 ± .004. The handbook form overstates the SD by
+    about a fifth there (DEVELOPERS.md, "Standard errors checked by simulation").
+    """
     n1 = c[coded].sum()
     n_pair = c[pair].sum()
     if n1 < 2 or n_pair < 1 or pe >= 1:
         return {}
-    e = (n1 / n_pair) * np.where(pair, a - pa, 0.0) / (1 - pe)
-    if second_term:
-        e = e - 2 * (1 - gamma) * (pe_u - pe) / (1 - pe)
+    weight = (n1 / n_pair) * pair
+    e = weight * (a - pa) / (1 - pe) - (1 - gamma) * pe_if / (1 - pe)
+    e_handbook = e + gamma * (weight - 1.0)
     var = np.sum(c[coded] * e[coded] ** 2) / (n1 * (n1 - 1))
-    return {"se": float(np.sqrt(var)), "se_method": "linearisation (Gwet 2008; 2014)", "df": n1 - 1}
+    var_handbook = np.sum(c[coded] * e_handbook[coded] ** 2) / (n1 * (n1 - 1))
+    return {"se": float(np.sqrt(var)), "se_method": SE_LINEARISED if n1 == n_pair else SE_LINEARISED_PA,
+            "df": n1 - 1, "se_handbook": float(np.sqrt(var_handbook)), "se_handbook_method": SE_HANDBOOK}
 
 
 @dataclass
@@ -330,12 +361,22 @@ class _Conger(_Statistic):
         F = self.features(pat)
         c = pat.counts.astype(float)
         p, pe, pa = (x[0] for x in self.parts((c @ F)[None, :]))
-        X = pat.coder_onehot()
-        total = p.sum(axis=0)
-        pe_u = np.einsum("pik,ik->p", X, total[None, :] - p) / (self.m * (self.m - 1))
-        coded = (pat.codes >= 0).any(axis=1)
+        m = self.m
+        X = pat.coder_onehot()                              # (P, m, V)
+        seen = (pat.codes >= 0).astype(float)               # (P, m)
+        coded = seen.any(axis=1)
+        n1 = c[coded].sum()
+        n_i = c @ seen                                      # units each coder coded
+        # p_ik = Σ_u x_uik / n_i is a ratio with its own denominator per coder:
+        # IF_u(p_ik) = (n1 / n_i)(x_uik - p_ik [i coded u]); p_e = Σ_{i≠j} Σ_k p_ik p_jk / (m(m-1))
+        # so IF_u(p_e) = 2 / (m(m-1)) Σ_i Σ_k IF_u(p_ik) (Σ_{j≠i} p_jk)
+        others = p.sum(axis=0)[None, :] - p                 # (m, V): Σ_{j≠i} p_jk
+        scale = _nan_div(n1, n_i)                           # (m,)
+        infl = (X - p[None, :, :] * seen[:, :, None]) * np.nan_to_num(scale)[None, :, None]
+        pe_if = 2.0 / (m * (m - 1)) * np.einsum("pik,ik->p", infl, others)
         pair = F[:, -2] > 0
-        return _linearised(c, coded, pair, F[:, -1], pa, pe, pe_u, estimate)
+        out = _linearised(c, coded, pair, F[:, -1], pa, pe, pe_if, estimate)
+        return {**out, "p_o": float(pa), "p_e": float(pe)} if out else out
 
 
 @dataclass
@@ -438,7 +479,10 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         warnings.append(Note("undefined", f"{display_name(stat.name)} is undefined: {stat.undefined_reason}."))
     extra = stat.analytic(pat, estimate) if len(counts) else {}
     details = dict(details or {})
-    for key in ("se0", "kappa_max", "p_o", "p_e"):
+    if clusters is not None:
+        extra = _independent_only(extra, details, warnings, stat.name,
+                                  bootstrapped=bool(n_resamples) and np.isfinite(estimate))
+    for key in ("se0", "kappa_max", "p_o", "p_e", "se_handbook", "se_handbook_method"):
         if key in extra:
             details[key] = extra[key]
     se = extra.get("se")
@@ -510,18 +554,14 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         if minimum is not None and se > 0:
             t = (minimum - estimate) / se
             p_min = float(special.stdtr(df, t) if df else norm_cdf(t))
-    z = p_two = p_one = None
-    se0 = details.get("se0")
-    if se0 and np.isfinite(estimate) and se0 > 0:
-        z = estimate / se0
-        p_two, p_one = float(2 * norm_cdf(-abs(z))), float(norm_cdf(-z))
-        details["z_method"] = "kappa / SE under H0 (Fleiss, Cohen & Everitt 1969)"
+    test = _null_test(estimate, details.get("se0"), "kappa / SE under H0 (Fleiss, Cohen & Everitt 1969)")
+    details.update(test.pop("details"))
     return AgreementResult(
         name=stat.name, estimate=estimate, se=se, se_method=se_method, ci_low=ci_low, ci_high=ci_high,
         confidence_level=confidence_level, ci_method=method, n_units=n_used, n_coders=data.n_coders,
         n_values=_n_values(pat, stat),
         n_categories=n_categories if n_categories is not None else len(data.values),
-        level=level, weights=weights, z=z, p_value=p_two, p_value_one_sided=p_one, minimum=minimum,
+        level=level, weights=weights, **test, minimum=minimum,
         p_value_min=p_min, lower_bound=lower, bootstrap=boot, details=details, warnings=tuple(warnings),
         replicates=reps)
 
@@ -561,6 +601,47 @@ def _score_test(estimate: float, n: float, minimum: float, lower: float) -> floa
     if 0 < minimum < 1:
         return float(norm_cdf(-(estimate - minimum) / np.sqrt(minimum * (1 - minimum) / n)))
     return 0.0 if lower > minimum else 1.0
+
+
+def _null_test(estimate: float, se0: float | None, method: str) -> dict[str, Any]:
+    """z and the two- and one-sided p-values of H0: no agreement beyond chance, from a null SE
+    (all None without one)."""
+    if not se0 or not np.isfinite(estimate) or se0 <= 0:
+        return {"z": None, "p_value": None, "p_value_one_sided": None, "details": {}}
+    z = float(estimate / se0)
+    return {"z": z, "p_value": float(2 * norm_cdf(-abs(z))), "p_value_one_sided": float(norm_cdf(-z)),
+            "details": {"z_method": method}}
+
+
+def _clustered_test_note(name: str) -> Note:
+    return Note("no-test-clustered", f"No z or p-value is given for {display_name(name)}: the test of no "
+                "agreement beyond chance uses a standard error for independent units, and here the units are "
+                "nested in groups, so it would overstate the evidence. The cluster-bootstrap interval is the "
+                "inference (a lower bound above 0 rejects no agreement beyond chance at its level).")
+
+
+def _independent_only(extra: dict[str, Any], details: dict, warnings: list[Note], name: str, *,
+                      bootstrapped: bool) -> dict[str, Any]:
+    """With units nested in groups, the published SEs (and the null SEs behind z and the
+    p-values) assume independent units: keep them only as details["se_independent_units"] /
+    details["se0_independent_units"], and give no test (see `_clustered_test_note`). Without a
+    bootstrap there is then no SE and no interval."""
+    extra = dict(extra)
+    if extra.get("se0") is not None:
+        details["se0_independent_units"] = extra.pop("se0")
+        warnings.append(_clustered_test_note(name))
+    extra.pop("se_handbook", None)
+    extra.pop("se_handbook_method", None)
+    if not bootstrapped and (extra.get("se") is not None or extra.get("wilson")):
+        if extra.get("se") is not None:
+            details["se_independent_units"] = extra["se"]
+        for key in ("se", "se_method", "df", "wilson", "n"):
+            extra.pop(key, None)
+        warnings.append(Note("clustered-no-bootstrap", f"The units are nested in groups: the published "
+                             f"standard errors of {display_name(name)} assume independent units, so without a "
+                             "bootstrap no SE or interval is given; resample the groups (n_resamples > 0, "
+                             "--boot)."))
+    return extra
 
 
 def _used_patterns(pat: Patterns, stat: _Statistic) -> np.ndarray:
@@ -627,6 +708,9 @@ _SPECIFIC = {
     "weights": ("weights : None, \"linear\", \"quadratic\" or q x q array\n"
                 "        Agreement weights on the category scores (the numbers for numeric codes,\n"
                 "        else ranks in category order); None for unweighted.\n    "),
+    "positive": ("positive : category, optional\n"
+                 "        The category counted as positive (a, both coders chose it) in the prevalence\n"
+                 "        and bias indices; by default 1 for a 0/1 code, else the first category.\n    "),
     "level": ("level : {\"nominal\", \"ordinal\", \"interval\", \"ratio\"} or callable\n"
               "        Level of measurement, which sets the metric; a function f(c, k) >= 0 with\n"
               "        f(c, c) = 0 gives a custom metric. By default the data's own level (read\n"
@@ -791,7 +875,7 @@ def scott_pi(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
     """
     d = _prepare(data, categories)
     res = _pi_type(d, "scott_pi", "pi", weights, _options(locals()))
-    return _add_fleiss_null(res, d, weights)
+    return _add_fleiss_null(res, d, weights, cluster)
 
 
 @_documented()
@@ -810,11 +894,12 @@ def fleiss_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     """
     d = _prepare(data, categories)
     res = _pi_type(d, "fleiss_kappa", "pi", None, _options(locals()))
-    return _add_fleiss_null(res, d, None)
+    return _add_fleiss_null(res, d, None, cluster)
 
 
-def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> AgreementResult:
-    """Per-category kappa and the Fleiss-Nee-Landis null variance (constant raters only)."""
+def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any, cluster: Any = None) -> AgreementResult:
+    """Per-category kappa and the Fleiss-Nee-Landis null variance (constant raters only).
+    With `cluster` the null SEs assume independent units, so no z or p-value is given."""
     if weights is not None or not np.isfinite(res.estimate):
         return res
     r = (d.codes >= 0).sum(axis=1)
@@ -843,22 +928,24 @@ def _add_fleiss_null(res: AgreementResult, d: CodingData, weights: Any) -> Agree
     se0_j = np.sqrt(2 / (N * n * (n - 1)))
     spq = pq.sum()
     var0 = 2 / (N * n * (n - 1)) * (spq ** 2 - np.sum(pq * (q - p))) / spq ** 2 if spq > 0 else np.nan
+    clustered = cluster is not None
     per = {}
     for j, v in enumerate(d.values):
         k = float(kj[j]) if pq[j] > 0 else float("nan")
-        z = k / se0_j if np.isfinite(k) else float("nan")
-        per[value_label(v)] = {"kappa": k, "se0": float(se0_j), "z": z,
-                          "p_value": float(2 * norm_cdf(-abs(z))) if np.isfinite(z) else None,
-                          "share": float(p[j])}
+        t = _null_test(k, None if clustered else float(se0_j), "")
+        per[value_label(v)] = {"kappa": k, "se0": None if clustered else float(se0_j), "z": t["z"],
+                               "p_value": t["p_value"], "share": float(p[j])}
     details["per_category"] = per
     se0 = float(np.sqrt(var0)) if np.isfinite(var0) and var0 > 0 else None
+    if clustered:
+        details["se0_independent_units"] = se0
+        if se0 and not any(n.code == "no-test-clustered" for n in notes):
+            notes.append(_clustered_test_note(res.name))
+        se0 = None
     details["se0"] = se0
-    z = p_two = p_one = None
-    if se0:
-        z = res.estimate / se0
-        p_two, p_one = float(2 * norm_cdf(-abs(z))), float(norm_cdf(-z))
-        details["z_method"] = "kappa / SE under H0 (Fleiss, Nee & Landis 1979)"
-    return _replace(res, details=details, z=z, p_value=p_two, p_value_one_sided=p_one, warnings=tuple(notes))
+    test = _null_test(res.estimate, se0, "kappa / SE under H0 (Fleiss, Nee & Landis 1979)")
+    details.update(test.pop("details"))
+    return _replace(res, details=details, **test, warnings=tuple(notes))
 
 
 @_documented()
@@ -890,10 +977,12 @@ def conger_kappa(data: Any, *, categories: Sequence[Any] | None = None, confiden
     stat = _Conger(name="conger_kappa", ordered=True, m=d.n_coders, V=len(d.values),
                    undefined_reason="no pairable unit, or no expected disagreement (p_e = 1)")
     res = _run(stat, d, level=None, weights=None, **_options(locals()))
-    if res.defined and res.se_method and res.se_method.startswith("linearisation") and res.se > 0:
-        z = res.estimate / res.se
-        res = _replace(res, z=z, p_value=float(2 * norm_cdf(-abs(z))), p_value_one_sided=float(norm_cdf(-z)),
-                       details={**res.details, "z_method": "Wald: kappa / linearised SE (no published null SE)"})
+    if cluster is not None:
+        if res.defined:
+            res = _replace(res, warnings=res.warnings + (_clustered_test_note(res.name),))
+    elif res.defined and res.se_method and res.se_method.startswith("linearisation") and res.se > 0:
+        test = _null_test(res.estimate, res.se, "Wald: kappa / linearised SE (no published null SE)")
+        res = _replace(res, details={**res.details, **test.pop("details")}, **test)
     return res
 
 
@@ -934,37 +1023,68 @@ def gwet_ac1(data: Any, *, weights: Any = None, categories: Sequence[Any] | None
     return res
 
 
-@_documented()
-def pabak(data: Any, *, categories: Sequence[Any] | None = None, confidence_level: float = DEFAULT_CONFIDENCE,
-          n_resamples: int = DEFAULT_RESAMPLES, ci_method: str = DEFAULT_CI_METHOD, seed: Any = None,
-          minimum: float | None = None, cluster: Any = None) -> AgreementResult:
+@_documented("positive")
+def pabak(data: Any, *, positive: Any = None, categories: Sequence[Any] | None = None,
+          confidence_level: float = DEFAULT_CONFIDENCE, n_resamples: int = DEFAULT_RESAMPLES,
+          ci_method: str = DEFAULT_CI_METHOD, seed: Any = None, minimum: float | None = None,
+          cluster: Any = None) -> AgreementResult:
     """Prevalence- and bias-adjusted kappa for a binary code: PABAK = 2 p_o - 1.
 
     Notes
     -----
     Byrt, Bishop & Carlin (1993). With two coders details gives the prevalence index
-    PI = (a - d)/N and bias index BI = (b - c)/N of the 2 x 2 table (a: both the first
-    category, d: both the second), with κ = (PABAK - PI² + BI²)/(1 - PI² + BI²).
-    Report them beside kappa, not instead of it.
+    PI = (a - d)/N and the bias index BI = (b - c)/N of the 2 x 2 table of the units both
+    coded, where a counts the units both coders put in the *positive* category, d those both
+    put in the other, b those only the first coder (the first coder column) put in the
+    positive category and c those only the second did. PI > 0: the positive category is the
+    more common one; BI > 0: the first coder uses it more often. The positive category is
+    `positive`, by default 1 (or True) for a 0/1 code, and otherwise the first category in
+    codebook order; details["positive"] names it and details["first_coder"] the first coder.
+    κ = (PABAK - PI² + BI²)/(1 - PI² + BI²) whichever is positive. Report PI and BI beside
+    kappa, not instead of it.
     """
     d = _prepare(data, categories)
     if len(d.values) != 2:
         raise AgreeError(f"PABAK is for a binary code (two categories); the data have {len(d.values)}",
                          hint="use brennan_prediger for more categories, or analyse one code as present/absent",
                          code="binary")
+    pos, chosen = _positive_category(d.values, positive)
     res = _pi_type(d, "pabak", "bp", None, _options(locals()))
     details = dict(res.details)
+    notes = list(res.warnings)
     if d.n_coders == 2:
         both = (d.codes >= 0).all(axis=1)
-        c = d.codes[both]
+        yes = d.codes[both] == pos
         uw = d.unit_weights()[both]
-        n = int(uw.sum())
+        n = float(uw.sum())
         if n:
-            a = np.sum(uw * ((c[:, 0] == 0) & (c[:, 1] == 0)))
-            dd = np.sum(uw * ((c[:, 0] == 1) & (c[:, 1] == 1)))
-            b = np.sum(uw * ((c[:, 0] == 0) & (c[:, 1] == 1)))
-            cc = np.sum(uw * ((c[:, 0] == 1) & (c[:, 1] == 0)))
+            a = np.sum(uw * (yes[:, 0] & yes[:, 1]))
+            dd = np.sum(uw * (~yes[:, 0] & ~yes[:, 1]))
+            b = np.sum(uw * (yes[:, 0] & ~yes[:, 1]))
+            cc = np.sum(uw * (~yes[:, 0] & yes[:, 1]))
             details["prevalence_index"] = float((a - dd) / n)
             details["bias_index"] = float((b - cc) / n)
             details["categories"] = [value_label(v) for v in d.values]
-    return _replace(res, details=details)
+            details["positive"] = value_label(d.values[pos])
+            details["first_coder"] = str(d.coders[0])
+            if chosen == "first":
+                notes.append(Note("pabak-positive", f"The prevalence and bias indices count "
+                                  f"'{value_label(d.values[pos])}' (the first category) as positive: a = both "
+                                  f"coders chose it; BI > 0 means {d.coders[0]} chose it more often. Pass "
+                                  "positive= to count the other category."))
+    return _replace(res, details=details, warnings=tuple(notes))
+
+
+def _positive_category(values: Sequence[Any], positive: Any) -> tuple[int, str]:
+    """Index of PABAK's positive category among the two `values`, and how it was chosen
+    ("given", "one" for the 1 of a 0/1 code, "first")."""
+    labels = [value_label(v) for v in values]
+    if positive is not None:
+        for i, (v, label) in enumerate(zip(values, labels)):
+            if v == positive or label == value_label(positive):
+                return i, "given"
+        raise AgreeError(f"positive='{positive}' is not one of the code's two categories "
+                         f"({', '.join(labels)})", code="positive")
+    if sorted(labels) == ["0", "1"] or sorted(labels) == ["False", "True"]:
+        return labels.index("1" if "1" in labels else "True"), "one"
+    return 0, "first"

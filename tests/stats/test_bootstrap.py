@@ -232,6 +232,41 @@ def test_cluster_bootstrap_widens_interval_for_homogeneous_clusters():
     assert clusters.bootstrap.unit.startswith("cluster")
 
 
+@pytest.mark.parametrize("name", ["cohen_kappa", "scott_pi", "fleiss_kappa", "conger_kappa"])
+def test_clustered_design_gives_no_unclustered_test(name):
+    """The null SEs behind z and the p-values (Fleiss, Cohen & Everitt 1969; Fleiss, Nee &
+    Landis 1979) and Conger's Wald z assume independent units. With units nested in groups
+    (here copies of one unit per group: 8 copies carry the information of one), the test would
+    claim about sqrt(8) times the evidence there is, so none is given; the independent-units
+    SEs stay in the details, named as such."""
+    codes, labels = _clustered(seed=3)
+    if name in ("cohen_kappa", "scott_pi"):
+        codes = codes[:, :2]
+    f = getattr(agree, name)
+    plain = f(as_float(codes), n_resamples=200, seed=1)
+    clustered = f(as_float(codes), n_resamples=200, seed=1, cluster=labels)
+    assert plain.z is not None and plain.p_value is not None
+    assert clustered.z is None and clustered.p_value is None and clustered.p_value_one_sided is None
+    assert "z_method" not in clustered.details and clustered.details.get("se0") is None
+    assert any(w.code == "no-test-clustered" for w in clustered.warnings)
+    if "se0" in plain.details and plain.details["se0"]:
+        assert clustered.details["se0_independent_units"] == pytest.approx(plain.details["se0"])
+    if name == "fleiss_kappa":
+        per = clustered.details["per_category"]
+        assert all(v["z"] is None and v["p_value"] is None for v in per.values())
+    assert clustered.to_dict()["z"] is None
+
+
+def test_clustered_design_without_bootstrap_gives_no_analytic_se():
+    codes, labels = _clustered(seed=3)
+    res = agree.gwet_ac1(as_float(codes), n_resamples=0, cluster=labels)
+    assert res.se is None and res.ci_low is None and res.ci_high is None
+    assert res.details["se_independent_units"] > 0 and "se_handbook" not in res.details
+    assert any(w.code == "clustered-no-bootstrap" for w in res.warnings)
+    pa = agree.percent_agreement(as_float(codes[:, :2]), n_resamples=0, cluster=labels)
+    assert pa.ci_low is None and pa.ci_method is None
+
+
 def test_cluster_bca_interval():
     codes, labels = _clustered(seed=6)
     result = agree.krippendorff_alpha(as_float(codes), n_resamples=1500, seed=8, cluster=labels, ci_method="bca")

@@ -110,18 +110,33 @@ FLEISS_14_RATERS = np.array([
 ])
 
 
+def _agreeing_pairs_by_enumeration(counts_row: np.ndarray) -> float:
+    """Share of agreeing pairs among all pairs of raters of one subject, by listing every
+    rater's category and enumerating the pairs (not the r(r-1) short cut)."""
+    import itertools
+
+    ratings = np.repeat(np.arange(len(counts_row)), counts_row)
+    pairs = list(itertools.combinations(ratings, 2))
+    return sum(a == b for a, b in pairs) / len(pairs)
+
+
 def test_fleiss_kappa_fourteen_raters():
     codes = np.array([np.repeat(np.arange(5), row) for row in FLEISS_14_RATERS])
     result = agree.fleiss_kappa(codes, n_resamples=0)
     assert result.estimate == pytest.approx(0.210, abs=5e-4)
     assert result.estimate == pytest.approx(fleiss_kappa(FLEISS_14_RATERS), abs=TOL)
-    # by hand from the published intermediate values (from memory): P_bar = 0.378, P_e = 0.213
-    r = FLEISS_14_RATERS
-    p_bar = ((r * (r - 1)).sum(axis=1) / (14 * 13)).mean()
-    p_e = ((r.sum(axis=0) / 140) ** 2).sum()
-    assert p_bar == pytest.approx(0.378, abs=5e-4)
-    assert p_e == pytest.approx(0.213, abs=5e-4)
-    assert result.estimate == pytest.approx((p_bar - p_e) / (1 - p_e), abs=TOL)
+    # the engine's own P_bar and P_e against the published intermediate values (from memory:
+    # P_bar = 0.378, P_e = 0.213, the example's printed three-decimal figures) ...
+    assert result.details["p_o"] == pytest.approx(0.378, abs=5e-4)
+    assert result.details["p_e"] == pytest.approx(0.213, abs=5e-4)
+    # ... and against a second derivation written differently: P_bar by enumerating every pair
+    # of raters of each subject, P_e as the chance that two ratings drawn at random (with
+    # replacement) from all 140 ratings agree
+    p_bar = np.mean([_agreeing_pairs_by_enumeration(row) for row in FLEISS_14_RATERS])
+    everything = np.repeat(np.arange(5), FLEISS_14_RATERS.sum(axis=0))
+    p_e = np.mean(everything[:, None] == everything[None, :])
+    assert result.details["p_o"] == pytest.approx(p_bar, abs=TOL)
+    assert result.details["p_e"] == pytest.approx(p_e, abs=TOL)
 
 
 def test_cohen_kappa_two_by_two_by_hand():
@@ -170,15 +185,55 @@ def test_cohen_kappa_three_by_three_by_hand():
         pytest.approx((0.80 - pe) / (1 - pe), abs=TOL)
 
 
+def _two_coder_labels(table, labels):
+    """Units x 2 label matrix from a 2 x 2 table whose rows are the first coder's label and
+    columns the second's, in the order of `labels`."""
+    return np.array([[labels[k], labels[l]] for k in range(2) for l in range(2)
+                     for _ in range(table[k][l])], dtype=object)
+
+
 def test_pabak_by_hand():
-    """Byrt, Bishop & Carlin (1993) on the 2x2 table above with 'present' = category 1:
-    a = 15 (both 1), b = 10 (A 1, B 0), c = 5 (A 0, B 1), d = 20 (both 0), N = 50.
-    PABAK = 2*0.7 - 1 = 0.4; |PI| = |15 - 20|/50 = 0.1; |BI| = |10 - 5|/50 = 0.1."""
-    data = expand_table(np.array([[20, 5], [10, 15]]))
-    result = agree.pabak(data, n_resamples=0)
+    """Byrt, Bishop & Carlin (1993): PI = (a - d)/N, BI = (b - c)/N with a = both "yes",
+    d = both "no", b = first coder "yes" and second "no", c the reverse. Explicit table,
+    rows the first coder (yes, no), columns the second: [[15, 10], [5, 20]], N = 50:
+    a = 15, b = 10, c = 5, d = 20; PABAK = 2 * 35/50 - 1 = 0.4;
+    PI = (15 - 20)/50 = -0.1 ("yes" is the rarer answer); BI = (10 - 5)/50 = +0.1 (the first
+    coder says "yes" more often: 25 against 20)."""
+    data = from_table(_two_coder_labels([[15, 10], [5, 20]], ["yes", "no"]), coders=["ana", "ben"],
+                      categories=["yes", "no"])
+    result = agree.pabak(data, positive="yes", n_resamples=0)
     assert result.estimate == pytest.approx(0.4, abs=TOL)
-    assert abs(result.details["prevalence_index"]) == pytest.approx(0.1, abs=TOL)
-    assert abs(result.details["bias_index"]) == pytest.approx(0.1, abs=TOL)
+    assert result.details["prevalence_index"] == pytest.approx(-0.1, abs=TOL)
+    assert result.details["bias_index"] == pytest.approx(0.1, abs=TOL)
+    assert result.details["positive"] == "yes" and result.details["first_coder"] == "ana"
+    # "no" as the positive category swaps a with d and b with c: both signs flip
+    flipped = agree.pabak(data, positive="no", n_resamples=0)
+    assert flipped.details["prevalence_index"] == pytest.approx(0.1, abs=TOL)
+    assert flipped.details["bias_index"] == pytest.approx(-0.1, abs=TOL)
+    # by default the first category of the codebook ("yes" here), said in a note
+    default = agree.pabak(data, n_resamples=0)
+    assert default.details["positive"] == "yes"
+    assert default.details["prevalence_index"] == pytest.approx(-0.1, abs=TOL)
+    assert any(w.code == "pabak-positive" for w in default.warnings)
+    # swapping the coders flips the sign of BI only
+    swapped = agree.pabak(from_table(_two_coder_labels([[15, 5], [10, 20]], ["yes", "no"]),
+                                     coders=["ben", "ana"], categories=["yes", "no"]),
+                          positive="yes", n_resamples=0)
+    assert swapped.details["bias_index"] == pytest.approx(-0.1, abs=TOL)
+    assert swapped.details["prevalence_index"] == pytest.approx(-0.1, abs=TOL)
+
+
+def test_pabak_zero_one_code_counts_one_as_positive():
+    """A presence code (1 = applied): a = both 1, whatever order the values sort in.
+    Rows the first coder (0, 1): [[20, 5], [10, 15]]: a = 15 (both 1), d = 20, b = 10
+    (first 1, second 0), c = 5: PI = -0.1, BI = +0.1."""
+    result = agree.pabak(expand_table(np.array([[20, 5], [10, 15]])), n_resamples=0)
+    assert result.details["positive"] == "1"
+    assert result.details["prevalence_index"] == pytest.approx(-0.1, abs=TOL)
+    assert result.details["bias_index"] == pytest.approx(0.1, abs=TOL)
+    assert not any(w.code == "pabak-positive" for w in result.warnings)
+    with pytest.raises(agree.AgreeError):
+        agree.pabak(expand_table(np.array([[20, 5], [10, 15]])), positive="maybe", n_resamples=0)
 
 
 # --------------------------------------------------------------------------------------------
@@ -258,13 +313,14 @@ def test_conger_equals_cohen_with_two_coders(seed, m, q, n, rate):
 
 @pytest.mark.parametrize("seed,m,q,n,rate", TWO)
 def test_identity_weights_give_unweighted_kappa(seed, m, q, n, rate):
+    """w = I reduces the weighted formulas to the unweighted ones (METHODS 2.2): the identity-
+    weighted kappa and its SEs against statsmodels' unweighted kappa, Var1 and Var0."""
     codes = _codes(seed, 2, q, n, rate, coder_bias=0.6)
-    x = as_float(codes)
-    plain = agree.cohen_kappa(x, categories=list(range(q)), n_resamples=0)
-    identity = agree.cohen_kappa(x, categories=list(range(q)), weights=np.eye(q), n_resamples=0)
-    assert identity.estimate == pytest.approx(plain.estimate, abs=TOL)
-    assert identity.se == pytest.approx(plain.se, abs=TOL)
-    assert identity.details["se0"] == pytest.approx(plain.details["se0"], abs=TOL)
+    identity = agree.cohen_kappa(as_float(codes), categories=list(range(q)), weights=np.eye(q), n_resamples=0)
+    reference = cohens_kappa(cross_table(codes[:, 0], codes[:, 1], q))
+    assert identity.estimate == pytest.approx(reference.kappa, abs=TOL)
+    assert identity.se == pytest.approx(reference.std_kappa, abs=TOL)
+    assert identity.details["se0"] == pytest.approx(reference.std_kappa0, abs=TOL)
 
 
 @pytest.mark.parametrize("scale", (0.25, 0.5, 0.9))

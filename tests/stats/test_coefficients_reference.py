@@ -429,13 +429,13 @@ def test_pabak_and_indices(seed, m, q, n, rate):
     """Byrt, Bishop & Carlin (1993): PABAK = 2 p_o - 1, PI = (a - d)/N, BI = (b - c)/N."""
     codes = _data(seed, 2, 2, n, rate, coder_bias=0.5)
     t = cross_table(codes[:, 0], codes[:, 1], 2)
-    # category order (0, 1): 'present' is the second category; |PI| and |BI| are what is stable
+    # a 0/1 code: 1 is the positive category; a = both 1, b = first coder 1 and second 0
     a, b, c, d = t[1, 1], t[1, 0], t[0, 1], t[0, 0]
     total = t.sum()
     result = agree.pabak(as_float(codes), n_resamples=0)
     _close(result.estimate, 2 * (a + d) / total - 1)
-    _close(abs(result.details["prevalence_index"]), abs(a - d) / total)
-    _close(abs(result.details["bias_index"]), abs(b - c) / total)
+    _close(result.details["prevalence_index"], (a - d) / total)
+    _close(result.details["bias_index"], (b - c) / total)
 
 
 @pytest.mark.parametrize("kind", ("linear", "quadratic"))
@@ -593,3 +593,138 @@ def test_dataframe_input_with_none_equals_array_input():
                                   value_domain=[0.0, 1.0, 2.0])
     _close(from_frame.estimate, float(expected))
     assert from_frame.n_coders == 3
+
+
+# --------------------------------------------------------------------------------------------
+# The linearisation SEs against the delta method by numerical differentiation
+# --------------------------------------------------------------------------------------------
+#
+# A second derivation, written differently from the engine and from METHODS 5.2: each
+# coefficient is written as a function of unit weights w (all ratios, so homogeneous of degree
+# 0 in w), its influence values are n1 * dγ/dw_u by central differences, and the delta-method
+# variance is Σ IF_u² / (n1 (n1 - 1)) over the n1 units with a value. No formula for e_u is
+# written here, so this checks the engine's influence terms (per-coder denominators included).
+
+
+def _weighted_chance_corrected(codes, q, kind, w_units, weights=None):
+    """γ with unit weights: P_bar over units with two or more values, the chance term from
+    the units' weighted category shares (AC1/AC2, pi-type) or the coders' (Conger)."""
+    W = np.eye(q) if weights is None else weights
+    r = counts_matrix(codes, q).astype(float)
+    ru = r.sum(axis=1)
+    pair = ru >= 2
+    rstar = r @ W.T
+    a = np.zeros(len(r))
+    a[pair] = (r[pair] * (rstar[pair] - 1)).sum(axis=1) / (ru[pair] * (ru[pair] - 1))
+    pa = (w_units * a)[pair].sum() / w_units[pair].sum()
+    if kind == "conger":
+        m = codes.shape[1]
+        p = np.array([[(w_units * (codes[:, i] == k)).sum() / (w_units * (codes[:, i] >= 0)).sum()
+                       for k in range(q)] for i in range(m)])
+        pe = sum(p[i] @ p[j] for i in range(m) for j in range(m) if i != j) / (m * (m - 1))
+    else:
+        share = r / ru[:, None]
+        pi = (w_units[:, None] * share).sum(axis=0) / w_units.sum()
+        if kind == "ac":
+            pe = W.sum() / (q * (q - 1)) * (pi * (1 - pi)).sum()
+        elif kind == "pi":
+            pe = pi @ W @ pi
+        else:
+            pe = W.sum() / q ** 2
+    return (pa - pe) / (1 - pe)
+
+
+def _numerical_delta_se(codes, q, kind, weights=None, h=1e-6):
+    codes = codes[(codes >= 0).any(axis=1)]
+    n1 = len(codes)
+    infl = np.empty(n1)
+    for u in range(n1):  # one central difference per unit
+        up, down = np.ones(n1), np.ones(n1)
+        up[u] += h
+        down[u] -= h
+        infl[u] = n1 * (_weighted_chance_corrected(codes, q, kind, up, weights)
+                        - _weighted_chance_corrected(codes, q, kind, down, weights)) / (2 * h)
+    return math.sqrt((infl ** 2).sum() / (n1 * (n1 - 1)))
+
+
+def _single_rated(seed, m, q, n, share=0.3):
+    """Codes with `share` of the units coded by one coder only (the others complete)."""
+    codes = _data(seed, m, q, n, 0.0, coder_bias=0.5)
+    rng = np.random.default_rng(seed + 1)
+    single = rng.random(n) < share
+    keep = rng.integers(0, m, size=n)
+    for i in range(m):
+        codes[single & (keep != i), i] = -1
+    return codes
+
+
+DELTA_CASES = [c for c in WITH_MISSING if c.values[3] <= 150][:4] + \
+    [c for c in COMPLETE if c.values[3] <= 150][:2]
+
+
+@pytest.mark.parametrize("f,kind", [(agree.gwet_ac1, "ac"), (agree.fleiss_kappa, "pi"),
+                                    (agree.brennan_prediger, "bp"), (agree.conger_kappa, "conger")])
+@pytest.mark.parametrize("seed,m,q,n,rate", DELTA_CASES)
+def test_linearised_se_is_the_delta_method(seed, m, q, n, rate, f, kind):
+    m = max(m, 3)
+    codes = _data(seed, m, q, n, rate, coder_bias=0.5)
+    if kind == "conger":       # Conger needs (nearly) every coder on most units: half complete
+        codes[: n // 2] = _data(seed + 7, m, q, n // 2, 0.0, coder_bias=0.5)
+    result = f(as_float(codes), categories=list(range(q)), n_resamples=0)
+    if not result.defined:
+        pytest.skip("coefficient undefined on this draw")
+    _close(result.estimate, _weighted_chance_corrected(codes[(codes >= 0).any(axis=1)], q, kind,
+                                                       np.ones(int((codes >= 0).any(axis=1).sum()))))
+    assert result.se == pytest.approx(_numerical_delta_se(codes, q, kind), rel=1e-5)
+
+
+@pytest.mark.parametrize("kind", ("linear", "quadratic"))
+def test_weighted_linearised_se_is_the_delta_method(kind):
+    codes = _single_rated(31, 3, 4, 90)
+    w = _weights(4, kind)
+    ac2 = agree.gwet_ac1(as_float(codes), weights=kind, categories=list(range(4)), n_resamples=0)
+    assert ac2.se == pytest.approx(_numerical_delta_se(codes, 4, "ac", w), rel=1e-5)
+    pi = agree.scott_pi(as_float(codes), weights=kind, categories=list(range(4)), n_resamples=0)
+    assert pi.se == pytest.approx(_numerical_delta_se(codes, 4, "pi", w), rel=1e-5)
+
+
+def test_pi_type_se_with_asymmetric_weights_is_the_delta_method():
+    """An asymmetric weight matrix: p_e = πᵀ W π, whose derivative uses W + Wᵀ."""
+    codes = _single_rated(5, 3, 3, 80)
+    w = np.array([[1.0, 0.6, 0.0], [0.2, 1.0, 0.5], [0.0, 0.9, 1.0]])
+    res = agree.scott_pi(as_float(codes), weights=w, categories=list(range(3)), n_resamples=0)
+    assert res.se == pytest.approx(_numerical_delta_se(codes, 3, "pi", w), rel=1e-5)
+
+
+@pytest.mark.parametrize("f,kind", [(agree.gwet_ac1, "ac"), (agree.fleiss_kappa, "pi")])
+def test_handbook_se_centred_at_pe_beside_the_default(f, kind):
+    """details["se_handbook"]: Gwet's (2014) unit terms centred at p_e (METHODS 5.2, from
+    memory there): γ*_u = (n1/n') [r_u >= 2] (p_a|u - p_e)/(1 - p_e) - 2 (1 - γ)(p_e|u - p_e)
+    /(1 - p_e), Var = Σ (γ*_u - γ)² / (n1 (n1 - 1)), written out here. With 30% of units
+    coded once it differs from the default (the delta method, checked above); with complete
+    data the two are equal."""
+    q = 4
+    codes = _single_rated(11, 3, q, 120)
+    res = f(as_float(codes), categories=list(range(q)), n_resamples=0)
+    r = counts_matrix(codes, q).astype(float)
+    ru = r.sum(axis=1)
+    r, ru = r[ru >= 1], ru[ru >= 1]
+    n1, pair = len(ru), ru >= 2
+    share = r / ru[:, None]
+    pi = share.mean(axis=0)
+    a = np.zeros(n1)
+    a[pair] = (r[pair] * (r[pair] - 1)).sum(axis=1) / (ru[pair] * (ru[pair] - 1))
+    pa = a[pair].mean()
+    if kind == "ac":
+        pe, pe_u = (pi * (1 - pi)).sum() / (q - 1), (share * (1 - pi)).sum(axis=1) / (q - 1)
+    else:
+        pe, pe_u = pi @ pi, share @ pi
+    g = (pa - pe) / (1 - pe)
+    g_u = (n1 / pair.sum()) * pair * (a - pe) / (1 - pe) - 2 * (1 - g) * (pe_u - pe) / (1 - pe)
+    handbook = math.sqrt(((g_u - g) ** 2).sum() / (n1 * (n1 - 1)))
+    _close(res.details["se_handbook"], handbook)
+    assert res.details["se_handbook"] > res.se          # the p_e-centred form is the larger here
+    assert "centred at p_a" in res.se_method
+    complete = f(as_float(_data(11, 3, q, 120, 0.0)), categories=list(range(q)), n_resamples=0)
+    _close(complete.details["se_handbook"], complete.se)
+    assert complete.se_method == "linearisation (Gwet 2008; 2014)"
