@@ -355,24 +355,114 @@ def test_usage_flag_two_coders():
     assert usage.loc[("k", "amara"), "ratio"] == pytest.approx(3.0)
 
 
-def test_usage_flag_several_coders_two_proportion(rng):
+def test_usage_several_coders_pairwise_mcnemar_with_holm(rng):
+    """More than two coders: each pair of coders compared by McNemar's test on the units both
+    coded (statsmodels, exact below 25 discordant units), Holm over all pairs and codes
+    (statsmodels multipletests); a coder's p is the one at which they differ from a strict
+    majority of the others, and flags follow it."""
     n = 200
     codes = np.zeros((n, 3), int)
     codes[:, 0] = rng.random(n) < 0.6       # amara uses "k" (1) far more often
     codes[:, 1] = rng.random(n) < 0.1
     codes[:, 2] = rng.random(n) < 0.1
+    codes[rng.random((n, 3)) < 0.1] = -1     # and some units not coded by everyone
     d = from_table(as_labels(codes, ["other", "k"]), coders=["amara", "ben", "chen"])
     diag = diagnose_codes(d, n_resamples=0)
     usage = diag.usage.set_index(["code", "coder"])
+    raw, tests = {}, []
+    for code, value in (("other", 0), ("k", 1)):
+        for i, j in itertools.combinations(range(3), 2):
+            both = (codes[:, i] >= 0) & (codes[:, j] >= 0)
+            xi, xj = codes[both, i] == value, codes[both, j] == value
+            b, c = int((xi & ~xj).sum()), int((~xi & xj).sum())
+            ref = mcnemar(np.array([[0, b], [c, 0]]), exact=b + c < 25, correction=False)
+            raw[(code, i, j)] = (ref.pvalue, b - c)
+            tests.append((code, i, j))
+    adjusted = dict(zip(tests, multipletests([raw[t][0] for t in tests], method="holm")[1]))
+    coders = ["amara", "ben", "chen"]
+    for code in ("other", "k"):
+        for i in range(3):
+            more = sorted(adjusted[(code, min(i, j), max(i, j))] for j in range(3) if j != i
+                          and (raw[(code, min(i, j), max(i, j))][1] * (1 if i < j else -1)) > 0)
+            less = sorted(adjusted[(code, min(i, j), max(i, j))] for j in range(3) if j != i
+                          and (raw[(code, min(i, j), max(i, j))][1] * (1 if i < j else -1)) < 0)
+            # a strict majority of the 2 others is both of them: the larger p of the two
+            p_more = more[1] if len(more) == 2 else 1.0
+            p_less = less[1] if len(less) == 2 else 1.0
+            assert usage.loc[(code, coders[i]), "p_holm"] == pytest.approx(min(p_more, p_less))
+            flag = "more" if p_more < 0.05 else "less" if p_less < 0.05 else ""
+            assert usage.loc[(code, coders[i]), "flag"] == flag
     assert usage.loc[("k", "amara"), "flag"] == "more"
-    # The z-test by hand: share vs pooled share of the others.
-    p1 = codes[:, 0].mean()
-    p2 = codes[:, 1:].mean()
-    pooled = codes.mean()
-    z = (p1 - p2) / np.sqrt(pooled * (1 - pooled) * (1 / n + 1 / (2 * n)))
-    from scipy import stats
-    assert usage.loc[("k", "amara"), "p_value"] == pytest.approx(2 * stats.norm.sf(abs(z)))
+    assert usage.loc[("k", "ben"), "flag"] == "" and usage.loc[("k", "chen"), "flag"] == ""
     assert "used by amara" in row(diag, "k").reason
+
+
+def _one_over_user():
+    """Planted: 300 units, four coders. Three code 'k' exactly where it belongs (on every
+    tenth unit, 10%); dana also applies it to every odd-numbered unit (60% in all)."""
+    n = 300
+    truth = (np.arange(n) % 10 == 0).astype(int)
+    codes = np.column_stack([truth, truth, truth, truth | (np.arange(n) % 2)])
+    return from_table(as_labels(codes, ["other", "k"]), coders=["amara", "ben", "chen", "dana"],
+                      categories=["other", "k"])
+
+
+def test_the_coder_who_over_uses_a_code_is_named_and_nobody_else():
+    diag = diagnose_codes(_one_over_user(), n_resamples=0)
+    usage = diag.usage.set_index(["code", "coder"])
+    k = row(diag, "k")
+    assert usage.loc[("k", "dana"), "flag"] == "more"
+    assert [usage.loc[("k", c), "flag"] for c in ("amara", "ben", "chen")] == ["", "", ""]
+    assert k.usage_flag == "dana more"
+    assert "used by dana" in k.reason
+    assert not any(name in k.reason for name in ("amara", "ben", "chen"))
+    # the reference is the median of the others: 10% for dana (6x), 10% for amara (1x)
+    assert usage.loc[("k", "dana"), "share_median_others"] == pytest.approx(0.1)
+    assert usage.loc[("k", "dana"), "ratio"] == pytest.approx(6.0)
+    assert usage.loc[("k", "amara"), "ratio"] == pytest.approx(1.0)
+    # the pooled reference is what blamed accurate coders: amara's 10% against the others'
+    # pooled (10 + 10 + 60)/3 = 26.7% looks like under-use (0.38x)
+    assert usage.loc[("k", "amara"), "share_others"] == pytest.approx(0.8 / 3)
+
+
+def test_clustered_mcnemar_is_mcnemar_for_groups_of_one_unit():
+    """Durkalski et al. (2003): (Σ_g (b_g - c_g))² / Σ_g (b_g - c_g)²; with one unit per group
+    it is McNemar's (b - c)²/(b + c) (statsmodels, chi-square without correction)."""
+    from agree.analysis.diagnostics.homogeneity import clustered_mcnemar
+
+    rng = np.random.default_rng(1)
+    first = (rng.random((80, 3)) < 0.3).astype(float)
+    second = (rng.random((80, 3)) < 0.2).astype(float)
+    first, second = first * (1 - second), second * (1 - first)     # discordant only
+    stat, p, _ = clustered_mcnemar(first, second, np.arange(80))
+    for k in range(3):
+        b, c = int(first[:, k].sum()), int(second[:, k].sum())
+        ref = mcnemar(np.array([[0, b], [c, 0]]), exact=False, correction=False)
+        assert stat[k] == pytest.approx(ref.statistic) and p[k] == pytest.approx(ref.pvalue)
+    # in groups: by hand, groups of 4 units, differences per group summed then squared
+    groups = np.repeat(np.arange(20), 4)
+    stat, p, _ = clustered_mcnemar(first, second, groups)
+    per = (first - second).reshape(20, 4, 3).sum(axis=1)
+    np.testing.assert_allclose(stat, per.sum(0) ** 2 / (per ** 2).sum(0))
+    # no discordant unit anywhere: p = 1
+    assert clustered_mcnemar(np.zeros((5, 1)), np.zeros((5, 1)), np.arange(5))[1][0] == 1.0
+
+
+def test_clustered_design_uses_clustered_tests_of_equal_use():
+    data = _one_over_user()
+    groups = np.repeat([f"doc{g}" for g in range(30)], 10)
+    diag = diagnose_codes(data, n_resamples=0, cluster=groups)
+    usage = diag.usage.set_index(["code", "coder"])
+    assert usage.loc[("k", "dana"), "test"].startswith("clustered mcnemar")
+    assert usage.loc[("k", "dana"), "flag"] == "more"
+    k = row(diag, "k")
+    assert k.usage_test is None and np.isnan(k.usage_p)     # Cochran's Q assumes independent units
+    assert any(n.code == "cochran-clustered" for n in diag.notes)
+    two = table_data([[10, 20], [0, 70]], ["k", "other"])
+    diag2 = diagnose_codes(two, n_resamples=0, cluster=np.repeat(np.arange(25), 4))
+    assert row(diag2, "k").usage_test == "clustered mcnemar"
+    assert diag2.marginal_homogeneity["test"] is None
+    assert "independent units" in diag2.marginal_homogeneity["reason"]
 
 
 # -----------------------------------------------------------------------------------------
@@ -614,8 +704,10 @@ def test_code_use_table_by_hand():
     assert table.loc["ben", "a"] == pytest.approx(2 / 3)
     assert table.loc["chen", "b"] == pytest.approx(3 / 4)
     use = diag.code_use.set_index(["coder", "code"])
-    # Others of amara: ben 2 of 3 + chen 1 of 4 -> 3 / 7.
+    # Others of amara: ben 2 of 3 + chen 1 of 4 -> 3 / 7 pooled; median of 2/3 and 1/4 = 11/24.
     assert use.loc[("amara", "a"), "share_others"] == pytest.approx(3 / 7)
+    assert use.loc[("amara", "a"), "share_median_others"] == pytest.approx((2 / 3 + 1 / 4) / 2)
+    assert use.loc[("amara", "a"), "ratio"] == pytest.approx(0.75 / ((2 / 3 + 1 / 4) / 2))
     frame = diag.to_frame()
     assert list(frame.coder) == ["amara", "ben", "chen"]
     json.dumps(diag.to_dict(), allow_nan=False)

@@ -73,7 +73,9 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = D
       default the Bayesian bootstrap with, at each end, the unit that moves Δ_i most). Needs
       three or more coders.
     - Code use: each coder's share of the units they coded that got each value (set-valued:
-      each code), against the pooled share of the other coders.
+      each code), against the pooled share of the other coders and the median of their
+      shares; ``ratio`` is over the median, which one coder who over-uses a code does not
+      move (the pooled share would make the accurate coders look like under-users).
 
     References
     ----------
@@ -155,10 +157,11 @@ def diagnose_coders(data: Any, *, level: str | None = None, n_resamples: int = D
     labels = list(data.categories)
     use_rows = [{"coder": data.coders[i], "code": labels[k], "uses": use.uses[i, k],
                  "units_coded": use.units_coded[i], "share": use.share[i, k],
-                 "share_others": use.share_others[i, k], "ratio": use.ratio[i, k]}
+                 "share_others": use.share_others[i, k], "share_median_others": use.share_median_others[i, k],
+                 "ratio": use.ratio[i, k]}
                 for i in range(m) for k in range(len(labels))]
     code_use = pd.DataFrame(use_rows, columns=["coder", "code", "uses", "units_coded", "share",
-                                               "share_others", "ratio"])
+                                               "share_others", "share_median_others", "ratio"])
     return CoderDiagnostics(pairwise=pairwise, leave_one_out=leave, code_use=code_use, alpha=alpha,
                             level=kind, coders=tuple(data.coders), n_units=data.n_units,
                             confidence_level=confidence_level, bootstrap=boot_info, notes=tuple(notes),

@@ -18,11 +18,10 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from agree.analysis.diagnostics.common import CoderShares, bootstrap_intervals, check_data, cluster_labels, set_distance
 from agree.analysis.diagnostics.confusion import Confusions, confused_pairs, directed_table
-from agree.analysis.diagnostics.homogeneity import cochran_q, holm, mcnemar, stuart_maxwell
+from agree.analysis.diagnostics.homogeneity import clustered_mcnemar, cochran_q, holm, mcnemar, stuart_maxwell
 from agree.analysis.diagnostics.results import STATUSES, CodeDiagnostics
 from agree.core.constants import (
     DEFAULT_CI_METHOD,
@@ -240,8 +239,8 @@ def _chance(pres: _Presence, m: int) -> _Chance:
 # 4. each coder's use of each code, and tests of equal use
 # =========================================================================================
 
-USAGE_COLUMNS = ["code", "coder", "uses", "units_coded", "share", "share_others", "ratio", "test", "p_value",
-                 "p_holm", "flag"]
+USAGE_COLUMNS = ["code", "coder", "uses", "units_coded", "share", "share_others", "share_median_others", "ratio",
+                 "test", "p_value", "p_holm", "flag"]
 
 
 @dataclass(frozen=True)
@@ -263,33 +262,105 @@ class _Usage:
     def frame(self, cats: list, coders: tuple) -> pd.DataFrame:
         s = self.shares
         rows = [{"code": cats[k], "coder": coders[i], "uses": s.uses[i, k], "units_coded": s.units_coded[i],
-                 "share": s.share[i, k], "share_others": s.share_others[i, k], "ratio": s.ratio[i, k],
+                 "share": s.share[i, k], "share_others": s.share_others[i, k],
+                 "share_median_others": s.share_median_others[i, k], "ratio": s.ratio[i, k],
                  "test": self.coder_test[i, k], "p_value": self.coder_p[i, k], "p_holm": self.coder_p_holm[i, k],
                  "flag": self.flags[i, k]} for k in range(len(cats)) for i in range(len(coders))]
         return pd.DataFrame(rows, columns=USAGE_COLUMNS)
 
 
-def _usage(pres: _Presence, chance: _Chance, n_units: int) -> _Usage:
+@dataclass(frozen=True)
+class _PairTests:
+    """McNemar's test of each pair of coders on each code: (m, m, q) arrays, symmetric p,
+    `more[i, j, k]` True where coder i applied k to more of the units both coded than j."""
+
+    stat: np.ndarray
+    p: np.ndarray
+    p_holm: np.ndarray
+    more: np.ndarray
+    less: np.ndarray
+    test: np.ndarray                 # (m, m, q) object: the test of each pair
+
+
+def _pair_tests(pres: _Presence, clusters: np.ndarray | None) -> _PairTests:
+    """Every pair of coders on every code, on the units both coded: McNemar (exact below 25
+    discordant units), or with `clusters` McNemar for units nested in groups (Durkalski et
+    al. 2003). Holm over all pairs and codes."""
+    m, q = pres.x.shape[1], pres.x.shape[2]
+    stat, p = np.full((m, m, q), np.nan), np.full((m, m, q), np.nan)
+    diff = np.zeros((m, m, q))
+    test = np.full((m, m, q), None, dtype=object)
+    pairs = list(itertools.combinations(range(m), 2))
+    for i, j in pairs:  # a loop over pairs of coders
+        both = pres.observed[:, i] & pres.observed[:, j]
+        xi, xj = pres.x[both, i, :], pres.x[both, j, :]
+        first, second = xi * (1 - xj), (1 - xi) * xj
+        if clusters is None:
+            st, pv, tt = mcnemar(first.sum(0), second.sum(0))
+        else:
+            st, pv, tt = clustered_mcnemar(first, second, clusters[both])
+        stat[i, j] = stat[j, i] = st
+        p[i, j] = p[j, i] = pv
+        test[i, j] = test[j, i] = np.array(tt, dtype=object)
+        diff[i, j] = first.sum(0) - second.sum(0)
+        diff[j, i] = -diff[i, j]
+    upper = np.array([p[i, j] for i, j in pairs]) if pairs else np.zeros((0, q))
+    adjusted = holm(upper.ravel()).reshape(upper.shape)
+    p_holm = np.full((m, m, q), np.nan)
+    for n, (i, j) in enumerate(pairs):
+        p_holm[i, j] = p_holm[j, i] = adjusted[n]
+    return _PairTests(stat, p, p_holm, diff > 0, diff < 0, test)
+
+
+def _majority_p(p: np.ndarray, direction: np.ndarray) -> np.ndarray:
+    """(m, q): for each coder and code, the p-value at which the coder differs in `direction`
+    from a strict majority of the other coders: the k-th smallest p over the others in that
+    direction, k = floor((m - 1) / 2) + 1 (1 where fewer than k others lie that way)."""
+    m = p.shape[0]
+    need = (m - 1) // 2 + 1
+    masked = np.where(direction & np.isfinite(p), p, np.inf)
+    kth = np.sort(masked, axis=1)[:, need - 1, :]
+    return np.where(np.isfinite(kth), kth, 1.0)
+
+
+def _usage(pres: _Presence, chance: _Chance, n_units: int, clusters: np.ndarray | None = None) -> _Usage:
+    """Each coder's use of each code, judged against the other coders.
+
+    A coder is flagged "more" (or "less") on a code when McNemar's test against each other
+    coder, Holm-adjusted over all pairs and codes, shows them using it more (less) than a
+    strict majority of the others. One coder who over-uses a code is then named, and the
+    accurate coders, who differ only from that one, are not. With two coders this is the
+    per-code McNemar test. Per code, the omnibus test is McNemar (two coders) or Cochran's Q
+    on the units every coder coded (more), Holm over codes; with units nested in groups the
+    pairwise tests are McNemar's for clustered pairs (Durkalski et al. 2003) and Cochran's Q
+    is not run (it assumes independent units)."""
     shares = CoderShares.of(pres.x, pres.observed)
     m, q = shares.uses.shape
     notes: list[Note] = []
+    pairs = _pair_tests(pres, clusters)
+    raw_more, raw_less = _majority_p(pairs.p, pairs.more), _majority_p(pairs.p, pairs.less)
+    adj_more, adj_less = _majority_p(pairs.p_holm, pairs.more), _majority_p(pairs.p_holm, pairs.less)
+    coder_p = np.minimum(raw_more, raw_less)
+    coder_p_holm = np.minimum(adj_more, adj_less)
+    untested = ~np.isfinite(shares.share)
+    coder_p[untested] = np.nan
+    coder_p_holm[untested] = np.nan
+    flags = np.where(adj_more < SIGNIFICANCE, "more", np.where(adj_less < SIGNIFICANCE, "less", "")).astype(object)
+    flags[untested] = ""
     if m == 2:
-        b, c = chance.one_only, chance.other_only
-        code_stat, code_p, code_test = mcnemar(b, c)
-        code_df = np.where([t == "mcnemar chi-square" for t in code_test], 1.0, np.nan)
-        code_p_holm = holm(code_p)
-        coder_p = np.vstack([code_p, code_p])
+        code_stat, code_p = pairs.stat[0, 1], pairs.p[0, 1]
+        code_test = list(pairs.test[0, 1])
+        code_df = np.where([t in ("mcnemar chi-square", "clustered mcnemar") for t in code_test], 1.0, np.nan)
         coder_test = np.array([code_test, code_test], dtype=object)
-        flags = np.full((m, q), "", dtype=object)
-        flagged = (code_p_holm < SIGNIFICANCE) & (b != c)
-        flags[0] = np.where(flagged, np.where(b > c, "more", "less"), "")
-        flags[1] = np.where(flagged, np.where(b > c, "less", "more"), "")
-        coder_p_holm = np.vstack([code_p_holm, code_p_holm])
     else:
         code_test, code_stat = [None] * q, np.full(q, np.nan)
         code_df, code_p = np.full(q, np.nan), np.full(q, np.nan)
         complete = pres.observed.all(axis=1)
-        if complete.sum() >= 2:
+        if clusters is not None:
+            notes.append(Note("cochran-clustered", "Cochran's Q assumes independent units and the units are "
+                              "nested in groups, so it was not run; each coder is compared with every other "
+                              "by McNemar's test for clustered pairs (Durkalski et al. 2003)."))
+        elif complete.sum() >= 2:
             code_stat, code_p = cochran_q(pres.x[complete])
             code_test = ["cochran q"] * q
             code_df = np.full(q, float(m - 1))
@@ -299,18 +370,9 @@ def _usage(pres: _Presence, chance: _Chance, n_units: int) -> _Usage:
         else:
             notes.append(Note("cochran-not-run", "Cochran's Q needs units coded by every coder; "
                               "there are fewer than two."))
-        code_p_holm = holm(code_p)
-        pooled = shares.uses.sum(axis=0) / shares.units_coded.sum()
-        units, others = shares.units_coded[:, None], shares.others_units[:, None]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            se = np.sqrt(pooled * (1 - pooled) * (1.0 / units + 1.0 / others))
-            z = (shares.share - shares.share_others) / se
-        coder_p = np.where(se > 0, 2 * stats.norm.sf(np.abs(z)), 1.0)
-        coder_p[~np.isfinite(shares.share - shares.share_others)] = np.nan
-        coder_test = np.full((m, q), "two-proportion z", dtype=object)
-        coder_p_holm = holm(coder_p.ravel()).reshape(m, q)
-        flags = np.where(coder_p_holm < SIGNIFICANCE,
-                         np.where(shares.share > shares.share_others, "more", "less"), "")
+        name = "clustered mcnemar" if clusters is not None else "mcnemar"
+        coder_test = np.full((m, q), f"{name} against each other coder (majority)", dtype=object)
+    code_p_holm = holm(code_p)
     return _Usage(shares=shares, flags=flags, coder_test=coder_test, coder_p=coder_p,
                   coder_p_holm=coder_p_holm, code_test=list(code_test), code_stat=code_stat,
                   code_df=code_df, code_p=code_p, code_p_holm=code_p_holm, notes=tuple(notes))
@@ -347,13 +409,16 @@ def _top_confusion(conf: Confusions, n_k: np.ndarray, set_valued: bool) -> _TopC
     return _TopConfusion(top, top_share, np.isfinite(top_share) & (top_share > 0), omission)
 
 
-def _homogeneity(data: CodingData) -> dict[str, Any]:
+def _homogeneity(data: CodingData, clusters: np.ndarray | None = None) -> dict[str, Any]:
     """The Stuart–Maxwell test for two coders with single codes, else why there is none."""
-    if data.n_coders == 2 and not data.set_valued:
+    if data.n_coders == 2 and not data.set_valued and clusters is None:
         return stuart_maxwell(directed_table(data, 0, 1), list(data.values))
-    reason = ("set-valued data have no single category table; see the per-code McNemar tests"
+    reason = ("the units are nested in groups and the Stuart–Maxwell test assumes independent units; see the "
+              "per-code McNemar tests for clustered pairs" if clusters is not None and data.n_coders == 2
+              and not data.set_valued else
+              "set-valued data have no single category table; see the per-code McNemar tests"
               if data.n_coders == 2 else
-              "the Stuart–Maxwell test compares two coders; see the per-code Cochran's Q tests")
+              "the Stuart–Maxwell test compares two coders; see the per-code tests of equal use")
     return {"test": None, "statistic": None, "df": None, "p_value": None, "dropped": [], "reason": reason}
 
 
@@ -390,7 +455,8 @@ class _CodeFacts:
     units_with: int
     uses: tuple[float, ...]          # per coder
     flags: tuple[str, ...]           # per coder: "more", "less" or ""
-    ratios: tuple[float, ...]        # per coder: share / share of the others
+    ratios: tuple[float, ...]        # per coder: share / median share of the other coders
+    shares: tuple[float, ...]        # per coder: share of the units they coded given the code
     top_confusion: str | None
     top_share: float
     omission: float
@@ -446,15 +512,24 @@ def _status(f: _CodeFacts, rules: _Rules) -> _Verdict:
 
 
 def _use_reasons(f: _CodeFacts, coders: tuple[str, ...]) -> list[str]:
-    """Who used the code unusually often or rarely."""
+    """Who used the code unusually often or rarely: the coders flagged by the tests of equal
+    use (each against a strict majority of the others), with their share against the median
+    share of the other coders. With two coders only the one who used it more is named."""
     users = [c for c, u in zip(coders, f.uses) if u > 0]
     if len(users) == 1 and len(coders) > 1:
         return [f"used by {users[0]} only"]
     parts = []
     for i, (flag, ratio) in enumerate(zip(f.flags, f.ratios)):
-        if flag and np.isfinite(ratio) and ratio > 0 and (flag == "more" or len(coders) > 2):
-            against = "the others" if len(coders) > 2 else coders[1 - i]
+        if not flag or (flag == "less" and len(coders) == 2):
+            continue
+        against = "the other coders (median)" if len(coders) > 2 else coders[1 - i]
+        if np.isfinite(ratio) and ratio > 0:
             parts.append(f"used by {coders[i]} {_ratio_text(ratio)} as often as {against}")
+        elif flag == "more":
+            share = percent_label(f.shares[i], 0) if f.shares else "some"
+            parts.append(f"used by {coders[i]} on {share} of their units, by {against} on none")
+        else:
+            parts.append(f"never used by {coders[i]}, though {against} used it")
     return parts
 
 
@@ -629,10 +704,16 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     - unequal use: with two coders the per-code McNemar test (exact binomial when
       b + c < 25, else chi-square without continuity correction), Holm over the codes; a
       significant test flags the coder who uses k more and the one who uses it less. With
-      more coders, Cochran's Q per code on the units every coder coded (Holm over codes), and
-      for each coder a two-proportion z-test of their share against the pooled share of the
-      others (Holm over all codes and coders; it ignores that the coders coded the same units,
-      which usually makes it conservative) flags "more" or "less" at p_holm < 0.05.
+      more coders, Cochran's Q per code on the units every coder coded (Holm over codes); and
+      each pair of coders is compared by McNemar's test on the units both coded (Holm over all
+      pairs and codes). A coder is flagged "more" ("less") when they use k significantly more
+      (less) than a strict majority of the other coders (p_holm < 0.05; the coder's p is the
+      one at which that holds). The reference is thus the bulk of the coders, not their
+      pooled share, which one over-user would inflate until the accurate coders looked like
+      under-users; ``ratio`` is the coder's share over the median share of the others.
+      With `cluster` the pairwise tests are McNemar's for clustered pairs (Durkalski et al.
+      2003), and Cochran's Q and the Stuart–Maxwell test, which assume independent units, are
+      not run.
     - confusions: share_ck = 2 o_ck / Σ_{g≠h} o_gh, expected e_ck = n_c n_k / (n - 1), and
       alpha after merging c and k (METHODS 6.3, 6.4). For set-valued data o_ck counts pairs of
       coders where one applied c and not k and the other k and not c; shares are of all such
@@ -657,7 +738,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     ----------
     Byrt, Bishop & Carlin (1993); Cicchetti & Feinstein (1990); Feinstein & Cicchetti (1990);
     Spitzer & Fleiss (1974); Krippendorff (2004); McNemar (1947); Cochran (1950); Holm (1979);
-    Stuart (1955); Maxwell (1970).
+    Stuart (1955); Maxwell (1970); Durkalski, Palesch, Lipsitz & Rust (2003).
     """
     check_settings(n_resamples=n_resamples, confidence_level=confidence_level, minimum=minimum,
                    ci_method=ci_method)
@@ -671,7 +752,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     agree = _agreement(pres, cats, clusters=clusters, cluster_name=cluster_name, n_resamples=n_resamples,
                        seed=seed, confidence_level=confidence_level, ci_method=ci_method, minimum=minimum)
     chance = _chance(pres, data.n_coders)
-    use = _usage(pres, chance, data.n_units)
+    use = _usage(pres, chance, data.n_units, clusters)
     conf = confused_pairs(data, pres.x, pres.m_u, pres.r, distance)
     top = _top_confusion(conf, chance.n_k, data.set_valued)
 
@@ -682,7 +763,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
         alpha=agree.alpha[k], lower_bound=agree.lower_bound[k], kappa=chance.kappa[k], percent=chance.percent[k],
         specific=agree.specific[k], prevalence=chance.prevalence[k], bias=chance.bias[k], n_k=chance.n_k[k],
         n=chance.n, units_with=chance.units_with[k], uses=tuple(use.shares.uses[:, k]),
-        flags=tuple(use.flags[:, k]), ratios=tuple(use.shares.ratio[:, k]),
+        flags=tuple(use.flags[:, k]), ratios=tuple(use.shares.ratio[:, k]), shares=tuple(use.shares.share[:, k]),
         top_confusion=cats[top.index[k]] if top.has[k] else None, top_share=top.share[k],
         omission=top.omission[k]), rules) for k in range(len(cats))]
 
@@ -700,7 +781,7 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
         overall_ci = (overall.ci_low, overall.ci_high)
     return CodeDiagnostics(per_code=_per_code(cats, coders, agree, chance, use, top, verdicts),
                            confused_pairs=conf.pairs, usage=use.frame(cats, coders),
-                           marginal_homogeneity=json_safe(_homogeneity(data)), alpha=conf.alpha,
+                           marginal_homogeneity=json_safe(_homogeneity(data, clusters)), alpha=conf.alpha,
                            alpha_ci_low=overall_ci[0], alpha_ci_high=overall_ci[1],
                            coders=coders, n_units=data.n_units,
                            n_pairable_units=chance.n_pairable_units, set_valued=data.set_valued,

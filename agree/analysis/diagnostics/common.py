@@ -4,6 +4,7 @@ several statistics from the same resamples."""
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, replace
 from typing import Any, Callable, Sequence
 
@@ -52,13 +53,19 @@ def cluster_labels(data: CodingData, cluster: Any) -> tuple[np.ndarray | None, s
 
 @dataclass(frozen=True)
 class CoderShares:
-    """Each coder's use of each code against the other coders' (arrays (m, q))."""
+    """Each coder's use of each code against the other coders' (arrays (m, q)).
+
+    The reference for a coder is the median of the other coders' shares, not their pooled
+    share: one coder who over-uses a code raises the pooled share of everybody else's
+    "others" and would make accurate coders look like under-users, while the median of the
+    others stays with the majority (with two coders it is the other coder's share)."""
 
     uses: np.ndarray            # units the coder gave the code
     units_coded: np.ndarray     # (m,) units the coder coded
     share: np.ndarray           # uses / units_coded
     share_others: np.ndarray    # the other coders' pooled share
-    ratio: np.ndarray           # share / share_others
+    share_median_others: np.ndarray  # the median of the other coders' shares
+    ratio: np.ndarray           # share / share_median_others
 
     @property
     def others_units(self) -> np.ndarray:
@@ -70,11 +77,16 @@ class CoderShares:
         """From presence X (N, m, q) and the (N, m) mask of coded cells."""
         uses = x.sum(axis=0)
         units = observed.sum(axis=0).astype(float)
+        m = len(units)
         with np.errstate(divide="ignore", invalid="ignore"):
             share = uses / units[:, None]
             share_others = (uses.sum(axis=0)[None, :] - uses) / (units.sum() - units)[:, None]
-            ratio = share / share_others
-        return cls(uses, units, share, share_others, ratio)
+            others = np.array([[j for j in range(m) if j != i] for i in range(m)], dtype=int).reshape(m, m - 1)
+            with warnings.catch_warnings():   # a coder who coded nothing has no share
+                warnings.simplefilter("ignore", RuntimeWarning)
+                median = np.nanmedian(share[others], axis=1)               # (m, q)
+            ratio = share / median
+        return cls(uses, units, share, share_others, median, ratio)
 
 
 @dataclass(frozen=True)

@@ -53,7 +53,8 @@ class CodeDiagnostics:
         - ``top_confusion``, ``top_confusion_share`` (share of this code's disagreements that
           are confusions with ``top_confusion``), ``omission_share`` (set-valued: share of
           its disagreements where the other coder applied no alternative; 0 otherwise).
-        - ``usage_test`` ("mcnemar exact", "mcnemar chi-square", "cochran q" or None),
+        - ``usage_test`` ("mcnemar exact", "mcnemar chi-square", "clustered mcnemar",
+          "cochran q" or None),
           ``usage_statistic``, ``usage_df``, ``usage_p``, ``usage_p_holm``, and the same
           adjusted p under its test's name: ``mcnemar_p_holm`` (two coders) and
           ``cochran_p_holm`` (more; NaN where not applicable). ``usage_flag`` names coders
@@ -69,8 +70,11 @@ class CodeDiagnostics:
         that were confused at least once appear: merging a never-confused pair always
         lowers alpha.
     usage : DataFrame, one row per code and coder: ``code``, ``coder``, ``uses``,
-        ``units_coded``, ``share``, ``share_others``, ``ratio`` (share / share_others),
-        ``test``, ``p_value``, ``p_holm``, ``flag`` ("more", "less" or "").
+        ``units_coded``, ``share``, ``share_others`` (the other coders' pooled share),
+        ``share_median_others`` (the median of the other coders' shares), ``ratio``
+        (share / share_median_others), ``test``, ``p_value``, ``p_holm`` (the p at which the
+        coder differs from a strict majority of the others, see :func:`diagnose_codes`),
+        ``flag`` ("more", "less" or "").
     marginal_homogeneity : dict with ``test``, ``statistic``, ``df``, ``p_value``,
         ``dropped`` (categories left out as singular), ``groups``, ``bhapkar_statistic``,
         ``bhapkar_p_value``, ``n_units`` and ``reason`` when no test was made.
@@ -180,7 +184,8 @@ class CoderDiagnostics:
         (alpha_without - alpha; positive means the coder lowers reliability), ``delta_ci_low``,
         ``delta_ci_high`` (paired unit bootstrap), ``n_pairable_units`` (without the coder).
     code_use : DataFrame, one row per coder and value: ``coder``, ``code``, ``uses``,
-        ``units_coded``, ``share``, ``share_others``, ``ratio``.
+        ``units_coded``, ``share``, ``share_others`` (pooled), ``share_median_others``,
+        ``ratio`` (share / share_median_others).
     alpha : alpha of all coders at ``level``.
     level : the level used; for set-valued data the set distance ("masi" by default, as in
         :func:`agree.score`, or "jaccard").
