@@ -1,15 +1,17 @@
 """Coding rounds: per-round agreement, differences between rounds, definitions, drift.
 
 External checks: per-round and per-code α against the `krippendorff` package (reference
-library); the difference interval against a direct computation from the engine's own
-replicates (the definition in METHODS 7.1/7.2 applied to two independent samples, Efron &
-Tibshirani 1993, ch. 8); properties (identical rounds give a zero difference whose interval
-covers 0; a much better round is detected).
+library); the spread of the difference against the two rounds' own bootstrap spreads (for
+rounds that share no unit, Var(α*_b - α*_a) = Var(α*_a) + Var(α*_b), Efron & Tibshirani 1993,
+ch. 8); properties (identical rounds paired give a zero difference, unpaired an interval
+around 0; a much better round is detected). The coverage of the paired interval is checked by
+simulation in tests/stats/test_slow_se.py.
 """
 
 from __future__ import annotations
 
 import json
+import math
 from pathlib import Path
 
 import krippendorff
@@ -76,21 +78,30 @@ def test_round_files_give_the_same_result_as_a_round_column(sample_rounds):
         pytest.approx([r.overall.estimate for r in from_column.rounds], abs=1e-12)
 
 
-def test_difference_interval_from_independent_replicates(sample_rounds):
+def test_difference_of_rounds_sharing_no_unit_is_a_two_sample_bootstrap(sample_rounds):
+    # the sample rounds share no unit: the difference replicates are independent draws in each
+    # round, so their spread is that of the two rounds' own bootstraps combined
+    from agree.analysis.rounds.paired import difference_replicates, round_items
+    from agree.stats.coefficients import distance_matrix
+
     data, result = sample_rounds
     parts = split_rounds(data)
     overall = [c for c in result.changes if c.code is None][0]
-    # the seeds are derived per round (round index, code index 0 = overall)
-    from agree.core.seeds import child_seed as _child_seed
-
-    r1 = krippendorff_alpha(parts["1"], n_resamples=500, seed=_child_seed(11, 0, 0)).replicates
-    r2 = krippendorff_alpha(parts["2"], n_resamples=500, seed=_child_seed(11, 1, 0)).replicates
-    diff = r2 - r1
-    low, high = np.quantile(diff[np.isfinite(diff)], [0.025, 0.975])
-    assert (overall.ci_low, overall.ci_high) == pytest.approx((low, high), abs=1e-12)
+    assert overall.pairing == "independent" and overall.n_shared == 0
     assert overall.difference == pytest.approx(result.rounds[1].overall.estimate - result.rounds[0].overall.estimate)
+    items = [round_items(parts[n], result.codes, distance_matrix(parts[n], "nominal")[0]) for n in ("1", "2")]
+    va, vb, shared = difference_replicates(items[0], items[1], 4000, np.random.default_rng(1))
+    assert shared == 0
+    sd = [krippendorff_alpha(parts[n], n_resamples=4000, seed=3).replicates.std() for n in ("1", "2")]
+    assert np.std(vb[:, 0] - va[:, 0]) == pytest.approx(math.hypot(*sd), rel=0.06)
+    # the per-code columns are each code's presence/absence α, as the figures shown
+    code = result.codes[0]
+    col = 1 + list(result.codes).index(code)
+    ref = krippendorff_alpha(parts["1"].presence(code), level="nominal", n_resamples=4000, seed=5).replicates
+    assert np.nanstd(va[:, col]) == pytest.approx(np.nanstd(ref), rel=0.06)
     # in the synthetic scenario round 2 used a sharper codebook: the rise is beyond noise
     assert overall.beyond_noise and overall.ci_low > 0
+    assert "resample each round on its own (no unit was coded in two compared rounds)" in " ".join(result.summary)
 
 
 def test_identical_rounds_show_no_change():
@@ -98,10 +109,104 @@ def test_identical_rounds_show_no_change():
     data = _round(rng, 120, 0.6)
     result = compare_rounds({"r1": data, "r2": data}, n_resamples=1000, seed=2)
     overall = [c for c in result.changes if c.code is None][0]
+    # the same units coded alike twice: paired, every replicate difference is exactly 0
     assert overall.difference == 0
-    assert overall.ci_low < 0 < overall.ci_high
+    assert (overall.pairing, overall.n_shared) == ("paired", 120)
+    assert (overall.ci_low, overall.ci_high) == (0.0, 0.0)
     assert not overall.beyond_noise
-    assert "within sampling noise" in " ".join(result.summary)
+    text = " ".join(result.summary)
+    assert "within sampling noise" in text and "the 120 units coded in both were resampled jointly" in text
+    assert result.to_dict()["changes"][0]["pairing"] == "paired"
+    # treated as independent samples the same rounds give an interval around 0
+    apart = compare_rounds({"r1": data, "r2": data}, n_resamples=1000, seed=2, pairing="independent")
+    overall = [c for c in apart.changes if c.code is None][0]
+    assert overall.pairing == "independent" and overall.ci_low < 0 < overall.ci_high
+    assert "pairing was switched off" in " ".join(apart.summary)
+    assert apart.to_dict()["settings"]["pairing"] == "independent"
+
+
+def _recoded(rng, n, hard_share=0.4, first=0.55, second=0.8):
+    """The same n units coded in two rounds by three coders: a hard unit (random) is coded at
+    chance in both rounds, an easy one correctly with probability sqrt(alpha) of the round;
+    so the rounds' α are positively correlated through the units."""
+    truth = rng.integers(0, 3, n)
+    hard = rng.random(n) < hard_share
+    rounds = []
+    for level in (first, second):
+        knows = (rng.random((n, 3)) < math.sqrt(level)) & ~hard[:, None]
+        codes = np.where(knows, truth[:, None], rng.integers(0, 3, (n, 3)))
+        rounds.append(from_table(as_labels(codes, CODES[:3]), coders=["a", "b", "c"], categories=CODES[:3]))
+    return rounds
+
+
+def test_recoded_units_are_paired_and_the_interval_narrows():
+    r1, r2 = _recoded(np.random.default_rng(4), 150)
+    paired = compare_rounds({"1": r1, "2": r2}, n_resamples=1500, seed=3)
+    apart = compare_rounds({"1": r1, "2": r2}, n_resamples=1500, seed=3, pairing="independent")
+    p = next(c for c in paired.changes if c.code is None)
+    i = next(c for c in apart.changes if c.code is None)
+    assert p.difference == i.difference
+    assert (p.pairing, p.n_shared) == ("paired", 150)
+    # positively correlated rounds: the paired interval is clearly narrower
+    assert (p.ci_high - p.ci_low) < 0.85 * (i.ci_high - i.ci_low)
+    assert all(c.pairing == "paired" for c in paired.changes)
+
+
+def test_partly_shared_units_keep_each_round_size():
+    from agree.analysis.rounds.paired import RoundItems, difference_replicates
+
+    rng = np.random.default_rng(9)
+    r1, r2 = _recoded(rng, 100)
+    # round 2 keeps 60 of round 1's units and adds 40 new ones
+    extra = _round(rng, 40, 0.7)
+    ids = [f"new{i}" for i in range(40)]
+    from dataclasses import replace
+    r2 = r2.subset(np.arange(100) < 60)
+    r2_codes = np.vstack([r2.codes, extra.codes[:, :3]])
+    r2 = replace(from_table(as_labels(r2_codes, CODES), coders=["a", "b", "c"], categories=CODES),
+                 unit_ids=tuple(list(r2.unit_ids) + ids))
+    result = compare_rounds({"1": r1, "2": r2}, n_resamples=300, seed=1)
+    ch = next(c for c in result.changes if c.code is None)
+    assert (ch.pairing, ch.n_shared) == ("paired", 60)
+    assert "the other units were resampled within their own round" in " ".join(result.summary)
+    # the strata directly: features (1, shared?, a random tag of each shared unit): each
+    # replicate keeps 100 units and 60 shared ones in each round, and the shared units drawn
+    # (their tags summed) are the same in both rounds, replicate by replicate
+    keys_a = np.array([f"u{i}" for i in range(100)])
+    keys_b = np.array([f"u{i}" for i in range(60)] + ids)
+    tag = dict(zip([f"u{i}" for i in range(60)], np.random.default_rng(0).random(60)))
+
+    def items(keys):
+        shared_ = np.array([k in tag for k in keys], float)
+        feats = np.column_stack([np.ones(len(keys)), shared_, [tag.get(k, 0.0) for k in keys]])
+        return RoundItems(keys, feats, np.ones(len(keys)), lambda sums: sums, False)
+
+    va, vb, shared = difference_replicates(items(keys_a), items(keys_b), 200, np.random.default_rng(2))
+    assert shared == 60
+    assert (va[:, 0] == 100).all() and (vb[:, 0] == 100).all()
+    assert (va[:, 1] == 60).all() and (vb[:, 1] == 60).all()
+    np.testing.assert_allclose(va[:, 2], vb[:, 2], rtol=1e-12)
+    assert va[:, 2].std() > 0
+
+
+def test_shared_groups_are_resampled_jointly():
+    from dataclasses import replace
+
+    r1, r2 = _recoded(np.random.default_rng(12), 120)
+    groups = np.repeat([f"doc{g}" for g in range(30)], 4)
+    r1 = replace(r1, columns={"doc": groups})
+    r2 = replace(r2, columns={"doc": groups})
+    result = compare_rounds({"1": r1, "2": r2}, n_resamples=300, seed=1, cluster="doc")
+    ch = next(c for c in result.changes if c.code is None)
+    assert (ch.pairing, ch.n_shared) == ("paired", 30)
+    assert "the 30 groups coded in both" in " ".join(result.summary)
+
+
+def test_unknown_pairing_is_refused():
+    d = _round(np.random.default_rng(1), 30, 0.6)
+    with pytest.raises(AgreeError) as err:
+        compare_rounds({"1": d, "2": d}, n_resamples=10, pairing="sometimes")
+    assert err.value.code == "pairing"
 
 
 def test_difference_interval_edge_cases():
@@ -301,27 +406,6 @@ def test_per_code_figures_shown_per_round_equal_diagnose_codes_with_the_seed(sam
     frame = result.to_frame()
     first = frame[(frame["round"] == "1") & frame["code"].notna()].iloc[0]
     assert first.estimate == result.round("1").per_code[first.code].estimate
-
-
-def test_differences_between_rounds_keep_independent_resamples(sample_rounds):
-    # the intervals of differences come from replicates with a seed derived per round and
-    # code (independent of the resamples shown), as before
-    from agree.analysis.rounds import split_rounds
-    from agree.core.seeds import child_seed as _child_seed
-
-    data, result = sample_rounds
-    parts = split_rounds(data)
-    code = result.codes[0]
-    reps = []
-    for i, name in enumerate(["1", "2"]):
-        j = list(result.codes).index(code) + 1
-        binary = parts[name].presence(code)
-        res = krippendorff_alpha(binary, level="nominal", seed=_child_seed(11, i, j), n_resamples=500,
-                                 minimum=0.8)
-        reps.append(res.replicates)
-    ch = next(c for c in result.changes if c.code == code)
-    low, high, _ = difference_interval(reps[0], reps[1], estimate=ch.difference, confidence_level=0.95)
-    assert (ch.ci_low, ch.ci_high) == pytest.approx((low, high), abs=1e-12)
 
 
 def test_report_per_code_table_equals_the_rounds_figures_of_that_round(sample_rounds):

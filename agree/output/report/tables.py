@@ -271,8 +271,9 @@ def rounds_tables(rounds: Any, dg: int, prefix: str = "") -> list[Table]:
     if rows:
         out.append(Table("round_changes", "Change in agreement between consecutive rounds",
                          ("Rounds", "Code", "Difference in α", level, "Beyond sampling noise"), tuple(rows),
-                         note="Interval of the difference from independent unit resamples within each round "
-                              "(other resamples than the intervals shown per round); “beyond sampling noise” "
+                         note=" ".join(getattr(rounds, "pairing_lines", lambda: ())()) + " The interval of "
+                              "each difference comes from resamples drawn for the pair of rounds (other "
+                              "resamples than the intervals shown per round); “beyond sampling noise” "
                               "means the interval excludes 0. With many codes, some intervals exclude 0 by "
                               "chance. A code marked too rare was used on too few units in that round to "
                               "judge, so its change says little."))

@@ -199,8 +199,10 @@ def _rounds_sample_text(report: Report, coders: str) -> list[str]:
                    "the revisions of the codebook with differences between the units coded.")
     elif shared:
         out.append(f"{format_value(shared, 'count')} unit{' was' if shared == 1 else 's were'} coded in more "
-                   "than one round; the other units differ between rounds, so a change in agreement between "
-                   "rounds mixes the revisions of the codebook with differences between the units coded.")
+                   "than one round (the note to the table of changes says how each difference was "
+                   "resampled, paired or not); the other units "
+                   "differ between rounds, so a change in agreement between rounds mixes the revisions of the "
+                   "codebook with differences between the units coded.")
     return out
 
 
