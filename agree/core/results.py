@@ -84,7 +84,8 @@ class AgreementResult:
     Wilson interval the score test. (It replaces `p_below_min`, the raw share of resamples
     below the minimum, which could contradict the bound.)
     Kappa-type results carry `z`, `p_value` (two-sided) and `p_value_one_sided` for
-    H0: no agreement beyond chance.
+    H0: no agreement beyond chance; not when units are nested in groups (`cluster=`): those
+    tests assume independent units, so they are None and a note says why.
     `replicates` holds the bootstrap values the interval was made from (not in `to_dict()`),
     e.g. for intervals of differences computed from independent resamples.
     """
