@@ -379,8 +379,9 @@ def value_label(v: Any) -> str:
 
 def normalise_value(v: Any) -> Any:
     """One canonical form per value: numbers that are whole become int (so 1 and 1.0 are
-    the same code), other numbers float, text stripped of nothing (readers trim on request).
-    Returns None for missing."""
+    the same code) up to 2**53 (larger floats are not exact whole numbers and stay float, never
+    a 309-digit integer), other numbers float, text stripped of nothing (readers trim on
+    request). Returns None for missing."""
     if v is None:
         return None
     if isinstance(v, float) and np.isnan(v):
@@ -391,7 +392,7 @@ def normalise_value(v: Any) -> Any:
         return int(v)
     if isinstance(v, (float, np.floating)):
         f = float(v)
-        return int(f) if f.is_integer() else f
+        return int(f) if f.is_integer() and abs(f) < 2 ** 53 else f
     if isinstance(v, (set, frozenset, list, tuple)):  # several codes (lists come from str.split)
         return frozenset(x for x in (normalise_value(x) for x in v) if x is not None)
     if isinstance(v, str):

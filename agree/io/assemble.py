@@ -40,6 +40,8 @@ def assemble(b: Build, *, book, level) -> dict[str, Any]:
             start += len(ids)
     n, m = len(unit_ids), len(b.coders)
     _check_unit_ids(b)
+    if not b.enc.trim:
+        _space_twins(b, unit_ids)
     if m < 2:
         names = ", ".join(b.coders) or "none"
         raise AgreeError(f"only one coder found ({names})" if m == 1 else "no coder found",
@@ -88,6 +90,22 @@ def assemble(b: Build, *, book, level) -> dict[str, Any]:
                 provenance=Provenance(sources=tuple(b.sources), source=src, row=row),
                 order=("given" if book.ordered else "codebook rows") if book is not None else
                 "numeric" if all(isinstance(v, (int, float)) for v in values) else "alphabetical")
+
+
+def _space_twins(b: Build, unit_ids: np.ndarray) -> None:
+    """Warn about unit ids that differ only in spaces before or after them: they are read as
+    different units (as codes that differ so are different codes); --trim merges them."""
+    ids = pd.Series(unit_ids, dtype=object).map(str)
+    stripped = ids.str.strip()
+    twins = stripped.duplicated(keep=False).to_numpy()
+    if not twins.any():
+        return
+    groups = pd.Series(np.flatnonzero(twins)).groupby(stripped[twins].to_numpy()).agg(list)
+    first = [repr(unit_ids[i]) for i in groups.iloc[0][:3]]
+    n = len(groups)
+    b.notes.append(f"warning: {n} unit id{'s' * (n != 1)} differ{'s' * (n == 1)} only in spaces before or after "
+                   f"{'it' if n == 1 else 'them'} and count as different units: {' / '.join(first)}"
+                   f"{' ...' if n > 1 else ''} (column '{b.roles[0].unit}'); use --trim (trim=True) to merge them")
 
 
 def _check_unit_ids(b: Build) -> None:

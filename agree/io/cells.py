@@ -18,7 +18,7 @@ import pandas as pd
 from agree.core.model import MISSING, AgreeError, normalise_value
 from agree.io.loaders import Table, raise_all
 
-__all__ = ["canonical_code", "Encoder", "Stats", "factorize", "factorize_columns", "binary",
+__all__ = ["canonical_code", "as_number", "number_text", "Encoder", "Stats", "factorize", "factorize_columns", "binary",
            "looks_missing", "rows_text", "quoted", "NUMBER", "DECIMAL_COMMA", "MISSING_LOOKALIKES"]
 
 MISSING_LOOKALIKES = {"na", "n/a", "nan", "null", "none", "-", "missing"}
@@ -29,16 +29,48 @@ _PARALLEL_ROWS = 100_000  # text columns at least this long are factorized on se
 Factorized = tuple[np.ndarray, np.ndarray]  # codes per cell (-1 for missing), distinct values
 
 
+def as_number(v: Any) -> int | float | None:
+    """The number a cell holds: a number, or text written as one (``007``, ``+1``, ``1.50``,
+    ``1e300``), as `normalise_value` makes numbers (int when whole, up to 2**53); None for other
+    text. Non-finite numbers (``1e309`` overflows to infinity) are returned as they are, to be
+    refused by the caller with the cell named."""
+    if isinstance(v, str):
+        s = v.strip()
+        if not NUMBER.match(s):
+            return None
+        return normalise_value(float(s))
+    if isinstance(v, (bool, np.bool_, int, np.integer, float, np.floating)):
+        return normalise_value(v)
+    return None
+
+
+def number_text(x: int | float) -> str:
+    """How a number is written when it is a code's canonical spelling: 1, 1.5, -3, 1e+300."""
+    return str(x) if isinstance(x, int) else repr(x)
+
+
 def canonical_code(v: Any, *, trim: bool, casefold: bool) -> Any:
-    """Canonical code from a raw cell: number, stripped/casefolded text, or None."""
+    """Canonical code from a raw cell: a number, text as written (stripped or case-folded on
+    request), or None for empty.
+
+    Text is the code exactly as written unless it is a number in its plain spelling (``1``,
+    ``1.5``, ``-3``, and ``2.0`` as programs write whole numbers): ``007``, ``+1``, ``1.50`` and ``1e300`` stay text here, and
+    `agree.io.values` decides what they are (numbers at a numeric level; at the nominal level the
+    same code as a plain number of equal value, else the text as read). Numbers in cells
+    (workbooks, Parquet) are numbers; whole numbers are int (1 and 1.0 are the same code) up to
+    2**53, larger ones stay float.
+    """
     v = normalise_value(v)
     if isinstance(v, str):
         if trim:
             v = v.strip()
-        if v.strip() == "":
+        s = v.strip()
+        if s == "":
             return None
-        if NUMBER.match(v.strip()):
-            v = normalise_value(float(v))
+        number = as_number(s)
+        if number is not None:
+            if s in (number_text(number), number_text(number) + ".0"):   # 2 and 2.0, as programs write them
+                v = number
         elif casefold:
             v = v.casefold()
     elif hasattr(v, "isoformat"):

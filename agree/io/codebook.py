@@ -124,7 +124,8 @@ _NAMES = CODEBOOK_CODE_NAMES + ORDER_NAMES + DESCRIPTION_NAMES
 
 def _codebook(codes: list, descriptions: Sequence[Any], orders: Sequence[Any] | None, rows: np.ndarray, *,
               name: str, sheet: str | None, columns: tuple) -> Codebook:
-    """Check the entries (empty, repeated codes; missing, repeated orders) and make the Codebook."""
+    """Check the entries (empty, repeated codes; missing, repeated orders) and make the Codebook.
+    Each code is its text as written, a plain number (1, 2.0) a number (`canonical_code`)."""
     code_col, order_col, _ = columns
     problems: list[AgreeError] = []
     keep: list[int] = []

@@ -26,11 +26,12 @@ from typing import Any, Callable
 import numpy as np
 
 from agree.core.model import MISSING, AgreeError, cell_location, value_sort_key
-from agree.io.cells import DECIMAL_COMMA, Encoder, canonical_code, looks_missing
+from agree.io.cells import DECIMAL_COMMA, Encoder, as_number, canonical_code, looks_missing
 from agree.io.loaders import raise_all
 
 __all__ = ["Values", "CellFinder"]
 
+MAX_METRIC_VALUE = 1e150  # interval/ratio codes beyond this: their squared differences overflow
 MULTI_SHOWN = 3  # cells with several codes named in the note
 MULTI_WARNING_SHARE = 0.05  # below this share of coded cells, several codes per cell is a warning
 
@@ -101,6 +102,10 @@ class Values:
                 atoms_sets = [self._split(a) for a in atoms]
         if set_valued:
             parts = list(dict.fromkeys(x for s in atoms_sets for x in s))
+            merged = dict(zip(parts, self._numbers(parts, numeric=False, book=book, cell_of=cell_of,
+                                                   owners=lambda a: [i for i, s in enumerate(atoms_sets) if a in s])))
+            atoms_sets = [frozenset(merged[x] for x in s) for s in atoms_sets]
+            parts = list(dict.fromkeys(merged[x] for x in parts))
             if level in ("interval", "ratio", "ordinal"):
                 raise AgreeError(f"several codes per cell (set-valued data) cannot be read at the {level} level",
                                  where=cell_of.first(_first_multi(atoms_sets)), code="set-at-level",
@@ -127,8 +132,20 @@ class Values:
             return values, categories, remap, True, "nominal"
 
         data_level = level
+        numeric = level in ("interval", "ratio") or (level == "ordinal" and book is None)
+        spelled = [a for a in atoms]  # as read, for the level note
+        atoms = self._numbers(atoms, numeric=numeric, book=book, cell_of=cell_of, owners=lambda a: [atoms.index(a)])
         text_atoms = [i for i, a in enumerate(atoms) if isinstance(a, str)]
         has_numbers = len(text_atoms) < len(atoms)
+        if level in ("interval", "ratio"):
+            huge = [i for i, a in enumerate(atoms) if not isinstance(a, str) and abs(a) > MAX_METRIC_VALUE]
+            if huge:
+                where, count = cell_of.first_of_many(huge)
+                raise AgreeError(f"{str(spelled[huge[0]])!r} is too large for the {level} metric: squared "
+                                 f"differences of codes beyond {MAX_METRIC_VALUE:.0e} overflow"
+                                 + (f" ({count} cells)" if count > 1 else ""), where=where, code="non-finite",
+                                 hint="rescale the codes (e.g. to thousands), or read them at the nominal or "
+                                      "ordinal level")
         # ordinal without a codebook orders values by sorting them: text among numbers would land
         # above the highest scale point (e.g. "NA" among 1..5), so refuse it
         mixed_ordinal = level == "ordinal" and book is None and has_numbers
@@ -156,8 +173,13 @@ class Values:
         if book is None and has_numbers:
             self._lookalike_warnings(atoms, text_atoms, cell_of)
         if book is not None:
-            mapping = self._codebook_map(book, atoms, lambda a: [atoms.index(a)], cell_of)
+            mapping = self._codebook_map(book, atoms, lambda a: [i for i, x in enumerate(atoms) if x == a], cell_of)
             values = list(book.categories)
+            if level in ("interval", "ratio") and all(as_number(c) is not None for c in values):
+                # a scale of numbers however the codebook spells them (01, 02, ...): their values
+                numbers = {c: as_number(c) for c in values}
+                mapping = {a: numbers[c] for a, c in mapping.items()}
+                values = [numbers[c] for c in values]
             pos = {v: i for i, v in enumerate(values)}
             remap = np.array([pos[mapping[a]] for a in atoms] + [MISSING], dtype=np.int32)
             if data_level is None:
@@ -165,19 +187,58 @@ class Values:
                 self.notes.append(f"level: {data_level} (from the codebook{' order' if book.ordered else ''}; "
                                   "set it with --level (level=...))")
         else:
-            values = sorted(atoms, key=value_sort_key)
+            values = sorted(dict.fromkeys(atoms), key=value_sort_key)
             pos = {v: i for i, v in enumerate(values)}
             remap = np.array([pos[a] for a in atoms] + [MISSING], dtype=np.int32)
             if data_level is None:
                 data_level = "nominal"
-                if values and not text_atoms:
+                if values and all(as_number(a) is not None for a in spelled):
                     self.notes.append("level: nominal (numbers read as categories; set --level ordinal, "
                                       "interval or ratio (level=...) if the numbers are a scale)")
             elif data_level == "ordinal" and text_atoms:
                 self.notes.append("ordinal level without a codebook: categories ordered by sorting their "
                                   "names; give a codebook with an order column to set the order")
-        self._case_space_hints(atoms, lambda a: cell_of.first(atoms.index(a)))
+        self._case_space_hints(list(dict.fromkeys(atoms)), lambda a: cell_of.first(atoms.index(a)))
         return values, values, remap, False, data_level
+
+    def _numbers(self, atoms: list, *, numeric: bool, book, cell_of, owners) -> list:
+        """Each atom as the code it stands for (same length as `atoms`).
+
+        Numbers that are not finite (infinity, or text such as ``1e309`` that overflows) are
+        refused, naming their cells. Text written as a number in another spelling (``007``,
+        ``+1``, ``1.50``, ``1e300``) is that number at a numeric level (`numeric`); otherwise it
+        is the same code as a plain number (or codebook code) of equal value when there is one,
+        else the text as read (several spellings of one value: the first read)."""
+        number = [as_number(a) if isinstance(a, (str, int, float)) and not isinstance(a, bool) else None
+                  for a in atoms]
+        bad = [i for i, x in enumerate(number) if isinstance(x, float) and not np.isfinite(x)]
+        if bad:
+            problems = []
+            for i in bad[:50]:
+                where, count = cell_of.first_of_many(owners(atoms[i]))
+                more = f" (and {count - 1} more cell{'s' * (count != 2)})" if count > 1 else ""
+                problems.append(AgreeError(f"{str(atoms[i])!r} is not a finite number{more}", where=where,
+                                           code="non-finite",
+                                           hint="codes must be finite numbers or text; leave a cell empty for "
+                                                "'not coded'"))
+            raise_all(problems, "codes are not finite numbers")
+        plain = {x for a, x in zip(atoms, number) if x is not None and not isinstance(a, str)}
+        if book is not None:
+            plain |= {as_number(c) for c in book.categories if not isinstance(c, str) and as_number(c) is not None}
+            spelled = {as_number(c): c for c in book.categories if isinstance(c, str) and as_number(c) is not None}
+        else:
+            spelled = {}
+        out, first = [], {}
+        for a, x in zip(atoms, number):
+            if x is None or not isinstance(a, str):
+                out.append(a)
+            elif numeric or x in plain:
+                out.append(x)
+            elif x in spelled:
+                out.append(spelled[x])
+            else:
+                out.append(first.setdefault(x, a))
+        return out
 
     def _multi_note(self, atoms, atoms_sets, value, cell_of) -> str:
         """Where the cells with several codes are, and what splitting them does to the analysis.
@@ -225,17 +286,17 @@ class Values:
         return frozenset(p for p in parts if p is not None)
 
     def _codebook_map(self, book, atoms, owners: Callable[[Any], list[int]], cell_of) -> dict:
-        """Map each data atom to its codebook entry; collect unknown codes into one error."""
-        if self.casefold:
-            lookup = {}
-            for c in book.categories:
-                lookup.setdefault(c.casefold() if isinstance(c, str) else c, c)
-        else:
-            lookup = {c: c for c in book.categories}
+        """Map each data atom to its codebook entry (a number to the entry of equal value however
+        the codebook spells it); collect unknown codes into one error."""
+        lookup = self._book_lookup(book)
+        by_number = {as_number(c): c for c in book.categories if as_number(c) is not None}
         mapping, problems = {}, []
         for a in atoms:
             if a in lookup:
                 mapping[a] = lookup[a]
+                continue
+            if not isinstance(a, str) and as_number(a) in by_number:
+                mapping[a] = by_number[as_number(a)]
                 continue
             where, count = cell_of.first_of_many(owners(a))
             names = [str(c) for c in book.categories]
@@ -258,10 +319,28 @@ class Values:
             raise AgreeError(summary, where=first.where, hint=first.hint, code="unknown-code", problems=problems)
         return mapping
 
+    def _book_lookup(self, book) -> dict:
+        """Codebook entry by the code as data compare it (case-folded with --casefold). Two entries
+        that differ only in case are one code under --casefold: refused, naming both."""
+        if not self.casefold:
+            return {c: c for c in book.categories}
+        lookup: dict = {}
+        for c in book.categories:
+            key = c.casefold() if isinstance(c, str) else c
+            if key in lookup:
+                src = f" ({book.source})" if getattr(book, "source", None) else ""
+                raise AgreeError(f"the codebook{src} lists '{lookup[key]}' and '{c}', which differ only in "
+                                 "upper/lower case: with --casefold they are one code", code="bad-codebook",
+                                 where=getattr(book, "source", None),
+                                 hint="keep one of them in the codebook, or leave out --casefold (casefold=False) "
+                                      "to keep them apart")
+            lookup[key] = c
+        return lookup
+
     def _presence_codebook_check(self, book) -> dict:
         if book is None:
             return {}
-        lookup = {(c.casefold() if self.casefold and isinstance(c, str) else c): c for c in book.categories}
+        lookup = self._book_lookup(book)
         problems, mapping = [], {}
         for t, cat, col in self.enc.presence_columns:
             key = cat

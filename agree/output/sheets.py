@@ -84,7 +84,7 @@ def _check_coders(coders: Sequence[str]) -> tuple[str, ...]:
 
 
 def _workbook_bytes(ids: Sequence[Any], context: Mapping[str, Sequence[Any]], texts: Sequence[Any],
-                    categories: Sequence[str] | None, coder: str) -> tuple[bytes, str | None]:
+                    categories: Sequence[str] | None, coder: str, several: bool = True) -> tuple[bytes, str | None]:
     """One coder's workbook: unit_id, the context columns (shaded: to read, not to edit),
     text, code, notes."""
     from openpyxl import Workbook
@@ -136,9 +136,15 @@ def _workbook_bytes(ids: Sequence[Any], context: Mapping[str, Sequence[Any]], te
     # need a second sheet, which would stop the sheet reading back as a plain per-coder file.
     if categories and len(inline) <= 250 and not any("," in c or '"' in c or xml_safe(c) != c for c in categories):
         dv = DataValidation(type="list", formula1=f'"{inline}"', allow_blank=True)
-        dv.error = "Pick a code from the codebook list."
-        dv.errorTitle = "Not a codebook code"
         dv.showErrorMessage = True
+        if several:   # a warning, not a stop: "a; b" (several codes of the list) can be kept
+            dv.errorStyle = "warning"
+            dv.errorTitle = "Not one codebook code"
+            dv.error = ("Pick a code from the codebook list. For several codes, write them in one cell "
+                        "separated by '; ' (each from the list) and choose Yes.")
+        else:
+            dv.errorTitle = "Not a codebook code"
+            dv.error = "Pick a code from the codebook list."
         ws.add_data_validation(dv)
         dv.add(f"{code_col}2:{code_col}{max(last, 2)}")
         mode = "inline list"
@@ -179,7 +185,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
                         shuffle: bool = False, seed: int | None = None, id_col: str | None = None,
                         text_col: str | None = None, force: bool = False,
                         corpus_path: str | os.PathLike | None = None,
-                        keep: Sequence[str] = ()) -> CodingSheets:
+                        keep: Sequence[str] = (), several_codes: bool = True) -> CodingSheets:
     """Write one blank coding workbook per coder, and the manifest.
 
     Parameters
@@ -201,6 +207,9 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     keep : other corpus columns to copy into every sheet, after the unit id, for context.
         The stratify column of a stratified draw is always copied, so the filled sheets can
         be scored with ``--keep <column>`` (a stratum is not a cluster: do not resample it).
+    several_codes : a code cell may hold several codes of the list separated by "; " (read back
+        as a set of codes): the drop-down warns about a value not in the list but lets the coder
+        keep it. False: one code a cell, anything else is stopped.
 
     Returns
     -------
@@ -251,7 +260,7 @@ def write_coding_sheets(sample: pd.DataFrame, outdir: str | os.PathLike, *, code
     for i, (name, target) in enumerate(zip(names, targets)):
         order = np.random.default_rng([seed, 101, i]).permutation(len(sample)) if shuffle else base_order
         context = {c: sample[c].to_numpy(dtype=object)[order] for c in context_cols}
-        data, drop_down = _workbook_bytes(ids[order], context, texts[order], categories, name)
+        data, drop_down = _workbook_bytes(ids[order], context, texts[order], categories, name, several_codes)
         atomic_write_bytes(target, data)
 
     stratify = sample.attrs.get("stratify")

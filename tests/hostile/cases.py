@@ -456,8 +456,7 @@ CASES: list[Case] = [
     Case("disagreements: codes that look like numbers keep their text (+1, 1.50, 007)",
          ("disagreements", "numbers.csv", "-o", "review.csv"), 0,
          files={"numbers.csv": lambda: csv_bytes(["unit", "ann", "bo"], [("u1", "+1", "1.50"), ("u2", "007", "+1")])},
-         check=lambda o: _same_codes(o, {"u1": ("+1", "1.50"), "u2": ("007", "+1")}),
-         xfail="reading half of issue 10: the text of a code is kept exactly as read"),
+         check=lambda o: _same_codes(o, {"u1": ("+1", "1.50"), "u2": ("007", "+1")})),
 ]
 
 

@@ -201,3 +201,24 @@ def test_filled_sheets_score_by_the_stratify_column(tmp_path):
     data = getattr(agree, "read", readers_read)([out / "ana.xlsx", out / "ben.xlsx"], keep=["participant"])
     groups = dict(zip(corpus["unit_id"], corpus["participant"]))
     assert [str(g) for g in data.columns["participant"]] == [groups[u] for u in data.unit_ids]
+
+
+def test_several_codes_in_a_cell_are_allowed_and_read_back_as_sets(tmp_path):
+    from agree.io.readers import read
+
+    sample = draw_sample(make_corpus(), 6, seed=3)
+    write_coding_sheets(sample, tmp_path / "sets", coders=["ana", "ben"], codebook=CODES)
+    for coder, cell in (("ana", "praise; question"), ("ben", "question;praise")):
+        wb = openpyxl.load_workbook(tmp_path / "sets" / f"{coder}.xlsx")
+        ws = wb["coding"]
+        (dv,) = ws.data_validations.dataValidation
+        assert dv.errorStyle == "warning" and "separated by '; '" in dv.error   # a set may be kept
+        code_at = [c.value for c in ws[1]].index("code")
+        for i, row in enumerate(ws.iter_rows(min_row=2)):
+            row[code_at].value = cell if i == 0 else CODES[i % 3]
+        wb.save(tmp_path / "sets" / f"{coder}.xlsx")
+    data = read([tmp_path / "sets" / "ana.xlsx", tmp_path / "sets" / "ben.xlsx"], codebook=CODES)
+    assert data.set_valued and frozenset({"praise", "question"}) in data.values
+    write_coding_sheets(sample, tmp_path / "one", coders=["ana", "ben"], codebook=CODES, several_codes=False)
+    (dv,) = openpyxl.load_workbook(tmp_path / "one" / "ana.xlsx")["coding"].data_validations.dataValidation
+    assert dv.errorStyle in (None, "stop")
