@@ -1,18 +1,26 @@
 """Planning the reliability sample: how many units should several coders code independently?
 
-`plan_sample` answers by Monte Carlo simulation (METHODS 8.2): simulate coders who reach the
-expected agreement, compute Krippendorff's alpha and its one-sided percentile bootstrap lower
-bound on each simulated data set, and find the smallest number of units for which the lower
-bound clears the minimum with the wanted probability (the *assurance*). Closed-form answers
-(METHODS 8.1, 8.3) and rules of thumb (METHODS 8.4) are shown beside it for context.
+`plan_sample` answers by Monte Carlo simulation (METHODS 8.2): simulate studies whose coders reach
+the expected agreement, score each exactly as `agree score` would (Krippendorff's alpha at the
+planned level, its one-sided lower bound made by `agree.stats.resampling.resample` with the same
+method, draws and confidence level, and the same decision rule, `reaches_minimum`), and find the
+smallest number of units for which the bound clears the minimum with the wanted probability (the
+*assurance*). The answer's Monte Carlo uncertainty is measured (a jackknife over independent
+blocks of simulated studies) and the simulation grows until it is within a stated tolerance.
+`plan_from_pilot` takes the category shares and the expected alpha from a pilot round instead,
+drawing them for each simulated study from the pilot's posterior, so their uncertainty enters the
+plan. Closed-form answers (METHODS 8.1, 8.3) and rules of thumb (METHODS 8.4) are shown beside it.
 
-For speed nothing here calls the public coefficient functions. Each unit's multiset of values
-is a *pattern*; a data set is a vector of counts over patterns; the coincidence matrix is
-linear in those counts, and a unit-bootstrap replicate is a multinomial draw over them
-(METHODS 7.5). Alpha for R data sets x B replicates is then a few array products.
+The module follows its seams: the simulation model; simulated studies (pattern counts per block);
+one sample size scored; the search over sizes; smoothing and the Monte Carlo uncertainty of the
+answer; closed forms; the public planners.
 
-`decision_sentence` turns a computed `AgreementResult` into the sentence a report states
-about a minimum ("... the one-sided 95% lower bound .80 clears the minimum .80").
+For speed nothing here calls the public coefficient functions. Each unit's multiset of values is
+a *pattern*; a study of N units is a vector of counts over patterns (the first N units of a long
+simulated study), so alpha and its resampled draws for R studies are a few array products.
+
+`decision_sentence` turns a computed `AgreementResult` into the sentence a report states about a
+minimum.
 
 References
 ----------
@@ -23,6 +31,10 @@ Lombard, M., Snyder-Duch, J., & Bracken, C. C. (2002). Content analysis in mass 
     Human Communication Research, 28(4), 587-604.
 O'Connor, C., & Joffe, H. (2020). Intercoder reliability in qualitative research.
     International Journal of Qualitative Methods, 19, 1-13.
+O'Hagan, A., Stevens, J. W., & Campbell, M. J. (2005). Assurance in clinical trial design.
+    Pharmaceutical Statistics, 4(3), 187-201.
+Efron, B., & Stein, C. (1981). The jackknife estimate of variance. The Annals of Statistics,
+    9(3), 586-596.
 """
 
 from __future__ import annotations
@@ -37,20 +49,23 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
-from agree.core.constants import DEFAULT_CONFIDENCE, DEFAULT_MINIMUM
+from agree.core.constants import CI_METHODS, DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_MINIMUM, DEFAULT_RESAMPLES
 from agree.core.format import decision_sentence, percent_label  # noqa: F401 (decision_sentence: part of the planning API)
-from agree.core.model import AgreeError
-from agree.core.results import Note, json_safe
+from agree.core.model import AgreeError, as_coding_data, value_label
+from agree.core.results import Note, json_safe, reaches_minimum
 from agree.core.seeds import resolve_seed
-from agree.stats.kernels import alpha_finish, coincidence_contributions, coincidence_features, delta_for, ordinal_delta
-from agree.stats.patterns import compress
+from agree.stats.coefficients import alpha_statistic, disagreeing_patterns, pseudo_units
+from agree.stats.kernels import delta_for, ordinal_delta
+from agree.stats.patterns import Patterns, compress
+from agree.stats.resampling import check_settings, pseudo_unit_sums, resample
 
 PLAN_LEVELS = ("nominal", "ordinal", "interval")
 
-# Largest number of (replicate x data set x pattern) cells drawn at once.
-_CHUNK_CELLS = 2_000_000
-# Independent random streams (and thread jobs) the simulated data sets are split into.
-_BLOCKS = 4
+#: Blocks the first simulated studies are split into: blocks have their own random streams,
+#: and the Monte Carlo uncertainty of the answer is a jackknife over blocks.
+BLOCKS = 10
+#: The answer is stable when its 95% Monte Carlo interval is within this share of it (default).
+DEFAULT_TOLERANCE = 0.05
 
 
 # ---------------------------------------------------------------------------------------
@@ -60,16 +75,20 @@ _BLOCKS = 4
 @dataclass(frozen=True)
 class AssurancePoint:
     """Assurance at one sample size: the share of simulated studies whose lower bound cleared
-    the minimum (`assurance`), its Monte Carlo error sqrt(P(1-P)/R), and the smoothed value."""
+    the minimum (`assurance`) out of `studies`, its Monte Carlo error sqrt(P(1-P)/R), the smoothed
+    value, and the share of studies with no disagreement at all."""
 
     units: int
     assurance: float
     mc_error: float
     smoothed: float
+    studies: int = 0
+    no_disagreement: float = float("nan")
 
     def to_dict(self) -> dict[str, Any]:
-        return json_safe({"units": self.units, "assurance": self.assurance,
-                       "mc_error": self.mc_error, "smoothed": self.smoothed})
+        return json_safe({"units": self.units, "assurance": self.assurance, "mc_error": self.mc_error,
+                          "smoothed": self.smoothed, "studies": self.studies,
+                          "no_disagreement": self.no_disagreement})
 
 
 @dataclass(frozen=True)
@@ -103,6 +122,31 @@ class RuleOfThumb:
 
 
 @dataclass(frozen=True)
+class PilotEstimate:
+    """What a pilot round gave the plan: its size, the estimated alpha and category shares, and
+    how uncertain they are (the posterior the simulated studies draw from)."""
+
+    units: int
+    coders: int
+    level: str
+    categories: tuple[str, ...]
+    alpha: float
+    alpha_interval: tuple[float, float]
+    p_value_min: float
+    shares: tuple[float, ...]
+    missing: float
+    draws: int
+    method: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return json_safe({"units": self.units, "coders": self.coders, "level": self.level,
+                          "categories": list(self.categories), "alpha": self.alpha,
+                          "alpha_interval": list(self.alpha_interval), "p_value_min": self.p_value_min,
+                          "shares": list(self.shares), "missing": self.missing, "draws": self.draws,
+                          "method": self.method})
+
+
+@dataclass(frozen=True)
 class Plan:
     """How many units to double-code, and why.
 
@@ -110,16 +154,20 @@ class Plan:
     ----------
     units_needed : smallest number of units whose smoothed assurance reaches the wanted
         assurance; None when even `max_units` does not (see warnings).
+    units_range : the 95% Monte Carlo interval of `units_needed` (jackknife over blocks of
+        simulated studies): how far another seed could move the answer.
     curve : assurance at each simulated sample size.
     inputs : the inputs as given and as resolved (shares, level, ...).
     model : one sentence stating the simulation model.
-    interval : one sentence stating the interval used in the simulation.
+    interval : one sentence stating the interval and decision simulated (those of `score`).
     smoothing : how the curve was smoothed to find `units_needed`.
     population_alpha : alpha of the simulation model over an infinite number of units
-        (exact, from the model's pair probabilities).
+        (exact, from the model's pair probabilities; with a pilot, the mean over its draws).
     closed_forms, rules_of_thumb : context beside the simulation.
     warnings : cautions, as Notes.
-    seed, replicates, n_resamples : what makes the plan repeatable.
+    seed, replicates, n_resamples : what makes the plan repeatable (replicates: simulated
+        studies at the sizes near the answer, after growing).
+    pilot : what was estimated from a pilot round (None without one).
     """
 
     units_needed: int | None
@@ -137,13 +185,18 @@ class Plan:
     n_resamples: int
     assurance_at_units_needed: float | None = None
     details: dict[str, Any] = field(default_factory=dict)
+    units_range: tuple[int, int] | None = None
+    ci_method: str = DEFAULT_CI_METHOD
+    pilot: PilotEstimate | None = None
 
     def to_frame(self) -> pd.DataFrame:
         """The assurance curve, one row per simulated sample size: ``units``, ``assurance``
-        (share of simulated studies whose lower bound cleared the minimum), ``mc_error``
-        (its Monte Carlo error) and ``smoothed`` (the fitted curve used for `units_needed`)."""
-        return pd.DataFrame([(p.units, p.assurance, p.mc_error, p.smoothed) for p in self.curve],
-                            columns=["units", "assurance", "mc_error", "smoothed"])
+        (share of simulated studies whose lower bound cleared the minimum), ``mc_error`` (its
+        Monte Carlo error), ``smoothed`` (the fitted curve used for `units_needed`), ``studies``
+        (simulated at that size) and ``no_disagreement`` (share of studies without any)."""
+        return pd.DataFrame([(p.units, p.assurance, p.mc_error, p.smoothed, p.studies, p.no_disagreement)
+                             for p in self.curve],
+                            columns=["units", "assurance", "mc_error", "smoothed", "studies", "no_disagreement"])
 
     def __repr__(self) -> str:
         from agree.core.format import notebook_text
@@ -169,18 +222,22 @@ class Plan:
         else:
             at = ("" if self.assurance_at_units_needed is None else
                   f" (assurance there {format_value(self.assurance_at_units_needed, 'number', 3)})")
-            head = f"Plan: {self.units_needed} units coded by every coder so that {target}{at}."
-        return (f"{head} {self.replicates} simulated studies per size, {self.n_resamples} "
-                f"bootstrap resamples each, seed {self.seed}.")
+            span = ("" if self.units_range is None else
+                    f"; Monte Carlo range {self.units_range[0]} to {self.units_range[1]}")
+            head = f"Plan: {self.units_needed} units coded by every coder so that {target}{at}{span}."
+        return (f"{head} {self.replicates} simulated studies per size near the answer, {self.n_resamples} "
+                f"draws each, seed {self.seed}.")
 
     def to_dict(self) -> dict[str, Any]:
         return json_safe({
             "units_needed": self.units_needed,
+            "units_range": None if self.units_range is None else list(self.units_range),
             "assurance_at_units_needed": self.assurance_at_units_needed,
             "curve": [p.to_dict() for p in self.curve],
             "inputs": dict(self.inputs),
             "model": self.model,
             "interval": self.interval,
+            "ci_method": self.ci_method,
             "smoothing": self.smoothing,
             "population_alpha": self.population_alpha,
             "closed_forms": [c.to_dict() for c in self.closed_forms],
@@ -189,145 +246,9 @@ class Plan:
             "seed": self.seed,
             "replicates": self.replicates,
             "n_resamples": self.n_resamples,
+            "pilot": None if self.pilot is None else self.pilot.to_dict(),
             "details": dict(self.details),
         })
-
-
-# ---------------------------------------------------------------------------------------
-# Vectorised alpha from pattern counts (METHODS 4.1-4.3, 7.5)
-# ---------------------------------------------------------------------------------------
-
-def _pattern_ids(codes: np.ndarray, q: int) -> tuple[np.ndarray, np.ndarray]:
-    """Map each unit's multiset of values to a pattern (`agree.stats.patterns.compress`).
-
-    Parameters
-    ----------
-    codes : (..., m) int array of category indices 0..q-1, -1 for missing.
-    q : number of categories.
-
-    Returns
-    -------
-    ids : codes.shape[:-1] int array, the pattern of each unit. Patterns are numbered by
-        decreasing frequency (so multinomial draws stop early; ties by their sorted values, the
-        last most significant, missing last); every unit with fewer than two values
-        (unpairable, no contribution to alpha) shares one pattern.
-    r : (P, q) value counts r_pc of each pattern.
-    """
-    m = codes.shape[-1]
-    flat = codes.reshape(-1, m)
-    unpairable = (flat >= 0).sum(axis=1) < 2
-    pat = compress(np.where(unpairable[:, None], -1, flat), q, ordered=False, keep_inverse=True)
-    rows = np.sort(np.where(pat.codes < 0, q, pat.codes), axis=1)
-    order = np.lexsort((*rows.T, -pat.counts))
-    rank = np.empty_like(order)
-    rank[order] = np.arange(len(order))
-    return rank[pat.inverse].reshape(codes.shape[:-1]), pat.value_counts()[order]
-
-
-def _alpha_from_counts(counts: np.ndarray, coincidences: np.ndarray, level: str) -> np.ndarray:
-    """Alpha for many data sets at once from their pattern counts.
-
-    counts : (..., P) pattern counts; coincidences : (P, q, q), each pattern's contribution
-    (`agree.stats.kernels.coincidence_contributions`); interval scores are 1..q.
-
-    Notes
-    -----
-    o = counts @ O (linear in the counts). With a fixed δ (nominal, interval) only
-    sum o δ and the margins n_c are needed, so each pattern is reduced to q + 1 numbers
-    first. The ordinal δ is recomputed from each data set's own margins (METHODS 4.3, 7.2).
-    """
-    delta = delta_for(level, scores=np.arange(1, coincidences.shape[-1] + 1))
-    return alpha_finish(np.asarray(counts, dtype=float) @ coincidence_features(coincidences, delta), delta)
-
-
-def _lower_quantile(values: np.ndarray, prob: float) -> np.ndarray:
-    """Quantile along axis 0 of the non-NaN values (linear interpolation, as np.quantile);
-    NaN for columns with no defined value. Vectorised, unlike np.nanquantile."""
-    ordered = np.sort(values, axis=0)                       # NaN sorts last
-    defined = np.sum(~np.isnan(values), axis=0)
-    h = prob * np.maximum(defined - 1, 0)
-    lo = np.floor(h).astype(np.int64)
-    hi = np.minimum(lo + 1, np.maximum(defined - 1, 0))
-    v_lo = np.take_along_axis(ordered, lo[None, :], axis=0)[0]
-    v_hi = np.take_along_axis(ordered, hi[None, :], axis=0)[0]
-    out = v_lo + (h - lo) * (v_hi - v_lo)
-    return np.where(defined > 0, out, np.nan)
-
-
-def _pattern_counts(ids: np.ndarray, n_units: int, n_patterns: int) -> np.ndarray:
-    """(R, P) pattern counts of the first `n_units` units of each of R simulated data sets."""
-    R = ids.shape[0]
-    offset = (np.arange(R, dtype=np.int64) * n_patterns)[:, None]
-    flat = np.bincount((ids[:, :n_units] + offset).ravel(), minlength=R * n_patterns)
-    return flat.reshape(R, n_patterns)
-
-
-def _bootstrap_lower_bounds(seed: int, ids: np.ndarray, n_units: int, coincidences: np.ndarray,
-                            level: str, n_resamples: int,
-                            confidence_level: float) -> tuple[np.ndarray, np.ndarray, float]:
-    """Alpha and its one-sided percentile lower bound for each of R simulated data sets.
-
-    Parameters
-    ----------
-    seed : the bootstrap stream; the same seed at every size gives common random numbers.
-    ids : (R, >= n_units) pattern of each unit; a data set is the first `n_units` units.
-
-    Notes
-    -----
-    A unit-bootstrap replicate of a data set with pattern counts c and N units is
-    c* ~ Multinomial(N; c / N) (METHODS 7.5). When N is small compared with the number of
-    patterns it is cheaper to draw the N unit indices directly and count their patterns:
-    the same distribution. The lower bound is the (1 - confidence_level) quantile of the
-    defined replicates; undefined replicates are left out (METHODS 7.2). The data sets are
-    split into a fixed number of blocks, each with its own random stream, so the result does
-    not depend on how many threads run them.
-
-    Returns (estimates (R,), lower bounds (R,) NaN when no replicate is defined, share of
-    undefined replicates).
-    """
-    R = ids.shape[0]
-    P = len(coincidences)
-    counts = _pattern_counts(ids, n_units, P)
-    estimates = _alpha_from_counts(counts, coincidences, level)
-    active = np.flatnonzero(counts.any(axis=0))       # patterns seen at this size
-    A = len(active)
-    coinc = coincidences[active]
-    remap = np.zeros(P, dtype=np.int64)
-    remap[active] = np.arange(A)
-    by_index = n_units < 5 * A
-    cells = n_resamples * (n_units if by_index else A)
-    chunk = max(1, _CHUNK_CELLS // max(1, cells))
-
-    def run_block(block: int, start: int, stop: int) -> tuple[np.ndarray, int]:
-        rng = np.random.default_rng([seed, block])
-        lower = np.empty(stop - start)
-        undefined = 0
-        for s0 in range(start, stop, chunk):
-            s1 = min(stop, s0 + chunk)
-            r = s1 - s0
-            if by_index:
-                units = remap[ids[s0:s1, :n_units]].ravel()                     # (r * N,)
-                pick = rng.integers(0, n_units, size=(n_resamples, r, n_units))
-                pick += (np.arange(r, dtype=np.int64) * n_units)[None, :, None]
-                key = units[pick] + (np.arange(n_resamples * r, dtype=np.int64) * A).reshape(
-                    n_resamples, r, 1)
-                draws = np.bincount(key.ravel(), minlength=n_resamples * r * A).reshape(
-                    n_resamples, r, A)
-            else:
-                draws = rng.multinomial(n_units, counts[s0:s1][:, active] / n_units,
-                                        size=(n_resamples, r))
-            alphas = _alpha_from_counts(draws, coinc, level)
-            undefined += int(np.isnan(alphas).sum())
-            lower[s0 - start:s1 - start] = _lower_quantile(alphas, 1.0 - confidence_level)
-        return lower, undefined
-
-    edges = np.linspace(0, R, _BLOCKS + 1).astype(int)
-    jobs = [(i, int(edges[i]), int(edges[i + 1])) for i in range(_BLOCKS) if edges[i + 1] > edges[i]]
-    with ThreadPoolExecutor(max_workers=min(len(jobs), os.cpu_count() or 1)) as pool:
-        parts = list(pool.map(lambda job: run_block(*job), jobs))
-    lower = np.concatenate([p[0] for p in parts])
-    undefined = sum(p[1] for p in parts)
-    return estimates, lower, undefined / (R * n_resamples)
 
 
 # ---------------------------------------------------------------------------------------
@@ -335,42 +256,51 @@ def _bootstrap_lower_bounds(seed: int, ids: np.ndarray, n_units: int, coincidenc
 # ---------------------------------------------------------------------------------------
 
 @dataclass(frozen=True)
-class _Model:
-    """Coders who reach a given population alpha.
+class SimulationModel:
+    """Coders who reach a given population alpha, with one set of parameters or several (D
+    draws from a pilot's posterior; study i uses draw i mod D).
 
     nominal: each unit's true category T ~ shares; each coder reports T with probability
-    theta, otherwise a category drawn from the shares. Population alpha = theta².
+    theta, otherwise a category drawn from the shares. Population alpha = theta² for every
+    number of coders (METHODS 8.2; and for any metric: when one coder guesses, the pair is an
+    independent draw from the margins).
     ordinal/interval: a latent normal X_ui = sqrt(rho) Z_u + sqrt(1 - rho) E_ui (Z, E
     standard normal), cut at the normal quantiles of the cumulative shares. rho is chosen so
     that the alpha of the categories (at the planned level, scores 1..q) equals the target.
     """
 
     level: str
-    shares: np.ndarray
+    shares: np.ndarray               # (D, q)
     n_coders: int
     missing: float
-    theta: float = float("nan")      # nominal
-    rho: float = float("nan")        # latent intraclass correlation (ordinal/interval)
+    theta: np.ndarray                # (D,) nominal (NaN otherwise)
+    rho: np.ndarray                  # (D,) latent intraclass correlation (NaN for nominal)
 
     @property
-    def thresholds(self) -> np.ndarray:
-        return stats.norm.ppf(np.cumsum(self.shares)[:-1])
+    def q(self) -> int:
+        return self.shares.shape[1]
 
-    def simulate(self, rng: np.random.Generator, n_sets: int, n_units: int) -> np.ndarray:
-        """(n_sets, n_units, n_coders) int8 codes, -1 missing."""
+    def simulate(self, rng: np.random.Generator, n_sets: int, n_units: int, first: int = 0) -> np.ndarray:
+        """(n_sets, n_units, n_coders) int8 codes, -1 missing; study i uses draw (first + i) mod D."""
         shape = (n_sets, n_units, self.n_coders)
-        q = len(self.shares)
-        cum = np.cumsum(self.shares)
-        cum[-1] = 1.0
+        draw = (first + np.arange(n_sets)) % len(self.shares)
+        cum = np.cumsum(self.shares, axis=1)[draw]                  # (n_sets, q)
+        cum[:, -1] = 1.0
+        q = self.q
         if self.level == "nominal":
-            truth = np.searchsorted(cum, rng.random(shape[:2]), side="right")
-            guesses = np.searchsorted(cum, rng.random(shape), side="right")
-            knows = rng.random(shape) < self.theta
+            def category(u: np.ndarray) -> np.ndarray:              # u (n_sets, ...) uniform
+                edges = cum[(slice(None),) + (None,) * (u.ndim - 1) + (slice(0, q - 1),)]
+                return (u[..., None] >= edges).sum(axis=-1)
+            truth = category(rng.random(shape[:2]))
+            guesses = category(rng.random(shape))
+            knows = rng.random(shape) < self.theta[draw][:, None, None]
             codes = np.where(knows, truth[..., None], guesses)
         else:
-            latent = math.sqrt(self.rho) * rng.standard_normal(shape[:2])
-            x = latent[..., None] + math.sqrt(1.0 - self.rho) * rng.standard_normal(shape)
-            codes = np.searchsorted(self.thresholds, x, side="right")
+            rho = self.rho[draw][:, None, None]
+            latent = np.sqrt(rho[..., 0]) * rng.standard_normal(shape[:2])
+            x = latent[..., None] + np.sqrt(1.0 - rho) * rng.standard_normal(shape)
+            cuts = stats.norm.ppf(np.clip(cum[:, :-1], 0, 1))[:, None, None, :]
+            codes = (x[..., None] > cuts).sum(axis=-1)
         codes = np.minimum(codes, q - 1).astype(np.int8)
         if self.missing > 0:
             codes[rng.random(shape) < self.missing] = -1
@@ -411,20 +341,298 @@ def _nominal_pair_probabilities(shares: np.ndarray, theta: float) -> np.ndarray:
     return theta ** 2 * np.diag(shares) + (1 - theta ** 2) * np.outer(shares, shares)
 
 
-def _build_model(level: str, shares: np.ndarray, n_coders: int, expected: float,
-                 missing: float) -> tuple[_Model, float]:
-    """The simulation model reaching `expected`, and its exact population alpha."""
-    if level == "nominal":
-        theta = math.sqrt(expected)
-        model = _Model(level, shares, n_coders, missing, theta=theta)
-        return model, _population_alpha(_nominal_pair_probabilities(shares, theta), level)
-
+def _latent_rho(level: str, shares: np.ndarray, expected: float) -> float:
+    """The latent correlation whose categories reach `expected` alpha at `level`."""
     def gap(rho: float) -> float:
         return _population_alpha(_latent_pair_probabilities(shares, rho), level) - expected
 
-    rho = optimize.brentq(gap, 1e-6, 1 - 1e-9, xtol=1e-10)
-    model = _Model(level, shares, n_coders, missing, rho=rho)
-    return model, _population_alpha(_latent_pair_probabilities(shares, rho), level)
+    return float(optimize.brentq(gap, 1e-6, 1 - 1e-9, xtol=1e-10))
+
+
+def build_model(level: str, shares: np.ndarray, n_coders: int, expected: float | np.ndarray,
+                missing: float) -> tuple[SimulationModel, float]:
+    """The simulation model reaching `expected` (one value, or one per row of `shares` (D, q)),
+    and its population alpha (the mean over the draws)."""
+    shares = np.atleast_2d(np.asarray(shares, dtype=float))
+    expected = np.broadcast_to(np.asarray(expected, dtype=float), (len(shares),))
+    if level == "nominal":
+        theta = np.sqrt(np.clip(expected, 0.0, 1.0))
+        pops = [_population_alpha(_nominal_pair_probabilities(s, t), level) for s, t in zip(shares, theta)]
+        model = SimulationModel(level, shares, n_coders, missing, theta=theta, rho=np.full(len(theta), np.nan))
+        return model, float(np.mean(pops))
+    rho = np.array([_latent_rho(level, s, e) for s, e in zip(shares, expected)])  # a loop over draws
+    pops = [_population_alpha(_latent_pair_probabilities(s, r), level) for s, r in zip(shares, rho)]
+    model = SimulationModel(level, shares, n_coders, missing, theta=np.full(len(rho), np.nan), rho=rho)
+    return model, float(np.mean(pops))
+
+
+# ---------------------------------------------------------------------------------------
+# Simulated studies
+# ---------------------------------------------------------------------------------------
+
+def _pattern_ids(codes: np.ndarray, q: int) -> tuple[np.ndarray, Patterns]:
+    """Map each unit's multiset of values to a pattern (`agree.stats.patterns.compress`).
+
+    codes : (..., m) int array of category indices 0..q-1, -1 for missing.
+    Returns the pattern of each unit (codes.shape[:-1]) and the patterns (unordered rows; counts
+    over all units given). Patterns are numbered by decreasing frequency (ties by their sorted
+    values); every unit with fewer than two values (no contribution to alpha) shares one pattern.
+    """
+    m = codes.shape[-1]
+    flat = codes.reshape(-1, m)
+    unpairable = (flat >= 0).sum(axis=1) < 2
+    pat = compress(np.where(unpairable[:, None], -1, flat), q, ordered=False, keep_inverse=True)
+    rows = np.sort(np.where(pat.codes < 0, q, pat.codes), axis=1)
+    order = np.lexsort((*rows.T, -pat.counts))
+    rank = np.empty_like(order)
+    rank[order] = np.arange(len(order))
+    ordered = Patterns(pat.codes[order], pat.counts[order], None, q)
+    return rank[pat.inverse].reshape(codes.shape[:-1]), ordered
+
+
+def _pattern_counts(ids: np.ndarray, n_units: int, n_patterns: int) -> np.ndarray:
+    """(R, P) pattern counts of the first `n_units` units of each of R simulated studies."""
+    R = ids.shape[0]
+    offset = (np.arange(R, dtype=np.int64) * n_patterns)[:, None]
+    flat = np.bincount((ids[:, :n_units] + offset).ravel(), minlength=R * n_patterns)
+    return flat.reshape(R, n_patterns)
+
+
+@dataclass(frozen=True)
+class _Block:
+    """One block of simulated studies: each unit's pattern (R_b, max_units), the patterns, their
+    alpha features, which of them hold a disagreement, and the block's resampling seed."""
+
+    ids: np.ndarray
+    patterns: Patterns
+    features: np.ndarray
+    disagree: np.ndarray
+    seed: tuple[int, ...]
+
+
+@dataclass
+class _Studies:
+    """Simulated studies and how each is scored: alpha at the planned level with the interval and
+    decision of `score` (`resample` with the same method, draws, level and pseudo-units)."""
+
+    model: SimulationModel
+    max_units: int
+    seed: int
+    stat: Any
+    method: str
+    n_resamples: int
+    confidence_level: float
+    minimum: float
+    block_size: int = 50
+    blocks: list[_Block] = field(default_factory=list)
+    # (block, N) -> studies whose bound cleared the minimum, studies, studies without disagreement,
+    # share of undefined draws
+    hits: dict[tuple[int, int], tuple[int, int, int, float]] = field(default_factory=dict)
+
+    def add_blocks(self, n_blocks: int) -> None:
+        """Simulate `n_blocks` more blocks of studies, each from its own random stream."""
+        q = self.model.q
+        for _ in range(n_blocks):  # a loop over blocks of studies
+            b = len(self.blocks)
+            codes = self.model.simulate(np.random.default_rng([self.seed, 0, b]), self.block_size, self.max_units,
+                                        first=b * self.block_size)
+            ids, pat = _pattern_ids(codes, q)
+            self.blocks.append(_Block(ids, pat, self.stat.features(pat), disagreeing_patterns(pat, self.stat),
+                                      (self.seed, 1, b)))
+
+    def evaluate(self, n_units: int, blocks: Sequence[int] | None = None) -> None:
+        """Score the first `n_units` units of every study of the given blocks (all by default).
+        Blocks run in threads; each has its own random stream, so the result does not depend on
+        how many run at once."""
+        todo = [b for b in (range(len(self.blocks)) if blocks is None else blocks) if (b, n_units) not in self.hits]
+        with ThreadPoolExecutor(max_workers=max(1, min(len(todo), os.cpu_count() or 1, 4))) as pool:
+            for b, result in zip(todo, pool.map(lambda b: self._score(self.blocks[b], n_units), todo)):
+                self.hits[(b, n_units)] = result
+
+    def _score(self, block: _Block, n_units: int) -> tuple[int, int, int, float]:
+        counts = _pattern_counts(block.ids, n_units, len(block.patterns.counts))
+        space = pseudo_units(self.stat, block.patterns) if self.method == "pseudo-unit" else None
+        bounds = resample(block.features, counts, self.stat.finish, method=self.method,
+                          n_resamples=self.n_resamples, confidence_level=self.confidence_level,
+                          rng=np.random.default_rng(list(block.seed)), pseudo=space, two_sided=False)
+        lower = bounds.lower[:, 0]
+        cleared = reaches_minimum(lower, self.minimum)
+        none = int(((counts[:, block.disagree]).sum(axis=1) == 0).sum())
+        undefined = float(bounds.n_undefined.sum()) / (len(lower) * self.n_resamples)
+        return int(cleared.sum()), len(lower), none, undefined
+
+    def table(self, leave_out: int | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Sizes simulated, with hits, studies and studies without disagreement summed over the
+        blocks (leaving one out for the jackknife)."""
+        sums: dict[int, list[int]] = {}
+        for (b, n), (h, r, none, _) in self.hits.items():
+            if b == leave_out:
+                continue
+            s = sums.setdefault(n, [0, 0, 0])
+            s[0] += h
+            s[1] += r
+            s[2] += none
+        units = np.array(sorted(sums), dtype=int)
+        arr = np.array([sums[n] for n in units], dtype=float).reshape(-1, 3)
+        return units, arr[:, 0], arr[:, 1], arr[:, 2]
+
+
+# ---------------------------------------------------------------------------------------
+# Smoothing the assurance curve and where it crosses the wanted assurance
+# ---------------------------------------------------------------------------------------
+
+def _probit_fit(units: np.ndarray, hits: np.ndarray, totals: np.ndarray | float) -> tuple[float, float] | None:
+    """Binomial maximum-likelihood fit of assurance = Φ(a + b sqrt(N)) (`totals` studies at each N).
+
+    Why this form: the lower bound is about α̂ - z se with se ∝ 1/sqrt(N), so
+    P(lower bound > min) ≈ Φ((α - min) sqrt(N)/s - z): a probit line in sqrt(N).
+    """
+    x = np.sqrt(units.astype(float))
+    totals = np.broadcast_to(np.asarray(totals, dtype=float), x.shape)
+
+    def nll(par: np.ndarray) -> float:
+        p = np.clip(stats.norm.cdf(par[0] + par[1] * x), 1e-12, 1 - 1e-12)
+        return -float(np.sum(hits * np.log(p) + (totals - hits) * np.log1p(-p)))
+
+    res = optimize.minimize(nll, x0=np.array([-1.645, 0.1]), method="Nelder-Mead",
+                            options={"xatol": 1e-8, "fatol": 1e-10, "maxiter": 4000})
+    if not res.success or res.x[1] <= 0:
+        return None
+    return float(res.x[0]), float(res.x[1])
+
+
+def _isotonic(values: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
+    """Pool-adjacent-violators: the closest non-decreasing sequence (weighted least squares)."""
+    w_in = np.ones(len(values)) if weights is None else np.asarray(weights, dtype=float)
+    blocks: list[list[float]] = []
+    for v, w in zip(values, w_in):
+        blocks.append([float(v), float(w), 1])
+        while len(blocks) > 1 and blocks[-2][0] > blocks[-1][0]:
+            v2, w2, n2 = blocks.pop()
+            v1, w1, n1 = blocks.pop()
+            blocks.append([(v1 * w1 + v2 * w2) / (w1 + w2), w1 + w2, n1 + n2])
+    return np.concatenate([np.full(int(n), v) for v, _, n in blocks])
+
+
+def _first_crossing(units: np.ndarray, curve: np.ndarray, target: float) -> float | None:
+    """Smallest N (interpolated in log N) where a non-decreasing curve reaches `target`."""
+    above = np.flatnonzero(curve >= target)
+    if len(above) == 0:
+        return None
+    i = above[0]
+    if i == 0:
+        return float(units[0])
+    x0, x1 = np.log(units[i - 1]), np.log(units[i])
+    y0, y1 = curve[i - 1], curve[i]
+    return float(np.exp(x0 + (target - y0) / (y1 - y0) * (x1 - x0)))
+
+
+@dataclass(frozen=True)
+class _Crossing:
+    """The smoothed curve at the simulated sizes and where it reaches the wanted assurance."""
+
+    at: float | None                  # N* (None: not within the sizes searched)
+    smoothed: np.ndarray
+    fit: tuple[float, float] | None   # probit (a, b), or None when isotonic
+    fitted: bool
+
+
+def _crossing(units: np.ndarray, hits: np.ndarray, totals: np.ndarray, assurance: float,
+              max_units: int) -> _Crossing:
+    """Smooth the assurance (probit in sqrt N; isotonic where the probit does not fit) and find N*."""
+    raw = hits / totals
+    fit = _probit_fit(units, hits, totals) if len(units) >= 2 else None
+    if fit is not None:
+        smoothed = stats.norm.cdf(fit[0] + fit[1] * np.sqrt(units))
+        pearson = np.sum((hits - smoothed * totals) ** 2 / np.maximum(totals * smoothed * (1 - smoothed), 1e-9))
+        if stats.chi2.sf(pearson, max(len(units) - 2, 1)) < 0.001:
+            fit = None
+    if fit is not None:
+        n_star = ((stats.norm.ppf(assurance) - fit[0]) / fit[1]) ** 2
+        return _Crossing(n_star if n_star <= max_units else None, smoothed, fit, True)
+    smoothed = _isotonic(raw, totals)
+    return _Crossing(_first_crossing(units, smoothed, assurance), smoothed, None, False)
+
+
+def _jackknife(studies: _Studies, assurance: float, max_units: int, at: float) -> float | None:
+    """Jackknife standard error of N* over the blocks of simulated studies (Efron & Stein 1981):
+    sqrt((G - 1)/G Σ (N*_(g) - mean)²), each N*_(g) from the studies of the other blocks. The
+    blocks are independent (the sizes within a block share their studies), so this measures how
+    much another seed would move the answer. None when some leave-one-out curve does not cross."""
+    values = []
+    for g in range(len(studies.blocks)):  # a loop over blocks
+        units, hits, totals, _ = studies.table(leave_out=g)
+        cross = _crossing(units, hits, totals, assurance, max_units)
+        if cross.at is None:
+            return None
+        values.append(cross.at)
+    G = len(values)
+    values = np.array(values)
+    return float(math.sqrt((G - 1) / G * np.sum((values - values.mean()) ** 2)))
+
+
+# ---------------------------------------------------------------------------------------
+# The search over sample sizes
+# ---------------------------------------------------------------------------------------
+
+def _search(studies: _Studies, assurance: float, min_units: int, max_units: int, refine_steps: int,
+            progress: Any) -> None:
+    """Simulate sizes on a log grid from `min_units` (stopping once one is clearly past the
+    target), then bisect on log N between the last size below and the first at or above it."""
+    steps = 9 + refine_steps
+
+    def evaluate(n: int) -> float:
+        studies.evaluate(n)
+        units, hits, totals, _ = studies.table()
+        if progress is not None:
+            progress(f"{n} units", min(1.0, len(units) / steps))
+        return float(hits[units == n][0] / totals[units == n][0])
+
+    grid = np.unique(np.round(np.geomspace(min_units, max_units, 9)).astype(int))
+    raw = []
+    for n in grid:
+        raw.append(evaluate(int(n)))
+        if raw[-1] >= max(0.99, assurance):
+            break
+    grid = grid[:len(raw)]
+    mono = _isotonic(np.array(raw))
+    above = np.flatnonzero(mono >= assurance)
+    if len(above) and above[0] > 0:
+        lo, hi = int(grid[above[0] - 1]), int(grid[above[0]])
+        for _ in range(refine_steps):
+            if hi - lo <= 1:
+                break
+            mid = min(max(int(round(math.sqrt(lo * hi))), lo + 1), hi - 1)
+            if evaluate(mid) >= assurance:
+                hi = mid
+            else:
+                lo = mid
+
+
+def _grow(studies: _Studies, assurance: float, max_units: int, tolerance: float, max_blocks: int,
+          step_blocks: int, progress: Any) -> tuple[_Crossing, float | None]:
+    """Add blocks of studies, simulated at the sizes around the answer, until the 95% Monte Carlo
+    interval of N* (± 1.96 jackknife SE) is within `tolerance` of N* (at least ± 2 units), or the
+    number of blocks reaches `max_blocks`. Returns the final crossing and its jackknife SE."""
+    while True:
+        units, hits, totals, _ = studies.table()
+        cross = _crossing(units, hits, totals, assurance, max_units)
+        if cross.at is None:
+            return cross, None
+        se = _jackknife(studies, assurance, max_units, cross.at)
+        stable = se is not None and 1.96 * se <= max(tolerance * cross.at, 2.0)
+        if stable or len(studies.blocks) >= max_blocks:
+            return cross, se
+        near = [int(n) for n in units if cross.at / 1.6 <= n <= cross.at * 1.6]
+        near = sorted(set(near) | {int(math.ceil(cross.at))})
+        first = len(studies.blocks)
+        studies.add_blocks(min(step_blocks, max_blocks - first))
+        new = range(first, len(studies.blocks))
+        for n in near:  # the sizes that decide the crossing
+            studies.evaluate(n, blocks=new)
+        if progress is not None:
+            progress(f"{len(studies.blocks) * studies.block_size} studies near {int(math.ceil(cross.at))} units",
+                     1.0)
 
 
 # ---------------------------------------------------------------------------------------
@@ -546,58 +754,6 @@ def _rules_of_thumb(corpus_size: int | None) -> tuple[RuleOfThumb, ...]:
     )
 
 
-# ---------------------------------------------------------------------------------------
-# Smoothing the assurance curve
-# ---------------------------------------------------------------------------------------
-
-def _probit_fit(units: np.ndarray, hits: np.ndarray, R: int) -> tuple[float, float] | None:
-    """Binomial maximum-likelihood fit of assurance = Φ(a + b sqrt(N)).
-
-    Why this form: the lower bound is about α̂ - z se with se ∝ 1/sqrt(N), so
-    P(lower bound > min) ≈ Φ((α - min) sqrt(N)/s - z): a probit line in sqrt(N).
-    """
-    x = np.sqrt(units.astype(float))
-
-    def nll(par: np.ndarray) -> float:
-        p = np.clip(stats.norm.cdf(par[0] + par[1] * x), 1e-12, 1 - 1e-12)
-        return -float(np.sum(hits * np.log(p) + (R - hits) * np.log1p(-p)))
-
-    res = optimize.minimize(nll, x0=np.array([-1.645, 0.1]), method="Nelder-Mead",
-                            options={"xatol": 1e-8, "fatol": 1e-10, "maxiter": 4000})
-    if not res.success or res.x[1] <= 0:
-        return None
-    return float(res.x[0]), float(res.x[1])
-
-
-def _isotonic(values: np.ndarray) -> np.ndarray:
-    """Pool-adjacent-violators: the closest non-decreasing sequence (equal weights)."""
-    blocks: list[list[float]] = []
-    for v in values:
-        blocks.append([float(v), 1.0])
-        while len(blocks) > 1 and blocks[-2][0] > blocks[-1][0]:
-            v2, w2 = blocks.pop()
-            v1, w1 = blocks.pop()
-            blocks.append([(v1 * w1 + v2 * w2) / (w1 + w2), w1 + w2])
-    return np.concatenate([np.full(int(w), v) for v, w in blocks])
-
-
-def _first_crossing(units: np.ndarray, curve: np.ndarray, target: float) -> float | None:
-    """Smallest N (interpolated in log N) where a non-decreasing curve reaches `target`."""
-    above = np.flatnonzero(curve >= target)
-    if len(above) == 0:
-        return None
-    i = above[0]
-    if i == 0:
-        return float(units[0])
-    x0, x1 = np.log(units[i - 1]), np.log(units[i])
-    y0, y1 = curve[i - 1], curve[i]
-    return float(np.exp(x0 + (target - y0) / (y1 - y0) * (x1 - x0)))
-
-
-# ---------------------------------------------------------------------------------------
-# Validation and the public planner
-# ---------------------------------------------------------------------------------------
-
 def resolve_shares(*, categories: int | None = None, shares: Sequence[float] | None = None,
                    rarest: float | None = None) -> np.ndarray:
     """Expected category shares from one of: explicit shares; a number of categories (equal
@@ -639,8 +795,13 @@ def resolve_shares(*, categories: int | None = None, shares: Sequence[float] | N
     return np.concatenate([[rarest], np.full(q - 1, (1.0 - rarest) / (q - 1))])
 
 
+# ---------------------------------------------------------------------------------------
+# Validation and the public planners
+# ---------------------------------------------------------------------------------------
+
 def _validate(coders, expected, minimum, level, confidence_level, assurance, missing,
-              replicates, n_resamples, min_units, max_units, corpus_size) -> None:
+              replicates, n_resamples, min_units, max_units, corpus_size, ci_method=DEFAULT_CI_METHOD,
+              tolerance=DEFAULT_TOLERANCE) -> None:
     problems: list[AgreeError] = []
 
     def bad(message: str, code: str, hint: str | None = None) -> None:
@@ -650,12 +811,12 @@ def _validate(coders, expected, minimum, level, confidence_level, assurance, mis
         bad(f"the number of coders must be a whole number from 2 to 30; got {coders}", "plan-coders")
     if level not in PLAN_LEVELS:
         bad(f"level must be one of {', '.join(PLAN_LEVELS)}; got '{level}'", "plan-level")
-    if not (0 < expected < 1):
+    if expected is not None and not (0 < expected < 1):
         bad(f"the expected alpha must be between 0 and 1; got {expected}", "plan-expected",
             hint="alpha = 1 needs no plan; at or below 0 there is no agreement to plan for")
     if not (-1 < minimum < 1):
         bad(f"the minimum must be between -1 and 1; got {minimum}", "plan-minimum")
-    elif 0 < expected < 1 and expected <= minimum:
+    elif expected is not None and 0 < expected < 1 and expected <= minimum:
         bad(f"the expected alpha ({expected}) must be above the minimum ({minimum}): a lower bound "
             "cannot be expected to clear a minimum the coders are not expected to reach",
             "plan-expected-below-minimum",
@@ -667,11 +828,11 @@ def _validate(coders, expected, minimum, level, confidence_level, assurance, mis
     if not (0 <= missing < 0.9):
         bad(f"the missing share must be at least 0 and below 0.9; got {missing}", "plan-missing")
     if replicates < 50:
-        bad(f"at least 50 simulated data sets are needed; got {replicates}", "plan-replicates",
+        bad(f"at least 50 simulated studies are needed; got {replicates}", "plan-replicates",
             hint="--replicates 500 (replicates=500)")
     if n_resamples < 50:
-        bad(f"at least 50 bootstrap resamples are needed; got {n_resamples}", "plan-resamples",
-            hint="--boot 500 (n_resamples=500)")
+        bad(f"at least 50 draws per simulated study are needed; got {n_resamples}", "plan-resamples",
+            hint=f"--boot {DEFAULT_RESAMPLES} (n_resamples={DEFAULT_RESAMPLES}), as agree score uses")
     if not (5 <= min_units < max_units <= 100_000):
         bad(f"the sizes searched must run from at least 5 units up to at most 100000, the largest "
             f"above the smallest; got {min_units} to {max_units}", "plan-range",
@@ -679,6 +840,10 @@ def _validate(coders, expected, minimum, level, confidence_level, assurance, mis
                  "min_units=... in Python")
     if corpus_size is not None and corpus_size < 1:
         bad(f"the corpus size must be positive; got {corpus_size}", "plan-corpus-size")
+    if ci_method not in CI_METHODS:
+        bad(f"the interval method must be one of {', '.join(CI_METHODS)}; got '{ci_method}'", "plan-ci")
+    if not (0 < tolerance < 1):
+        bad(f"the tolerance must be a share between 0 and 1 (e.g. 0.05); got {tolerance}", "plan-tolerance")
     if problems:
         if len(problems) == 1:
             raise problems[0]
@@ -690,9 +855,10 @@ def plan_sample(*, coders: int, expected: float, minimum: float = DEFAULT_MINIMU
                 categories: int | None = None, shares: Sequence[float] | None = None,
                 rarest: float | None = None, level: str = "nominal",
                 confidence_level: float = DEFAULT_CONFIDENCE, assurance: float = 0.80, missing: float = 0.0,
-                seed: int | None = None, replicates: int = 500, n_resamples: int = 500,
-                min_units: int = 20, max_units: int = 2000, corpus_size: int | None = None,
-                refine_steps: int = 3, progress: Any = None) -> Plan:
+                seed: int | None = None, replicates: int = 500, n_resamples: int = DEFAULT_RESAMPLES,
+                ci_method: str = DEFAULT_CI_METHOD, min_units: int = 20, max_units: int = 2000,
+                corpus_size: int | None = None, refine_steps: int = 3, tolerance: float = DEFAULT_TOLERANCE,
+                max_replicates: int | None = None, progress: Any = None) -> Plan:
     """How many units must be coded by every coder so that alpha's lower bound clears a minimum.
 
     Parameters
@@ -707,11 +873,16 @@ def plan_sample(*, coders: int, expected: float, minimum: float = DEFAULT_MINIMU
     assurance : wanted probability that the lower bound clears the minimum.
     missing : expected share of missing values, completely at random.
     seed : makes the plan repeatable; drawn and recorded when None.
-    replicates : R, simulated data sets per sample size.
-    n_resamples : B, bootstrap resamples per simulated data set.
+    replicates : R, simulated studies per sample size at first (split into blocks).
+    n_resamples, ci_method : the draws per study and the interval method: by default those of
+        `agree score` (2,000; the Bayesian bootstrap with a least-favourable pseudo-unit), so the
+        plan simulates exactly the decision the study will make.
     min_units, max_units : the search range.
     corpus_size : number of units in the whole study, for the percentage rules of thumb.
     refine_steps : bisection steps after the log grid.
+    tolerance : the answer is grown until its 95% Monte Carlo interval is within this share of
+        it (default 0.05: ± 5%; at least ± 2 units).
+    max_replicates : the most simulated studies per size (default 8 x `replicates`).
 
     Returns
     -------
@@ -719,14 +890,18 @@ def plan_sample(*, coders: int, expected: float, minimum: float = DEFAULT_MINIMU
 
     Notes
     -----
-    For each N on a log grid from `min_units` to `max_units` (then refined by bisection on
-    log N near the crossing), R data sets of N units are simulated from the model (METHODS
-    8.2), each with its percentile bootstrap lower bound L at `confidence_level` (B unit
-    resamples, as pattern-count multinomials). The assurance is P(L > minimum), with Monte Carlo
-    error sqrt(P(1-P)/R). Common random numbers: the data set at N is the first N units of one
-    long simulated data set, and every N reuses the same bootstrap random stream. The curve is
-    smoothed with a binomial probit fit Φ(a + b sqrt(N)) (isotonic regression when that fit is
-    poor), and `units_needed` is the smallest N whose smoothed assurance reaches `assurance`.
+    For each N on a log grid from `min_units` to `max_units` (then refined by bisection on log N
+    near the crossing), R studies of N units are simulated from the model (METHODS 8.2) and each
+    is scored as `score` scores data: alpha at `level` and its one-sided lower bound L at
+    `confidence_level` by `agree.stats.resampling.resample` (same method, draws and pseudo-units);
+    the assurance is P(L > minimum) (`reaches_minimum`), with Monte Carlo error sqrt(P(1-P)/R)
+    (O'Hagan, Stevens & Campbell 2005 for assurance). Common random numbers: the study at N is
+    the first N units of one long simulated study, and every N reuses the same random streams.
+    The curve is smoothed with a binomial probit fit Φ(a + b sqrt(N)) (isotonic regression when
+    that fit is poor), and `units_needed` is the smallest N whose smoothed assurance reaches
+    `assurance`. The studies come in independent blocks; a jackknife over blocks gives the
+    Monte Carlo standard error of N*, and blocks simulated at the sizes near N* are added until
+    N* ± 1.96 SE is within `tolerance` of N* (`units_range`).
 
     References
     ----------
@@ -734,162 +909,263 @@ def plan_sample(*, coders: int, expected: float, minimum: float = DEFAULT_MINIMU
     Donner, A., & Eliasziw, M. (1992). Statistics in Medicine, 11(11), 1511-1519.
     """
     _validate(coders, expected, minimum, level, confidence_level, assurance, missing,
-              replicates, n_resamples, min_units, max_units, corpus_size)
+              replicates, n_resamples, min_units, max_units, corpus_size, ci_method, tolerance)
     shares_arr = resolve_shares(categories=categories, shares=shares, rarest=rarest)
-    q = len(shares_arr)
-    seed = resolve_seed(seed)
-    notes: list[Note] = []
-
-    model, population_alpha = _build_model(level, shares_arr, int(coders), expected, missing)
-    sim_rng = np.random.default_rng([seed, 0])
-    codes = model.simulate(sim_rng, replicates, max_units)
-    ids, r = _pattern_ids(codes, q)
-    del codes
-    coincidences = coincidence_contributions(r)
-    P = len(r)
-
-    results: dict[int, tuple[int, float]] = {}
-
-    def evaluate(n_units: int) -> float:
-        if n_units not in results:
-            _, lower, undefined = _bootstrap_lower_bounds(seed + 1, ids, n_units, coincidences,
-                                                          level, n_resamples, confidence_level)
-            hits = int(np.sum(lower > minimum))
-            results[n_units] = (hits, undefined)
-            if progress is not None:
-                progress(f"{n_units} units", min(1.0, len(results) / (9 + refine_steps)))
-        return results[n_units][0] / replicates
-
-    # Larger sizes are not simulated once one size is clearly past the target.
-    grid = np.unique(np.round(np.geomspace(min_units, max_units, 9)).astype(int))
-    raw_list = []
-    for n in grid:
-        raw_list.append(evaluate(int(n)))
-        if raw_list[-1] >= max(0.99, assurance):
-            break
-    grid = grid[:len(raw_list)]
-    raw = np.array(raw_list)
-    mono = _isotonic(raw)
-    above = np.flatnonzero(mono >= assurance)
-    if len(above) and above[0] > 0:
-        lo, hi = int(grid[above[0] - 1]), int(grid[above[0]])
-        for _ in range(refine_steps):
-            if hi - lo <= 1:
-                break
-            mid = int(round(math.sqrt(lo * hi)))
-            mid = min(max(mid, lo + 1), hi - 1)
-            if evaluate(mid) >= assurance:
-                hi = mid
-            else:
-                lo = mid
-
-    units = np.array(sorted(results))
-    hits = np.array([results[n][0] for n in units])
-    p_raw = hits / replicates
-    fit = _probit_fit(units, hits, replicates)
-    smoothing = ("binomial probit fit of the assurance against sqrt(units), "
-                 "Φ(a + b·sqrt(N)), over all simulated sample sizes (sizes beyond the first "
-                 "with assurance of .99 or more were not simulated)")
-    smoothed = None
-    if fit is not None:
-        smoothed = stats.norm.cdf(fit[0] + fit[1] * np.sqrt(units))
-        expected_hits = smoothed * replicates
-        pearson = np.sum((hits - expected_hits) ** 2
-                         / np.maximum(expected_hits * (1 - smoothed), 1e-9))
-        if stats.chi2.sf(pearson, max(len(units) - 2, 1)) < 0.001:
-            smoothed = None
-    if smoothed is None:
-        fit = None
-        smoothed = _isotonic(p_raw)
-        smoothing = ("isotonic (non-decreasing) regression of the assurance, interpolated in log N "
-                     "(the probit fit did not fit the simulated points)")
-        notes.append(Note("plan-smoothing", "The smooth assurance curve did not fit the simulated "
-                          "points; the units needed come from the monotone raw curve instead."))
-
-    if fit is not None:
-        n_star = ((stats.norm.ppf(assurance) - fit[0]) / fit[1]) ** 2
-        crossing = n_star if n_star <= max_units else None
-    else:
-        crossing = _first_crossing(units, smoothed, assurance)
-
-    units_needed: int | None
-    if crossing is None or (p_raw[-1] < assurance and crossing >= units[-1]):
-        units_needed = None
-        notes.append(Note("plan-beyond-range",
-                          f"Even {max_units} units do not reach the wanted assurance "
-                          f"(simulated assurance {p_raw[-1]:.3f} at {max_units} units). Raise the "
-                          "expected agreement (codebook, training), reconsider the minimum, or search "
-                          "further with --max-units (max_units=...)."))
-    else:
-        units_needed = int(max(min_units, math.ceil(crossing - 1e-9)))
-        if units_needed == min_units and p_raw[0] >= assurance:
-            notes.append(Note("plan-at-lower-end",
-                              f"The assurance is already reached at {min_units} units, the smallest "
-                              "size searched; alpha from fewer units is too unstable to recommend."))
-    at_needed = None
-    if units_needed is not None:
-        at_needed = float(stats.norm.cdf(fit[0] + fit[1] * math.sqrt(units_needed))
-                          if fit is not None else np.interp(np.log(units_needed), np.log(units), smoothed))
-
+    model, population_alpha = build_model(level, shares_arr, int(coders), expected, missing)
+    notes = []
     if expected - minimum < 0.05:
         notes.append(Note("plan-close-to-minimum",
                           f"The expected alpha ({expected:.3f}) is close to the minimum ({minimum:.3f}): "
                           "the sample size is very sensitive to the expected value; plan for a "
                           "slightly lower expectation too."))
-    if shares_arr.min() < 0.05:
+    return _plan(model, population_alpha, expected=expected, minimum=minimum, level=level,
+                 confidence_level=confidence_level, assurance=assurance, seed=seed, replicates=replicates,
+                 n_resamples=n_resamples, ci_method=ci_method, min_units=min_units, max_units=max_units,
+                 corpus_size=corpus_size, refine_steps=refine_steps, tolerance=tolerance,
+                 max_replicates=max_replicates, progress=progress, notes=notes)
+
+
+def _plan(model: SimulationModel, population_alpha: float, *, expected: float, minimum: float, level: str,
+          confidence_level: float, assurance: float, seed: int | None, replicates: int, n_resamples: int,
+          ci_method: str, min_units: int, max_units: int, corpus_size: int | None, refine_steps: int,
+          tolerance: float, max_replicates: int | None, progress: Any, notes: list[Note],
+          pilot: PilotEstimate | None = None) -> Plan:
+    """Simulate, search, grow until stable, and assemble the `Plan` (both planners)."""
+    seed = resolve_seed(seed)
+    q = model.q
+    block_size = max(10, int(math.ceil(replicates / BLOCKS)))
+    first_blocks = int(math.ceil(replicates / block_size))
+    max_blocks = int(math.ceil((max_replicates or 8 * replicates) / block_size))
+    delta = delta_for(level, scores=np.arange(1, q + 1))
+    studies = _Studies(model, max_units, seed, alpha_statistic(delta), ci_method, int(n_resamples),
+                       confidence_level, minimum, block_size=block_size)
+    studies.add_blocks(first_blocks)
+    _search(studies, assurance, min_units, max_units, refine_steps, progress)
+    cross, se = _grow(studies, assurance, max_units, tolerance, max(max_blocks, first_blocks), first_blocks,
+                      progress)
+    units, hits, totals, none = studies.table()
+    raw = hits / totals
+    if cross.fitted:
+        smoothing = ("binomial probit fit of the assurance against sqrt(units), Φ(a + b·sqrt(N)), over all "
+                     "simulated sample sizes (sizes beyond the first with assurance of .99 or more were not "
+                     "simulated)")
+    else:
+        smoothing = ("isotonic (non-decreasing) regression of the assurance, interpolated in log N "
+                     "(the probit fit did not fit the simulated points)")
+        notes.append(Note("plan-smoothing", "The smooth assurance curve did not fit the simulated "
+                          "points; the units needed come from the monotone raw curve instead."))
+    units_needed: int | None = None
+    units_range = None
+    if cross.at is None or (raw[-1] < assurance and cross.at >= units[-1]):
+        best = float(np.max(raw))
+        notes.append(Note("plan-beyond-range",
+                          f"Even {max_units} units do not reach the wanted assurance (simulated assurance "
+                          f"{best:.3f} at most). Raise the expected agreement (codebook, training), reconsider "
+                          "the minimum, or search further with --max-units (max_units=...)."))
+    else:
+        units_needed = int(max(min_units, math.ceil(cross.at - 1e-9)))
+        if units_needed == min_units and raw[0] >= assurance:
+            notes.append(Note("plan-at-lower-end",
+                              f"The assurance is already reached at {min_units} units, the smallest "
+                              "size searched; alpha from fewer units is too unstable to recommend."))
+        if se is not None:
+            units_range = (max(min_units, int(math.floor(cross.at - 1.96 * se))),
+                           int(math.ceil(cross.at + 1.96 * se)))
+        half = None if se is None else 1.96 * se
+        if half is None or half > max(tolerance * cross.at, 2.0):
+            notes.append(Note("plan-monte-carlo",
+                              "The simulation did not settle the answer to "
+                              f"± {percent_label(tolerance, 0)}"
+                              + ("" if half is None else f" (95% Monte Carlo range ± {half:.0f} units)")
+                              + f" within {len(studies.blocks) * block_size} simulated studies; take the upper "
+                              "end of the range, or run again with more --replicates."))
+    at_needed = None
+    if units_needed is not None:
+        at_needed = float(stats.norm.cdf(cross.fit[0] + cross.fit[1] * math.sqrt(units_needed))
+                          if cross.fit is not None else np.interp(np.log(units_needed), np.log(units), cross.smoothed))
+        share_none = float(np.interp(np.log(units_needed), np.log(units), none / totals))
+        if share_none >= 0.05:
+            notes.append(Note("plan-no-disagreement",
+                              f"At {units_needed} units about {percent_label(share_none, 0)} of the simulated studies "
+                              "have no disagreement at all. Their bound rests on the number of units alone (the "
+                              "pseudo-unit), as it will in the study; the plan counts them as they would be decided."))
+    rarest = float(np.mean(model.shares, axis=0).min())
+    if rarest < 0.05:
         notes.append(Note("plan-rare-category",
-                          f"The rarest category has a share of {shares_arr.min():.3f}: rare codes need "
-                          "many units, and bootstrap bounds for them are unstable."))
-    worst_undefined = max(u for _, u in results.values())
-    if worst_undefined > 0.01:
+                          f"The rarest category has a share of {rarest:.3f}: rare codes need "
+                          "many units, and bounds for them rest on few disagreeing units."))
+    undefined = max((u for *_, u in studies.hits.values()), default=0.0)
+    if undefined > 0.01:
         notes.append(Note("plan-undefined-replicates",
-                          f"Up to {percent_label(worst_undefined, 1)} of bootstrap replicates had undefined alpha "
-                          "(no variation) at the smaller sample sizes; they were left out."))
+                          f"Up to {percent_label(undefined, 1)} of the draws had undefined alpha (no variation) at "
+                          "the smaller sample sizes; they were left out, as in the study."))
     notes.append(Note("plan-model-assumption",
                       "The plan assumes coders who agree as in the simulation model (no systematic "
                       "coder bias) and units drawn at random; biased coders need more units."))
-
-    model_sentence = _model_sentence(model, expected, population_alpha)
+    grown = len(studies.blocks) * block_size
     interval_sentence = (
-        f"Lower bound: the one-sided {percent_label(confidence_level)} percentile bound of a unit bootstrap "
-        f"(B = {n_resamples} resamples of units, drawn as multinomial pattern counts) of "
-        f"{level} Krippendorff's alpha, computed for each of R = {replicates} simulated data sets per "
-        f"sample size; assurance = share of data sets whose bound exceeds {minimum:.3f}.")
-
-    curve = tuple(AssurancePoint(int(n), float(p), float(math.sqrt(p * (1 - p) / replicates)),
-                                 float(s)) for n, p, s in zip(units, p_raw, smoothed))
-    inputs = {"coders": int(coders), "categories": q, "shares": shares_arr.tolist(), "level": level,
-              "expected": expected, "minimum": minimum, "confidence_level": confidence_level,
-              "assurance": assurance, "missing": missing, "min_units": min_units,
-              "max_units": max_units, "corpus_size": corpus_size}
-    details = {"fit": None if fit is None else {"intercept": fit[0], "slope_sqrt_units": fit[1]},
-               "patterns": P}
+        f"Lower bound: what agree score computes, the one-sided {percent_label(confidence_level)} lower bound of "
+        f"{level} Krippendorff's alpha by the {CI_METHODS[ci_method]} (B = {n_resamples:,} draws per study), "
+        f"which clears the minimum when strictly above it; assurance = share of simulated studies whose bound "
+        f"clears {minimum:.3f}. R = {first_blocks * block_size} studies per size"
+        + (f", grown to {grown} at the sizes near the answer" if grown > first_blocks * block_size else "")
+        + ("" if units_needed is None else
+           f"; the answer's 95% Monte Carlo range (jackknife over {len(studies.blocks)} independent blocks of "
+           f"studies) was to be within ± {percent_label(tolerance, 0)} of it")
+        + ".")
+    curve = tuple(AssurancePoint(int(n), float(p), float(math.sqrt(p * (1 - p) / t)), float(s), int(t),
+                                 float(z / t))
+                  for n, p, t, s, z in zip(units, raw, totals, cross.smoothed, none))
+    inputs = {"coders": model.n_coders, "categories": q, "shares": np.mean(model.shares, axis=0).tolist(),
+              "level": level, "expected": expected, "minimum": minimum, "confidence_level": confidence_level,
+              "assurance": assurance, "missing": model.missing, "min_units": min_units, "max_units": max_units,
+              "corpus_size": corpus_size, "ci_method": ci_method, "tolerance": tolerance}
+    details: dict[str, Any] = {"fit": None if cross.fit is None else {"intercept": cross.fit[0],
+                                                                     "slope_sqrt_units": cross.fit[1]},
+                               "patterns": max(len(b.patterns.counts) for b in studies.blocks),
+                               "monte_carlo_se": se, "blocks": len(studies.blocks), "block_size": block_size}
     if level != "nominal":
-        details["latent_correlation"] = model.rho
+        details["latent_correlation"] = float(np.mean(model.rho))
     else:
-        details["theta"] = model.theta
-    return Plan(units_needed=units_needed, curve=curve, inputs=inputs, model=model_sentence,
-                interval=interval_sentence, smoothing=smoothing, population_alpha=population_alpha,
-                closed_forms=_closed_forms(shares_arr, int(coders), level, expected, minimum,
-                                           confidence_level, assurance),
+        details["theta"] = float(np.mean(model.theta))
+    return Plan(units_needed=units_needed, curve=curve, inputs=inputs,
+                model=_model_sentence(model, expected, population_alpha, pilot), interval=interval_sentence,
+                smoothing=smoothing, population_alpha=population_alpha,
+                closed_forms=_closed_forms(np.mean(model.shares, axis=0), model.n_coders, level, expected,
+                                           minimum, confidence_level, assurance),
                 rules_of_thumb=_rules_of_thumb(corpus_size), warnings=tuple(notes), seed=seed,
-                replicates=replicates, n_resamples=n_resamples,
-                assurance_at_units_needed=at_needed, details=details)
+                replicates=grown, n_resamples=int(n_resamples), assurance_at_units_needed=at_needed,
+                details=details, units_range=units_range, ci_method=ci_method, pilot=pilot)
 
 
-def _model_sentence(model: _Model, expected: float, population_alpha: float) -> str:
-    shares = ", ".join(f"{s:.3g}" for s in model.shares)
+def _model_sentence(model: SimulationModel, expected: float, population_alpha: float,
+                    pilot: PilotEstimate | None) -> str:
+    shares = ", ".join(f"{s:.3g}" for s in np.mean(model.shares, axis=0))
     m = model.n_coders
-    if model.level == "nominal":
+    q = model.q
+    if pilot is not None:
+        head = (f"Simulated coders: for each study the category shares and alpha are one of {pilot.draws} draws "
+                f"from the pilot's posterior (mean shares {shares}; mean alpha {expected:.3f})")
+        if model.level == "nominal":
+            text = (head + f"; each unit has a true category drawn with the study's shares, and each of the {m} "
+                    "coders reports it with probability θ = sqrt(alpha) and otherwise a category drawn from "
+                    "the same shares")
+        else:
+            text = (head + f"; each of the {m} coders sees a latent normal score, cut into the {q} ordered categories "
+                    "at the study's shares, with the intraclass correlation that gives the study's alpha")
+    elif model.level == "nominal":
         text = (f"Simulated coders: each unit has a true category drawn with shares ({shares}); each of "
                 f"the {m} coders independently reports it with probability θ = sqrt({expected:.3f}) = "
-                f"{model.theta:.3f} and otherwise a category drawn from the same shares")
+                f"{float(model.theta[0]):.3f} and otherwise a category drawn from the same shares")
     else:
         text = (f"Simulated coders: each of the {m} coders sees a latent normal score with intraclass "
-                f"correlation {model.rho:.3f} between coders, cut into the {len(model.shares)} ordered "
+                f"correlation {float(model.rho[0]):.3f} between coders, cut into the {q} ordered "
                 f"categories at thresholds matching the shares ({shares}); the correlation was chosen "
-                f"so that {model.level} alpha of the categories (scored 1..{len(model.shares)}) "
+                f"so that {model.level} alpha of the categories (scored 1..{q}) "
                 f"equals the expected value")
     if model.missing > 0:
         text += f"; each value is missing completely at random with probability {model.missing:.3g}"
     return text + f". Population alpha of this model: {population_alpha:.3f}."
+
+
+# ---------------------------------------------------------------------------------------
+# Plans from a pilot round
+# ---------------------------------------------------------------------------------------
+
+def pilot_estimate(pilot: Any, *, level: str | None = None, minimum: float = DEFAULT_MINIMUM,
+                   confidence_level: float = DEFAULT_CONFIDENCE, draws: int = 200,
+                   seed: int | None = None) -> tuple[PilotEstimate, np.ndarray, np.ndarray]:
+    """What a pilot round says about the next one: alpha and the category shares, with `draws`
+    joint draws of both from its posterior — the draws the pilot's own bound is made from (the
+    Bayesian bootstrap of its units with a least-favourable unit, `pseudo_unit_sums`), so the
+    plan is as cautious about a small pilot as the decision is. Returns the estimate, the alpha
+    draws (D,) and the share draws (D, q)."""
+    d = as_coding_data(pilot)
+    if d.set_valued:
+        raise AgreeError("a plan is made for one code per unit and coder; this pilot has sets of codes",
+                         hint="plan each code as present/absent (two categories) with --shares", code="plan-pilot")
+    level = level or (d.level if d.level in PLAN_LEVELS else "nominal")
+    if level not in PLAN_LEVELS:
+        raise AgreeError(f"level must be one of {', '.join(PLAN_LEVELS)}; got '{level}'", code="plan-level")
+    q = len(d.values)
+    if q < 2:
+        raise AgreeError(f"the pilot has {q} category; a plan needs at least two", code="plan-pilot",
+                         hint="give the codebook (--codebook) so that unused categories count")
+    delta = delta_for(level, scores=np.arange(1, q + 1))
+    stat = alpha_statistic(delta)
+    pat = compress(d.codes, q, ordered=False, weights=d.weights)
+    F = stat.features(pat)
+    pairable = (pat.codes >= 0).sum(axis=1) >= 2
+    n_units = int(pat.counts[pairable].sum())
+    if n_units < 2:
+        raise AgreeError(f"the pilot has {n_units} unit coded by two or more coders; a plan needs more",
+                         code="plan-pilot", hint="check the layout detected (--layout)")
+    estimate = float(stat.finish((pat.counts @ F)[None, :])[0])
+    rng = np.random.default_rng([resolve_seed(seed), 7])
+    sums = pseudo_unit_sums(F, pat.counts, stat.finish, pseudo_units(stat, pat), draws, rng)
+    alphas = np.asarray(stat.finish(sums), dtype=float)
+    margins = sums[:, :q] if delta is not None else sums.reshape(len(sums), q, q).sum(axis=2)
+    shares = np.clip(margins / margins.sum(axis=1, keepdims=True), 1e-4, None)
+    shares /= shares.sum(axis=1, keepdims=True)
+    ok = np.isfinite(alphas)
+    alphas, shares = alphas[ok], shares[ok]
+    eps = 1 - confidence_level
+    observed = d.codes >= 0
+    coded = observed.any(axis=1)
+    uw = d.unit_weights()
+    missing = float(uw[coded] @ (~observed[coded]).sum(axis=1)) / max(float(uw[coded].sum()) * d.n_coders, 1.0)
+    est = PilotEstimate(units=n_units, coders=d.n_coders, level=level,
+                        categories=tuple(value_label(v) for v in d.values), alpha=estimate,
+                        alpha_interval=(float(np.quantile(alphas, eps / 2)), float(np.quantile(alphas, 1 - eps / 2))),
+                        p_value_min=float(np.mean(alphas <= minimum)),
+                        shares=tuple(float(s) for s in np.mean(shares, axis=0)), missing=missing, draws=int(len(alphas)),
+                        method=CI_METHODS["pseudo-unit"])
+    return est, alphas, shares
+
+
+def plan_from_pilot(pilot: Any, *, minimum: float = DEFAULT_MINIMUM, level: str | None = None,
+                    coders: int | None = None, missing: float | None = None,
+                    confidence_level: float = DEFAULT_CONFIDENCE, assurance: float = 0.80,
+                    seed: int | None = None, replicates: int = 500, n_resamples: int = DEFAULT_RESAMPLES,
+                    ci_method: str = DEFAULT_CI_METHOD, min_units: int = 20, max_units: int = 2000,
+                    corpus_size: int | None = None, refine_steps: int = 3, tolerance: float = DEFAULT_TOLERANCE,
+                    max_replicates: int | None = None, draws: int = 200, progress: Any = None) -> Plan:
+    """How many units the next round needs, with the category shares and the expected alpha
+    estimated from a pilot round (CodingData, or anything `as_coding_data` takes).
+
+    Each simulated study takes its shares and alpha from one of `draws` joint draws of the pilot's
+    posterior (`pilot_estimate`), so the plan's assurance is averaged over what the pilot leaves
+    uncertain (O'Hagan, Stevens & Campbell 2005): when the pilot leaves a real chance that alpha
+    is at or below the minimum, no number of units reaches an assurance above the chance that it
+    is not, and the plan says so. The pilot's coders and share of missing values are used unless
+    `coders` or `missing` are given. The pilot's own units are not counted: the plan is for a
+    new round. Everything else is as in `plan_sample`.
+    """
+    est, alphas, share_draws = pilot_estimate(pilot, level=level, minimum=minimum,
+                                              confidence_level=confidence_level, draws=draws, seed=seed)
+    coders = est.coders if coders is None else coders
+    missing = min(est.missing, 0.85) if missing is None else missing
+    _validate(coders, None, minimum, est.level, confidence_level, assurance, missing, replicates, n_resamples,
+              min_units, max_units, corpus_size, ci_method, tolerance)
+    model, population_alpha = build_model(est.level, share_draws, int(coders), np.clip(alphas, 0.01, 0.995),
+                                          missing)
+    notes = [Note("plan-pilot", f"Estimated from the pilot ({est.units} units, {est.coders} coders): {est.level} "
+                  f"alpha {est.alpha:.3f} ({percent_label(confidence_level)} interval {est.alpha_interval[0]:.3f} to "
+                  f"{est.alpha_interval[1]:.3f}), category shares "
+                  + ", ".join(f"{c} {s:.2f}" for c, s in zip(est.categories, est.shares))
+                  + f", missing {percent_label(est.missing, 1)}. Each simulated study draws its shares and alpha "
+                  f"from the pilot's posterior ({est.method}, {est.draws} draws).")]
+    ceiling = 1 - est.p_value_min
+    if ceiling < assurance + 0.02:
+        notes.append(Note("plan-pilot-ceiling",
+                          f"The pilot leaves a {percent_label(est.p_value_min, 0)} chance that alpha is at or below "
+                          f"the minimum {minimum:.3f}; however many units are coded, the assurance cannot exceed about "
+                          f"{ceiling:.2f}. Improve the codebook or training and run another pilot first."))
+    if ci_method != "pseudo-unit":
+        notes.append(Note("plan-pilot-method", "The pilot's posterior draws come from the Bayesian bootstrap with a "
+                          "least-favourable pseudo-unit, whatever the interval method simulated."))
+    return _plan(model, population_alpha, expected=float(np.mean(alphas)), minimum=minimum, level=est.level,
+                 confidence_level=confidence_level, assurance=assurance, seed=seed, replicates=replicates,
+                 n_resamples=n_resamples, ci_method=ci_method, min_units=min_units, max_units=max_units,
+                 corpus_size=corpus_size, refine_steps=refine_steps, tolerance=tolerance,
+                 max_replicates=max_replicates, progress=progress, notes=notes, pilot=est)

@@ -187,7 +187,7 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict, wri
     step("How many units to double-code next time",
          "agree plan --coders 3 --shares 0.25,0.2,0.15,0.12,0.1,0.08,0.06,0.04 --expected 0.85 --min 0.8")
     plan = plan_sample(coders=3, shares=[0.25, 0.2, 0.15, 0.12, 0.1, 0.08, 0.06, 0.04],
-                             expected=0.85, minimum=0.8, seed=seed)
+                             expected=0.85, minimum=0.8, seed=seed, n_resamples=boot)
     print_plan(plan)
 
     corpus = read_corpus(folder / "corpus.csv")

@@ -24,10 +24,16 @@ def reaches_minimum(bound: float | None, minimum: float) -> bool | None:
     """The one rule for deciding against a minimum, used by every output: a lower confidence
     bound *reaches* (clears) the minimum when it is strictly above it. A bound equal to the
     minimum leaves the minimum inside the one-sided interval, so the data do not exclude a
-    coefficient at the minimum. None when there is no bound (None or NaN).
+    coefficient at the minimum. None when there is no bound (None or NaN); for an array of
+    bounds an array of booleans (False where there is none).
 
     The point estimate is compared as Krippendorff's convention writes it (α ≥ .800) only to
     label where an estimate stands; decisions rest on the bound."""
+    if hasattr(bound, "__len__"):  # an array of bounds (simulated studies): no bound does not reach it
+        import numpy as np
+
+        with np.errstate(invalid="ignore"):
+            return np.asarray(bound, dtype=float) > float(minimum)
     if bound is None or not math.isfinite(float(bound)):
         return None
     return bool(float(bound) > float(minimum))

@@ -566,6 +566,14 @@ def _run(stat: _Statistic, data: CodingData, *, confidence_level: float, n_resam
         replicates=reps)
 
 
+def alpha_statistic(delta: np.ndarray | None) -> _Statistic:
+    """Krippendorff's alpha as features per pattern and a vectorised finish (the statistic
+    `krippendorff_alpha` runs), for a fixed δ (V, V) or, with None, the ordinal metric. The
+    planner simulates with it, so that its studies are scored exactly as `score` scores data."""
+    return _Alpha(name="krippendorff_alpha", delta=delta,
+                  undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
+
+
 def pseudo_units(stat: _Statistic, pat: Patterns, *, scale: float = 1.0) -> PseudoUnits:
     """The units a pseudo-unit of `stat` may be: every tuple of values of the coders (ordered
     statistics), or every multiset of 1 up to the most values any unit has (the others); each
@@ -580,12 +588,17 @@ def pseudo_units(stat: _Statistic, pat: Patterns, *, scale: float = 1.0) -> Pseu
     return PseudoUnits(features=features, n_values=V, width=width, ordered=stat.ordered, scale=scale)
 
 
-def disagreeing_units(pat: Patterns, stat: _Statistic) -> int:
-    """Units (of those the statistic uses) whose values are not all alike."""
+def disagreeing_patterns(pat: Patterns, stat: _Statistic) -> np.ndarray:
+    """(P,) which patterns (of those the statistic uses) hold values that are not all alike."""
     seen = pat.codes >= 0
     high = np.where(seen, pat.codes, -1).max(axis=1, initial=-1)
     low = np.where(seen, pat.codes, np.iinfo(np.int32).max).min(axis=1, initial=np.iinfo(np.int32).max)
-    return int(pat.counts[_used_patterns(pat, stat) & (high != low)].sum())
+    return _used_patterns(pat, stat) & (high != low)
+
+
+def disagreeing_units(pat: Patterns, stat: _Statistic) -> int:
+    """Units (of those the statistic uses) whose values are not all alike."""
+    return int(pat.counts[disagreeing_patterns(pat, stat)].sum())
 
 
 def _describe_unit(row: Sequence[int], data: CodingData, ordered: bool) -> Any:
@@ -779,8 +792,7 @@ def krippendorff_alpha(data: Any, *, level: Any = None, distance: str | None = N
     """
     d = _prepare(data, categories, single=False)
     delta, label = distance_matrix(d, d.level if level is None else level, distance)
-    stat = _Alpha(name="krippendorff_alpha", delta=delta,
-                  undefined_reason="no pairable unit, or no expected disagreement (all pairable values alike)")
+    stat = alpha_statistic(delta)
     notes = _order_notes(d, "The ordinal metric") if label == "ordinal" else []
     res = _run(stat, d, level=label, weights=None, notes=notes, **_options(locals()))
     return _replace(res, details={**res.details, "pairable_values": float(res.n_values)})

@@ -365,7 +365,7 @@ class Bounds:
 
 def resample(features: np.ndarray, counts: np.ndarray, finish: Finish, *, method: str, n_resamples: int,
              confidence_level: float, rng: np.random.Generator, minimum: float | None = None,
-             pseudo: PseudoUnits | None = None, keep_replicates: bool = False) -> Bounds:
+             pseudo: PseudoUnits | None = None, keep_replicates: bool = False, two_sided: bool = True) -> Bounds:
     """Intervals, one-sided lower bounds and p-values against `minimum` for R data sets.
 
     Parameters
@@ -377,6 +377,8 @@ def resample(features: np.ndarray, counts: np.ndarray, finish: Finish, *, method
     method : "pseudo-unit", "bca" or "percentile" (module notes).
     pseudo : where the pseudo-unit is searched ("pseudo-unit" needs it).
     keep_replicates : keep the draws in the result.
+    two_sided : also make the two-sided interval's upper end (the planner needs only the bound;
+        for "pseudo-unit" this saves the draws with the most favourable unit).
 
     Returns
     -------
@@ -426,7 +428,7 @@ def resample(features: np.ndarray, counts: np.ndarray, finish: Finish, *, method
         F = features[active]
         jack = None
         if method == "pseudo-unit":
-            lo_draws, hi_draws, rows = _pseudo_unit_chunk(c, F, fk, pseudo, B, rng)
+            lo_draws, hi_draws, rows = _pseudo_unit_chunk(c, F, fk, pseudo, B, rng, two_sided)
             pseudo_rows[s0:s1] = rows
         else:
             lo_draws = hi_draws = _multinomial_chunk(c, F, fk, B, rng, single, counts2[s0:s1][:, active])
@@ -494,27 +496,49 @@ def _summarise(lo_draws: np.ndarray, hi_draws: np.ndarray, est: np.ndarray, *, m
     return out
 
 
-def _pseudo_unit_chunk(c: np.ndarray, F: np.ndarray, fk, space: PseudoUnits, B: int,
-                       rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Draws (B, r, k) with the least and the most favourable pseudo-unit, and the rows (r, k, m)
-    of the least favourable one, for r data sets with counts c (r, A) over item features F (A, K)."""
-    S = c @ F
-    rows_lo, f_lo = _search(S, fk, space, worst=True)                        # (r, k, K)
-    _, f_hi = _search(S, fk, space, worst=False)
+def _dirichlet_sums(c: np.ndarray, F: np.ndarray, B: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+    """Bayesian-bootstrap sums (B, r, K) of the data's items and the pseudo-unit's weight (B, r, 1):
+    weights Dirichlet(c_1, ..., c_A, 1), scaled so that they sum to the number of items n."""
     r, A = c.shape
     n = c.sum(axis=1)                                                         # (r,)
     g = rng.standard_gamma(np.broadcast_to(c, (B, r, A)))                     # Gamma(0) = 0
     g0 = rng.standard_exponential((B, r))
     total = g.sum(axis=2) + g0
     base = np.einsum("bra,ak->brk", g, F) * (n / total)[..., None]            # (B, r, K)
-    extra = (n * g0 / total)[..., None]                                       # (B, r, 1)
-    k = f_lo.shape[1]
+    return base, (n * g0 / total)[..., None]
+
+
+def _pseudo_unit_chunk(c: np.ndarray, F: np.ndarray, fk, space: PseudoUnits, B: int,
+                       rng: np.random.Generator, two_sided: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Draws (B, r, k) with the least and (`two_sided`; else NaN) the most favourable pseudo-unit,
+    and the rows (r, k, m) of the least favourable one, for r data sets with counts c (r, A) over
+    item features F (A, K)."""
+    S = c @ F
+    rows_lo, f_lo = _search(S, fk, space, worst=True)                        # (r, k, K)
+    f_hi = _search(S, fk, space, worst=False)[1] if two_sided else None
+    base, extra = _dirichlet_sums(c, F, B, rng)
+    B, r, k = base.shape[0], c.shape[0], f_lo.shape[1]
     lo = np.empty((B, r, k))
-    hi = np.empty((B, r, k))
+    hi = np.full((B, r, k), np.nan)
     for j in range(k):  # a loop over statistics, each with its own pseudo-unit
         lo[..., j] = fk(base + extra * f_lo[None, :, j, :])[..., j]
-        hi[..., j] = fk(base + extra * f_hi[None, :, j, :])[..., j]
+        if f_hi is not None:
+            hi[..., j] = fk(base + extra * f_hi[None, :, j, :])[..., j]
     return lo, hi, rows_lo
+
+
+def pseudo_unit_sums(features: np.ndarray, counts: np.ndarray, finish: Finish, pseudo: PseudoUnits,
+                     n_draws: int, rng: np.random.Generator) -> np.ndarray:
+    """(n_draws, K) feature sums of the draws the default bound of one data set is made from
+    (Dirichlet weights on the items and on the least-favourable unit for `finish`), so that any
+    other function of the same draws can be read off them: ``finish(sums)`` are the draws of the
+    statistic; the planner reads the category shares of each draw from them as well."""
+    features = np.asarray(features, dtype=float)
+    c = np.asarray(counts, dtype=float)[None, :]
+    fk = _finish_k(finish)
+    _, f_lo = _search(c @ features, fk, pseudo, worst=True)
+    base, extra = _dirichlet_sums(c, features, int(n_draws), rng)
+    return (base + extra * f_lo[None, :, 0, :])[:, 0, :]
 
 
 def _multinomial_chunk(c: np.ndarray, F: np.ndarray, fk, B: int, rng: np.random.Generator, single: bool,

@@ -17,26 +17,22 @@ import numpy as np
 import pytest
 
 from agree.analysis.planning import (
-    _alpha_from_counts,
-    _bootstrap_lower_bounds,
-    _build_model,
     _latent_pair_probabilities,
-    _lower_quantile,
     _nominal_pair_probabilities,
     _pattern_counts,
     _pattern_ids,
     _population_alpha,
-    decision_sentence,
+    _Studies,
+    build_model,
     donner_eliasziw_units,
     krippendorff_minimum_units,
     plan_sample,
     resolve_shares,
 )
 from agree.core.model import AgreeError
-from agree.core.results import AgreementResult
 from agree.output.plots import assurance_figure, save_figure
-from agree.stats.kernels import alpha_from_coincidence, ordinal_delta
-from agree.stats.kernels import coincidence_contributions as _pattern_coincidences
+from agree.stats.coefficients import alpha_statistic
+from agree.stats.kernels import alpha_from_coincidence, delta_for, ordinal_delta
 
 FAST = dict(replicates=100, n_resamples=100)
 
@@ -47,10 +43,15 @@ def _reference_alpha(codes: np.ndarray, q: int, level: str) -> float:
                               value_domain=list(range(q)))
 
 
+def _alphas(counts: np.ndarray, patterns, q: int, level: str) -> np.ndarray:
+    """Alpha of studies given as pattern counts, as the planner scores them (`score`'s statistic)."""
+    stat = alpha_statistic(delta_for(level, scores=np.arange(1, q + 1)))
+    return stat.finish(np.asarray(counts, float) @ stat.features(patterns))
+
+
 def _alpha_via_patterns(codes: np.ndarray, q: int, level: str) -> float:
-    ids, r = _pattern_ids(codes[None], q)
-    counts = _pattern_counts(ids, codes.shape[0], len(r))
-    return float(_alpha_from_counts(counts, _pattern_coincidences(r), level)[0])
+    ids, pat = _pattern_ids(codes[None], q)
+    return float(_alphas(_pattern_counts(ids, codes.shape[0], len(pat.counts)), pat, q, level)[0])
 
 
 # -- the vectorised alpha against the krippendorff package --------------------------------
@@ -61,7 +62,7 @@ def _alpha_via_patterns(codes: np.ndarray, q: int, level: str) -> float:
 def test_pattern_alpha_matches_krippendorff_package(level, m, q, n, miss):
     rng = np.random.default_rng(1000 * m + q)
     shares = rng.dirichlet(np.ones(q) * 2)
-    model, _ = _build_model(level, shares, m, 0.6, miss)
+    model, _ = build_model(level, shares, m, 0.6, miss)
     for codes in model.simulate(rng, 3, n):
         codes = codes.astype(np.int64)
         assert _alpha_via_patterns(codes, q, level) == pytest.approx(_reference_alpha(codes, q, level),
@@ -91,36 +92,30 @@ def test_undefined_alpha_is_nan():
 def test_resampled_pattern_counts_equal_resampled_units():
     # METHODS 12: a pattern-count replicate gives the value of the unit-level replicate
     rng = np.random.default_rng(3)
-    model, _ = _build_model("nominal", np.array([0.5, 0.3, 0.2]), 3, 0.7, 0.2)
+    model, _ = build_model("nominal", np.array([0.5, 0.3, 0.2]), 3, 0.7, 0.2)
     codes = model.simulate(rng, 1, 80)[0].astype(np.int64)
-    ids, r = _pattern_ids(codes[None], 3)
+    ids, pat = _pattern_ids(codes[None], 3)
     pick = rng.integers(0, 80, size=80)
-    counts = np.bincount(ids[0, pick], minlength=len(r))[None]
-    mine = _alpha_from_counts(counts, _pattern_coincidences(r), "nominal")[0]
+    counts = np.bincount(ids[0, pick], minlength=len(pat.counts))[None]
+    mine = _alphas(counts, pat, 3, "nominal")[0]
     assert mine == pytest.approx(_reference_alpha(codes[pick], 3, "nominal"), abs=1e-12)
 
 
-def test_lower_quantile_matches_numpy():
-    rng = np.random.default_rng(5)
-    x = rng.normal(size=(200, 30))
-    x[rng.random(x.shape) < 0.1] = np.nan
-    x[:, 3] = np.nan
-    got = _lower_quantile(x, 0.05)
-    want = np.array([np.nan if np.all(np.isnan(c)) else np.nanquantile(c, 0.05) for c in x.T])
-    np.testing.assert_allclose(got, want)
-
-
-def test_bootstrap_bounds_are_below_estimates_and_repeatable():
-    rng = np.random.default_rng(11)
-    model, _ = _build_model("nominal", np.array([0.6, 0.4]), 2, 0.8, 0.0)
-    ids, r = _pattern_ids(model.simulate(rng, 40, 150), 2)
-    coinc = _pattern_coincidences(r)
-    for n in (12, 150):                                    # the index path and the multinomial path
-        est, low, _ = _bootstrap_lower_bounds(5, ids, n, coinc, "nominal", 200, 0.95)
-        est2, low2, _ = _bootstrap_lower_bounds(5, ids, n, coinc, "nominal", 200, 0.95)
-        np.testing.assert_array_equal(low, low2)
-        ok = np.isfinite(low)
-        assert np.mean(low[ok] <= est[ok]) > 0.95
+def test_simulated_studies_are_scored_repeatably_and_below_their_estimates():
+    model, _ = build_model("nominal", np.array([0.6, 0.4]), 2, 0.8, 0.0)
+    runs = []
+    for _ in range(2):
+        studies = _Studies(model, 150, 5, alpha_statistic(delta_for("nominal", n_values=2)), "pseudo-unit", 200,
+                           0.95, 0.6, block_size=20)
+        studies.add_blocks(2)
+        for n in (12, 150):
+            studies.evaluate(n)
+        runs.append(studies.table())
+    for a, b in zip(*runs):
+        np.testing.assert_array_equal(a, b)
+    units, hits, totals, none = runs[0]
+    assert list(units) == [12, 150] and list(totals) == [40, 40]
+    assert hits[1] >= hits[0] and none[0] >= none[1]
 
 
 # -- the simulation model reaches the expected agreement --------------------------------------
@@ -129,7 +124,7 @@ def test_bootstrap_bounds_are_below_estimates_and_repeatable():
 @pytest.mark.parametrize("shares", [[0.25, 0.25, 0.25, 0.25], [0.6, 0.25, 0.1, 0.05]])
 def test_population_alpha_is_the_target(level, shares):
     shares = np.array(shares)
-    _, pop = _build_model(level, shares, 3, 0.8, 0.0)
+    _, pop = build_model(level, shares, 3, 0.8, 0.0)
     assert pop == pytest.approx(0.8, abs=1e-6)
 
 
@@ -151,11 +146,11 @@ def test_latent_pair_probabilities_are_a_distribution():
 @pytest.mark.parametrize("level", ["nominal", "ordinal", "interval"])
 def test_simulated_alpha_reaches_target_on_large_samples(level):
     shares = np.array([0.5, 0.3, 0.15, 0.05])
-    model, _ = _build_model(level, shares, 3, 0.75, 0.1)
+    model, _ = build_model(level, shares, 3, 0.75, 0.1)
     rng = np.random.default_rng(2024)
     # mean of alpha over many simulated data sets, within Monte Carlo error
-    ids, r = _pattern_ids(model.simulate(rng, 400, 500), 4)
-    alphas = _alpha_from_counts(_pattern_counts(ids, 500, len(r)), _pattern_coincidences(r), level)
+    ids, pat = _pattern_ids(model.simulate(rng, 400, 500), 4)
+    alphas = _alphas(_pattern_counts(ids, 500, len(pat.counts)), pat, 4, level)
     mc = alphas.std(ddof=1) / math.sqrt(len(alphas))
     assert abs(alphas.mean() - 0.75) < 4 * mc + 0.002    # 0.002: alpha's small-sample bias
     # and one big data set checked with the krippendorff package
@@ -223,7 +218,8 @@ def test_plan_states_model_interval_and_sources():
         assert key in d
     assert set(d["curve"][0]) >= {"units", "assurance", "mc_error"}
     assert "θ = sqrt(0.850)" in p.model and "missing completely at random" in p.model
-    assert "one-sided 95% percentile bound" in p.interval and "B = 100" in p.interval
+    assert "what agree score computes" in p.interval and "B = 100 draws" in p.interval
+    assert "least-favourable pseudo-unit" in p.interval and "strictly above" in p.interval
     names = [c["name"] for c in d["closed_forms"]]
     assert any("Krippendorff" in n for n in names) and any("Donner" in n for n in names)
     assert all(set(c) == {"name", "units", "source", "assumptions"} for c in d["closed_forms"])
@@ -240,7 +236,8 @@ def test_plan_states_model_interval_and_sources():
     assert all("ignores the prevalence" in r["note"] for r in d["rules_of_thumb"])
     mc = [pt["mc_error"] for pt in d["curve"]]
     for pt, err in zip(d["curve"], mc):
-        assert err == pytest.approx(math.sqrt(pt["assurance"] * (1 - pt["assurance"]) / 100))
+        assert err == pytest.approx(math.sqrt(pt["assurance"] * (1 - pt["assurance"]) / pt["studies"]))
+        assert pt["studies"] >= 100 and 0 <= pt["no_disagreement"] <= 1
 
 
 def test_donner_eliasziw_only_for_two_coders_two_categories():
@@ -400,10 +397,122 @@ def test_several_problems_reported_together():
 def test_plan_to_frame_and_notebook_display():
     p = plan_sample(coders=2, categories=2, expected=0.9, seed=7, **FAST)
     frame = p.to_frame()
-    assert list(frame.columns) == ["units", "assurance", "mc_error", "smoothed"]
+    assert list(frame.columns) == ["units", "assurance", "mc_error", "smoothed", "studies", "no_disagreement"]
     assert frame["units"].tolist() == [pt.units for pt in p.curve]
-    # Monte Carlo error of a share: sqrt(P(1 - P)/R)
-    assert np.allclose(frame["mc_error"], np.sqrt(frame["assurance"] * (1 - frame["assurance"]) / p.replicates))
+    # Monte Carlo error of a share: sqrt(P(1 - P)/R), R the studies simulated at that size
+    assert np.allclose(frame["mc_error"], np.sqrt(frame["assurance"] * (1 - frame["assurance"]) / frame["studies"]))
     page = p._repr_html_()
     assert page.startswith('<div class="agree-result"><p>Plan: ') and "<table" in page
     assert ">nan<" not in page.lower()
+
+
+# -- the planner simulates score's decision, with its Monte Carlo uncertainty ------------------------
+
+def test_assurance_is_the_rate_at_which_score_clears_the_minimum():
+    """External check through the public coefficient: the planner's assurance at a size equals, within
+    Monte Carlo error, the share of freshly simulated studies whose `krippendorff_alpha` bound (the
+    default method, as `score`) is above the minimum."""
+    import agree
+
+    model, _ = build_model("nominal", np.array([0.5, 0.5]), 2, 0.9, 0.0)
+    studies = _Studies(model, 60, 3, alpha_statistic(delta_for("nominal", n_values=2)), "pseudo-unit", 500,
+                       0.95, 0.7, block_size=100)
+    studies.add_blocks(2)
+    studies.evaluate(60)
+    _, hits, totals, _ = studies.table()
+    planned = hits[0] / totals[0]
+    rng = np.random.default_rng(99)
+    codes = model.simulate(rng, 200, 60)
+    cleared = [agree.krippendorff_alpha(np.where(c < 0, np.nan, c).astype(float), n_resamples=500, seed=i,
+                                        minimum=0.7).lower_bound > 0.7 for i, c in enumerate(codes)]
+    direct = float(np.mean(cleared))
+    se = math.sqrt(planned * (1 - planned) / totals[0] + direct * (1 - direct) / len(cleared))
+    assert abs(planned - direct) < 3 * se + 0.01
+
+
+def test_high_agreement_plan_is_honest_and_states_its_monte_carlo_range():
+    """Expected .95 against .80 with two equal categories: the percentile planner asked for 32 units,
+    where about 28% of studies have no disagreement. Now the plan simulates the pseudo-unit bound, says
+    how many studies have no disagreement, and gives the range of its answer."""
+    p = plan_sample(coders=2, categories=2, expected=0.95, minimum=0.8, seed=1, replicates=200, n_resamples=500,
+                    tolerance=0.1)
+    assert p.units_needed is not None and p.units_needed > 50
+    low, high = p.units_range
+    assert low <= p.units_needed <= high and high - low < 0.25 * p.units_needed
+    small = min(p.curve, key=lambda pt: abs(pt.units - 32))
+    assert small.assurance < 0.8 and small.no_disagreement > 0.15
+    assert p.to_dict()["units_range"] == [low, high]
+    assert "Monte Carlo range" in p.interval or "Monte Carlo" in p.interval
+
+
+def test_the_simulation_grows_until_the_answer_is_stable():
+    loose = plan_sample(coders=2, categories=3, expected=0.88, minimum=0.8, seed=2, replicates=100,
+                        n_resamples=200, tolerance=0.5)
+    tight = plan_sample(coders=2, categories=3, expected=0.88, minimum=0.8, seed=2, replicates=100,
+                        n_resamples=200, tolerance=0.04, max_replicates=800)
+    assert loose.replicates == 100 and tight.replicates > 100
+    width = [p.units_range[1] - p.units_range[0] for p in (loose, tight)]
+    assert width[1] < width[0]
+    assert tight.details["blocks"] == tight.replicates // tight.details["block_size"]
+
+
+# -- plans from a pilot round --------------------------------------------------------------------------
+
+def _pilot(alpha=0.85, n=80, seed=4):
+    model, _ = build_model("nominal", np.array([0.5, 0.3, 0.2]), 2, alpha, 0.1)
+    codes = model.simulate(np.random.default_rng(seed), 1, n)[0]
+    return np.where(codes < 0, np.nan, codes).astype(float)
+
+
+def test_pilot_estimates_what_the_plan_uses():
+    import agree
+    from agree.analysis.planning import pilot_estimate
+
+    x = _pilot()
+    est, alphas, shares = pilot_estimate(x, seed=1, draws=300)
+    ref = agree.krippendorff_alpha(x, n_resamples=0)
+    assert est.alpha == pytest.approx(ref.estimate, abs=1e-12)
+    assert est.coders == 2 and est.units == ref.n_units and est.level == "nominal"
+    # the shares are the pairable values' shares; the missing share is the empty cells' share
+    pairable = ~np.isnan(x).any(axis=1)
+    values = x[pairable].ravel()
+    np.testing.assert_allclose(est.shares, [np.mean(values == v) for v in (0, 1, 2)], atol=0.03)
+    coded = ~np.isnan(x).all(axis=1)
+    assert est.missing == pytest.approx(np.isnan(x[coded]).mean())
+    # the draws are those of the pilot's own bound: their 5% quantile is its one-sided bound
+    bound = agree.krippendorff_alpha(x, n_resamples=4000, seed=3).lower_bound
+    assert np.quantile(alphas, 0.05) == pytest.approx(bound, abs=0.02)
+    assert shares.shape == (300, 3) and np.allclose(shares.sum(axis=1), 1)
+
+
+def test_plan_from_pilot_plans_the_next_round_and_says_what_it_estimated():
+    from agree.analysis.planning import plan_from_pilot
+
+    x = _pilot(0.9, 120)
+    pairable = int((~np.isnan(x)).all(axis=1).sum())          # units both coders coded
+    p = plan_from_pilot(x, minimum=0.7, seed=1, replicates=100, n_resamples=200, tolerance=0.2)
+    assert p.pilot is not None and p.units_needed is not None
+    assert "draws from the pilot's posterior" in p.model
+    notes = {w.code: w.message for w in p.warnings}
+    assert f"Estimated from the pilot ({pairable} units, 2 coders)" in notes["plan-pilot"]
+    d = p.to_dict()
+    assert d["pilot"]["units"] == pairable and d["inputs"]["coders"] == 2
+    json.dumps(d, allow_nan=False)
+
+
+def test_pilot_that_may_be_below_the_minimum_caps_the_assurance():
+    from agree.analysis.planning import plan_from_pilot
+
+    p = plan_from_pilot(_pilot(0.75, 40), minimum=0.7, seed=1, replicates=100, n_resamples=200, max_units=400,
+                        tolerance=0.3)
+    assert p.pilot.p_value_min > 0.2
+    assert "plan-pilot-ceiling" in {w.code for w in p.warnings}
+    assert max(pt.assurance for pt in p.curve) < 0.8 + 0.1
+
+
+def test_pilot_with_sets_of_codes_is_refused():
+    from agree.analysis.planning import plan_from_pilot
+
+    with pytest.raises(AgreeError) as err:
+        plan_from_pilot([[{"a"}, {"a", "b"}], [{"b"}, {"b"}]] * 5, seed=1)
+    assert err.value.code == "plan-pilot"

@@ -101,3 +101,27 @@ def test_readme_plan_wording_matches_the_command():
     command = re.search(r"`(agree plan [^`]+)`", rows[0]).group(1)
     assert "--coders" in command and "--expected" in command
     assert "`agree plan` with no options prints what it needs" in " ".join(readme.split())
+
+
+def test_cli_plan_from_a_pilot_equals_the_library(tmp_path):
+    import agree
+    import agree.cli.commands  # noqa: F401
+    from agree.analysis.planning import plan_from_pilot
+    from agree.cli.app import app
+
+    samples = __import__("pathlib").Path(__file__).resolve().parents[2] / "samples"
+    args = ["plan", "--pilot", str(samples / "round2.csv"), "--codebook", str(samples / "codebook.csv"),
+            "--min", "0.667", "--seed", "2", "--replicates", "60", "--boot", "60", "--tolerance", "0.5",
+            "--format", "json"]
+    out = CliRunner().invoke(app, args)
+    assert out.exit_code == 0, out.output
+    got = json.loads(out.stdout)
+    data = agree.read(samples / "round2.csv", codebook=samples / "codebook.csv")
+    want = plan_from_pilot(data, minimum=0.667, seed=2, replicates=60, n_resamples=60, tolerance=0.5).to_dict()
+    assert got == json.loads(json.dumps(want))
+    assert got["pilot"]["units"] == 150 and got["pilot"]["coders"] == 3
+    table = CliRunner().invoke(app, args[:-2])
+    assert "Pilot: 150 units, 3 coders" in table.stdout and "pilot's units are not counted" in " ".join(
+        table.stdout.split())
+    both = CliRunner().invoke(app, args + ["--expected", "0.9"])   # main() turns this into exit code 2
+    assert getattr(both.exception, "code", None) == "plan-inputs" and "--pilot estimates" in str(both.exception)
