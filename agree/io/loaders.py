@@ -205,13 +205,18 @@ def _has_values(col: pd.Series) -> bool:
 
 # -- text files -------------------------------------------------------------------------------
 def _looks_like_text(head: bytes) -> bool:
-    """Whether the first bytes read as delimited text: few control or undecodable characters,
-    and a delimiter or a line break somewhere."""
+    """Whether the first bytes read as delimited text: no zero bytes (outside UTF-16), few
+    undecodable characters, not mostly control characters (a few inside cells are text: a bell,
+    a unit separator pasted from another program), and a delimiter or a line break somewhere."""
     encodings = ("utf-16",) if head[:2] in (b"\xff\xfe", b"\xfe\xff") else ("utf-8", "cp1252")
     for encoding in encodings:
         text = head.decode(encoding, errors="replace")
-        bad = sum(1 for ch in text if ch == "\ufffd" or (ord(ch) < 32 and ch not in "\t\n\r\f"))
-        if text and bad <= 0.05 * len(text) and any(mark in text for mark in (",", ";", "\t", "\n")):
+        if not text or "\x00" in text:
+            continue
+        undecodable = text.count("\ufffd")
+        control = sum(1 for ch in text if ord(ch) < 32 and ch not in "\t\n\r\f")
+        if undecodable <= 0.05 * len(text) and control <= 0.3 * len(text) and \
+                any(mark in text for mark in (",", ";", "\t", "\n")):
             return True
     return False
 

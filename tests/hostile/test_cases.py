@@ -19,6 +19,7 @@ import pytest
 
 from tests.cli.conftest import run_main
 from tests.hostile.cases import CASES, DATA, REFUSED, Case, Outcome, case_insensitive
+from tests.hostile.reading import READING_CASES
 
 AGREE = Path(sys.executable).with_name("agree")
 
@@ -114,7 +115,7 @@ def _marks(case: Case) -> list:
     return marks + ([pytest.mark.slow] if case.slow else [])
 
 
-@pytest.mark.parametrize("case", [pytest.param(c, marks=_marks(c), id=c.name) for c in CASES])
+@pytest.mark.parametrize("case", [pytest.param(c, marks=_marks(c), id=c.name) for c in CASES + READING_CASES])
 def test_case(case: Case, case_dir: Path, capsys):
     materialise(case, case_dir)
     before = snapshot(case_dir)

@@ -9,6 +9,7 @@ import csv
 import io
 import math
 import os
+import re
 import tempfile
 from pathlib import Path
 
@@ -29,10 +30,12 @@ from tests.hostile.cases import AWKWARD
 
 SETTINGS = settings(max_examples=int(os.environ.get("AGREE_HOSTILE_EXAMPLES", 20)), deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
-# any character but surrogates (not text) and control characters other than tab, LF and CR
-# (agree's reader takes a file of mostly control characters for binary data: see the xfail below;
-# tests/core/test_cells.py writes them through the CSV writer with Python's csv module as reader)
-_ANY = st.one_of(st.characters(blacklist_categories=("Cs", "Cc")), st.sampled_from("\t\n\r"))
+# any character but surrogates (not text) and the zero byte (a file holding one is binary data),
+# control characters a sprinkling among the rest (a file of mostly control characters is binary
+# data too: tests/core/test_cells.py writes those through the CSV writer with Python's csv module
+# as reader)
+_TEXT = st.characters(blacklist_categories=("Cs", "Cc"))
+_ANY = st.one_of(_TEXT, _TEXT, _TEXT, st.sampled_from("\t\n\r"), st.characters(min_codepoint=1, max_codepoint=31))
 awkward = st.one_of(st.sampled_from(AWKWARD), st.text(_ANY, min_size=1, max_size=10),
                     st.builds(lambda a, b: a + b, st.sampled_from(AWKWARD), st.text(_ANY, max_size=4)))
 # in workbooks: only what XML can hold (the rest becomes U+FFFD, tested on its own below)
@@ -210,8 +213,6 @@ def test_characters_xml_cannot_hold_become_the_replacement_character(tmp_path):
     assert [r[0] for r in rows] == ["u\x0b1", "u2"]
 
 
-@pytest.mark.xfail(strict=True, reason="reading half of issue 10 (control characters): a small CSV whose cells "
-                                       "are mostly control characters is taken for binary data")
 def test_a_csv_of_control_characters_reads_back(tmp_path):
     data = from_table(pd.DataFrame([["\x08\x08", "b"], ["b", "\x08\x08"]], columns=["ann", "bo"], dtype=object),
                       unit_ids=["\x01", "\x02"])
@@ -220,3 +221,45 @@ def test_a_csv_of_control_characters_reads_back(tmp_path):
     write_consensus(consensus, tmp_path / "consensus.csv", data=data)
     back = agree.read(tmp_path / "consensus.csv", unit="unit", coder=["ann", "bo"], sep="")
     assert list(back.unit_ids) == ["\x01", "\x02"]
+
+
+# codes written like numbers: kept exactly as read (a plain whole number written "N.0" is the
+# number N, the documented exception, so it is not drawn); distinct values, so no two are one code
+_number_like = st.one_of(
+    st.integers(-10**6, 10**6).map(str), st.integers(0, 999).map(lambda i: f"{i:03d}"),
+    st.integers(0, 99).map(lambda i: f"+{i}"), st.floats(-1e6, 1e6, allow_nan=False).map(lambda f: f"{f:.2f}"),
+    st.floats(1e-300, 1e300).map(lambda f: f"{f:e}"), st.sampled_from(["1e300", "-0.0", "0.50", ".5", "5."]))
+
+
+def _value_text(v) -> str:
+    return "" if v is None else str(v) if not isinstance(v, float) else repr(v)
+
+
+@SETTINGS
+@given(st.lists(_number_like, min_size=2, max_size=5, unique_by=float).filter(
+    lambda codes: not any(re.fullmatch(r"-?[0-9]+\.0", c) for c in codes)), st.data())
+def test_codes_that_look_like_numbers_read_back_as_written(codes, draw):
+    """A code's text survives agree's writers (review, consensus: CSV and XLSX) and every reader
+    (agree.read of CSV, TSV, XLSX and Parquet; reconcile of the review)."""
+    rows = [[draw.draw(st.sampled_from(codes)) for _ in range(2)] for _ in range(draw.draw(st.integers(2, 6)))]
+    rows[0] = codes[:2]
+    units = [f"u{i}" for i in range(len(rows))]
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        frame = pd.DataFrame(rows, columns=["ann", "bo"]).assign(unit=units)[["unit", "ann", "bo"]]
+        paths = [tmp / "t.csv", tmp / "t.tsv", tmp / "t.parquet"]
+        frame.to_csv(paths[0], index=False)
+        frame.to_csv(paths[1], index=False, sep="\t")
+        frame.to_parquet(paths[2], index=False)
+        for path in paths:
+            data = agree.read(path)
+            got = [[_value_text(None if c < 0 else data.values[c]) for c in row] for row in data.codes]
+            assert got == rows, path.suffix
+        for suffix in (".csv", ".xlsx"):
+            review, consensus_file = tmp / f"review{suffix}", tmp / f"consensus{suffix}"
+            write_review(data, review)
+            consensus = reconcile(data, review, allow_unresolved=True)
+            write_consensus(consensus, consensus_file, data=data)
+            again = agree.read(consensus_file, unit="unit", coder=["ann", "bo"], sep="")
+            got = [[_value_text(None if c < 0 else again.values[c]) for c in row] for row in again.codes]
+            assert got == rows, suffix
