@@ -43,7 +43,7 @@ from agree.core.files import record_input, sha256_file
 from agree.core.model import AgreeError, cell_location, normalise_value
 
 __all__ = ["LOADERS", "Loader", "Grid", "Table", "Loaded", "load", "load_tables", "loader_for",
-           "read_lines", "raise_all", "column_label", "known_suffixes", "cell_limit"]
+           "read_lines", "raise_all", "column_label", "known_suffixes", "cell_limit", "header_rows"]
 
 _MAGIC_ZIP = b"PK\x03\x04"
 _MAGIC_OLE = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
@@ -761,3 +761,32 @@ def load_tables(path: str | Path, *, sheet: Any = None, name: str | None = None,
     """`load`, then each grid's header checked and its columns named: (tables, what was loaded)."""
     loaded = load(path, sheet=sheet, name=name, sheet_option=sheet_option)
     return [g.table() for g in loaded.grids], loaded
+
+
+def header_rows(path: str | Path, *, sheet: Any = None, name: str | None = None) -> list[list[str | None]]:
+    """The header row of each table of a file, reading as little as the format allows: a text
+    file's first record (from its first megabyte), a Parquet file's column names (its schema),
+    each worksheet's first row with values (workbooks are read in full). For telling what a file
+    holds before reading it; the errors are those of `load`, and a text head that cannot be
+    decoded gives no header (the full read explains why)."""
+    path = Path(path)
+    name = str(path) if name is None else name
+    loader = loader_for(path, name=name)
+    if loader.kind == "text":
+        with open(path, "rb") as fh:
+            raw = fh.read(1 << 20)
+        try:
+            data, _ = _decode(raw, name)
+        except AgreeError:
+            return [[]]
+        delimiter = _TEXT_DELIMITERS.get(path.suffix.lower()) or _sniff_delimiter(data)
+        return [[cell.strip() or None for cell in _first_record(data, delimiter)]]
+    if loader.kind == "parquet":
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        try:
+            return [list(pq.read_schema(path).names)]
+        except (pa.ArrowException, OSError):
+            return [[]]
+    return [_header_strings(list(g.header)) for g in load(path, sheet=sheet, name=name).grids]

@@ -46,6 +46,7 @@ rolled up to a parent (``SpanData.roll_up``). ``code_separator=None`` keeps each
 from __future__ import annotations
 
 import os
+import zipfile
 from dataclasses import replace
 from pathlib import Path
 from typing import Any, Sequence
@@ -58,9 +59,9 @@ from agree.core.files import record_input
 from agree.core.model import ReadReport, normalise_value
 from agree.core.spans import CODE_PATH_SEPARATOR, UNITS, SpanData, token_bounds
 from agree.io.columns import CODER_NAMES, find_column
-from agree.io.loaders import load_tables
+from agree.io.loaders import header_rows, load_tables
 
-__all__ = ["read_spans", "spans_from_table", "assemble_spans", "decode_text", "code_tree", "has_astral", "SPAN_ENDS", "COVERAGES"]
+__all__ = ["read_spans", "span_input", "spans_from_table", "assemble_spans", "decode_text", "code_tree", "has_astral", "SPAN_ENDS", "COVERAGES"]
 
 SPAN_ENDS = ("exclusive", "inclusive")
 COVERAGES = ("inferred", "declared")
@@ -259,6 +260,44 @@ def _find(table_columns: list[str], given: str | None, names: Sequence[str], wha
         raise AgreeError(f"no {what} column found", where=where, code="no-column",
                          hint=f"name it with {option} (columns: {', '.join(repr(c) for c in table_columns)})")
     return found
+
+
+PROJECT_SUFFIXES = (".qdpx", ".qde")
+_PROJECT_XML = (b"<Project", b"urn:QDA-XML:project")
+
+
+def span_input(path: str | os.PathLike, *, sheet: Any = None) -> str | None:
+    """What a file holds, told by its content: "project" (a REFI-QDA project: a zip archive
+    holding a ``.qde`` entry, or project XML; a ``.qdpx`` or ``.qde`` name counts too, so that
+    `agree.io.refi.read_project` explains a damaged one), "span table" (a table whose header has
+    a document, a start and an end column by their usual names, see the module docstring), or
+    None: anything else (a coding sheet), including files the ordinary readers will refuse with
+    their own message. Reads the header only, where the format allows (`header_rows`)."""
+    p = Path(path)
+    if not p.is_file():
+        return None
+    if p.suffix.lower() in PROJECT_SUFFIXES:
+        return "project"
+    with open(p, "rb") as fh:
+        head = fh.read(4096)
+    if head.startswith(b"PK"):
+        try:
+            with zipfile.ZipFile(p) as zf:
+                if any(n.lower().endswith(".qde") for n in zf.namelist()):
+                    return "project"
+        except (zipfile.BadZipFile, OSError, ValueError, EOFError):
+            return None
+    elif head.lstrip(b"\xef\xbb\xbf \t\r\n").startswith(b"<"):
+        return "project" if any(mark in head for mark in _PROJECT_XML) else None
+    try:
+        headers = header_rows(p, sheet=sheet)
+    except AgreeError:
+        return None
+    for names in headers:
+        columns = [c for c in names if c]
+        if all(find_column(columns, names_) is not None for names_ in (DOCUMENT_NAMES, START_NAMES, END_NAMES)):
+            return "span table"
+    return None
 
 
 def read_spans(path: str | os.PathLike, *, documents_dir: str | os.PathLike | None = None,

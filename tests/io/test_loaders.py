@@ -165,3 +165,20 @@ def test_parquet_structs_and_binary_are_refused_naming_the_column(tmp_path, colu
         read(path)
     assert err.value.code == "nested-column" and "column 'ann' holds " + words in str(err.value)
     assert "nested.parquet" in str(err.value)
+
+
+def test_header_rows_read_only_the_header_where_the_format_allows(tmp_path):
+    import pandas as pd
+
+    from agree.io.loaders import header_rows
+
+    frame = pd.DataFrame({"document": ["d1"], "Start ": [0], "end": [3]})
+    csv = tmp_path / "semi.csv"
+    csv.write_bytes(("\ufeffdocument;Start ;end\n" + "d1;0;3\n" * 200_000).encode("utf-8"))
+    frame.to_parquet(tmp_path / "t.parquet", index=False)
+    frame.to_excel(tmp_path / "t.xlsx", index=False)
+    assert header_rows(csv) == [["document", "Start", "end"]]      # BOM removed, ';' detected, cells stripped
+    assert header_rows(tmp_path / "t.parquet") == [["document", "Start ", "end"]]
+    assert header_rows(tmp_path / "t.xlsx") == [["document", "Start ", "end"]]
+    with pytest.raises(AgreeError, match="file not found"):
+        header_rows(tmp_path / "missing.csv")

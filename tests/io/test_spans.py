@@ -4,6 +4,7 @@ through every file format, and every row problem named with its file, row and co
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -12,6 +13,8 @@ from agree.core.errors import AgreeError
 from agree.core.spans import token_bounds
 from agree.io.spans import code_tree, read_spans
 from tests.io import projects as P
+
+SAMPLES = Path(__file__).resolve().parents[2] / "samples"
 
 
 def rows(data):
@@ -202,3 +205,46 @@ def test_the_texts_read_are_inputs_of_the_run(tmp_path, texts):
             from agree.core.files import check_output
             check_output(texts / "Baker A.txt")
     assert run is not None
+
+
+# -- telling span data from coding sheets by content (agree.io.spans.span_input) --------------------
+@pytest.mark.parametrize("name", ["spans.csv", "spans.xlsx", "spans.parquet", "spans.dat"])
+def test_span_tables_are_told_by_their_header_in_every_format(tmp_path, name):
+    from agree.io.spans import span_input
+
+    if name.endswith(".dat"):   # no known suffix: read by content
+        path = _table(tmp_path, P.span_rows(), "spans.csv").rename(tmp_path / name)
+    else:
+        path = _table(tmp_path, P.span_rows(), name)
+    assert span_input(path) == "span table"
+
+
+def test_projects_are_told_by_content_not_only_by_name(tmp_path):
+    import shutil
+
+    from agree.io.spans import span_input
+
+    sample = SAMPLES / "passages.qdpx"
+    renamed = tmp_path / "export.zip"
+    shutil.copy(sample, renamed)
+    assert span_input(sample) == "project"
+    assert span_input(renamed) == "project"          # a zip holding project.qde
+    xml = tmp_path / "project.xml"
+    xml.write_text('<?xml version="1.0"?>\n<Project xmlns="urn:QDA-XML:project:1.0" name="x"/>', encoding="utf-8")
+    assert span_input(xml) == "project"
+    damaged = tmp_path / "damaged.qdpx"
+    damaged.write_text("document,start,end\n", encoding="utf-8")
+    assert span_input(damaged) == "project"          # read_project explains what is wrong with it
+
+
+def test_coding_sheets_and_other_files_are_not_span_data(tmp_path):
+    from agree.io.spans import span_input
+
+    for name in ("round1.csv", "multicode.xlsx", "ratings.csv", "passages/T01.txt"):
+        assert span_input(SAMPLES / name) is None, name
+    assert span_input(tmp_path / "missing.csv") is None   # the ordinary reader names the missing file
+    almost = _table(tmp_path, [{"document": "d", "start": 1, "coder": "a", "code": "x"}], "almost.csv")
+    assert span_input(almost) is None                     # no end column
+    html = tmp_path / "page.html"
+    html.write_text("<html><body>document,start,end</body></html>", encoding="utf-8")
+    assert span_input(html) is None
