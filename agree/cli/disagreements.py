@@ -7,7 +7,7 @@ from typing import Annotated, Any, Optional
 
 import typer
 
-from agree.cli.app import app, note, print_json, print_summary
+from agree.cli.app import app, note, print_json, print_summary, progress_bar, scaled
 from agree.cli.options import (
     CodebookOption,
     Files,
@@ -26,6 +26,7 @@ from agree.cli.options import (
 class ReviewFormat(str, Enum):
     xlsx = "xlsx"
     csv = "csv"
+    parquet = "parquet"
     md = "md"
 
 
@@ -41,8 +42,9 @@ def disagreements(
     files: Files,
     output: OutputOption,
     file_format: Annotated[Optional[ReviewFormat], typer.Option(
-        "--file-format", help="Format of the file written: xlsx (default), csv or md; taken from the "
-                              "suffix of -o when not given.")] = None,
+        "--file-format", help="Format of the file written: xlsx (default), csv, parquet or md; taken "
+                              "from the suffix of -o when not given. A worksheet holds 1,048,576 rows: "
+                              "larger reviews go to csv or parquet.")] = None,
     include_agreed: Annotated[bool, typer.Option(
         "--include-agreed", help="Also list the units the coders agree on (after the disagreements).")
     ] = False,
@@ -80,14 +82,17 @@ def disagreements(
     shown, file_format = summary_and_file_format(output_format, summary_format, file_format,
                                                  [f.value for f in ReviewFormat])
     reading = {**reading, **option_values(codebook=codebook, level=level)}
-    data = load_data(files, **reading)
     options = _recorded({**reading, "include_agreed": include_agreed, "accept_single": accept_single})
     options["sep"] = reading["sep"]
     inputs = list(files) + ([codebook] if codebook else [])
     from agree.output.reconciliation import write_review
 
-    summary = write_review(data, output, format=file_format, inputs=inputs, options=options,
-                           include_agreed=include_agreed, accept_single=accept_single, force=force)
+    with progress_bar("disagreements") as tick:
+        tick("reading", 0.0)
+        data = load_data(files, progress=scaled(tick, 0.0, 0.5), **reading)
+        summary = write_review(data, output, format=file_format, inputs=inputs, options=options,
+                               include_agreed=include_agreed, accept_single=accept_single, force=force,
+                               progress=scaled(tick, 0.5, 1.0))
     single = (f", {summary.single_coder} coded by one coder only" if not accept_single else "")
     note(f"wrote {output}: {summary.needing_review} units need review ({summary.disagreements} with a "
          f"disagreement{single}; {summary.units_read} read, {summary.agreed} agreed, "

@@ -100,8 +100,49 @@ def csv_text(header: Sequence[Any], rows: Iterable[Sequence[Any]]) -> str:
 
 
 def frame_csv(frame: Any) -> str:
-    """The CSV text of a DataFrame (its columns as the header, no index)."""
-    return csv_text([str(c) for c in frame.columns], frame.itertuples(index=False, name=None))
+    """The CSV text of a DataFrame (its columns as the header, no index).
+
+    The same text as `csv_text` of its rows, made column by column: a column of text (and
+    missing values) is protected and quoted by Arrow's vectorised string functions, any other
+    column cell by cell by `csv_field`."""
+    header = ",".join(csv_field(str(c)) for c in frame.columns)
+    if frame.shape[1] == 0 or len(frame) == 0:
+        return header + "\n" * (1 + len(frame))
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    fields = [_csv_column(frame.iloc[:, j].to_numpy()) for j in range(frame.shape[1])]
+    lines = pc.binary_join_element_wise(*fields, ",") if len(fields) > 1 else fields[0]
+    body = "\n".join(lines.to_numpy(zero_copy_only=False).tolist())
+    return header + "\n" + body + "\n"
+
+
+# The rules of `protect_text` and `csv_field` in RE2 syntax (Arrow's regular expressions)
+_FORMULA_LIKE_RE2 = r"^'*[=+\-@\t\r]"
+_NUMBER_RE2 = r"^[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?\z"
+_QUOTE_IF_RE2 = r'[,"\r\n]'
+
+
+def _csv_column(values: Any) -> Any:
+    """The CSV fields of one column, as an Arrow string array (see `frame_csv`)."""
+    import pandas as pd
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    text = None
+    if values.dtype.kind in "OU" and pd.api.types.infer_dtype(values, skipna=True) in ("string", "empty"):
+        try:
+            text = pa.array(values, type=pa.string(), from_pandas=True)
+        except (pa.ArrowException, UnicodeError):
+            text = None
+    if text is None:
+        return pa.array([csv_field(v) for v in values], type=pa.string())
+    text = pc.fill_null(text, "")
+    formula = pc.and_(pc.match_substring_regex(text, _FORMULA_LIKE_RE2),
+                      pc.invert(pc.match_substring_regex(text, _NUMBER_RE2)))
+    text = pc.if_else(formula, pc.binary_join_element_wise("'", text, ""), text)
+    quoted = pc.binary_join_element_wise('"', pc.replace_substring(text, '"', '""'), '"', "")
+    return pc.if_else(pc.match_substring_regex(text, _QUOTE_IF_RE2), quoted, text)
 
 
 # -- workbooks -----------------------------------------------------------------------------

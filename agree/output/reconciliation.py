@@ -3,7 +3,7 @@
 Three steps, each a plain function:
 
 1. `review_table` / `write_review` list every unit the coders disagree on, worst first, as a
-   workbook (or CSV / Markdown) with empty decision columns to fill in.
+   workbook (or CSV / Parquet / Markdown) with empty decision columns to fill in.
 2. The team fills in the decision, how it was decided, who decided and why.
 3. `reconcile` reads the decisions back, checks them against the codebook and the data, and
    returns a `Consensus`: one final code per unit of the input, each with its source. The
@@ -38,6 +38,7 @@ Spreadsheet safety: text that a spreadsheet would run as a formula (starting wit
 follows (`agree.core.cells`): in xlsx files such cells are typed as strings (with Excel's
 quote-prefix flag) and keep their text exactly; in CSV files they get one leading ``'``, which
 reading back removes.
+Parquet files keep every cell's text exactly (no spreadsheet runs them).
 """
 
 from __future__ import annotations
@@ -49,7 +50,7 @@ import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
@@ -72,6 +73,7 @@ from agree.core.model import (
 )
 from agree.io.lists import find_records
 from agree.stats.kernels import pair_units, presence
+from agree.stats.patterns import compress
 
 # Column headers of the review file. The workbook is read back by these names, so a team
 # can move or add columns freely.
@@ -92,7 +94,9 @@ REVIEW_SHEET = "Review"
 PAIRS_SHEET = "Confused pairs"
 ABOUT_SHEET = "About this file"
 LISTS_SHEET = "Lists"
-REVIEW_FORMATS = ("xlsx", "csv", "md")
+REVIEW_FORMATS = ("xlsx", "csv", "parquet", "md")
+#: Rows a worksheet holds, the header row included.
+SHEET_ROW_LIMIT = 1_048_576
 CONSENSUS_FORMATS = ("csv", "xlsx")
 
 _LIST_LITERAL_LIMIT = 255  # Excel's limit on an inline list in a data-validation formula
@@ -348,30 +352,55 @@ def review_table(data: Any, *, include_agreed: bool = False, accept_single: bool
     data = as_coding_data(data)
     require_unit_rows(data, "the review table")
     status = _status(data)
-    rows = np.concatenate([status.worst_first(status.needs_review),
-                           np.nonzero(status.single & (not accept_single))[0],
-                           np.nonzero(status.agreed & include_agreed)[0]]).astype(np.int64)
+    rows = _review_rows(status, include_agreed=include_agreed, accept_single=accept_single)
     labels = _value_labels(data)
     reserved = [UNIT, TEXT, STATUS, CODES_INVOLVED, DEFINITIONS, DECISION, HOW, WHO, NOTES]
-    columns: dict[str, Any] = {UNIT: [str(u) for u in data.unit_ids[rows]]}
+    columns: dict[str, Any] = {UNIT: _texts(data.unit_ids[rows], ids=True)}
     kept = _kept_headers(data, reserved)
     for name, header in kept.items():
-        columns[header] = [_text(v) for v in np.asarray(data.columns[name], dtype=object)[rows]]
+        columns[header] = _texts(np.asarray(data.columns[name], dtype=object)[rows])
     if data.text is not None:
-        columns[TEXT] = [_text(t) for t in data.text[rows]]
+        columns[TEXT] = _texts(np.asarray(data.text, dtype=object)[rows])
     columns[STATUS] = np.select([status.needs_review[rows], status.single[rows]],
-                                [DISAGREEMENT, SINGLE], AGREED).tolist()
+                                [DISAGREEMENT, SINGLE], AGREED).astype(object)
+    codes = data.codes[rows]
     for header, j in zip(_coder_headers(data.coders, reserved + list(kept.values())),
                          range(data.n_coders)):
-        columns[header] = labels[data.codes[rows, j]].tolist()
-    involved = [_codes_involved(data, data.codes[i], single=bool(status.single[i])) for i in rows]
+        columns[header] = labels[codes[:, j]]
+    # what a row says about its codes depends on its codes only: worked out once per distinct
+    # row of codes (a few hundred), then spread to the rows
+    patterns = compress(codes, len(data.values), ordered=True, keep_inverse=True)
     order = _category_order(data)
-    columns[CODES_INVOLVED] = [SET_SEPARATOR.join(_label(c, order) for c in inv) for inv in involved]
+    involved = [_codes_involved(data, p, single=int((p >= 0).sum()) == 1) for p in patterns.codes]
+    inverse = patterns.inverse if patterns.inverse is not None else np.zeros(0, dtype=np.int64)
+    columns[CODES_INVOLVED] = np.array([SET_SEPARATOR.join(_label(c, order) for c in inv) for inv in involved]
+                                       + [""], dtype=object)[inverse]
     if data.codebook:
-        columns[DEFINITIONS] = [_definitions(data.codebook, inv, order) for inv in involved]
-    for blank in (DECISION, HOW, WHO, NOTES):
-        columns[blank] = [""] * len(rows)
-    return pd.DataFrame(columns, dtype=object)
+        columns[DEFINITIONS] = np.array([_definitions(data.codebook, inv, order) for inv in involved] + [""],
+                                        dtype=object)[inverse]
+    blank = np.full(len(rows), "", dtype=object)
+    for name in (DECISION, HOW, WHO, NOTES):
+        columns[name] = blank
+    return pd.DataFrame(columns, dtype=object, copy=True)
+
+
+def _review_rows(status: _Status, *, include_agreed: bool, accept_single: bool) -> np.ndarray:
+    """The units the review lists, in its order: disagreements worst first, then the units coded
+    by one coder only (unless `accept_single`), then (with `include_agreed`) the agreed units."""
+    return np.concatenate([status.worst_first(status.needs_review),
+                           np.nonzero(status.single & (not accept_single))[0],
+                           np.nonzero(status.agreed & include_agreed)[0]]).astype(np.int64)
+
+
+def _texts(values: np.ndarray, *, ids: bool = False) -> np.ndarray:
+    """Cells copied from the data as text (object array): text as it is, other values by `_text`
+    (unit ids by `str`), each distinct value converted once."""
+    values = np.asarray(values, dtype=object)
+    if pd.api.types.infer_dtype(values, skipna=False) in ("string", "empty"):
+        return values.copy()
+    inverse, uniques = pd.factorize(pd.Series(values, dtype=object), use_na_sentinel=False)
+    convert = str if ids else _text
+    return np.array([convert(v) for v in np.asarray(uniques, dtype=object)] + [""], dtype=object)[inverse]
 
 
 def _kept_headers(data: CodingData, reserved: Sequence[str]) -> dict[str, str]:
@@ -461,6 +490,8 @@ def _infer_format(path: Path, fmt: str | None, allowed: Sequence[str]) -> str:
         fmt = path.suffix.lower().lstrip(".") or allowed[0]
         if fmt == "markdown":
             fmt = "md"
+        elif fmt == "pq":
+            fmt = "parquet"
     if fmt not in allowed:
         raise AgreeError(f"cannot write '{fmt}' files here; choose one of {', '.join(allowed)}",
                          hint="set the format explicitly or use a matching file suffix",
@@ -488,15 +519,16 @@ def _now() -> str:
 def write_review(data: Any, path: str | os.PathLike, *, format: str | None = None,
                  inputs: Sequence[str | os.PathLike] | None = None,
                  options: Mapping[str, Any] | None = None, include_agreed: bool = False,
-                 accept_single: bool = False, force: bool = False) -> ReviewSummary:
-    """Write the review list as a workbook (or CSV / Markdown) to fill in.
+                 accept_single: bool = False, force: bool = False,
+                 progress: Callable[[str, float], None] | None = None) -> ReviewSummary:
+    """Write the review list as a workbook (or CSV / Parquet / Markdown) to fill in.
 
     Parameters
     ----------
     data : the coding data (CodingData, DataFrame or array).
     path : the file to write. Written atomically; never an input file; an existing file only
         with `force`.
-    format : "xlsx", "csv" or "md"; by default from the suffix of `path`.
+    format : "xlsx", "csv", "parquet" or "md"; by default from the suffix of `path`.
     inputs : the input files to record with their sha256 checksums (by default the files the
         data were read from; checksums from ``data.report.checksums`` when present).
     options : the options used, recorded in the workbook so the review can be traced.
@@ -504,14 +536,23 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
     accept_single : do not list the units coded by one coder only (see `review_table`); the
         "About this file" sheet names them.
     force : replace an existing output file.
+    progress : called with (step, fraction done) as the steps go.
 
     Returns
     -------
     ReviewSummary
 
+    Raises
+    ------
+    AgreeError
+        "sheet-rows" before any work when an xlsx review would need more rows than a worksheet
+        holds (`SHEET_ROW_LIMIT`, the header included), with the number of rows it would need.
+
     Notes
     -----
-    The xlsx workbook has three sheets: "Review" (the list, with a drop-down of the
+    CSV and Parquet files hold the "Review" list only; every cell is text (CSV cells by the
+    formula rule of `agree.core.cells`; Parquet cells exactly as they are, since no spreadsheet
+    runs them). The xlsx workbook has three sheets: "Review" (the list, with a drop-down of the
     codebook's codes on the decision column and of discussion / adjudicator / majority on
     "how decided"; frozen header and unit column; wrapped text), "Confused pairs" (which
     codes were given to the same unit, with whole-unit counts and a note saying what they
@@ -519,16 +560,21 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
     checksums, date and time, agree version, options, and the number of units read, agreed,
     needing review and left out, with the left-out units named).
     """
+    tick = progress or (lambda step, done: None)
     data = as_coding_data(data)
     require_unit_rows(data, "the review workbook")
     out = Path(path)
     fmt = _infer_format(out, format, REVIEW_FORMATS)
+    status = _status(data)
+    disagreements, single = int(status.needs_review.sum()), int(status.single.sum())
+    if fmt == "xlsx":
+        _check_sheet_rows(status, out, include_agreed=include_agreed, accept_single=accept_single)
     checksums = _input_checksums(data, inputs)
     protected = set(checksums) | set(data.report.files if data.report else ())
     check_output(out, sorted(protected), force=force)
+    tick("review table", 0.1)
     table = review_table(data, include_agreed=include_agreed, accept_single=accept_single)
-    status = _status(data)
-    disagreements, single = int(status.needs_review.sum()), int(status.single.sum())
+    tick(f"writing {out.name}", 0.4)
     summary = ReviewSummary(path=str(out), format=fmt, units_read=data.n_units,
                             agreed=int(status.agreed.sum()),
                             needing_review=disagreements + (0 if accept_single else single),
@@ -541,10 +587,34 @@ def write_review(data: Any, path: str | os.PathLike, *, format: str | None = Non
         writer = lambda tmp: _write_review_xlsx(tmp, data, table, _confused_pairs(data), about)  # noqa: E731
     elif fmt == "csv":
         writer = lambda tmp: _write_csv(tmp, table)  # noqa: E731
+    elif fmt == "parquet":
+        writer = lambda tmp: _write_parquet(tmp, table)  # noqa: E731
     else:
         writer = lambda tmp: _write_markdown(tmp, table, summary)  # noqa: E731
     atomic_write(out, writer)
+    tick("written", 1.0)
     return summary
+
+
+def _check_sheet_rows(status: _Status, out: Path, *, include_agreed: bool, accept_single: bool) -> None:
+    """Refuse an xlsx review that a worksheet cannot hold, saying how many rows it would need
+    and what to write instead."""
+    single = int(status.single.sum())
+    agreed = int(status.agreed.sum())
+    rows = int(status.needs_review.sum()) + (0 if accept_single else single) + (agreed if include_agreed else 0)
+    if rows + 1 <= SHEET_ROW_LIMIT:
+        return
+    narrower = []
+    if include_agreed:
+        narrower.append(f"leave out --include-agreed (include_agreed=False; {agreed:,} agreed units)")
+    if not accept_single and single:
+        narrower.append(f"--accept-single (accept_single=True) to leave out the {single:,} units coded "
+                        "by one coder only")
+    stem = out.with_suffix("").name
+    raise AgreeError(f"the review would need {rows + 1:,} rows (the header included), more than a "
+                     f"worksheet holds ({SHEET_ROW_LIMIT:,})", where=str(out), code="sheet-rows",
+                     hint=f"write it as CSV or Parquet: -o {stem}.csv or -o {stem}.parquet"
+                          + "".join(f", or {n}" for n in narrower))
 
 
 def _about_rows(data: CodingData, summary: ReviewSummary,
@@ -598,6 +668,16 @@ def review_counts(summary: ReviewSummary) -> list[tuple[str, int]]:
 
 def _write_csv(tmp: str, table: pd.DataFrame) -> None:
     Path(tmp).write_bytes(frame_csv(table).encode("utf-8"))
+
+
+def _write_parquet(tmp: str, table: pd.DataFrame) -> None:
+    """Every column as text (an empty cell as an empty string), no index."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    arrays = [pa.array(table.iloc[:, j].to_numpy(), type=pa.string(), from_pandas=True).fill_null("")
+              for j in range(table.shape[1])]
+    pq.write_table(pa.table(arrays, names=[str(c) for c in table.columns]), tmp)
 
 
 def _md_cell(value: Any) -> str:

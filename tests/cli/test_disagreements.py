@@ -11,16 +11,20 @@ import pytest
 from tests.cli.conftest import run_main as run
 
 
-@pytest.mark.parametrize("suffix", ["csv", "md"])
+@pytest.mark.parametrize("suffix", ["csv", "parquet", "md"])
 def test_disagreements_other_formats(tmp_path, data_file, capsys, suffix):
     out = tmp_path / f"review.{suffix}"
     code, _, err = run(capsys, "disagreements", data_file, "-o", out)
     assert code == 0, err
-    text = out.read_text(encoding="utf-8")
-    if suffix == "csv":
+    if suffix == "parquet":
+        import pyarrow.parquet as pq
+
+        assert "=SUM(A1)" in pq.read_table(out).column("unit").to_pylist()
+    elif suffix == "csv":
+        text = out.read_text(encoding="utf-8")
         assert "'=SUM(A1)" in text and "'@here" in text
     else:
-        assert "x\\|y" in text
+        assert "x\\|y" in out.read_text(encoding="utf-8")
     forced = tmp_path / "plain.txt"
     assert run(capsys, "disagreements", data_file, "-o", forced, "--format", suffix)[0] == 0
 
@@ -85,3 +89,14 @@ def test_blank_or_empty_sheets_stop_naming_the_file(tmp_path, capsys):
         code, _, err = run_main(capsys, "disagreements", path, "-o", tmp_path / "review.xlsx")
         assert code == 2 and words in err and path.name in err and "Traceback" not in err
         assert not (tmp_path / "review.xlsx").exists()
+
+
+def test_xlsx_past_the_sheet_row_limit_is_one_line_with_the_alternatives(tmp_path, data_file, capsys,
+                                                                       monkeypatch):
+    import agree.output.reconciliation as rec
+
+    monkeypatch.setattr(rec, "SHEET_ROW_LIMIT", 2)
+    code, _, err = run(capsys, "disagreements", data_file, "-o", tmp_path / "review.xlsx")
+    assert code == 2 and "Traceback" not in err
+    assert "rows (the header included)" in err and "-o review.csv" in err and "-o review.parquet" in err
+    assert not (tmp_path / "review.xlsx").exists()

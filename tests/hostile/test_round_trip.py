@@ -153,6 +153,23 @@ def test_review_and_consensus_xlsx(data):
 
 @SETTINGS
 @given(tables())
+def test_review_parquet(data):
+    """A Parquet review keeps every cell's text exactly (read by pyarrow) and reconcile reads it."""
+    import pyarrow.parquet as pq
+
+    with tempfile.TemporaryDirectory() as tmp:
+        review = Path(tmp) / "review.parquet"
+        expected = review_table(data)
+        write_review(data, review)
+        table = pq.read_table(review)
+        assert table.column_names == list(expected.columns)
+        assert [list(row) for row in zip(*table.to_pydict().values())] == _as_text(expected)
+        consensus = reconcile(data, review, allow_unresolved=True)
+        assert list(consensus.table["unit"]) == [str(u) for u in data.unit_ids]
+
+
+@SETTINGS
+@given(tables())
 def test_review_markdown(data):
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "review.md"

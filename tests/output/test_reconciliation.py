@@ -385,6 +385,45 @@ def test_protection_round_trips(text):
     assert protect_text(text)[:1] not in ("=", "+", "-", "@", "\t", "\r") or text in ("+1",)
 
 
+def test_parquet_review_keeps_text_and_reads_back(tmp_path):
+    import pyarrow.parquet as pq
+
+    data = tricky_data()
+    path = tmp_path / "review.parquet"
+    summary = write_review(data, path)
+    assert summary.format == "parquet" and summary.rows_written == 6
+    frame = pq.read_table(path).to_pandas()
+    # no spreadsheet runs a Parquet cell: text is kept exactly, without the CSV's quote
+    assert set(frame["unit"]) == {"=SUM(A1)", "@here", "+1", "\tpad", "'quoted", "Zürich"}
+    assert (frame["decision"] == "").all()
+    frame["decision"] = frame["unit"].map(
+        {"=SUM(A1)": "mixed", "@here": "=odd", "+1": "neg", "\tpad": "pos", "'quoted": "pos",
+         "Zürich": "mixed"})
+    frame.to_parquet(path, index=False)
+    final = dict(zip(*reconcile(data, path).table[["unit", "final code"]].T.to_numpy()))
+    assert final["@here"] == "=odd" and final["=SUM(A1)"] == "mixed"
+
+
+def test_xlsx_past_the_sheet_row_limit_is_refused_before_writing(tmp_path, monkeypatch):
+    import agree.output.reconciliation as rec
+
+    data = tricky_data()     # 6 units need review (5 disagreements, 1 coded by one coder), 2 agreed
+    monkeypatch.setattr(rec, "SHEET_ROW_LIMIT", 7)
+    assert write_review(data, tmp_path / "fits.xlsx").rows_written == 6       # 6 rows + header = 7
+    with pytest.raises(AgreeError) as err:
+        write_review(data, tmp_path / "review.xlsx", include_agreed=True)
+    assert err.value.code == "sheet-rows"
+    assert "9 rows (the header included)" in err.value.message and "(7)" in err.value.message
+    for alternative in ("-o review.csv", "-o review.parquet", "--include-agreed", "--accept-single"):
+        assert alternative in err.value.hint
+    assert not (tmp_path / "review.xlsx").exists()
+    monkeypatch.setattr(rec, "SHEET_ROW_LIMIT", 5)              # 5 disagreements + header = 6
+    with pytest.raises(AgreeError) as err:
+        write_review(data, tmp_path / "review.xlsx", accept_single=True)
+    assert "--include-agreed" not in err.value.hint and "--accept-single" not in err.value.hint
+    assert write_review(data, tmp_path / "review.csv", include_agreed=True).rows_written == 8
+
+
 def test_markdown_review_escapes_pipes(tmp_path):
     data = tricky_data()
     path = tmp_path / "review.md"
