@@ -338,3 +338,22 @@ def read_segments(path: Path):
                               "(columns document, start, end, optional id)")
     tables, _ = load_tables(path, sheet_option="--segments (a segments file)")
     return tables[0].frame
+
+
+def segment_data(spans: "SpanData", span_reading: dict):
+    """The segments view as set-valued CodingData (`segment_units`), reported on stderr like a
+    sheet; a problem with a listed-segments file names the file."""
+    from agree.analysis.passages import segment_units
+    from agree.cli.options import report_reading
+
+    arguments = segment_arguments(span_reading)
+    try:
+        data = segment_units(spans, **arguments)
+    except AgreeError as exc:
+        if arguments["by"] != "segment" or exc.code != "segments" or exc.where:
+            raise
+        raise AgreeError(exc.message, where=span_reading["segments"], code=exc.code,
+                         hint=exc.hint or "list segments of the compared documents: document, start, end "
+                                          "(end exclusive), in the spans' offsets, not overlapping") from None
+    report_reading(data)
+    return data
