@@ -284,10 +284,11 @@ def alpha_finish(sums: np.ndarray, delta: np.ndarray | None) -> np.ndarray:
 # confusions in whole units
 
 
-def pair_units(x: np.ndarray) -> np.ndarray:
+def pair_units(x: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
     """(C, C) integer counts of the units in which one coder applied code c and not k and
     another coder k and not c; `x` (N, m, C) is the presence of each code (see `presence`),
-    of the units to count. The diagonal is 0.
+    of the units to count, each row standing for `weights` units (whole numbers; default 1).
+    The diagonal is 0.
 
     Notes
     -----
@@ -300,15 +301,17 @@ def pair_units(x: np.ndarray) -> np.ndarray:
     N, m, C = x.shape
     if not N or not C:
         return np.zeros((C, C), dtype=np.int64)
+    w = np.ones(N, dtype=np.int64) if weights is None else np.asarray(weights).astype(np.int64)
     if (x.sum(axis=2) <= 1).all():
         given = x.any(axis=1).astype(np.int64)
-        out = given.T @ given
+        out = given.T @ (given * w[:, None])
     else:
         out = np.zeros((C, C), dtype=np.int64)
         step = max(1, _CHUNK_CELLS // max(1, m * C * C))
         for start in range(0, N, step):  # chunks of units, so that memory stays bounded
             xs = x[start:start + step]
             some = (xs[:, :, :, None] & ~xs[:, :, None, :]).any(axis=1)     # (n, C, C): c and not k
-            out += (some & np.swapaxes(some, 1, 2)).sum(axis=0)
+            out += np.tensordot(w[start:start + step], (some & np.swapaxes(some, 1, 2)).astype(np.int64),
+                                axes=(0, 0))
     np.fill_diagonal(out, 0)
     return out

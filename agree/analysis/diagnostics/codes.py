@@ -2,7 +2,8 @@
 
 The work is done in the sections below, each a small function passing a frozen record:
 
-1. `_Presence`: each code present or absent, per unit and coder;
+1. `_Presence`: each code present or absent, per distinct pattern of codes (or per unit, when
+   groups are resampled) and coder, with how many units each row stands for;
 2. `_agreement`: alpha and specific agreement per code, with intervals from the same resamples;
 3. `_chance`: kappa, percent agreement, prevalence and bias per code;
 4. `_usage`: each coder's use of each code, and the tests of equal use;
@@ -34,7 +35,8 @@ from agree.core.format import format_value, percent_label, signed
 from agree.core.model import CodingData
 from agree.core.results import BootstrapInfo, Note, json_safe, reaches_minimum
 from agree.stats.coefficients import krippendorff_alpha
-from agree.stats.kernels import alpha_from_sums, delta_for, presence
+from agree.stats.kernels import alpha_from_sums, delta_for, membership
+from agree.stats.patterns import compress
 from agree.stats.resampling import PseudoUnits, check_settings
 
 SIGNIFICANCE = 0.05          # Holm-adjusted p below this flags unequal use
@@ -49,36 +51,56 @@ PARADOX_BIAS = 0.1           # |BI| from which bias is named as a cause
 
 @dataclass(frozen=True)
 class _Presence:
-    """Each code present or absent: X (N, m, q) 1 where coder i applied code k to unit u,
-    r (N, q) how many coders applied it, m_u (N,) how many coders coded the unit."""
+    """Each code present or absent, on rows that stand for `w` units each: X (P, m, q) 1 where
+    coder i applied code k, r (P, q) how many coders applied it, m_u (P,) how many coders coded
+    the row's units.
+
+    The rows are the distinct ordered patterns of codes (every statistic here depends on a
+    unit's codes only, and a million units have a few hundred patterns); with groups to resample
+    they are the units themselves (w = 1), since a group is a set of units."""
 
     x: np.ndarray
     r: np.ndarray
     m_u: np.ndarray
     observed: np.ndarray
+    w: np.ndarray
 
     @classmethod
-    def of(cls, data: CodingData) -> "_Presence":
-        x = presence(data)
-        return cls(x, x.sum(axis=1), data.observed.sum(axis=1).astype(float), data.observed)
+    def of(cls, data: CodingData, *, by_unit: bool = False) -> "_Presence":
+        if by_unit:
+            codes, w = data.codes, np.ones(data.n_units, dtype=np.int64)
+        else:
+            patterns = compress(data.codes, len(data.values), ordered=True)
+            codes, w = patterns.codes, patterns.counts
+        x = membership(data)[np.where(codes < 0, len(data.values), codes)]
+        observed = codes >= 0
+        return cls(x, x.sum(axis=1), observed.sum(axis=1).astype(float), observed, w)
 
     @property
     def pairable(self) -> np.ndarray:
         return self.m_u >= 2
 
+    def total(self, values: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+        """Σ over units of per-row `values` (rows first), each row counted w times; with
+        `rows` (a mask), `values` are of those rows only."""
+        w = self.w if rows is None else self.w[rows]
+        return np.tensordot(w.astype(float), values, axes=(0, 0))
+
     def two_by_two(self, a: int, b: int) -> tuple[np.ndarray, ...]:
         """Coders a and b on the units both coded, per code: (both, a only, b only, neither)."""
         both = self.observed[:, a] & self.observed[:, b]
         xa, xb = self.x[both, a, :], self.x[both, b, :]
-        return ((xa * xb).sum(0), (xa * (1 - xb)).sum(0), ((1 - xa) * xb).sum(0),
-                ((1 - xa) * (1 - xb)).sum(0))
+        return (self.total(xa * xb, both), self.total(xa * (1 - xb), both), self.total((1 - xa) * xb, both),
+                self.total((1 - xa) * (1 - xb), both))
 
     def unit_agreement(self) -> np.ndarray:
-        """(N', q) share of agreeing pairs of coders on each code's presence, per pairable unit."""
+        """(q,) mean over pairable units of the share of agreeing pairs of coders on each
+        code's presence."""
         mm = self.m_u[self.pairable, None]
         rr = self.r[self.pairable]
         with np.errstate(divide="ignore", invalid="ignore"):
-            return (rr * (rr - 1) + (mm - rr) * (mm - rr - 1)) / (mm * (mm - 1))
+            per_row = (rr * (rr - 1) + (mm - rr) * (mm - rr - 1)) / (mm * (mm - 1))
+        return self.total(per_row, self.pairable) / self.w[self.pairable].sum()
 
 
 # =========================================================================================
@@ -150,13 +172,13 @@ def _agreement(pres: _Presence, cats: list, *, clusters, cluster_name, **boot) -
     q = len(cats)
     features = _code_features(pres.r, pres.m_u)
     finish = _code_finish(q)
-    point = finish(features.sum(axis=0))
+    point = finish(pres.total(features))
     names = [f"code '{c}', α" for c in cats] + [f"code '{c}', specific agreement" for c in cats]
     # units where the coders split on the code: what each code's interval rests on
-    split = ((pres.r > 0) & (pres.r < pres.m_u[:, None]))[pres.pairable].sum(axis=0)
+    split = pres.total(((pres.r > 0) & (pres.r < pres.m_u[:, None]))[pres.pairable], pres.pairable)
     iv = bootstrap_intervals(point, features, finish, clusters=clusters, cluster_name=cluster_name,
                              labels=names, pseudo=_pseudo_units(q, pres.m_u), disagreeing=np.tile(split, 2),
-                             n_units=float(pres.pairable.sum()), **boot)
+                             n_units=float(pres.w[pres.pairable].sum()), weights=pres.w, **boot)
     return _Agreement(alpha=point[:q], alpha_low=iv.low[:q], alpha_high=iv.high[:q],
                       lower_bound=iv.lower_bound[:q], p_value_min=iv.p_value_min[:q],
                       specific=point[q:], specific_low=iv.low[q:], specific_high=iv.high[q:],
@@ -183,8 +205,8 @@ def _fleiss_binary(pres: _Presence) -> np.ndarray:
     any_ = m_u >= 1
     q = r.shape[1]
     with np.errstate(divide="ignore", invalid="ignore"):
-        p_bar = pres.unit_agreement().mean(axis=0) if pres.pairable.any() else np.full(q, np.nan)
-        pi = (r[any_] / m_u[any_, None]).mean(axis=0) if any_.any() else np.full(q, np.nan)
+        p_bar = pres.unit_agreement() if pres.pairable.any() else np.full(q, np.nan)
+        pi = pres.total(r[any_] / m_u[any_, None], any_) / pres.w[any_].sum() if any_.any() else np.full(q, np.nan)
         p_e = pi ** 2 + (1 - pi) ** 2
         return np.where(p_e < 1, (p_bar - p_e) / (1 - p_e), np.nan)
 
@@ -209,9 +231,9 @@ class _Chance:
 def _chance(pres: _Presence, m: int) -> _Chance:
     pairable = pres.pairable
     q = pres.r.shape[1]
-    n = float(pres.m_u[pairable].sum())
-    n_k = pres.r[pairable].sum(axis=0)
-    n_pairable_units = int(pairable.sum())
+    n = float(pres.total(pres.m_u[pairable], pairable))
+    n_k = pres.total(pres.r[pairable], pairable)
+    n_pairable_units = int(pres.w[pairable].sum())
     b = c = None
     if m == 2:
         a, b, c, d = pres.two_by_two(0, 1)
@@ -229,9 +251,9 @@ def _chance(pres: _Presence, m: int) -> _Chance:
                 parts.append(np.abs(b_ - c_) / np.where(tot > 0, tot, np.nan))
         bias = np.nanmean(np.vstack(parts), axis=0) if parts else np.full(q, np.nan)
     return _Chance(kappa=kappa, kappa_method=method,
-                   percent=pres.unit_agreement().mean(axis=0) if n_pairable_units else np.full(q, np.nan),
+                   percent=pres.unit_agreement() if n_pairable_units else np.full(q, np.nan),
                    prevalence=2.0 * n_k / n - 1.0 if n > 0 else np.full(q, np.nan), bias=bias,
-                   n_k=n_k, n=n, units_with=(pres.r[pairable] > 0).sum(axis=0),
+                   n_k=n_k, n=n, units_with=pres.w[pairable] @ (pres.r[pairable] > 0),
                    n_pairable_units=n_pairable_units, one_only=b, other_only=c)
 
 
@@ -296,13 +318,13 @@ def _pair_tests(pres: _Presence, clusters: np.ndarray | None) -> _PairTests:
         xi, xj = pres.x[both, i, :], pres.x[both, j, :]
         first, second = xi * (1 - xj), (1 - xi) * xj
         if clusters is None:
-            st, pv, tt = mcnemar(first.sum(0), second.sum(0))
-        else:
+            st, pv, tt = mcnemar(pres.total(first, both), pres.total(second, both))
+        else:   # rows are units here
             st, pv, tt = clustered_mcnemar(first, second, clusters[both])
         stat[i, j] = stat[j, i] = st
         p[i, j] = p[j, i] = pv
         test[i, j] = test[j, i] = np.array(tt, dtype=object)
-        diff[i, j] = first.sum(0) - second.sum(0)
+        diff[i, j] = pres.total(first, both) - pres.total(second, both)
         diff[j, i] = -diff[i, j]
     upper = np.array([p[i, j] for i, j in pairs]) if pairs else np.zeros((0, q))
     adjusted = holm(upper.ravel()).reshape(upper.shape)
@@ -334,7 +356,7 @@ def _usage(pres: _Presence, chance: _Chance, n_units: int, clusters: np.ndarray 
     on the units every coder coded (more), Holm over codes; with units nested in groups the
     pairwise tests are McNemar's for clustered pairs (Durkalski et al. 2003) and Cochran's Q
     is not run (it assumes independent units)."""
-    shares = CoderShares.of(pres.x, pres.observed)
+    shares = CoderShares.of(pres.x, pres.observed, weights=pres.w)
     m, q = shares.uses.shape
     notes: list[Note] = []
     pairs = _pair_tests(pres, clusters)
@@ -356,17 +378,18 @@ def _usage(pres: _Presence, chance: _Chance, n_units: int, clusters: np.ndarray 
         code_test, code_stat = [None] * q, np.full(q, np.nan)
         code_df, code_p = np.full(q, np.nan), np.full(q, np.nan)
         complete = pres.observed.all(axis=1)
+        n_complete = int(pres.w[complete].sum())
         if clusters is not None:
             notes.append(Note("cochran-clustered", "Cochran's Q assumes independent units and the units are "
                               "nested in groups, so it was not run; each coder is compared with every other "
                               "by McNemar's test for clustered pairs (Durkalski et al. 2003)."))
-        elif complete.sum() >= 2:
-            code_stat, code_p = cochran_q(pres.x[complete])
+        elif n_complete >= 2:
+            code_stat, code_p = cochran_q(pres.x[complete], weights=pres.w[complete])
             code_test = ["cochran q"] * q
             code_df = np.full(q, float(m - 1))
-            if complete.sum() < n_units:
-                notes.append(Note("cochran-complete-units", f"Cochran's Q uses the {int(complete.sum())} "
-                                  f"units every coder coded ({n_units - int(complete.sum())} left out)."))
+            if n_complete < n_units:
+                notes.append(Note("cochran-complete-units", f"Cochran's Q uses the {n_complete} "
+                                  f"units every coder coded ({n_units - n_complete} left out)."))
         else:
             notes.append(Note("cochran-not-run", "Cochran's Q needs units coded by every coder; "
                               "there are fewer than two."))
@@ -747,13 +770,13 @@ def diagnose_codes(data: Any, *, minimum: float | None = DEFAULT_MINIMUM, n_resa
     clusters, cluster_name = cluster_labels(data, cluster)
     cats = list(data.categories)
     coders = tuple(data.coders)
-    pres = _Presence.of(data)
+    pres = _Presence.of(data, by_unit=clusters is not None)
 
     agree = _agreement(pres, cats, clusters=clusters, cluster_name=cluster_name, n_resamples=n_resamples,
                        seed=seed, confidence_level=confidence_level, ci_method=ci_method, minimum=minimum)
     chance = _chance(pres, data.n_coders)
     use = _usage(pres, chance, data.n_units, clusters)
-    conf = confused_pairs(data, pres.x, pres.m_u, pres.r, distance)
+    conf = confused_pairs(data, pres.x, pres.m_u, pres.r, distance, weights=pres.w)
     top = _top_confusion(conf, chance.n_k, data.set_valued)
 
     rules = _Rules(minimum=minimum, min_units=min_units_per_code, confidence_level=confidence_level,

@@ -73,10 +73,15 @@ class CoderShares:
         return self.units_coded.sum() - self.units_coded
 
     @classmethod
-    def of(cls, x: np.ndarray, observed: np.ndarray) -> "CoderShares":
-        """From presence X (N, m, q) and the (N, m) mask of coded cells."""
-        uses = x.sum(axis=0)
-        units = observed.sum(axis=0).astype(float)
+    def of(cls, x: np.ndarray, observed: np.ndarray, weights: np.ndarray | None = None) -> "CoderShares":
+        """From presence X (N, m, q) and the (N, m) mask of coded cells, rows standing for
+        `weights` units each (default 1)."""
+        if weights is None:
+            uses = x.sum(axis=0)
+            units = observed.sum(axis=0).astype(float)
+        else:
+            uses = np.tensordot(weights.astype(float), x, axes=(0, 0))
+            units = weights.astype(float) @ observed
         m = len(units)
         with np.errstate(divide="ignore", invalid="ignore"):
             share = uses / units[:, None]
@@ -109,12 +114,15 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
                         clusters: np.ndarray | None = None, inverse: np.ndarray | None = None,
                         cluster_name: str | None = None, labels: Sequence[str] | None = None,
                         pseudo: PseudoUnits | None = None, disagreeing: np.ndarray | None = None,
-                        n_units: float | None = None) -> Intervals:
+                        n_units: float | None = None, weights: np.ndarray | None = None) -> Intervals:
     """Intervals for several statistics from the same unit (or cluster) resamples.
 
     Items are the distinct rows of `features` (units with the same features resample alike),
     or, with `counts`, the rows of `features` are already distinct patterns occurring
-    `counts` times. With `clusters` (one label per unit) the items are the clusters: the
+    `counts` times; with `weights`, each row of `features` stands for that many units (rows with
+    the same features are merged all the same, so the items and counts, and with them the
+    resamples, are those of the units the rows stand for). With `clusters` (one label per unit,
+    rows being units) the items are the clusters: the
     features of their units summed, each drawn whole; the rows of `features` are then units, or
     patterns when `inverse` gives the pattern of each unit. `pseudo` says which units a
     pseudo-unit may be (needed by the default method, "pseudo-unit"; with clusters it stands
@@ -141,8 +149,11 @@ def bootstrap_intervals(estimates: np.ndarray, features: np.ndarray, finish: Cal
             notes.append(Note("few-clusters", f"Only {n_items} clusters ({cluster_name or 'cluster'}) were "
                               "resampled; bootstrap intervals from fewer than "
                               f"{FEW_CLUSTERS} groups are rough."))
-    elif counts is None:
+    elif counts is None and weights is None:
         items, counts = np.unique(features, axis=0, return_counts=True)
+    elif counts is None:
+        items, inverse = np.unique(features, axis=0, return_inverse=True)
+        counts = np.rint(np.bincount(inverse.ravel(), weights=weights, minlength=len(items))).astype(np.int64)
     else:
         items = features
     bounds = resample(items, counts, finish, method=ci_method, n_resamples=n_resamples,

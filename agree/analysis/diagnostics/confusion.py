@@ -28,16 +28,19 @@ PAIR_COLUMNS = ["code_a", "code_b", "count", "units", "share", "expected", "o_ov
                 "b_to_a", "alpha_if_merged", "delta_alpha"]
 
 
-def set_confusion(x: np.ndarray, m_u: np.ndarray) -> np.ndarray:
+def set_confusion(x: np.ndarray, m_u: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
     """Set-valued confusions (q, q): Σ_u |c¬k|_u |k¬c|_u / (m_u - 1) over pairable units,
     where |c¬k|_u counts the coders of unit u who applied c and not k. On the diagonal,
-    the presence coincidences o_kk = Σ_u r_uk (r_uk - 1) / (m_u - 1)."""
+    the presence coincidences o_kk = Σ_u r_uk (r_uk - 1) / (m_u - 1). Rows of `x` stand for
+    `weights` units each (default 1)."""
     ok = m_u >= 2
     xs = x[ok]
     r = xs.sum(axis=1)
     both = np.einsum("uic,uik->uck", xs, xs)
     only = r[:, :, None] - both                              # coders with c and not k
     weight = 1.0 / (m_u[ok] - 1.0)
+    if weights is not None:
+        weight = weight * np.asarray(weights, dtype=float)[ok]
     conf = np.einsum("u,uck,ukc->ck", weight, only, only)
     np.fill_diagonal(conf, (weight[:, None] * r * (r - 1)).sum(axis=0))
     return conf
@@ -134,20 +137,21 @@ class Confusions:
 
 
 def confused_pairs(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarray,
-                   distance: str | None = None) -> Confusions:
+                   distance: str | None = None, weights: np.ndarray | None = None) -> Confusions:
     """The confusions between codes, from presence X (N, m, q), values per unit m_u and
-    presence counts r (N, q)."""
+    presence counts r (N, q), rows standing for `weights` units each (default: one unit each)."""
     distance = distance or DEFAULT_SET_DISTANCE
     cats = list(data.categories)
     pairable = m_u >= 2
+    w = np.ones(len(m_u)) if weights is None else np.asarray(weights, dtype=float)
     if data.set_valued:
-        conf = set_confusion(x, m_u)
+        conf = set_confusion(x, m_u, w)
         values = list(data.values)
         o_values = coincidences(value_counts(data.codes, len(values)))
         overall = float(alpha_from_coincidence(o_values, delta_for(distance, values=values)))
         both = np.einsum("uic,uik->uck", x[pairable], x[pairable])
-        n_only = (r[pairable][:, :, None] - both).sum(axis=0)     # values with c and not k
-        n = float(m_u[pairable].sum())
+        n_only = np.tensordot(w[pairable], r[pairable][:, :, None] - both, axes=(0, 0))  # values with c and not k
+        n = float(w[pairable] @ m_u[pairable])
         total = np.triu(conf, 1).sum()
         share = conf / total if total > 0 else np.full(conf.shape, np.nan)
         expected = n_only * n_only.T / (n - 1) if n > 1 else np.full(conf.shape, np.nan)
@@ -162,7 +166,7 @@ def confused_pairs(data: CodingData, x: np.ndarray, m_u: np.ndarray, r: np.ndarr
         expected = np.outer(n_c, n_c) / (n - 1) if n > 1 else np.full(conf.shape, np.nan)
     directed = directed_table(data, 0, 1) if data.n_coders == 2 else None
     pair_c, pair_k = np.nonzero(np.triu(conf, 1) > 0)
-    units = pair_units(x[pairable])[pair_c, pair_k]
+    units = pair_units(x[pairable], weights=None if weights is None else weights[pairable])[pair_c, pair_k]
     rows = []
     for c, k, n_units in zip(pair_c, pair_k, units.tolist()):  # a loop over confused pairs of codes
         e = expected[c, k]

@@ -91,14 +91,16 @@ def clustered_mcnemar(first_only: np.ndarray, second_only: np.ndarray,
     return stat, p, ["clustered mcnemar"] * diff.shape[1]
 
 
-def cochran_q(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Cochran's Q per code from X (N, m, q) of complete units; p = 1 where no unit splits."""
+def cochran_q(x: np.ndarray, weights: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Cochran's Q per code from X (N, m, q) of complete units (rows standing for `weights`
+    units each, default 1); p = 1 where no unit splits."""
     m = x.shape[1]
-    col = x.sum(axis=0)                       # (m, q)
+    w = np.ones(x.shape[0]) if weights is None else np.asarray(weights, dtype=float)
+    col = np.tensordot(w, x, axes=(0, 0))     # (m, q)
     row = x.sum(axis=1)                       # (N, q)
     total = col.sum(axis=0)
     num = (m - 1) * (m * (col ** 2).sum(axis=0) - total ** 2)
-    den = m * total - (row ** 2).sum(axis=0)
+    den = m * total - w @ (row ** 2)
     with np.errstate(divide="ignore", invalid="ignore"):
         q = np.where(den > 0, num / den, 0.0)
     p = np.where(den > 0, stats.chi2.sf(q, m - 1), 1.0)
