@@ -582,9 +582,10 @@ def _bca_tail(level: np.ndarray, z0: np.ndarray, accel: np.ndarray) -> np.ndarra
         y = norm_ppf(level) - z0
         z = y / (1 + accel * y) - z0
         tail = norm_cdf(np.where(np.isfinite(z), z, 0.0))
-    tail = np.where(np.isfinite(z), tail, np.where(z > 0, 1.0, 0.0))
-    # beyond 1 + a y = 0 the mapping folds back: the level is at its limit on that side
-    tail = np.where(1 + accel * y <= 0, np.where(y > 0, 1.0, 0.0), tail)
+        tail = np.where(np.isfinite(z), tail, np.where(z > 0, 1.0, 0.0))
+        # beyond 1 + a y = 0 the mapping folds back: the level is at its limit on that side
+        # (a y is NaN where a = 0 and y is infinite: no fold there)
+        tail = np.where(1 + accel * y <= 0, np.where(y > 0, 1.0, 0.0), tail)
     return np.where(level <= 0, 0.0, np.where(level >= 1, 1.0, tail))
 
 

@@ -369,3 +369,15 @@ def test_conger_with_missing_values_works_or_refuses_clearly(rotating):
     else:
         assert result.defined
         assert -1.0 <= result.estimate <= 1.0
+
+
+def test_bca_tail_at_the_ends_gives_no_numpy_warning():
+    """The level of a minimum below or above every replicate is 0 or 1 (y = ∓inf); with no
+    acceleration a·y is 0·inf, which must not leak a RuntimeWarning to the user."""
+    import warnings
+
+    from agree.stats.resampling import _bca_tail
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        tail = _bca_tail(np.array([0.0, 1.0, 0.5]), np.zeros(3), np.zeros(3))
+    assert tail.tolist() == [0.0, 1.0, 0.5]
