@@ -50,7 +50,7 @@ import pandas as pd
 from scipy import optimize, stats
 
 from agree.core.constants import CI_METHODS, DEFAULT_CI_METHOD, DEFAULT_CONFIDENCE, DEFAULT_MINIMUM, DEFAULT_RESAMPLES
-from agree.core.format import decision_sentence, percent_label  # noqa: F401 (decision_sentence: part of the planning API)
+from agree.core.format import decision_sentence, format_value, percent_label  # noqa: F401 (decision_sentence: part of the planning API)
 from agree.core.model import AgreeError, as_coding_data, value_label
 from agree.core.results import Note, json_safe, reaches_minimum
 from agree.core.seeds import resolve_seed
@@ -213,19 +213,19 @@ class Plan:
 
         wanted = self.inputs.get("assurance")
         minimum = self.inputs.get("minimum")
-        target = (f"the lower bound of α clears {format_value(minimum, 'number', 3)}"
+        target = (f"the lower bound of α clears {format_value(minimum, 'threshold')}"
                   if minimum is not None else "the lower bound clears the minimum")
         if wanted is not None:
-            target += f" with probability {format_value(wanted, 'number', 2)}"
+            target += f" with probability {format_value(wanted, 'probability')}"
         if self.units_needed is None:
             head = f"Plan: no simulated sample size was enough for {target}."
         else:
             at = ("" if self.assurance_at_units_needed is None else
-                  f" (assurance there {format_value(self.assurance_at_units_needed, 'number', 3)})")
+                  f" (assurance there {format_value(self.assurance_at_units_needed, 'probability')})")
             span = ("" if self.units_range is None else
-                    f"; Monte Carlo range {self.units_range[0]} to {self.units_range[1]}")
-            head = f"Plan: {self.units_needed} units coded by every coder so that {target}{at}{span}."
-        return (f"{head} {self.replicates} simulated studies per size near the answer, {self.n_resamples} "
+                    f"; Monte Carlo range {self.units_range[0]:,} to {self.units_range[1]:,}")
+            head = f"Plan: {self.units_needed:,} units coded by every coder so that {target}{at}{span}."
+        return (f"{head} {self.replicates:,} simulated studies per size near the answer, {self.n_resamples:,} "
                 f"draws each, seed {self.seed}.")
 
     def to_dict(self) -> dict[str, Any]:
@@ -717,7 +717,7 @@ def _closed_forms(shares: np.ndarray, n_coders: int, level: str, expected: float
         source="Krippendorff (2004; 2013), Content Analysis: An Introduction to Its Methodology, "
                "Sage; formula as given in Krippendorff (2004)",
         assumptions=(f"{_coders_caveat(n_coders)}; binary view of the rarest category (share "
-                     f"{shares.min():.3f}); one-sided significance {eps:.3g}; implicit true alpha "
+                     f"{format_value(shares.min(), 'probability')}); one-sided significance {format_value(eps, 'probability')}; implicit true alpha "
                      "(1 + min)/2; ignores the expected alpha and the assurance. Whether N counts "
                      "units or values is not settled here: it is treated as units, which is "
                      "conservative.")))
@@ -728,9 +728,9 @@ def _closed_forms(shares: np.ndarray, n_coders: int, level: str, expected: float
             name="Donner-Eliasziw (kappa, 2 coders, 2 categories)",
             units=int(math.ceil(nd)) if math.isfinite(nd) else None,
             source="Donner & Eliasziw (1992), Statistics in Medicine 11, 1511-1519",
-            assumptions=(f"Assumes two coders; intraclass kappa, common prevalence {shares[0]:.3f}; "
-                         f"goodness-of-fit test of kappa = {minimum:.3f} against {expected:.3f}, "
-                         f"one-sided at {eps:.3g} with power {assurance:.2f} (power stands in for "
+            assumptions=(f"Assumes two coders; intraclass kappa, common prevalence {format_value(shares[0], 'probability')}; "
+                         f"goodness-of-fit test of kappa = {format_value(minimum, 'threshold')} against {format_value(expected)}, "
+                         f"one-sided at {format_value(eps, 'probability')} with power {format_value(assurance, 'probability')} (power stands in for "
                          "the assurance); no missing values.")))
     return tuple(forms)
 
@@ -915,7 +915,7 @@ def plan_sample(*, coders: int, expected: float, minimum: float = DEFAULT_MINIMU
     notes = []
     if expected - minimum < 0.05:
         notes.append(Note("plan-close-to-minimum",
-                          f"The expected alpha ({expected:.3f}) is close to the minimum ({minimum:.3f}): "
+                          f"The expected alpha ({format_value(expected)}) is close to the minimum ({format_value(minimum, 'threshold')}): "
                           "the sample size is very sensitive to the expected value; plan for a "
                           "slightly lower expectation too."))
     return _plan(model, population_alpha, expected=expected, minimum=minimum, level=level,
@@ -947,7 +947,7 @@ def _plan(model: SimulationModel, population_alpha: float, *, expected: float, m
     raw = hits / totals
     if cross.fitted:
         smoothing = ("binomial probit fit of the assurance against sqrt(units), Φ(a + b·sqrt(N)), over all "
-                     "simulated sample sizes (sizes beyond the first with assurance of .99 or more were not "
+                     "simulated sample sizes (sizes beyond the first with assurance of .990 or more were not "
                      "simulated)")
     else:
         smoothing = ("isotonic (non-decreasing) regression of the assurance, interpolated in log N "
@@ -959,8 +959,8 @@ def _plan(model: SimulationModel, population_alpha: float, *, expected: float, m
     if cross.at is None or (raw[-1] < assurance and cross.at >= units[-1]):
         best = float(np.max(raw))
         notes.append(Note("plan-beyond-range",
-                          f"Even {max_units} units do not reach the wanted assurance (simulated assurance "
-                          f"{best:.3f} at most). Raise the expected agreement (codebook, training), reconsider "
+                          f"Even {max_units:,} units do not reach the wanted assurance (simulated assurance "
+                          f"{format_value(best, 'probability')} at most). Raise the expected agreement (codebook, training), reconsider "
                           "the minimum, or search further with --max-units (max_units=...)."))
     else:
         units_needed = int(max(min_units, math.ceil(cross.at - 1e-9)))
@@ -992,7 +992,7 @@ def _plan(model: SimulationModel, population_alpha: float, *, expected: float, m
     rarest = float(np.mean(model.shares, axis=0).min())
     if rarest < 0.05:
         notes.append(Note("plan-rare-category",
-                          f"The rarest category has a share of {rarest:.3f}: rare codes need "
+                          f"The rarest category has a share of {format_value(rarest, 'probability')}: rare codes need "
                           "many units, and bounds for them rest on few disagreeing units."))
     undefined = max((u for *_, u in studies.hits.values()), default=0.0)
     if undefined > 0.01:
@@ -1007,8 +1007,8 @@ def _plan(model: SimulationModel, population_alpha: float, *, expected: float, m
         f"Lower bound: what agree score computes, the one-sided {percent_label(confidence_level)} lower bound of "
         f"{level} Krippendorff's alpha by the {CI_METHODS[ci_method]} (B = {n_resamples:,} draws per study), "
         f"which clears the minimum when strictly above it; assurance = share of simulated studies whose bound "
-        f"clears {minimum:.3f}. R = {first_blocks * block_size} studies per size"
-        + (f", grown to {grown} at the sizes near the answer" if grown > first_blocks * block_size else "")
+        f"clears {format_value(minimum, 'threshold')}. R = {first_blocks * block_size:,} studies per size"
+        + (f", grown to {grown:,} at the sizes near the answer" if grown > first_blocks * block_size else "")
         + ("" if units_needed is None else
            f"; the answer's 95% Monte Carlo range (jackknife over {len(studies.blocks)} independent blocks of "
            f"studies) was to be within ± {percent_label(tolerance, 0)} of it")
@@ -1040,12 +1040,12 @@ def _plan(model: SimulationModel, population_alpha: float, *, expected: float, m
 
 def _model_sentence(model: SimulationModel, expected: float, population_alpha: float,
                     pilot: PilotEstimate | None) -> str:
-    shares = ", ".join(f"{s:.3g}" for s in np.mean(model.shares, axis=0))
+    shares = ", ".join(format_value(s, "probability") for s in np.mean(model.shares, axis=0))
     m = model.n_coders
     q = model.q
     if pilot is not None:
         head = (f"Simulated coders: for each study the category shares and alpha are one of {pilot.draws} draws "
-                f"from the pilot's posterior (mean shares {shares}; mean alpha {expected:.3f})")
+                f"from the pilot's posterior (mean shares {shares}; mean alpha {format_value(expected)})")
         if model.level == "nominal":
             text = (head + f"; each unit has a true category drawn with the study's shares, and each of the {m} "
                     "coders reports it with probability θ = sqrt(alpha) and otherwise a category drawn from "
@@ -1055,17 +1055,17 @@ def _model_sentence(model: SimulationModel, expected: float, population_alpha: f
                     "at the study's shares, with the intraclass correlation that gives the study's alpha")
     elif model.level == "nominal":
         text = (f"Simulated coders: each unit has a true category drawn with shares ({shares}); each of "
-                f"the {m} coders independently reports it with probability θ = sqrt({expected:.3f}) = "
-                f"{float(model.theta[0]):.3f} and otherwise a category drawn from the same shares")
+                f"the {m} coders independently reports it with probability θ = sqrt({format_value(expected)}) = "
+                f"{format_value(model.theta[0], 'probability')} and otherwise a category drawn from the same shares")
     else:
         text = (f"Simulated coders: each of the {m} coders sees a latent normal score with intraclass "
-                f"correlation {float(model.rho[0]):.3f} between coders, cut into the {q} ordered "
+                f"correlation {format_value(model.rho[0])} between coders, cut into the {q} ordered "
                 f"categories at thresholds matching the shares ({shares}); the correlation was chosen "
                 f"so that {model.level} alpha of the categories (scored 1..{q}) "
                 f"equals the expected value")
     if model.missing > 0:
-        text += f"; each value is missing completely at random with probability {model.missing:.3g}"
-    return text + f". Population alpha of this model: {population_alpha:.3f}."
+        text += f"; each value is missing completely at random with probability {format_value(model.missing, 'probability')}"
+    return text + f". Population alpha of this model: {format_value(population_alpha)}."
 
 
 # ---------------------------------------------------------------------------------------
@@ -1150,17 +1150,17 @@ def plan_from_pilot(pilot: Any, *, minimum: float = DEFAULT_MINIMUM, level: str 
     model, population_alpha = build_model(est.level, share_draws, int(coders), np.clip(alphas, 0.01, 0.995),
                                           missing)
     notes = [Note("plan-pilot", f"Estimated from the pilot ({est.units} units, {est.coders} coders): {est.level} "
-                  f"alpha {est.alpha:.3f} ({percent_label(confidence_level)} interval {est.alpha_interval[0]:.3f} to "
-                  f"{est.alpha_interval[1]:.3f}), category shares "
-                  + ", ".join(f"{c} {s:.2f}" for c, s in zip(est.categories, est.shares))
+                  f"alpha {format_value(est.alpha)} ({percent_label(confidence_level)} interval "
+                  f"{format_value(est.alpha_interval[0])} to {format_value(est.alpha_interval[1])}), category shares "
+                  + ", ".join(f"{c} {format_value(s, 'probability')}" for c, s in zip(est.categories, est.shares))
                   + f", missing {percent_label(est.missing, 1)}. Each simulated study draws its shares and alpha "
                   f"from the pilot's posterior ({est.method}, {est.draws} draws).")]
     ceiling = 1 - est.p_value_min
     if ceiling < assurance + 0.02:
         notes.append(Note("plan-pilot-ceiling",
                           f"The pilot leaves a {percent_label(est.p_value_min, 0)} chance that alpha is at or below "
-                          f"the minimum {minimum:.3f}; however many units are coded, the assurance cannot exceed about "
-                          f"{ceiling:.2f}. Improve the codebook or training and run another pilot first."))
+                          f"the minimum {format_value(minimum, 'threshold')}; however many units are coded, the assurance "
+                          f"cannot exceed about {format_value(ceiling, 'probability')}. Improve the codebook or training and run another pilot first."))
     if ci_method != "pseudo-unit":
         notes.append(Note("plan-pilot-method", "The pilot's posterior draws come from the Bayesian bootstrap with a "
                           "least-favourable pseudo-unit, whatever the interval method simulated."))

@@ -119,18 +119,24 @@ def _codes_table(result: "CodeDiagnostics", frame, title: str, level: str, *, re
     table = (Table(title=title) if reasons else
              Table(title=title, box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, collapse_padding=True))
     table.add_column("#", justify="right", no_wrap=True)
-    table.add_column("code", min_width=_word_width(frame["code"]), overflow="fold")
-    table.add_column("status", min_width=9)
+    # without reasons the table is for a narrow terminal: words columns at their longest word, so
+    # that the numbers keep their room (rich would otherwise crop the last number column)
+    code_width = _word_width(frame["code"])
+    table.add_column("code", min_width=code_width, max_width=None if reasons else code_width, overflow="fold")
+    table.add_column("status", min_width=9, max_width=None if reasons else 9)
     kappa = "Cohen's κ" if len(result.coders) == 2 else "Fleiss' κ"
-    for name in ["α", level, "bound†", "specific agreement", kappa]:
-        table.add_column(name, justify="right", no_wrap=name == level)   # headers may wrap, numbers cannot
+    rows = [[str(row.rank), str(row.code), row.status, coefficient(row.alpha),
+             format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound, result.minimum),
+             coefficient(row.specific_agreement), coefficient(row.kappa), row.reason]
+            for row in frame.itertuples(index=False)]
+    for j, name in enumerate(["α", level, "bound†", "specific agreement", kappa], start=3):
+        # headers may wrap, numbers are never wrapped or cut (".42" for .423 would misreport it)
+        table.add_column(name, justify="right", no_wrap=name == level,
+                         min_width=max((len(r[j]) for r in rows), default=1))
     if reasons:
         table.add_column("reason", ratio=1, min_width=20)
-    for row in frame.itertuples(index=False):
-        cells = [str(row.rank), str(row.code), row.status, coefficient(row.alpha),
-                 format_interval(row.ci_low, row.ci_high, DIGITS), format_bound(row.lower_bound, result.minimum),
-                 coefficient(row.specific_agreement), coefficient(row.kappa)]
-        table.add_row(*cells, *([row.reason] if reasons else []))
+    for cells in rows:
+        table.add_row(*cells[:8], *(cells[8:] if reasons else []))
     return table
 
 

@@ -158,32 +158,34 @@ def plan(
         print_plan(result)
 
 
-def _num(x: float, digits: int = 3) -> str:
-    return f"{x:.{digits}f}"
-
-
 def print_plan(p: "Plan") -> None:
     i = p.inputs
-    shares = ", ".join(f"{s:.3g}" for s in i["shares"])
+    from agree.core.format import format_value
+
+    def share(x: float) -> str:
+        return format_value(x, "probability")
+
+    shares = ", ".join(share(s) for s in i["shares"])
     if p.units_needed is None:
-        head = f"More than {i['max_units']} units would be needed (see the warnings)."
+        head = f"More than {i['max_units']:,} units would be needed (see the warnings)."
     else:
-        expect = (f"if the coders agree as in the pilot (alpha {_num(p.pilot.alpha)}, with its uncertainty)"
-                  if p.pilot is not None else f"if the coders reach alpha = {_num(i['expected'])}")
+        expect = (f"if the coders agree as in the pilot (alpha {format_value(p.pilot.alpha)}, with its uncertainty)"
+                  if p.pilot is not None else f"if the coders reach alpha = {format_value(i['expected'])}")
         span = ("" if p.units_range is None else
-                f" Monte Carlo range {p.units_range[0]} to {p.units_range[1]} units (95%; another seed would "
+                f" Monte Carlo range {p.units_range[0]:,} to {p.units_range[1]:,} units (95%; another seed would "
                 "land within it).")
-        head = (f"Units needed: {p.units_needed}, each coded by every coder. With them the one-sided "
+        head = (f"Units needed: {p.units_needed:,}, each coded by every coder. With them the one-sided "
                 f"{percent(i['confidence_level'], None)} lower bound of {i['level']} alpha exceeds "
-                f"{_num(i['minimum'])} with probability {percent(i['assurance'], None)}, {expect}.{span}")
+                f"{format_value(i['minimum'], 'threshold')} with probability {percent(i['assurance'], None)}, {expect}.{span}")
     stdout.print(head, highlight=False)
     if p.pilot is not None:
         e = p.pilot
-        stdout.print(Text(f"Pilot: {e.units} units, {e.coders} coders; {e.level} alpha {_num(e.alpha)} "
-                          f"({percent(i['confidence_level'], None)} interval {_num(e.alpha_interval[0])} to "
-                          f"{_num(e.alpha_interval[1])}); P(alpha ≤ {_num(i['minimum'])}) = {_num(e.p_value_min)} "
+        stdout.print(Text(f"Pilot: {e.units} units, {e.coders} coders; {e.level} alpha {format_value(e.alpha)} "
+                          f"({percent(i['confidence_level'], None)} interval {format_value(e.alpha_interval[0])} to "
+                          f"{format_value(e.alpha_interval[1])}); P(alpha ≤ {format_value(i['minimum'], 'threshold')}) "
+                          f"= {share(e.p_value_min)} "
                           f"under its posterior; shares "
-                          + ", ".join(f"{c} {s:.2f}" for c, s in zip(e.categories, e.shares))
+                          + ", ".join(f"{c} {share(s)}" for c, s in zip(e.categories, e.shares))
                           + f"; missing {percent(e.missing, 1)}. The plan is for a new round: the pilot's units "
                           "are not counted."))
     stdout.print(f"Inputs: {i['coders']} coders; {i['categories']} categories with shares {shares}; "
@@ -199,7 +201,7 @@ def print_plan(p: "Plan") -> None:
     table.add_column("Studies", justify="right")
     table.add_column("No disagreement", justify="right")
     for pt in p.curve:
-        table.add_row(str(pt.units), _num(pt.assurance), _num(pt.mc_error), _num(pt.smoothed), str(pt.studies),
+        table.add_row(f"{pt.units:,}", share(pt.assurance), share(pt.mc_error), share(pt.smoothed), f"{pt.studies:,}",
                       percent(pt.no_disagreement))
     stdout.print(table)
     forms = Table(title="Closed forms (context; different assumptions)", title_justify="left")
@@ -207,15 +209,15 @@ def print_plan(p: "Plan") -> None:
     forms.add_column("Units", justify="right")
     forms.add_column("Source and assumptions")
     for c in p.closed_forms:
-        forms.add_row(Text(c.name), "–" if c.units is None else str(c.units),
+        forms.add_row(Text(c.name), "–" if c.units is None else f"{c.units:,}",
                       Text(f"{c.source}. {c.assumptions}"))
     stdout.print(forms)
     for r in p.rules_of_thumb:
         units = ""
         if r.units_high is not None:
-            units = f" (here {r.units} to {r.units_high} units)"
+            units = f" (here {r.units:,} to {r.units_high:,} units)"
         elif r.units is not None:
-            units = f" (here at least {r.units} units)"
+            units = f" (here at least {r.units:,} units)"
         stdout.print(Text(f"Rule of thumb, {r.name}: {r.rule}{units}. {r.note}"))
     for w in p.warnings:
         note(f"warning [{w.code}]: {w.message}")

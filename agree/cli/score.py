@@ -303,6 +303,6 @@ def print_score(result: "ScoreResult") -> None:
         stdout.print(f"Decision: {decision['sentence']}.", highlight=False)
     for w in result.warnings:
         note(f"warning [{w.code}]: {w.message}")
-    stdout.print("Benchmarks such as 0.80 (Krippendorff) or the Landis–Koch bands are conventions; compare the "
+    stdout.print("Benchmarks such as .800 (Krippendorff) or the Landis–Koch bands are conventions; compare the "
                  "lower bound, not the estimate, with the minimum you chose, and report per-code results "
                  "(agree codes).", style="dim", highlight=False)

@@ -198,7 +198,7 @@ def result_label(result: "AgreementResult", level: str | None = None, *, markup:
     return text if in_sentence else text[:1].upper() + text[1:]
 
 
-def _notebook_cell(v: Any, counts: bool = False) -> str:
+def _notebook_cell(v: Any, counts: bool = False, bounded: bool = False) -> str:
     if isinstance(v, (frozenset, set)):
         return "; ".join(sorted(str(x) for x in v)) or "–"
     if isinstance(v, (bool, np.bool_)):
@@ -210,20 +210,29 @@ def _notebook_cell(v: Any, counts: bool = False) -> str:
             return "–"
         if counts:
             return f"{int(v):,}"
-        return format_value(v, "number", 3)
+        return format_value(v, "coefficient" if bounded else "number")
     if v is None or (isinstance(v, str) and not v):
         return "–"
     return str(v)
 
 
+#: Result-table columns of quantities that can exceed 1 (test statistics, degrees of freedom,
+#: ratios, counts): they keep the leading zero even when every value shown is below 1.
+UNBOUNDED_COLUMNS = re.compile(r"statistic|(^|_)(df|ratio|over|n|uses|count|units|values|pairable)(_|$)")
+
+
 def _notebook_frame(frame: "pd.DataFrame") -> "pd.DataFrame":
-    """The cells of a result table as text: three decimals, whole counts, '–' where missing."""
+    """The cells of a result table as text in the module's number style: three decimals, no
+    leading zero in a column of quantities bounded by 1 (coefficients, their intervals and
+    changes, SEs, probabilities, shares), whole counts, '–' where missing."""
     shown = frame.astype(object).copy()
     for j in range(frame.shape[1]):
         column = frame.iloc[:, j]
         finite = column[np.isfinite(column)] if column.dtype.kind in "fiu" else column.iloc[:0]
         counts = bool(len(finite) and (finite == np.round(finite)).all() and (finite.abs() > 1).any())
-        shown.iloc[:, j] = [_notebook_cell(v, counts) for v in column]
+        bounded = (column.dtype.kind == "f" and bool((finite.abs() <= 1).all())
+                   and not UNBOUNDED_COLUMNS.search(str(frame.columns[j])))
+        shown.iloc[:, j] = [_notebook_cell(v, counts, bounded) for v in column]
     return shown
 
 

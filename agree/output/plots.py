@@ -350,7 +350,7 @@ def assurance_figure(plan: Any) -> Figure:
     ax.axhline(target, ls="--", lw=1, color="grey")
     if plan.units_needed is not None:
         ax.axvline(plan.units_needed, ls=":", lw=1, color="grey")
-        ax.annotate(f"{plan.units_needed} units", (plan.units_needed, 0.02), rotation=90,
+        ax.annotate(f"{plan.units_needed:,} units", (plan.units_needed, 0.02), rotation=90,
                     ha="right", va="bottom", fontsize=8)
     ax.set_xscale("log")
     nice = [t for t in (10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10000, 20000, 50000, 100000)
@@ -359,6 +359,7 @@ def assurance_figure(plan: Any) -> Figure:
     ax.xaxis.set_major_formatter(ScalarFormatter())
     ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_ylim(-0.02, 1.02)
+    _agreement_axis(ax.yaxis)           # a probability: the house style's ticks (0, .2, ..., 1)
     ax.set_xlabel("units coded by every coder")
     ax.set_ylabel(f"P(lower bound > {format_value(plan.inputs['minimum'], 'threshold')})")
     ax.set_title(f"Assurance: expected alpha {format_value(plan.inputs['expected'], 'coefficient')}, "

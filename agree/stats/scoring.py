@@ -105,7 +105,7 @@ class ScoreResult:
         """Summary line, table and notes, for the notebook and the repr."""
         summary = (f"{self.units_used} of {self.units_read} units used, {len(self.coders)} coders "
                    f"({', '.join(self.coders)}), level {self.level}; {percent_label(self.confidence_level)} intervals"
-                   + (f" from {self.n_resamples} bootstrap replicates ({self.ci_method}, {self.resampled}), seed "
+                   + (f" from {self.n_resamples:,} bootstrap replicates ({self.ci_method}, {self.resampled}), seed "
                       f"{self.seed}" if self.n_resamples else ", analytic"))
         notes = [w.message for w in self.warnings]
         notes += [f"Not computed, {', '.join(map(display_name, names))}: {reason}"
@@ -209,7 +209,7 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
     notes: list[Note] = []
     if n_used < FEW_UNITS:
         notes.append(Note("few-units", f"Only {n_used} units have two or more values; intervals are wide and "
-                          f"benchmarks such as 0.80 are hard to judge on so few units (fewer than {FEW_UNITS} is "
+                          f"benchmarks such as .800 are hard to judge on so few units (fewer than {FEW_UNITS} is "
                           "a common-practice warning level)."))
     pa = results.get("percent_agreement")
     chance = [results[k] for k in ("krippendorff_alpha", "cohen_kappa", "fleiss_kappa") if k in results]

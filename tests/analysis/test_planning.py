@@ -217,7 +217,7 @@ def test_plan_states_model_interval_and_sources():
                 "warnings", "seed", "replicates"):
         assert key in d
     assert set(d["curve"][0]) >= {"units", "assurance", "mc_error"}
-    assert "θ = sqrt(0.850)" in p.model and "missing completely at random" in p.model
+    assert "θ = sqrt(.850)" in p.model and "missing completely at random" in p.model
     assert "what agree score computes" in p.interval and "B = 100 draws" in p.interval
     assert "least-favourable pseudo-unit" in p.interval and "strictly above" in p.interval
     names = [c["name"] for c in d["closed_forms"]]

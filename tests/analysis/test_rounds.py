@@ -262,7 +262,7 @@ def test_summary_names_codes_still_below(sample_rounds):
     assert "Round 2 reached α" in text
     assert "still below .800" in text
     for r in result.rounds:
-        assert f"α {r.overall.estimate:.2f}".replace("0.", ".") in text
+        assert f"α {r.overall.estimate:.3f}".replace("0.", ".") in text
 
 
 def test_errors():

@@ -62,3 +62,41 @@ def test_format_is_one_word_in_every_command():
         assert "--format" in text and "--summary-format" not in text, command
         assert re.search(r"--format\s+<table\|json(\|csv)?>", text), command
 
+
+
+# A number on the scale of a coefficient or probability printed with a leading zero ("0.585"), or
+# with two decimals (".59"; ratios such as observed/expected keep "0.84", kind "number").
+LEADING_ZERO = re.compile(r"(?<![\d.,\w])−?0\.\d{3}(?![\d%])|(?<![\d.,\w])−?\.\d{2}(?![\d%])")
+
+
+def test_one_number_style_in_every_summary(tmp_path):
+    """Issue 13: every command's printed summary, every result's repr and notebook table follow
+    agree.core.format (three decimals, no leading zero for quantities bounded by 1)."""
+    import agree
+    from agree.analysis.planning import plan_sample
+
+    r1, r2, book = SAMPLES / "round1.csv", SAMPLES / "round2.csv", SAMPLES / "codebook.csv"
+    small = ["--boot", "100", "--seed", "3"]
+    runs = {
+        "plan": ["plan", "--coders", "3", "--shares", "0.5,0.3,0.2", "--expected", "0.85", "--replicates", "60",
+                 "--boot", "60", "--tolerance", "0.5", "--max-units", "300"],
+        "pilot": ["plan", "--pilot", str(r1), "--codebook", str(book), "--replicates", "60", "--boot", "60",
+                  "--tolerance", "0.5", "--max-units", "300"],
+        "rounds": ["rounds", str(r1), str(r2), "--codebook", str(book), *small],
+        "score": ["score", str(r1), "--codebook", str(book), *small],
+        "codes": ["codes", str(r1), "--codebook", str(book), *small],
+        "coders": ["coders", str(r1), "--codebook", str(book), *small],
+    }
+    for name, args in runs.items():
+        out = run(args)
+        assert out.exit_code == 0, (name, out.output)
+        assert not LEADING_ZERO.findall(out.output), (name, LEADING_ZERO.findall(out.output))
+    data = agree.read(r1, codebook=book)
+    results = [agree.krippendorff_alpha(data, n_resamples=100), agree.score(data, n_resamples=100),
+               agree.diagnose_codes(data, n_resamples=100), agree.diagnose_coders(data, n_resamples=100),
+               agree.compare_rounds({"r1": data, "r2": agree.read(r2, codebook=book)}, n_resamples=100),
+               plan_sample(coders=2, shares=[0.6, 0.4], expected=0.9, replicates=60, n_resamples=60,
+                           tolerance=0.5, max_units=300)]
+    for result in results:
+        for shown in (repr(result), result._repr_html_()):
+            assert not LEADING_ZERO.findall(shown), (type(result).__name__, LEADING_ZERO.findall(shown))

@@ -100,7 +100,13 @@ def test_readme_plan_wording_matches_the_command():
     assert rows and all("`agree plan`," not in line for line in rows)
     command = re.search(r"`(agree plan [^`]+)`", rows[0]).group(1)
     assert "--coders" in command and "--expected" in command
-    assert "`agree plan` with no options prints what it needs" in " ".join(readme.split())
+    text = " ".join(readme.split())
+    assert "`agree plan` with no options prints what it needs" in text
+    # what the planner simulates: score's decision, its resamples, and a Monte Carlo range
+    from agree.core.constants import DEFAULT_RESAMPLES
+
+    assert f"{DEFAULT_RESAMPLES:,} resamples per study" in text and "Monte Carlo range" in text
+    assert "× 500 resamples" not in text and f"× {DEFAULT_RESAMPLES:,} resamples" in rows[0]
 
 
 def test_cli_plan_from_a_pilot_equals_the_library(tmp_path):

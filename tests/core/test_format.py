@@ -28,3 +28,19 @@ def test_signed_changes_and_their_intervals():
     assert signed_interval(-0.012, 0.034) == "[\u2212.012, +.034]"
     assert signed_interval(float("nan"), 0.1) == "–"
     assert format_interval(-0.1, 1.0) == "[\u2212.100, 1.000]"
+
+
+def test_notebook_tables_follow_the_number_style():
+    """Issue 13: result tables in a notebook (and reprs) drop the leading zero of quantities bounded
+    by 1 and keep it for columns of quantities that can exceed 1 (statistics, ratios)."""
+    import pandas as pd
+
+    from agree.core.format import notebook_html, notebook_text
+
+    frame = pd.DataFrame({"code": ["a", "b"], "estimate": [0.5854, -0.12], "ci_low": [0.49, -0.3],
+                          "usage_statistic": [0.45, 0.2], "o_over_e": [0.84, 0.5], "n_units": [120, 80]})
+    text = notebook_text("X", "summary", frame)
+    assert ".585" in text and "−.120" in text and "0.585" not in text
+    assert "0.450" in text and "0.840" in text and "120" in text
+    html = notebook_html("summary", frame)
+    assert "<td>.585</td>" in html and "<td>0.450</td>" in html

@@ -478,7 +478,7 @@ def test_notebook_html_escapes_and_dashes():
     page = notebook_html("a <summary> & more", pd.DataFrame({"code": ["<x>"], "alpha": [np.nan],
                                                              "n": [12.0], "k": [0.5]}))
     assert "a &lt;summary&gt; &amp; more" in page and "&lt;x&gt;" in page
-    assert "<td>–</td>" in page and "<td>12</td>" in page and "<td>0.500</td>" in page
+    assert "<td>–</td>" in page and "<td>12</td>" in page and "<td>.500</td>" in page
 
 
 def test_prevalence_caution_names_only_the_coefficients_shown(sample_report):

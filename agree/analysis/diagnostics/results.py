@@ -283,8 +283,8 @@ class CoderDiagnostics:
 
 
 def _display(x: Any) -> str:
-    """A number for a summary line (three decimals; NaN as an en dash)."""
-    return format_value(x, "number", 3)
+    """A coefficient for a summary line (three decimals, no leading zero; NaN as an en dash)."""
+    return format_value(x, "coefficient")
 
 
 def _nanmean(x) -> float:

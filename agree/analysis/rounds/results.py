@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
 from agree.core.constants import MIN_UNITS_PER_CODE, TENTATIVE
-from agree.core.format import percent_label
+from agree.core.format import DEFAULT_DIGITS, percent_label
 from agree.core.results import AgreementResult, Note, json_safe
 
 
@@ -183,7 +183,7 @@ class RoundsResult:
                 return r
         raise KeyError(name)
 
-    def summary_markup(self, digits: int = 2) -> tuple[str, ...]:
+    def summary_markup(self, digits: int = DEFAULT_DIGITS) -> tuple[str, ...]:
         """Plain-language summary lines, in the report markup (see `agree.output.report`)."""
         from agree.core.format import format_interval, format_value, lit
 
