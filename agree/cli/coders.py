@@ -23,9 +23,9 @@ from agree.cli.options import (
     SeedOption,
     SetDistance,
     TableFormat,
-    load_data,
     reading_options,
 )
+from agree.cli.spans import span_options
 from agree.core.cells import frame_csv
 
 if TYPE_CHECKING:
@@ -34,6 +34,7 @@ if TYPE_CHECKING:
 
 @app.command("coders")
 @reading_options
+@span_options
 def coders_command(
     files: Files,
     boot: BootOption = DEFAULT_BOOT,
@@ -45,24 +46,34 @@ def coders_command(
     level: LevelOption = None,
     *,
     reading: dict,
+    span_reading: dict,
 ) -> None:
     """Which coders drive disagreement: pairwise agreement, alpha without each coder, code use.
 
     Example: agree coders samples/round1.csv --codebook samples/codebook.csv --cluster interview
 
     Example: agree coders samples/ratings.csv --codebook samples/ratings_codebook.csv --boot 2000 --seed 1
+
+    Example: agree coders samples/passages.qdpx --segments turn   (highlighted passages, turns as units)
     """
-    data = load_data(files, codebook=codebook, level=level, cluster=cluster, weighted_ok=True, **reading)
+    from agree.cli.spans import coding_or_spans, with_view
+
+    # a span file goes through view 1 or 2, named in the output (view None for sheets)
+    data, cluster, level, view = coding_or_spans(files, command="coders", codebook=codebook, level=level,
+                                                 cluster=cluster, reading=reading, span_reading=span_reading,
+                                                 weighted_ok=True)
     from agree.analysis.diagnostics import diagnose_coders
 
     result = diagnose_coders(data, level=None if level is None else level.value, n_resamples=boot,
                              seed=seed, distance=distance.value, cluster=cluster)
     print_notes(result.notes)
     if output is TableFormat.json:
-        print_json(result.to_dict())
+        print_json(result.to_dict() if view is None else {"view": view, **result.to_dict()})
     elif output is TableFormat.csv:
-        sys.stdout.write(frame_csv(result.to_frame()))
+        sys.stdout.write(frame_csv(result.to_frame() if view is None else with_view(result.to_frame(), view)))
     else:
+        if view is not None:
+            stdout.print(f"View: {view}.", highlight=False)
         _coders_table(result)
 
 

@@ -23,9 +23,9 @@ from agree.cli.options import (
     SeedOption,
     SetDistance,
     TableFormat,
-    load_data,
     reading_options,
 )
+from agree.cli.spans import span_options
 from agree.core.cells import frame_csv
 from agree.core.constants import DEFAULT_MINIMUM
 from agree.core.constants import CI_METHODS
@@ -58,6 +58,7 @@ def resampling_note(bootstrap, cluster: str | None, n_clusters: int | None) -> s
 
 @app.command("codes")
 @reading_options
+@span_options
 def codes_command(
     files: Files,
     minimum: MinOption = DEFAULT_MINIMUM,
@@ -72,6 +73,7 @@ def codes_command(
     level: LevelOption = None,
     *,
     reading: dict,
+    span_reading: dict,
 ) -> None:
     """Which codes drive disagreement: per-code alpha, specific agreement, confusions, unequal use.
 
@@ -82,18 +84,27 @@ def codes_command(
     Example: agree codes samples/round1.csv --codebook samples/codebook.csv --cluster interview
 
     Example: agree codes samples/multicode.xlsx --distance masi --min 0.8 --boot 2000 --seed 1
+
+    Example: agree codes samples/passages.qdpx --code-depth 1   (highlighted passages, positions as units)
     """
-    data = load_data(files, codebook=codebook, level=level, cluster=cluster, weighted_ok=True, **reading)
+    from agree.cli.spans import coding_or_spans, with_view
+
+    # a span file goes through view 1 or 2, named in the output (view None for sheets)
+    data, cluster, level, view = coding_or_spans(files, command="codes", codebook=codebook, level=level,
+                                                 cluster=cluster, reading=reading, span_reading=span_reading,
+                                                 weighted_ok=True)
     from agree.analysis.diagnostics import diagnose_codes
 
     result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
                             min_units_per_code=min_units, distance=distance.value, cluster=cluster)
     print_notes(result.notes)
     if output is TableFormat.json:
-        print_json(result.to_dict())
+        print_json(result.to_dict() if view is None else {"view": view, **result.to_dict()})
     elif output is TableFormat.csv:
-        sys.stdout.write(frame_csv(result.to_frame()))
+        sys.stdout.write(frame_csv(result.to_frame() if view is None else with_view(result.to_frame(), view)))
     else:
+        if view is not None:
+            stdout.print(f"View: {view}.", highlight=False)
         print_codes(result, top)
 
 

@@ -30,6 +30,7 @@ from agree.cli.options import (
     reading_options,
 )
 from agree.cli.rounds import parse_codebooks, read_rounds
+from agree.cli.spans import span_options
 from agree.core.errors import AgreeError
 
 REPORT_SUFFIXES = (".html", ".htm", ".md", ".markdown", ".docx", ".tex")
@@ -60,6 +61,7 @@ VariableOption = Annotated[Optional[list[str]], typer.Option(
 
 @app.command()
 @reading_options
+@span_options
 def report(
     files: FilesArgument = None,
     output: Annotated[Optional[Path], typer.Option(
@@ -92,8 +94,13 @@ def report(
     level: LevelOption = None,
     *,
     reading: dict,
+    span_reading: dict,
 ):
     """Write an agreement report: methods paragraph, tables, interpretation and plots.
+
+    Highlighted passages (a span table or a .qdpx/.qde project) are reported with segments as
+    units (paragraphs unless --segments says otherwise), the view named in the methods paragraph
+    and the tables; `agree score` gives the positions view.
 
     Without --min the report uses .800, Krippendorff's convention, and says it is the default.
     With --variable (repeated) it covers several coded variables: one section per variable and one
@@ -102,6 +109,8 @@ def report(
     Example: agree report samples/round2.csv --codebook samples/codebook.csv --corpus-size 600 --cluster interview -o report.html
 
     Example: agree report samples/round1.csv samples/round2.csv --round-files --codebook samples/codebook.csv -o report.md
+
+    Example: agree report samples/passages.qdpx --segments turn -o passages.html
 
     Example: agree report --variable topics=samples/multicode.xlsx --variable commitment=samples/ratings.csv,codebook=samples/ratings_codebook.csv -o study.html
     """
@@ -129,7 +138,22 @@ def report(
     options = dict(minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci, cluster=cluster,
                    corpus_size=corpus_size, **({"title": title} if title is not None else {}),
                    **({"digits": digits} if digits is not None else {}))
-    if specs:
+    spans = None
+    if files and not specs:
+        from agree.cli.spans import load_spans
+
+        spans = load_spans(files, codebook=codebook, reading=reading, **span_reading)
+    elif specs:
+        from agree.cli.spans import given
+
+        if given(span_reading):
+            raise AgreeError(f"{', '.join(given(span_reading))} cannot be used with --variable", code="bad-option",
+                             hint="report highlighted passages on their own: agree report FILE --segments ...")
+    if spans is not None:
+        result = _spans(spans, span_reading, output, options, level=level, consensus=consensus,
+                        rounds=dict(round_column=round_column, round_files=round_files, codebooks=codebooks,
+                                    drift_round=drift_round))
+    elif specs:
         result = _study(specs, files, output, options, reading=reading, codebook=codebook, level=level,
                         round_column=round_column, refused=dict(round_files=round_files, codebooks=codebooks,
                                                                 drift_round=drift_round, consensus=consensus))
@@ -167,6 +191,30 @@ def _one(files: list[Path], output: Path, options: dict, *, reading: dict, codeb
         result = build_report(None if parts is not None else data, rounds=parts, codebooks=books,
                               drift_round=drift_round, consensus=consensus, progress=scaled(tick, 0.0, 0.6),
                               level=None if level is None else level.value, **options)
+        _write(result, output, tick)
+    return result
+
+
+def _spans(spans: Any, span_reading: dict, output: Path, options: dict, *, level: Any, consensus: Path | None,
+           rounds: dict) -> Any:
+    """Highlighted passages: the segments view's units, named in the methods paragraph and tables."""
+    from agree.cli.spans import view_data
+    from agree.output.report import build_report
+
+    given = [f"--{k.replace('_', '-')}" for k, v in rounds.items() if v]
+    if given:
+        raise AgreeError(f"{', '.join(given)} cannot be used with span data", code="bad-option",
+                         hint="report each coding round's span file on its own")
+    if span_reading.get("view") is None:
+        note("note: the report's units are segments (--view segments; paragraphs unless --segments says "
+             "otherwise); agree score gives the positions view")
+    data, group, view = view_data(spans, span_reading, command="report", cluster=options["cluster"], level=level,
+                                  allowed=("segments",), default="segments")
+    rule = next((n[len("Rule: "):].rstrip(".") for n in data.report.notes if n.startswith("Rule: ")), None)
+    unit = view if rule is None else f"{view}; {rule}"
+    with progress_bar("report") as tick:
+        result = build_report(data, consensus=consensus, progress=scaled(tick, 0.0, 0.6), unit=unit,
+                              **{**options, "cluster": group})
         _write(result, output, tick)
     return result
 

@@ -117,23 +117,17 @@ def score_spans(spans: "SpanData", span_reading: dict, *, level, minimum, boot, 
                 output_format: TableFormat, cluster: str | None) -> None:
     """Score highlighted passages through the view asked for (`agree.cli.spans.view_choice`)."""
     from agree.analysis import passages
-    from agree.cli.spans import compared, segment_data, view_choice
+    from agree.cli.spans import compared, view_choice, view_data
     from agree.stats.scoring import score as run_score
 
     view = view_choice(span_reading, command="score")
-    if level is not None and level.value != "nominal":
-        raise AgreeError(f"--level {level.value}: codes of highlighted passages are nominal", code="bad-option",
-                         hint="leave --level out for span data")
     options = dict(minimum=minimum, n_resamples=boot, seed=seed, confidence_level=ci, ci_method=ci_method)
     if view == "segments":
-        data = segment_data(spans, span_reading)
-        group = cluster or "document"
-        if group not in data.columns:
-            raise AgreeError(f"--cluster {group}: segments have the columns {', '.join(data.columns)}",
-                             hint="leave --cluster out: segments resample whole documents", code="bad-option")
+        data, group, named = view_data(spans, span_reading, command="score", cluster=cluster, level=level)
         with progress_bar("score") as tick:
             result = run_score(data, cluster=group, progress=scaled(tick, 0.0, 1.0), **options)
-        named = f"{data.report.detected}, whole {group} groups resampled" if boot else data.report.detected
+        if boot:
+            named += f", whole {group} groups resampled"
         if output_format is TableFormat.json:
             print_json({"view": named, **result.to_dict()})
         elif output_format is TableFormat.csv:
@@ -142,6 +136,9 @@ def score_spans(spans: "SpanData", span_reading: dict, *, level, minimum, boot, 
             stdout.print(f"View: {named}.", highlight=False)
             print_score(result)
         return
+    if level is not None and level.value != "nominal":
+        raise AgreeError(f"--level {level.value}: codes of highlighted passages are nominal", code="bad-option",
+                         hint="leave --level out for span data")
     if cluster is not None:
         raise AgreeError(f"--cluster {cluster}: the {view} view resamples whole documents", code="bad-option",
                          hint="leave --cluster out (or use --view segments)")

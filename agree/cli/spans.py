@@ -288,13 +288,13 @@ def report_spans(spans: "SpanData") -> None:
 
 # -- the views ----------------------------------------------------------------------------------
 def view_choice(span_reading: dict, allowed: Sequence[str] = ("positions", "segments", "unitizing"),
-                command: str = "") -> str:
-    """The view asked for (positions by default; segments when only --segments or --min-share is
-    given), refused with a hint when the command cannot give it."""
+                command: str = "", default: str = DEFAULT_VIEW) -> str:
+    """The view asked for (`default`, positions unless the command says; segments when only
+    --segments or --min-share is given), refused with a hint when the command cannot give it."""
     view = span_reading.get("view")
     if view is None:
         view = "segments" if span_reading.get("segments") or span_reading.get("min_share") is not None \
-            else DEFAULT_VIEW
+            else default
     if view not in allowed:
         raise AgreeError(f"--view {view} cannot be used{f' with agree {command}' if command else ''}",
                          hint=f"use --view {' or --view '.join(allowed)}", code="bad-option")
@@ -357,3 +357,51 @@ def segment_data(spans: "SpanData", span_reading: dict):
                                           "(end exclusive), in the spans' offsets, not overlapping") from None
     report_reading(data)
     return data
+
+
+def view_data(spans: "SpanData", span_reading: dict, *, command: str, cluster: str | None = None,
+              level: Any = None, allowed: Sequence[str] = ("positions", "segments"),
+              default: str = DEFAULT_VIEW) -> tuple[Any, str, str]:
+    """The units of view 1 (segments) or 2 (positions) as CodingData for the commands that take
+    coding data (codes, coders, report), with the column whose groups every bootstrap resamples
+    whole ("document" unless --cluster names another column of the view's units) and the view's
+    name, which the command prints with its output."""
+    from agree.analysis.passages import position_units
+    from agree.cli.options import report_reading
+
+    view = view_choice(span_reading, allowed, command, default)
+    if level is not None and _value(level) != "nominal":
+        raise AgreeError(f"--level {_value(level)}: codes of highlighted passages are nominal", code="bad-option",
+                         hint="leave --level out for span data")
+    if view == "segments":
+        data = segment_data(spans, span_reading)
+    else:
+        data = position_units(spans, **compared(span_reading))
+        report_reading(data)
+    group = cluster or "document"
+    if group not in data.columns:
+        raise AgreeError(f"--cluster {group}: the {view} view's units have the column(s) {', '.join(data.columns)}",
+                         hint="leave --cluster out: whole documents are resampled", code="bad-option")
+    return data, group, data.report.detected
+
+
+def with_view(frame, view: str):
+    """A table of results with the view as its first column (for --format csv)."""
+    out = frame.copy()
+    out.insert(0, "view", view)
+    return out
+
+
+def coding_or_spans(files: Sequence[Path], *, command: str, codebook: Path | None, level: Any, cluster: str | None,
+                    reading: dict, span_reading: dict, **load: Any) -> tuple[Any, str | None, Any, str | None]:
+    """For the commands that take coding data (codes, coders): the sheets through `load_data`, or
+    highlighted passages through view 1 or 2 (`view_data`). Returns (data, cluster, level, view):
+    for span data the resampled column is the view's, the level None (codes are nominal) and
+    `view` its name, None for sheets."""
+    spans = load_spans(files, codebook=codebook, reading=reading, **span_reading)
+    if spans is None:
+        from agree.cli.options import load_data
+
+        return load_data(files, codebook=codebook, level=level, cluster=cluster, **load, **reading), cluster, level, None
+    data, group, view = view_data(spans, span_reading, command=command, cluster=cluster, level=level)
+    return data, group, None, view

@@ -263,3 +263,58 @@ def test_a_segments_file_that_does_not_match_names_the_file(monkeypatch, capsys,
     code, _, err = run_main(monkeypatch, capsys, ["score", TABLE, "--texts", TEXTS, "--segments", listed, "--boot", 0])
     assert code == 2
     assert f"error: {listed}: the segment table names documents that are not compared: T09" in err
+
+
+# -- agree codes, coders and report on span data ------------------------------------------------------
+@pytest.mark.parametrize("command", ["codes", "coders"])
+def test_codes_and_coders_through_the_positions_view(command):
+    from agree.analysis.diagnostics import diagnose_codes, diagnose_coders
+
+    out = printed_json(run([command, PROJECT, "--boot", 100, "--format", "json"]))
+    data = passages.position_units(read_project(PROJECT))
+    diagnose = diagnose_codes if command == "codes" else diagnose_coders
+    expected = diagnose(data, n_resamples=100, seed=1, cluster="document")
+    assert out.pop("view") == "positions as units (characters), 4 documents"
+    assert out == json.loads(json.dumps(expected.to_dict()))
+    table = run([command, PROJECT, "--boot", 0])
+    assert table.stdout.startswith("View: positions as units (characters), 4 documents.")
+    csv_out = run([command, PROJECT, "--boot", 0, "--format", "csv"]).stdout
+    assert csv_out.startswith("view,") and "positions as units" in csv_out.splitlines()[1]
+
+
+def test_codes_through_the_segments_view_from_the_table_and_the_project():
+    """Turns found in the same texts give the same per-code alphas from the span table and the project."""
+    a = printed_json(run(["codes", PROJECT, "--segments", "turn", "--boot", 0, "--format", "json"]))
+    b = printed_json(run(["codes", TABLE, "--texts", TEXTS, "--segments", "turn", "--boot", 0, "--format", "json"]))
+    assert a["view"] == b["view"] == "segments as units (turns), 4 documents"
+
+    def alphas(out):
+        return {"(all codes)": out["alpha"], **{r["code"]: r["alpha"] for r in out["codes"]}}
+
+    assert len(alphas(a)) == 10
+    assert alphas(a) == pytest.approx(alphas(b), nan_ok=True)
+
+
+def test_codes_refuse_the_unitizing_view(monkeypatch, capsys):
+    code, _, err = run_main(monkeypatch, capsys, ["codes", PROJECT, "--view", "unitizing"])
+    assert code == 2 and "error: --view unitizing cannot be used with agree codes" in err
+
+
+def test_report_names_the_view_in_the_methods_and_the_table(tmp_path):
+    output = tmp_path / "passages.md"
+    result = run(["report", PROJECT, "--segments", "turn", "--boot", 100, "-o", output, "--format", "json"])
+    out = printed_json(result)
+    data = passages.segment_units(read_project(PROJECT), by="turn")
+    expected = library_score(data, cluster="document", n_resamples=100, seed=1)
+    assert out["coefficients"][0]["estimate"] == pytest.approx(expected.coefficients["krippendorff_alpha"].estimate)
+    unit = ("segments as units (turns), 4 documents; a code applies to a segment when the coder's spans of it cover "
+            "at least 0.5 of the segment, or at least 0.5 of one such span lies inside it")
+    assert out["settings"]["unit"] == unit and out["settings"]["cluster"] == "document"
+    text = output.read_text(encoding="utf-8")
+    assert f"*N* = 41 units ({unit})" in text
+    assert f"Units: {unit}." in text
+
+
+def test_report_takes_segments_only(monkeypatch, capsys, tmp_path):
+    code, _, err = run_main(monkeypatch, capsys, ["report", PROJECT, "--view", "positions", "-o", tmp_path / "r.md"])
+    assert code == 2 and "error: --view positions cannot be used with agree report" in err

@@ -45,7 +45,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
                  codebooks: Mapping[str, Any] | None = None, drift_round: str | None = None,
                  analysed_round: str | None = None,
                  title: str = DEFAULT_TITLE, digits: int = DEFAULT_DIGITS, cluster: str | None = None,
-                 variable: str | None = None, progress: Progress | None = None) -> Report:
+                 variable: str | None = None, unit: str | None = None, progress: Progress | None = None) -> Report:
     """Compute everything an agreement report shows.
 
     Parameters
@@ -75,6 +75,9 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
     analysed_round : the round `data` holds (stated in the methods paragraph); default the
         last full round when `rounds` are given.
     title, digits : the report's title and the decimals shown for coefficients.
+    unit : what a unit is, in words, when the data say it (e.g. the view of highlighted passages,
+        "segments as units (paragraphs), 4 documents"): stated in the methods paragraph instead
+        of the placeholder for the coding unit, and in the note of the coefficient table.
     cluster : the name of a kept per-unit column (e.g. the document or interview): every
         bootstrap (coefficients, per-code diagnostics, rounds) resamples its groups whole, and
         the methods paragraph says so.
@@ -194,7 +197,7 @@ def build_report(data: Any, *, level: str | None = None, minimum: float | None =
         consensus=cons, rounds=rounds_result, analysed_round=analysed_round, methods="",
         interpretation=(), cautions=cautions(ordered), warnings=tuple(_dedupe(warnings)),
         minimum_default=minimum_default, per_code_skipped=skipped_codes, cluster=cluster,
-        n_clusters=n_clusters, coders=coders, set_valued=bool(d.set_valued), variable=variable)
+        n_clusters=n_clusters, coders=coders, set_valued=bool(d.set_valued), variable=variable, unit=unit)
     report = replace(report, methods=methods_paragraph(report), interpretation=interpretation(report))
     tick("done", 1.0)
     return report

@@ -148,6 +148,7 @@ class Report:
         of each pair of coders and α with each coder left out; None when not computed.
     set_valued : True when units carry sets of codes (several codes per unit).
     variable : the variable's name when the report is one section of a `StudyReport`, else None.
+    unit : what a unit is, when the data say it (the view of highlighted passages), else None.
     """
 
     title: str
@@ -179,6 +180,7 @@ class Report:
     coders: CoderSummary | None = None
     set_valued: bool = False
     variable: str | None = None
+    unit: str | None = None
     _figures: dict = field(default_factory=dict, init=False, repr=False, compare=False)  # figure cache
 
     @property
@@ -196,7 +198,7 @@ class Report:
                          "minimum_default": self.minimum_default,
                          "confidence_level": self.confidence_level, "n_resamples": self.n_resamples,
                          "seed": self.seed, "digits": self.digits, "cluster": self.cluster,
-                         "n_clusters": self.n_clusters},
+                         "n_clusters": self.n_clusters, "unit": self.unit},
             "per_code_skipped": self.per_code_skipped or None,
             "sample": self.sample.to_dict(),
             "primary": self.primary,

@@ -164,7 +164,8 @@ def report_tables(report: Report) -> list[Table]:
               f"{percent_label(report.confidence_level)} lower bound, which decides against the minimum (it must be "
               "above it). " + p_min_column_note(
             report.coefficients, report.minimum, report.confidence_level, report.level)
-              + " *n* units: units entering the coefficient." + (f" Not computed: {skipped}." if skipped else ""))))
+              + " *n* units: units entering the coefficient." + (f" Not computed: {skipped}." if skipped else "")
+              + (f" Units: {lit(report.unit)}." if report.unit else ""))))
     if report.per_code:
         columns = report.per_code[0].keys()
         bound = f"One-sided {100 * report.confidence_level:g}% lower bound"

@@ -209,8 +209,9 @@ def _rounds_sample_text(report: Report, coders: str) -> list[str]:
 def _sample_text(report: Report, coders: str) -> list[str]:
     """Sentences on who coded how many units, and how they were selected (no rounds)."""
     s = report.sample
+    unit = "[[describe the coding unit]]" if report.unit is None else lit(report.unit)
     text = (f"{coders} ([[who the coders were and how they were trained]]) coded "
-            f"*N* = {format_value(s.units_read, 'count')} units ([[describe the coding unit]]) "
+            f"*N* = {format_value(s.units_read, 'count')} units ({unit}) "
             "[[independently of each other: confirm]]")
     if s.corpus_size:
         text += (f", {format_value(s.share_of_corpus, 'percent')} of the "
