@@ -15,8 +15,12 @@ ratios measured in one run on the same data:
    with pandas' pyarrow engine, each in a fresh process (target: within 3x; memory under 2 GB).
 5. `agree --help` and `agree score --help` in a fresh process (target: under 0.3 s each;
    `bench/bench_help.py` runs this row alone).
+6. `agree codes` and `agree disagreements` (review written as CSV and as Parquet) on the long CSV
+   of 4, beside `agree score` on it, each in a fresh process, the four commands in turn in each
+   repeat (targets: codes within 2x of score; the reviews in seconds).
 
-Options: --quick (smaller sizes, for a smoke run), --repeat N, --out FILE (JSON).
+Options: --quick (smaller sizes, for a smoke run), --repeat N, --only CASE... (run only these
+cases: alpha, bootstrap, memory, score, review, help), --out FILE (JSON).
 """
 
 from __future__ import annotations
@@ -200,39 +204,97 @@ def bench_score(n_units, repeat):
             "exit_codes": sorted({s[2] for s in scores})}
 
 
+def _agree(*args: str) -> str:
+    return ("import sys; from agree.cli import main; "
+            f"sys.argv = ['agree', '--quiet', *{list(args)!r}]; main()")
+
+
+def bench_review(n_units, repeat):
+    """`agree score`, `agree codes` and `agree disagreements` (CSV, Parquet) on the same long CSV,
+    fresh processes, the four in turn in each repeat; medians, peaks and ratios to score."""
+    path = DATA / f"long_{n_units}.csv"
+    make_long_csv(n_units, path)
+    out = DATA / "review"
+    out.mkdir(parents=True, exist_ok=True)
+    commands = {
+        "score": _agree("score", str(path), "--format", "json", "--seed", "1"),
+        "codes": _agree("codes", str(path), "--format", "json", "--seed", "1"),
+        "disagreements_csv": _agree("disagreements", str(path), "-o", str(out / "review.csv"), "--force"),
+        "disagreements_parquet": _agree("disagreements", str(path), "-o", str(out / "review.parquet"), "--force"),
+    }
+    runs = {name: [] for name in commands}
+    for _ in range(repeat):
+        for name, code in commands.items():
+            runs[name].append(_child(code))
+    result = {"rows": 3 * n_units, "repeat": repeat}
+    for name, rs in runs.items():
+        result[f"{name}_s"] = statistics.median(r[0] for r in rs)
+        result[f"{name}_peak_mb"] = max(r[1] for r in rs)
+        result[f"{name}_exit_codes"] = sorted({r[2] for r in rs})
+    for name in ("codes", "disagreements_csv", "disagreements_parquet"):
+        result[f"{name}_over_score"] = result[f"{name}_s"] / result["score_s"]
+    return result
+
+
+def report_review(r):
+    print(f"  agree score {r['score_s']:.2f}s ({r['score_peak_mb']:.0f} MB)  "
+          f"agree codes {r['codes_s']:.2f}s ({r['codes_peak_mb']:.0f} MB, {r['codes_over_score']:.2f}x score)")
+    for kind in ("csv", "parquet"):
+        name = f"disagreements_{kind}"
+        print(f"  agree disagreements -o review.{kind} {r[name + '_s']:.2f}s ({r[name + '_peak_mb']:.0f} MB, "
+              f"{r[name + '_over_score']:.2f}x score)")
+    codes = sorted({c for k, v in r.items() if k.endswith("_exit_codes") for c in v})
+    print(f"  exit {codes}")
+
+
+CASES = ("alpha", "bootstrap", "memory", "score", "review", "help")
+
+
 def main(argv=None):
     p = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--quick", action="store_true", help="smaller sizes, for a smoke run")
     p.add_argument("--repeat", type=int, default=3)
     p.add_argument("--reference-memory", action="store_true",
                    help="also measure the reference package's memory on 1e6 x 5 x 20 (about 9 GB)")
+    p.add_argument("--only", nargs="+", choices=CASES, default=list(CASES), metavar="CASE",
+                   help=f"run only these cases ({', '.join(CASES)})")
     p.add_argument("--out", type=Path, default=HERE / "results" / "latest.json")
     a = p.parse_args(argv)
     n = 100_000 if a.quick else 1_000_000
     result = {"machine": {"python": platform.python_version(), "cpus": os.cpu_count(),
                           "platform": platform.platform()},
               "units": n}
-    print(f"alpha point estimate, {n} units x 3 coders x 5 categories ...", flush=True)
-    result["alpha"] = bench_alpha(n, a.repeat)
-    for row in result["alpha"]:
-        print(f"  {row['level']:9s} {row['input']:11s} agree {row['agree_s']:.3f}s  reference {row['reference_s']:.3f}s  "
-              f"speed-up {row['speedup']:.1f}x  same value: {row['same_value']}")
-    print(f"bootstrap, 10,000 replicates, {n} x 3 ...", flush=True)
-    b = result["bootstrap"] = bench_bootstrap(n, a.repeat)
-    print(f"  point {b['point_s']:.3f}s  with bootstrap {b['with_bootstrap_s']:.3f}s  "
-          f"extra/point {b['extra_over_point']:.2f}  total/point {b['total_over_point']:.2f}")
-    print(f"memory, alpha on {n} x 5 coders x 20 categories (fresh process) ...", flush=True)
-    m = result["memory"] = bench_memory(n, a.reference_memory)
-    print(f"  peak RSS agree {m['agree_mb']:.0f} MB (loading the codes and importing agree: {m['load_only_mb']:.0f} MB)"
-          + (f", reference {m['reference_mb']:.0f} MB" if "reference_mb" in m else ""))
-    print(f"agree score on a long CSV of {3 * n} rows (fresh processes) ...", flush=True)
-    s = result["score"] = bench_score(n, a.repeat)
-    print(f"  pandas pyarrow read {s['pandas_pyarrow_read_s']:.2f}s  agree score {s['agree_score_s']:.2f}s  "
-          f"ratio {s['ratio']:.2f}  peak {s['agree_score_peak_mb']:.0f} MB (pandas read {s['pandas_read_peak_mb']:.0f} MB)"
-          f"  exit {s['exit_codes']}")
-    print("agree --help and agree score --help (fresh processes) ...", flush=True)
-    result["help"] = bench_help(max(a.repeat, 5))
-    report_help(result["help"])
+    if "alpha" in a.only:
+        print(f"alpha point estimate, {n} units x 3 coders x 5 categories ...", flush=True)
+        result["alpha"] = bench_alpha(n, a.repeat)
+        for row in result["alpha"]:
+            print(f"  {row['level']:9s} {row['input']:11s} agree {row['agree_s']:.3f}s  reference {row['reference_s']:.3f}s  "
+                  f"speed-up {row['speedup']:.1f}x  same value: {row['same_value']}")
+    if "bootstrap" in a.only:
+        print(f"bootstrap, 10,000 replicates, {n} x 3 ...", flush=True)
+        b = result["bootstrap"] = bench_bootstrap(n, a.repeat)
+        print(f"  point {b['point_s']:.3f}s  with bootstrap {b['with_bootstrap_s']:.3f}s  "
+              f"extra/point {b['extra_over_point']:.2f}  total/point {b['total_over_point']:.2f}")
+    if "memory" in a.only:
+        print(f"memory, alpha on {n} x 5 coders x 20 categories (fresh process) ...", flush=True)
+        m = result["memory"] = bench_memory(n, a.reference_memory)
+        print(f"  peak RSS agree {m['agree_mb']:.0f} MB (loading the codes and importing agree: {m['load_only_mb']:.0f} MB)"
+              + (f", reference {m['reference_mb']:.0f} MB" if "reference_mb" in m else ""))
+    if "score" in a.only:
+        print(f"agree score on a long CSV of {3 * n} rows (fresh processes) ...", flush=True)
+        s = result["score"] = bench_score(n, a.repeat)
+        print(f"  pandas pyarrow read {s['pandas_pyarrow_read_s']:.2f}s  agree score {s['agree_score_s']:.2f}s  "
+              f"ratio {s['ratio']:.2f}  peak {s['agree_score_peak_mb']:.0f} MB (pandas read {s['pandas_read_peak_mb']:.0f} MB)"
+              f"  exit {s['exit_codes']}")
+    if "review" in a.only:
+        print(f"agree score, codes and disagreements on the same long CSV of {3 * n} rows (fresh processes) ...",
+              flush=True)
+        result["review"] = bench_review(n, a.repeat)
+        report_review(result["review"])
+    if "help" in a.only:
+        print("agree --help and agree score --help (fresh processes) ...", flush=True)
+        result["help"] = bench_help(max(a.repeat, 5))
+        report_help(result["help"])
     a.out.parent.mkdir(parents=True, exist_ok=True)
     a.out.write_text(json.dumps(result, indent=2))
     print(f"written {a.out}")
