@@ -237,6 +237,7 @@ def _study(specs: list[dict], files: list[Path], output: Path, options: dict, *,
         if not sources:
             raise AgreeError(f"--variable {name}: no files", hint=f"name them, e.g. --variable '{name}=coding.csv', "
                              "or give the files as arguments", code="no-input")
+        _no_spans(name, sources, spec.get("sheet") or reading.get("sheet"))
         keep = list(reading.get("keep") or ())
         if round_column and round_column not in keep:
             keep.append(round_column)
@@ -255,6 +256,18 @@ def _study(specs: list[dict], files: list[Path], output: Path, options: dict, *,
         result = build_study_report(variables, progress=scaled(tick, 0.0, 0.6), **options)
         _write(result, output, tick)
     return result
+
+
+def _no_spans(name: str, sources: list[Path], sheet: Any) -> None:
+    """A variable's files are coding sheets: span data (told by content) are reported on their own."""
+    from agree.io.spans import span_input
+
+    for path in sources:
+        kind = span_input(path, sheet=sheet if isinstance(sheet, (str, type(None))) else None)
+        if kind is not None:
+            raise AgreeError(f"--variable {name}: this is span data (a {kind}), and --variable reads coding sheets",
+                             where=str(path), code="bad-option",
+                             hint=f"report highlighted passages on their own: agree report {path} --segments ... -o FILE")
 
 
 def _write(result: Any, output: Path, tick: Any) -> None:

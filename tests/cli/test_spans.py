@@ -318,3 +318,9 @@ def test_report_names_the_view_in_the_methods_and_the_table(tmp_path):
 def test_report_takes_segments_only(monkeypatch, capsys, tmp_path):
     code, _, err = run_main(monkeypatch, capsys, ["report", PROJECT, "--view", "positions", "-o", tmp_path / "r.md"])
     assert code == 2 and "error: --view positions cannot be used with agree report" in err
+
+
+def test_report_variables_refuse_span_data(monkeypatch, capsys, tmp_path):
+    code, _, err = run_main(monkeypatch, capsys, ["report", "--variable", f"passages={TABLE}", "-o", tmp_path / "r.md"])
+    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert "--variable passages: this is span data (a span table), and --variable reads coding sheets" in err
