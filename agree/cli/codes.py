@@ -8,7 +8,18 @@ from typing import TYPE_CHECKING, Annotated
 import typer
 from rich.table import Table
 
-from agree.cli.app import DIGITS, app, coefficient, note, percent, print_json, print_notes, signed, stdout
+from agree.cli.app import (
+    DIGITS,
+    app,
+    coefficient,
+    note,
+    percent,
+    print_json,
+    print_notes,
+    progress_bar,
+    signed,
+    stdout,
+)
 from agree.cli.options import (
     DEFAULT_BOOT,
     DEFAULT_SEED,
@@ -89,14 +100,17 @@ def codes_command(
     """
     from agree.cli.spans import coding_or_spans, with_view
 
-    # a span file goes through view 1 or 2, named in the output (view None for sheets)
-    data, cluster, level, view = coding_or_spans(files, command="codes", codebook=codebook, level=level,
-                                                 cluster=cluster, reading=reading, span_reading=span_reading,
-                                                 weighted_ok=True)
-    from agree.analysis.diagnostics import diagnose_codes
+    with progress_bar("codes") as tick:
+        tick("reading", 0.0)
+        # a span file goes through view 1 or 2, named in the output (view None for sheets)
+        data, cluster, level, view = coding_or_spans(files, command="codes", codebook=codebook, level=level,
+                                                     cluster=cluster, reading=reading,
+                                                     span_reading=span_reading, weighted_ok=True)
+        tick("per-code diagnostics", 0.6)
+        from agree.analysis.diagnostics import diagnose_codes
 
-    result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
-                            min_units_per_code=min_units, distance=distance.value, cluster=cluster)
+        result = diagnose_codes(data, minimum=minimum, n_resamples=boot, seed=seed,
+                                min_units_per_code=min_units, distance=distance.value, cluster=cluster)
     print_notes(result.notes)
     if output is TableFormat.json:
         print_json(result.to_dict() if view is None else {"view": view, **result.to_dict()})
