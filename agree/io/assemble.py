@@ -26,10 +26,10 @@ __all__ = ["assemble"]
 def assemble(b: Build, *, book, level) -> dict[str, Any]:
     """The keyword arguments of `CodingData` (all but `report`) from a finished `Build`;
     notes go to ``b.notes``."""
-    # global unit ids, in order of first appearance
+    # global unit ids, in order of first appearance (one table: its own, no mapping)
     if len(b.units) == 1:
         unit_ids = b.units[0][1]
-        table_maps = [np.arange(len(unit_ids), dtype=np.int64)]
+        table_maps = None
     else:
         allids = np.concatenate([ids for _, ids in b.units])
         g, unit_ids = pd.factorize(allids)
@@ -40,7 +40,7 @@ def assemble(b: Build, *, book, level) -> dict[str, Any]:
             start += len(ids)
     n, m = len(unit_ids), len(b.coders)
     _check_unit_ids(b)
-    if not b.enc.trim:
+    if not b.enc.trim and b.enc.spaced:  # (no id read had spaces around it: no twins)
         _space_twins(b, unit_ids)
     if m < 2:
         names = ", ".join(b.coders) or "none"
@@ -48,22 +48,7 @@ def assemble(b: Build, *, book, level) -> dict[str, Any]:
                          where=", ".join(dict.fromkeys(t.file for t in b.tables)), code="one-coder",
                          hint="agreement needs two or more coders; for one file per coder give all the files "
                               "(or check the detected layout and set it with --layout (layout=...))")
-    # per cell arrays (concatenated over pieces)
-    parts_unit, parts_coder, parts_value, parts_row, parts_source = [], [], [], [], []
-    for p in b.pieces:
-        local_units, _ = b.units[p.table]
-        mask = p.keep_mask & (local_units >= 0)
-        parts_unit.append(table_maps[p.table][local_units[mask]])
-        parts_coder.append(p.coder[mask] if p.coder.ndim else np.full(mask.sum(), p.coder))
-        parts_value.append(p.value[mask])
-        parts_row.append(b.tables[p.table].rows[mask])
-        parts_source.append(np.full(int(mask.sum()), p.source, dtype=np.int32))
-    units = np.concatenate(parts_unit)
-    coders = np.concatenate(parts_coder)
-    value = np.concatenate(parts_value)
-    rows = np.concatenate(parts_row)
-    source = np.concatenate(parts_source)
-    del parts_unit, parts_coder, parts_value, parts_row, parts_source
+    units, coders, value, rows, source = _cells(b, table_maps)
     key = units * m + coders  # flat cell index
     del coders
     _check_duplicates(b, key, units, rows, source, unit_ids, n, m)
@@ -90,6 +75,27 @@ def assemble(b: Build, *, book, level) -> dict[str, Any]:
                 provenance=Provenance(sources=tuple(b.sources), source=src, row=row),
                 order=("given" if book.ordered else "codebook rows") if book is not None else
                 "numeric" if all(isinstance(v, (int, float)) for v in values) else "alphabetical")
+
+
+def _cells(b: Build, table_maps) -> tuple[np.ndarray, ...]:
+    """Unit, coder, value, row and source of every cell kept, over all pieces (a piece of one
+    table whose rows are all kept, as a long table has, is used as it is: no copies)."""
+    parts = []
+    for p in b.pieces:
+        local_units, _ = b.units[p.table]
+        mask = p.keep_mask & (local_units >= 0)
+        rows = b.tables[p.table].rows
+        if not mask.all():
+            local_units, coder, value, rows = local_units[mask], p.coder[mask], p.value[mask], rows[mask]
+        else:
+            coder, value = p.coder, p.value
+        if not coder.ndim:
+            coder = np.full(len(local_units), coder)
+        units = local_units if table_maps is None else table_maps[p.table][local_units]
+        parts.append((units, coder, value, rows, np.full(len(units), p.source, dtype=np.int32)))
+    if len(parts) == 1:
+        return parts[0]
+    return tuple(np.concatenate(column) for column in zip(*parts))
 
 
 def _space_twins(b: Build, unit_ids: np.ndarray) -> None:
@@ -202,7 +208,7 @@ def _per_unit(b: Build, name, entries, unit_ids, table_maps) -> np.ndarray:
         keep_u = np.array([normalise_value(v) is not None for v in uniques] + [False], dtype=bool)
         text_u = np.array([str(normalise_value(v)).strip() for v in uniques] + [""], dtype=object)
         present = keep_u[fcodes]
-        g = table_maps[ti][local[ok]][present]
+        g = (local[ok] if table_maps is None else table_maps[ti][local[ok]])[present]
         vals = series.to_numpy(dtype=object)[present]
         txt = text_u[fcodes[present]]
         rws = t.rows[ok][present]

@@ -26,7 +26,7 @@ NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
 _PARALLEL_ROWS = 100_000  # text columns at least this long are factorized on several threads
 
-Factorized = tuple[np.ndarray, np.ndarray]  # codes per cell (-1 for missing), distinct values
+Factorized = tuple[np.ndarray, Any]  # codes per cell (-1 for missing), distinct values (see factorize_columns)
 
 
 def as_number(v: Any) -> int | float | None:
@@ -106,23 +106,51 @@ def quoted(name: str) -> str:
 
 
 def factorize(col: pd.Series) -> Factorized:
-    """Codes (-1 for missing) and the distinct values as an object array."""
+    """Codes (-1 for missing) and the distinct values as an object array, in order of first
+    appearance. Text read by Arrow (the text and Parquet loaders) is dictionary-encoded by Arrow."""
+    encoded = _arrow_factorize(col)
+    if encoded is not None:
+        return encoded[0], encoded[1].to_numpy(zero_copy_only=False)
     codes, uniques = pd.factorize(col, use_na_sentinel=True)
     return np.asarray(codes, dtype=np.int64), np.asarray(uniques, dtype=object)
 
 
+def _arrow_factorize(col: pd.Series):
+    """An Arrow-backed text column dictionary-encoded by Arrow (hashing in C++, about twice as fast
+    as pandas' factorize of the same strings): (codes, -1 for missing; distinct values as an Arrow
+    string array); None for any other column."""
+    if not isinstance(col.dtype, pd.StringDtype) or col.dtype.storage != "pyarrow":
+        return None
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    encoded = pc.dictionary_encode(pa.chunked_array(col.array.__arrow_array__()))  # every chunk: the final dictionary
+    if encoded.num_chunks == 0:
+        return np.full(len(col), MISSING, dtype=np.int64), pa.array([], type=pa.string())
+    dictionary = encoded.chunk(encoded.num_chunks - 1).dictionary
+    indices = pa.chunked_array([c.indices for c in encoded.chunks], type=encoded.type.index_type)
+    codes = pc.fill_null(indices, MISSING).to_numpy().astype(np.int64)
+    return codes, dictionary
+
+
 def factorize_columns(columns: Sequence[pd.Series]) -> list[Factorized]:
-    """`factorize` of each column; large text columns on several threads at once (the hashing
-    releases the GIL)."""
+    """`factorize` of each column, large text columns on several threads at once (the hashing
+    releases the GIL). The distinct values of Arrow-backed text stay an Arrow string array
+    (`Encoder.codes` and `Encoder.ids` take either), so a million distinct unit ids are checked
+    in Arrow and turned into Python strings once."""
+    def one(c):
+        encoded = _arrow_factorize(c)
+        return encoded if encoded is not None else factorize(c)
+
     big = [i for i, c in enumerate(columns) if len(c) >= _PARALLEL_ROWS and isinstance(c.dtype, pd.StringDtype)]
     out: list[Factorized | None] = [None] * len(columns)
     if len(big) >= 2:
         from concurrent.futures import ThreadPoolExecutor
 
         with ThreadPoolExecutor(max_workers=min(len(big), os.cpu_count() or 1)) as pool:
-            for i, done in zip(big, pool.map(lambda i: factorize(columns[i]), big)):
+            for i, done in zip(big, pool.map(lambda i: one(columns[i]), big)):
                 out[i] = done
-    return [done if done is not None else factorize(c) for done, c in zip(out, columns)]
+    return [done if done is not None else one(c) for done, c in zip(out, columns)]
 
 
 class Stats:
@@ -166,6 +194,7 @@ class Encoder:
         self.vocab: dict = {}
         self.presence_sets: list[frozenset] = []
         self.presence_columns: list[tuple[Table, Any, str]] = []  # (table, category, column)
+        self.spaced = False  # some id read (unit id or coder name) had spaces before or after it
 
     def codes(self, col: pd.Series, label: str, factorized: Factorized | None = None,
               weights: np.ndarray | None = None) -> np.ndarray:
@@ -174,6 +203,8 @@ class Encoder:
         fcodes, uniques = factorize(col) if factorized is None else factorized
         if not len(uniques):
             return np.full(len(col), MISSING, dtype=np.int64)
+        if not isinstance(uniques, np.ndarray):
+            uniques = uniques.to_numpy(zero_copy_only=False)  # an Arrow array of the distinct codes
         stats, vocab, trim, casefold = self.stats, self.vocab, self.trim, self.casefold
         ok = fcodes >= 0
         counts = np.bincount(fcodes[ok], weights=None if weights is None else np.asarray(weights, float)[ok],
@@ -199,6 +230,15 @@ class Encoder:
         fcodes, uniques = factorize(col) if factorized is None else factorized
         if not len(uniques):
             return np.full(len(col), MISSING, dtype=np.int64), np.array([], dtype=object)
+        if not isinstance(uniques, np.ndarray):
+            # distinct text from Arrow: checked there; ids without spaces around them (and not
+            # blank) are the ids as they are, with no second pass
+            import pyarrow.compute as pc
+
+            stripped = pc.utf8_trim_whitespace(uniques)
+            if not pc.any(pc.not_equal(stripped, uniques)).as_py() and not pc.any(pc.equal(stripped, "")).as_py():
+                return fcodes, uniques.to_numpy(zero_copy_only=False)
+            uniques = uniques.to_numpy(zero_copy_only=False)
         converted = not isinstance(col.dtype, pd.StringDtype)
         if not converted:
             text = pd.Series(uniques, dtype="str")
@@ -208,6 +248,7 @@ class Encoder:
         stripped = text.str.strip()
         blank = (stripped.fillna("") == "").to_numpy()
         changed = (stripped != text).to_numpy() & ~blank
+        self.spaced = self.spaced or bool(changed.any())
         if self.trim and changed.any():
             counts = np.bincount(fcodes[fcodes >= 0], minlength=len(uniques))
             self.stats.add("trim", label, int(counts[changed].sum()))

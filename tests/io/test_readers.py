@@ -819,3 +819,37 @@ def test_parallel_factorizing_of_a_large_long_table_changes_nothing(tmp_path, mo
     plain = readers.read(path)
     assert list(fast.unit_ids) == list(plain.unit_ids) and fast.values == plain.values
     np.testing.assert_array_equal(fast.codes, plain.codes)
+
+
+def test_arrow_encoding_of_text_columns_matches_pandas_factorize():
+    # text read by Arrow is dictionary-encoded by Arrow; pandas' factorize of the same cells as
+    # Python objects is the reference (codes in order of first appearance, -1 for missing)
+    import pyarrow as pa
+
+    from agree.io.cells import factorize, factorize_columns
+
+    rng = np.random.default_rng(7)
+    cells = [None if x == 0 else (" " if x == 1 else "") + f"id{x}" for x in rng.integers(0, 40, 3000)] + ["", "  "]
+    chunked = pa.chunked_array([pa.array(cells[:1000]), pa.array(cells[1000:])])
+    col = pd.Series(pd.arrays.ArrowStringArray(chunked)).iloc[7:]     # several chunks, sliced
+    ref_codes, ref_uniques = pd.factorize(np.array(cells[7:], dtype=object), use_na_sentinel=True)
+    codes, uniques = factorize(col)
+    np.testing.assert_array_equal(codes, ref_codes)
+    assert list(uniques) == list(ref_uniques)
+    (codes, arrow_uniques), = factorize_columns([col])
+    np.testing.assert_array_equal(codes, ref_codes)
+    assert arrow_uniques.to_pylist() == list(ref_uniques)
+
+
+def test_unit_ids_with_spaces_in_a_large_long_table(tmp_path):
+    # the check for unit ids that differ only in spaces runs when any id has spaces around it
+    n = 40_000
+    units = [f"u{i}" for i in range(n)]
+    units[5] = "u4 "                                   # 'u4' and 'u4 ': twins
+    frame = pd.DataFrame({"unit": np.repeat(units, 3), "coder": np.tile(["ana", "ben", "cy"], n),
+                          "code": np.tile(["a", "b", "a"], n)})
+    path = tmp_path / "long.csv"
+    frame.to_csv(path, index=False)
+    data = read(path)
+    assert any("differs only in spaces" in note and "'u4 '" in note for note in data.report.notes)
+    assert data.n_units == n
