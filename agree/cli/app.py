@@ -50,12 +50,16 @@ def _global(
     ctx.with_resource(run_scope())
 
 
+_BARS: list = []  # the progress bar shown, if any
+
+
 @contextlib.contextmanager
 def progress_bar(description: str) -> Iterator[Any]:
     """A rich progress bar on stderr; silent when stderr is not a terminal or with --quiet.
 
-    Yields a callback(step, fraction) for the library's `progress=` argument."""
-    if STATE["quiet"] or not stderr.is_terminal:
+    Yields a callback(step, fraction) for the library's `progress=` argument. Inside another bar
+    (reading inside a command's own bar) it is silent: one bar at a time."""
+    if STATE["quiet"] or not stderr.is_terminal or _BARS:
         yield lambda step, done: None
         return
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
@@ -67,7 +71,11 @@ def progress_bar(description: str) -> Iterator[Any]:
         def update(step: str, done: float) -> None:
             bar.update(task, completed=min(max(done, 0.0), 1.0), step=step)
 
-        yield update
+        _BARS.append(bar)
+        try:
+            yield update
+        finally:
+            _BARS.pop()
 
 
 def scaled(tick: Any, low: float, high: float) -> Any:

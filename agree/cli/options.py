@@ -28,7 +28,7 @@ from typing import TYPE_CHECKING, Annotated, Any, Optional, Sequence
 
 import typer
 
-from agree.cli.app import note
+from agree.cli.app import note, progress_bar
 from agree.core.constants import DEFAULT_RESAMPLES as DEFAULT_BOOT  # noqa: F401 (the commands' defaults)
 from agree.core.constants import DEFAULT_SEED  # noqa: F401
 from agree.core.errors import AgreeError
@@ -265,41 +265,44 @@ def load_data(files: Sequence[Path], *, layout: Layout | str | None = None, unit
 
     `cluster`, when given, is kept as a per-unit column like those in `keep`. `engine` 'auto' takes
     DuckDB only where the command accepts pattern counts (`weighted_ok`) and the files are large.
-    `progress` is the library's progress callback (the DuckDB reduction reports through it).
+    `progress` is the library's progress callback (the steps of reading, or the DuckDB reduction,
+    report through it); without one, reading shows its own progress bar on stderr.
     """
     keep_cols = list(keep or ())
     if cluster and cluster not in keep_cols:
         keep_cols.append(cluster)
     opts = dict(codebook=codebook, level=_value(level), sep=sep or None, trim=trim, casefold=casefold)
     engine = _value(engine)
-    if counts:
-        from agree.io.counts import read_counts
+    # a command without its own bar shows one for reading (silent off a terminal, or with --quiet)
+    with (progress_bar("reading") if progress is None else contextlib.nullcontext(progress)) as progress:
+        if counts:
+            from agree.io.counts import read_counts
 
-        data = read_counts([str(f) for f in files], coders=_as_names(coder), values=_one_or_many(code),
-                           keep=tuple(keep_cols), sheet=_one_or_many(sheet), progress=progress, **opts)
-    else:
-        from agree.io.duckdb_engine import choose_engine, expand_paths
-
-        names = [str(f) for f in files]
-        chosen = choose_engine(names, engine if weighted_ok or engine != "auto" else "pandas", layout=_value(layout))
-        if chosen == "duckdb":
-            from agree.io.duckdb_engine import read_duckdb
-
-            if _value(layout) not in (None, "long") or sheet or text:
-                raise AgreeError("the duckdb engine reads the long layout (unit, coder, code columns) of CSV and "
-                                 "Parquet files", code="bad-option",
-                                 hint="leave out --layout, --sheet and --text-col, or use --engine pandas")
-            if engine == "auto":
-                note("note: large files: reduced to pattern counts with DuckDB (--engine pandas reads them "
-                     "into memory)")
-            data = read_duckdb(names, unit=unit, coder=_one(coder, "--coder-col"), code=_one(code, "--code-col"),
-                               keep=tuple(keep_cols), progress=progress, **opts)
+            data = read_counts([str(f) for f in files], coders=_as_names(coder), values=_one_or_many(code),
+                               keep=tuple(keep_cols), sheet=_one_or_many(sheet), progress=progress, **opts)
         else:
-            from agree.io.readers import read
+            from agree.io.duckdb_engine import choose_engine, expand_paths
 
-            data = read(expand_paths(names), layout=_value(layout), unit=unit, coder=_one_or_many(coder),
-                        code=_one_or_many(code), text=text, sheet=_one_or_many(sheet), keep=tuple(keep_cols),
-                        **opts)
+            names = [str(f) for f in files]
+            chosen = choose_engine(names, engine if weighted_ok or engine != "auto" else "pandas", layout=_value(layout))
+            if chosen == "duckdb":
+                from agree.io.duckdb_engine import read_duckdb
+
+                if _value(layout) not in (None, "long") or sheet or text:
+                    raise AgreeError("the duckdb engine reads the long layout (unit, coder, code columns) of CSV and "
+                                     "Parquet files", code="bad-option",
+                                     hint="leave out --layout, --sheet and --text-col, or use --engine pandas")
+                if engine == "auto":
+                    note("note: large files: reduced to pattern counts with DuckDB (--engine pandas reads them "
+                         "into memory)")
+                data = read_duckdb(names, unit=unit, coder=_one(coder, "--coder-col"), code=_one(code, "--code-col"),
+                                   keep=tuple(keep_cols), progress=progress, **opts)
+            else:
+                from agree.io.readers import read
+
+                data = read(expand_paths(names), layout=_value(layout), unit=unit, coder=_one_or_many(coder),
+                            code=_one_or_many(code), text=text, sheet=_one_or_many(sheet), keep=tuple(keep_cols),
+                            progress=progress, **opts)
     report_reading(data)
     return data
 

@@ -303,7 +303,8 @@ def _load_text(path: Path, *, name: str, sheet: Any = None, suffix: str = "") ->
             read_options=pacsv.ReadOptions(column_names=names, block_size=block_size),
             # quoted cells may hold line breaks (multi-line excerpts); without quotes they cannot
             parse_options=pacsv.ParseOptions(delimiter=delimiter, newlines_in_values=b'"' in data),
-            convert_options=pacsv.ConvertOptions(column_types={c: pa.string() for c in names},
+            # large_string: what pandas' text columns hold, so the frame takes the columns as they are
+            convert_options=pacsv.ConvertOptions(column_types={c: pa.large_string() for c in names},
                                                  strings_can_be_null=True, null_values=[""],
                                                  quoted_strings_can_be_null=True),
         )

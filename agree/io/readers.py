@@ -44,7 +44,7 @@ row is row 2 (see `agree.io.loaders`).
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any, Callable, Sequence
 
 from agree.core.model import LEVELS, AgreeError, CodingData, ReadReport
 from agree.io.assemble import assemble
@@ -56,6 +56,7 @@ __all__ = ["read", "read_codebook", "Codebook", "LAYOUTS"]
 # Exported by the package as `agree.read`, `agree.read_codebook` and `agree.Codebook`.
 
 LAYOUTS = LAYOUT_OPTIONS  # the values of layout=
+_LOADING, _BUILDING = 0.4, 0.8  # where on the progress bar matching the ids and checking start (their share of the time)
 
 
 def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
@@ -63,7 +64,8 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
          code: str | Sequence[str] | None = None, text: str | None = None,
          sheet: str | int | Sequence[str] | None = None, sep: str | None = ";",
          codebook: Any = None, trim: bool = False, casefold: bool = False,
-         level: str | None = None, keep: Sequence[str] = (), max_cells: int | None = None) -> CodingData:
+         level: str | None = None, keep: Sequence[str] = (), max_cells: int | None = None,
+         progress: Callable[[str, float], None] | None = None) -> CodingData:
     """Read one or more coding tables into `CodingData`.
 
     Parameters
@@ -90,6 +92,8 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
         holding values); larger sheets are refused before they are built. Default
         ``agree.core.constants.MAX_SHEET_CELLS`` (20 million). Memory follows the cells that hold
         values, never the size a sheet declares.
+    progress : called as progress(step, fraction_done) as each step of reading starts (reading
+        a file, matching unit ids, checking the codes).
 
     Returns
     -------
@@ -108,10 +112,12 @@ def read(paths: str | Path | Sequence[str | Path], *, layout: str | None = None,
     """
     with cell_limit(max_cells):
         return _read(paths, layout=layout, unit=unit, coder=coder, code=code, text=text, sheet=sheet, sep=sep,
-                     codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep)
+                     codebook=codebook, trim=trim, casefold=casefold, level=level, keep=keep,
+                     progress=progress or (lambda step, done: None))
 
 
-def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim, casefold, level, keep) -> CodingData:
+def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim, casefold, level, keep,
+          progress) -> CodingData:
     files = [paths] if isinstance(paths, (str, Path)) else list(paths)
     if not files:
         raise AgreeError("no input files given", hint="name one or more files", code="no-input")
@@ -124,7 +130,8 @@ def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim,
     book = None if codebook is None else as_codebook(codebook, trim=trim)
 
     tables, notes, left_out, checksums = [], [], [], {}
-    for f in files:
+    for i, f in enumerate(files):
+        progress(f"reading {Path(f).name}", _LOADING * i / len(files))
         part, loaded = load_tables(Path(f), sheet=sheet, name=str(f))
         if len(files) > 1 and len(part) > 1:
             raise AgreeError(f"the workbook has {len(part)} sheets with data; with several files "
@@ -142,8 +149,10 @@ def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim,
         for t in tables:
             refuse_consensus(t)
     chosen = choose_layout(tables, layout, coder=coder, code=code, unit=unit)
+    progress("matching unit ids", _LOADING)
     build = Build(tables, names, chosen, unit=unit, coder=coder, code=code, text=text, keep=keep,
                   sep=sep, trim=trim, casefold=casefold).run()
+    progress("checking the codes", _BUILDING)
     fields = assemble(build, book=book, level=level)
     codes = fields["codes"]
     observed = int((codes >= 0).sum())
@@ -161,4 +170,5 @@ def _read(paths, *, layout, unit, coder, code, text, sheet, sep, codebook, trim,
         left_out=tuple(left_out + build.left_out),
         checksums=dict(checksums),
     )
+    progress("read", 1.0)
     return CodingData(**fields, report=report)

@@ -186,8 +186,7 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
         skipped["kappa family"] = ("kappa-type coefficients need one code per unit and coder; "
                                    "analyse each code as present/absent with `agree codes`")
 
-    observed = d.codes >= 0
-    per_unit = observed.sum(axis=1)
+    per_unit = (d.codes >= 0).sum(axis=1)  # once for every count below
     # rows of weighted data (pattern counts) are not units: their ids name no unit left out
     left = d.unit_ids[per_unit < 2] if d.weights is None else d.unit_ids[:0]
     used = per_unit >= 2
@@ -197,8 +196,8 @@ def score(data: Any, *, level: str | None = None, minimum: float | None = None, 
     return ScoreResult(
         coefficients=results, level=level_label, coders=d.coders, units_read=d.units_represented,
         units_used=int(uw[used].sum()), units_left_out=tuple(str(u) for u in left),
-        values_read=int(uw @ observed.sum(axis=1)), values_missing=int(uw @ (~observed).sum(axis=1)),
-        values_used=int(uw[used] @ observed[used].sum(axis=1)), n_categories=len(d.values),
+        values_read=int(uw @ per_unit), values_missing=int(uw @ (d.n_coders - per_unit)),
+        values_used=int(uw[used] @ per_unit[used]), n_categories=len(d.values),
         categories=tuple(value_label(v) for v in d.values), n_resamples=int(n_resamples),
         seed=seed if n_resamples else None, ci_method=ci_method, confidence_level=confidence_level,
         minimum=minimum, resampled=f"cluster:{cluster}" if isinstance(cluster, str) else
@@ -215,8 +214,11 @@ def _score_warnings(d: CodingData, results: Mapping[str, AgreementResult], n_use
     chance = [results[k] for k in ("krippendorff_alpha", "cohen_kappa", "fleiss_kappa") if k in results]
     if not d.set_valued and d.codes.size:
         seen = d.codes >= 0
-        row_w = np.broadcast_to(d.unit_weights()[:, None], d.codes.shape)
-        shares = np.bincount(d.codes[seen], weights=row_w[seen], minlength=len(d.values)) / max(row_w[seen].sum(), 1)
+        if d.weights is None:
+            shares = np.bincount(d.codes[seen], minlength=len(d.values)) / max(int(seen.sum()), 1)
+        else:
+            row_w = np.broadcast_to(d.weights[:, None], d.codes.shape)
+            shares = np.bincount(d.codes[seen], weights=row_w[seen], minlength=len(d.values)) / max(row_w[seen].sum(), 1)
         top = float(shares.max()) if len(shares) else 0.0
         low_chance = [r for r in chance if r.defined and r.estimate < 0.67]
         if pa is not None and pa.defined and pa.estimate >= 0.8 and low_chance and top >= 0.6:

@@ -853,3 +853,12 @@ def test_unit_ids_with_spaces_in_a_large_long_table(tmp_path):
     data = read(path)
     assert any("differs only in spaces" in note and "'u4 '" in note for note in data.report.notes)
     assert data.n_units == n
+
+
+def test_reading_reports_its_steps(tmp_path):
+    path = tmp_path / "long.csv"
+    path.write_text("unit,coder,code\nu1,ana,a\nu1,ben,a\nu2,ana,b\nu2,ben,a\n")
+    steps = []
+    read(path, progress=lambda step, done: steps.append((step, done)))
+    assert [s for s, _ in steps] == ["reading long.csv", "matching unit ids", "checking the codes", "read"]
+    assert [d for _, d in steps] == sorted(d for _, d in steps) and steps[-1][1] == 1.0
