@@ -21,6 +21,7 @@ from agree.cli.options import (
     reading_options,
     summary_and_file_format,
 )
+from agree.cli.spans import load_spans, span_options
 
 
 class ReviewFormat(str, Enum):
@@ -38,6 +39,7 @@ def _recorded(options: dict[str, Any]) -> dict[str, Any]:
 
 @app.command()
 @reading_options
+@span_options
 def disagreements(
     files: Files,
     output: OutputOption,
@@ -59,6 +61,7 @@ def disagreements(
     level: LevelOption = None,
     *,
     reading: dict,
+    span_reading: dict,
 ):
     """Write the units the coders disagree on to a review workbook, worst first.
 
@@ -78,9 +81,16 @@ def disagreements(
     Example: agree disagreements samples/round1.csv --codebook samples/codebook.csv -o review.xlsx
 
     Other per-unit columns kept with --keep (e.g. --keep interview) are shown beside the unit.
+
+    Highlighted passages (a .qdpx/.qde project or a span table): one row per disputed passage
+    (paragraphs, or --segments sentence|turn|FILE), with its document, the passage in context,
+    each coder's spans marked ⟦code⟧...⟦/code⟧ and each coder's codes.
     """
     shown, file_format = summary_and_file_format(output_format, summary_format, file_format,
                                                  [f.value for f in ReviewFormat])
+    spans = load_spans(files, codebook=codebook, reading=reading, **span_reading)
+    if spans is not None:
+        return _passages(spans, files, output, file_format, shown, include_agreed, force, span_reading)
     reading = {**reading, **option_values(codebook=codebook, level=level)}
     options = _recorded({**reading, "include_agreed": include_agreed, "accept_single": accept_single})
     options["sep"] = reading["sep"]
@@ -109,3 +119,25 @@ def disagreements(
         print_json(summary.to_dict())
     else:
         print_summary("Review list", [*review_counts(summary), ("rows written", summary.rows_written)])
+
+
+def _passages(spans, files, output, file_format, shown, include_agreed, force, span_reading) -> None:
+    """The review of disputed passages (segments as units)."""
+    from agree.cli.spans import segment_arguments, view_choice
+    from agree.output.passages import write_passage_review
+    from agree.output.reconciliation import review_counts
+
+    view_choice({**span_reading, "view": span_reading.get("view") or "segments"}, ("segments",), "disagreements")
+    segments = segment_arguments(span_reading)
+    options = {"view": "segments", **_recorded({k: v for k, v in span_reading.items() if v is not None}),
+               "include_agreed": include_agreed}
+    summary = write_passage_review(spans, output, format=file_format, inputs=list(files), options=options,
+                                   include_agreed=include_agreed, force=force, **segments)
+    note(f"wrote {output}: {summary.needing_review} disputed passages to review ({summary.units_read} passages "
+         f"read, {summary.agreed} agreed, {len(summary.left_out)} not listed; segments: "
+         f"{segments['by'] if segments['segments'] is None else 'listed'})")
+    if shown == "json":
+        print_json(summary.to_dict())
+    else:
+        rows = [(label.replace("units", "passages"), n) for label, n in review_counts(summary)]
+        print_summary("Review list (passages)", [*rows, ("rows written", summary.rows_written)])

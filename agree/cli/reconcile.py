@@ -21,6 +21,7 @@ from agree.cli.options import (
     reading_options,
     summary_and_file_format,
 )
+from agree.cli.spans import load_spans, span_options
 from agree.core.errors import AgreeError
 
 
@@ -35,6 +36,7 @@ INDEPENDENT = ("Agreement is always computed on the coders' independent codes, n
 
 @app.command("reconcile")
 @reading_options
+@span_options
 def reconcile_command(
     review: Annotated[list[Path], typer.Argument(
         help="The filled-in review file (xlsx or csv). Data files may follow it.",
@@ -65,6 +67,7 @@ def reconcile_command(
     level: LevelOption = None,
     *,
     reading: dict,
+    span_reading: dict,
 ):
     """Read the decisions back and write one final code per unit.
 
@@ -84,6 +87,13 @@ def reconcile_command(
     review file no longer matches the data, or when units still need a decision
     (unless --allow-unresolved). Never overwrites the review file or the data.
 
+    Highlighted passages (the review of `agree disagreements` on a project or a span table;
+    give the same span options): each passage takes its decided codes, as one span per code over
+    the passage. -o consensus.qdpx writes the project back with the original users' codings
+    untouched and one added user, "consensus", holding the consensus codings (from a span table:
+    a new project with every coder and the consensus user); -o .csv, .xlsx or .parquet writes the
+    consensus spans as a span table.
+
     Example: agree reconcile review.xlsx --data samples/round1.csv --codebook samples/codebook.csv -o consensus.csv
     """
     review_file, *extra = review
@@ -93,6 +103,10 @@ def reconcile_command(
                          "with --data", code="no-input")
     shown, file_format = summary_and_file_format(output_format, summary_format, file_format,
                                                  [f.value for f in ConsensusFormat])
+    spans = load_spans(files, codebook=codebook, reading=reading, **span_reading)
+    if spans is not None:
+        return _passages(spans, review_file, files, output, shown, allow_unresolved, majority, force,
+                         span_reading)
     reading = {**reading, **option_values(codebook=codebook, level=level)}
     data = load_data(files, **reading)
     from agree.output.reconciliation import reconcile, unresolved_listing, write_consensus
@@ -120,3 +134,40 @@ def reconcile_command(
             ("unresolved", summary["unresolved"]),
             ("coded by no coder", summary["not_coded"]),
             ("written", summary["written"])])
+
+
+def _passages(spans, review_file, files, output, shown, allow_unresolved, majority, force, span_reading) -> None:
+    """Consensus spans from a review of disputed passages."""
+    from agree.cli.spans import segment_arguments, view_choice
+    from agree.io.spans import span_input
+    from agree.output.passages import passage_units, reconcile_passages, write_consensus_spans
+    from agree.output.reconciliation import unresolved_listing
+
+    view_choice({**span_reading, "view": span_reading.get("view") or "segments"}, ("segments",), "reconcile")
+    units = passage_units(spans, **segment_arguments(span_reading))
+    result = reconcile_passages(units, review_file, allow_unresolved=allow_unresolved, majority=majority)
+    consensus = result.consensus
+    project = files[0] if span_input(files[0]) == "project" else None
+    write_consensus_spans(result, output, spans=spans, project=project, inputs=[review_file, *files],
+                          span_end=span_reading.get("span_end") or "exclusive", force=force)
+    for line in consensus.notes:
+        note(line if line.startswith("warning:") else f"note: {line}")
+    if consensus.unresolved:
+        n = len(consensus.unresolved)
+        note(f"{n} passage{'s' if n != 1 else ''} left out of the consensus (unresolved): "
+             + unresolved_listing(consensus.unresolved, consensus.unresolved_rows or [None] * n))
+    where = ("the project's users untouched, one user 'consensus' added" if project is not None
+             and Path(output).suffix.lower() == ".qdpx" else "a span table" if Path(output).suffix.lower() != ".qdpx"
+             else "a new project: every coder, and the user 'consensus'")
+    note(f"wrote {output}: {len(result.spans)} consensus spans over {consensus.units_read} passages ({where}). "
+         + INDEPENDENT)
+    summary = result.to_dict()
+    if shown == "json":
+        print_json(summary)
+    else:
+        print_summary("Consensus (passages)", [
+            ("passages read", summary["units_read"]), ("agreed", summary["agreed"]),
+            ("decided", summary["decided"]), ("majority", summary["majority"]),
+            ("unresolved (left out)", summary["unresolved"]),
+            ("coded by no coder", summary["not_coded"]),
+            ("consensus spans written", summary["consensus_spans"])])

@@ -86,7 +86,7 @@ def test_blank_or_empty_sheets_stop_naming_the_file(tmp_path, capsys):
     empty = tmp_path / "empty.xlsx"
     openpyxl.Workbook().save(empty)
     for path, words in ((blank, "no codes were read"), (empty, "the sheet is empty")):
-        code, _, err = run_main(capsys, "disagreements", path, "-o", tmp_path / "review.xlsx")
+        code, _, err = run(capsys, "disagreements", path, "-o", tmp_path / "review.xlsx")
         assert code == 2 and words in err and path.name in err and "Traceback" not in err
         assert not (tmp_path / "review.xlsx").exists()
 
@@ -100,3 +100,33 @@ def test_xlsx_past_the_sheet_row_limit_is_one_line_with_the_alternatives(tmp_pat
     assert code == 2 and "Traceback" not in err
     assert "rows (the header included)" in err and "-o review.csv" in err and "-o review.parquet" in err
     assert not (tmp_path / "review.xlsx").exists()
+
+
+def test_disputed_passages_of_the_sample_project(tmp_path, capsys):
+    """Highlighted passages: one row per disputed speaker turn, with the document, each coder's
+    spans marked and codes, and the decision columns of the unit review."""
+    import openpyxl
+
+    from tests.cli.conftest import SAMPLES
+
+    review = tmp_path / "review.xlsx"
+    code, out, err = run(capsys, "disagreements", SAMPLES / "passages.qdpx", "--segments", "turn",
+                              "-o", review, "--format", "json")
+    assert code == 0, err
+    summary = json.loads(out)
+    assert summary["units_read"] == summary["agreed"] + summary["needing_review"] + summary["left_out"]
+    assert "disputed passages to review" in err
+    ws = openpyxl.load_workbook(review)["Review"]
+    header = [c.value for c in ws[1]]
+    for column in ("unit", "document", "start", "end", "text", "marked: amara", "marked: bastien", "marked: chen",
+                   "amara", "bastien", "chen", "codes involved", "decision", "how decided", "decided by", "notes"):
+        assert column in header
+    rows = [dict(zip(header, r)) for r in ws.iter_rows(min_row=2, values_only=True)]
+    assert len(rows) == summary["rows_written"] > 0
+    assert all("»" in r["text"] and "«" in r["text"] for r in rows)
+    # every listed passage has coders whose sets of codes differ
+    assert all(len({r["amara"], r["bastien"], r["chen"]}) > 1 for r in rows)
+    # a span option that makes no sense for the review is refused in one line
+    code, _, err = run(capsys, "disagreements", SAMPLES / "passages.qdpx", "--view", "positions",
+                            "-o", tmp_path / "r2.xlsx")
+    assert code == 2 and "Traceback" not in err and "--view positions" in err

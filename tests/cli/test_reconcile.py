@@ -230,3 +230,69 @@ def test_a_review_csv_saved_by_a_spreadsheet_in_a_legacy_encoding_with_semicolon
     consensus = pd.read_csv(tmp_path / "consensus.csv", dtype=str)
     assert dict(zip(consensus["unit"], consensus["final code"])) == {"café": "süß", "thé": "süß", "u3": "bitter"}
     assert review.read_bytes() == before
+
+
+def test_passages_review_then_consensus_project_and_span_table(tmp_path, capsys):
+    """The sample project: review of disputed turns -> decisions filled in with openpyxl (each
+    disputed turn takes amara's codes) -> reconcile -> a .qdpx whose original users are untouched
+    and whose added user 'consensus' holds one span per turn and code; the same as a span table."""
+    from agree.analysis.passages import segment_units
+    from agree.io.refi import read_project
+    from agree.io.spans import read_spans
+    from tests.cli.conftest import SAMPLES
+    from tests.output.test_passages import SCHEMA, qde
+
+    sample = SAMPLES / "passages.qdpx"
+    review = tmp_path / "review.xlsx"
+    code, _, err = run(capsys, "disagreements", sample, "--segments", "turn", "-o", review)
+    assert code == 0, err
+    wb = openpyxl.load_workbook(review)
+    ws = wb[REVIEW_SHEET]
+    cols = {c.value: c.column for c in ws[1]}
+    expected = set()
+    for r in range(2, ws.max_row + 1):
+        get = lambda name: ws.cell(r, cols[name]).value  # noqa: E731
+        ws.cell(r, cols["decision"]).value = get("amara")
+        ws.cell(r, cols["how decided"]).value = "discussion"
+        codes = [] if get("amara") == "(none)" else get("amara").split("; ")
+        expected |= {(get("document"), c, int(get("start")), int(get("end"))) for c in codes}
+    filled = tmp_path / "filled.xlsx"
+    wb.save(filled)
+    # the agreed turns keep their agreed codes
+    units = segment_units(read_project(sample), by="turn")
+    for u in range(units.n_units):
+        given = {units.values[c] for c in units.codes[u] if c >= 0}
+        if len(given) == 1:
+            expected |= {(units.columns["document"][u], c, int(units.columns["start"][u]),
+                          int(units.columns["end"][u])) for c in next(iter(given))}
+
+    out = tmp_path / "consensus.qdpx"
+    code, printed, err = run(capsys, "reconcile", filled, "--data", sample, "--segments", "turn", "-o", out,
+                             "--format", "json")
+    assert code == 0, err
+    assert json.loads(printed)["consensus_spans"] == len(expected)
+    SCHEMA.validate(qde(out))
+    original, back = read_project(sample), read_project(out)
+    assert back.coders == (*original.coders, "consensus")
+    assert sorted(map(tuple, back.subset_coders(list(original.coders)).table().itertuples(index=False))) == \
+        sorted(map(tuple, original.table().itertuples(index=False)))
+    mine = back.subset_coders(["consensus"]).table()
+    assert set(zip(mine["document"], mine["code"], mine["start"], mine["end"])) == expected
+
+    table = tmp_path / "consensus.csv"
+    code, _, err = run(capsys, "reconcile", filled, "--data", sample, "--segments", "turn", "-o", table)
+    assert code == 0, err
+    spans = read_spans(table, documents_dir=SAMPLES / "passages").table()
+    assert set(zip(spans["document"], spans["code"], spans["start"], spans["end"])) == expected
+
+    # undecided passages stop the run (exit 2, one line) unless --allow-unresolved; inputs never replaced
+    code, _, err = run(capsys, "reconcile", review, "--data", sample, "--segments", "turn", "-o",
+                       tmp_path / "c2.qdpx")
+    assert code == 2 and "need a decision" in err and "Traceback" not in err
+    code, _, err = run(capsys, "reconcile", review, "--data", sample, "--segments", "turn", "-o",
+                       tmp_path / "c3.qdpx", "--allow-unresolved")
+    assert code == 0, err
+    assert read_project(tmp_path / "c3.qdpx").coders[-1] == "consensus"
+    code, _, err = run(capsys, "reconcile", filled, "--data", sample, "--segments", "turn", "-o", filled,
+                       "--force")
+    assert code == 2 and "Traceback" not in err
