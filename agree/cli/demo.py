@@ -22,7 +22,7 @@ from agree.cli.plan import print_plan
 from agree.cli.score import print_score
 from agree.core.constants import DEFAULT_RESAMPLES, DEFAULT_SEED
 from agree.core.errors import AgreeError
-from agree.core.files import make_folder
+from agree.core.files import make_folder, record_input
 
 
 def _samples_folder(given: Path | None) -> Path:
@@ -30,7 +30,7 @@ def _samples_folder(given: Path | None) -> Path:
         folder = given
     else:
         folder = Path(__file__).resolve().parents[2] / "samples"
-    needed = ["round1.csv", "round2.csv", "rounds_long.csv", "codebook.csv", "corpus.csv"]
+    needed = ["round1.csv", "round2.csv", "rounds_long.csv", "codebook.csv", "corpus.csv", "passages.qdpx"]
     missing = [n for n in needed if not (folder / n).exists()]
     if missing:
         raise AgreeError(f"the sample files are not in {folder} (missing: {', '.join(missing)})",
@@ -212,3 +212,85 @@ def _tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict, wri
     summary_json["units_needed"] = plan.units_needed
     summary_json["outputs"]["sheets"] = sheets.folder
     summary_json["drawn"] = len(drawn)
+    _passages_tour(folder, out, boot, seed, summary_json, written, step)
+
+
+PASSAGE_CODERS_NEEDED = 2  # the demo's invented decision: a code stays when this many coders gave it
+
+
+def _invent_decisions(review: Path, decided: Path, coders: tuple[str, ...]) -> int:
+    """Fill in the review of passages as a team might (invented): each disputed passage keeps the
+    codes at least two coders gave it, "(none)" when there are none; returns the rows filled."""
+    import openpyxl
+
+    from agree.output.reconciliation import NONE_LABEL, REVIEW_SHEET, SET_SEPARATOR
+
+    record_input(review)  # the decided copy is written beside it, never over it
+    wb = openpyxl.load_workbook(review)
+    ws = wb[REVIEW_SHEET]
+    cols = {c.value: c.column for c in ws[1]}
+    for r in range(2, ws.max_row + 1):  # a loop over the few rows of a review list
+        counts: dict[str, int] = {}
+        for coder in coders:
+            cell = ws.cell(r, cols[coder]).value or ""
+            for code in ("" if cell == NONE_LABEL else cell).split(SET_SEPARATOR):
+                if code:
+                    counts[code] = counts.get(code, 0) + 1
+        kept = [c for c, n in counts.items() if n >= PASSAGE_CODERS_NEEDED]
+        ws.cell(r, cols["decision"]).value = SET_SEPARATOR.join(sorted(kept)) or NONE_LABEL
+        ws.cell(r, cols["how decided"]).value = "discussion"
+        ws.cell(r, cols["decided by"]).value = "agree demo (invented)"
+        ws.cell(r, cols["notes"]).value = "invented decision: the codes two or more coders gave"
+    wb.save(decided)
+    return ws.max_row - 1
+
+
+def _passages_tour(folder: Path, out: Path, boot: int, seed: int, summary_json: dict, written: list[Path],
+                   step: _Steps) -> None:
+    """The span workflow on the sample project: score, review the disputed passages, decide
+    (invented decisions), reconcile back into a project."""
+    from dataclasses import replace
+
+    from agree.analysis.passages import position_agreement
+    from agree.cli.score import print_passages
+    from agree.cli.spans import report_spans
+    from agree.io.refi import read_project
+    from agree.output.passages import passage_units, reconcile_passages, write_consensus_spans, write_passage_review
+
+    project = folder / "passages.qdpx"
+    step("Highlighted passages: agreement", "agree score samples/passages.qdpx --min 0.8")
+    spans = read_project(project)
+    report_spans(spans)
+    scored = position_agreement(spans, minimum=0.8, n_resamples=boot, seed=seed)
+    # the Dice and span-matching tables (per code and pair of coders) are left to `agree score`
+    print_passages(replace(scored, specific=None, matching=None), 0.8)
+    stdout.print("Dice and span matching per code and pair of coders: agree score samples/passages.qdpx.",
+                 highlight=False)
+
+    step("Review of the disputed passages (speaker turns)",
+         "agree disagreements samples/passages.qdpx --segments turn -o review-passages.xlsx")
+    review = out / "review-passages.xlsx"
+    summary = write_passage_review(spans, review, by="turn", inputs=[project],
+                                   options={"source": "agree demo", "segments": "turn"}, force=True)
+    written.append(review)
+    stdout.print(f"{summary.needing_review} of {summary.units_read} turns are disputed: {review.name} shows "
+                 "each coder's spans marked in the text around the turn.", highlight=False)
+
+    decided = out / "review-passages-decided.xlsx"
+    n = _invent_decisions(review, decided, spans.coders)
+    written.append(decided)
+    step("Settle them and write the consensus back",
+         "agree reconcile review-passages-decided.xlsx --data samples/passages.qdpx --segments turn "
+         "-o consensus-passages.qdpx")
+    stdout.print(f"The demo filled in the {n} decisions itself (INVENTED, for the demo only: a code stays "
+                 f"where {PASSAGE_CODERS_NEEDED} or more coders gave it): {decided.name}.", highlight=False)
+    result = reconcile_passages(passage_units(spans, by="turn"), decided)
+    consensus = out / "consensus-passages.qdpx"
+    write_consensus_spans(result, consensus, spans=spans, project=project, inputs=[decided], force=True)
+    written.append(consensus)
+    stdout.print(f"{len(result.spans)} consensus spans over {result.consensus.units_read} turns "
+                 f"({result.consensus.agreed} agreed, {result.consensus.decided} decided), written to "
+                 f"{consensus.name}: the project's {len(spans.coders)} coders untouched, one user "
+                 "'consensus' added, to open in your analysis software.", highlight=False)
+    summary_json["outputs"]["passages"] = {"review": str(review), "decided": str(decided),
+                                           "consensus": str(consensus)}
