@@ -20,6 +20,7 @@ written atomically and never over one of its inputs.
 from __future__ import annotations
 
 import os
+import re
 import uuid
 import zipfile
 from pathlib import Path
@@ -156,7 +157,7 @@ def write_project(spans: SpanData | pd.DataFrame, path: str | os.PathLike, *, pr
                             max_bytes=max_bytes, max_entries=max_entries)
 
     def write(tmp: str) -> None:
-        with zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED) as z:
+        with zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED, compresslevel=1) as z:  # fast; the XML still shrinks ~8x
             for entry, data in files:
                 info = zipfile.ZipInfo(entry, date_time=(2019, 3, 18, 0, 0, 0))
                 info.compress_type = zipfile.ZIP_DEFLATED
@@ -237,7 +238,8 @@ def _added_user(spans: SpanData, project: Path, coder: str, *, span_end: str, cr
                              hint="positions are only meaningful over the same text; use the project the spans "
                                   "were read from")
     with open_package(project, max_bytes=max_bytes, max_entries=max_entries) as package:
-        root, ns = parse_project(package.project_bytes(), str(project))
+        data = package.project_bytes()
+        root, ns = parse_project(data, str(project))
         entries = [(n, data) for n, data in package.iter_entries() if n.lower() != package.qde.lower()]
         qde_name = package.qde if package.zip is not None else "project.qde"
     q = (lambda local: f"{{{ns}}}{local}") if ns else (lambda local: local)
@@ -250,15 +252,104 @@ def _added_user(spans: SpanData, project: Path, coder: str, *, span_end: str, cr
         raise AgreeError(f"the project already has a user named '{coder}'", where=str(project),
                          hint="name the added user with coder=", code="user-exists")
     user_guid = _new_guid()
-    ET.SubElement(users_el, q("User"), {"guid": user_guid, "name": coder})
+    user = ET.Element(q("User"), {"guid": user_guid, "name": coder})
     holders = _selection_holders(root, q)
     codes = [original.code_guids[code_map[c]] for c in range(len(spans.codes))]
+    added: dict[str, list[ET.Element]] = {}
     for d in np.unique(spans.doc):
         guid = original.document_guids[doc_map[d]]
-        sels = _selections(spans, int(d), original.texts[doc_map[d]], codes, [user_guid], q, span_end=span_end,
-                           crlf=crlf, positions=positions)
-        _insert_selections(holders[guid], sels)
-    return [(qde_name, _serialise(root, ns)), *entries]
+        added[guid] = _selections(spans, int(d), original.texts[doc_map[d]], codes, [user_guid], q,
+                                  span_end=span_end, crlf=crlf, positions=positions)
+    qde = _spliced(data, ns, user, added)
+    if qde is None:  # a layout the splice does not handle: rebuild the whole XML from the tree
+        users_el.append(user)
+        for guid, sels in added.items():
+            _insert_selections(holders[guid], sels)
+        qde = _serialise(root, ns)
+    return [(qde_name, qde), *entries]
+
+
+def _fragment(elements: Sequence[ET.Element], ns: str) -> bytes:
+    """Elements serialised as they sit in the project: unprefixed, in its default namespace (their
+    tags lose the namespace; the document declares it)."""
+    if not elements:
+        return b""
+    wrapper = ET.Element("w")
+    wrapper.extend(elements)
+    prefix = f"{{{ns}}}"
+    for el in wrapper.iter():
+        if ns and el.tag.startswith(prefix):
+            el.tag = el.tag[len(prefix):]
+    text = ET.tostring(wrapper, encoding="unicode")
+    return text[len("<w>"):-len("</w>")].encode("utf-8")
+
+
+_UTF8_DECLARATION = re.compile(rb"^(?:\xef\xbb\xbf)?\s*(?:<\?xml[^>]*?encoding\s*=\s*[\"']\s*(?P<enc>[^\"']*)[\"'])?")
+
+
+def _spliced(data: bytes, ns: str, user: ET.Element, added: dict[str, list[ET.Element]]) -> bytes | None:
+    """The original project XML with the added user and selections written into it at their places
+    (the rest of the file byte for byte), or None when its layout is one this does not handle (not
+    UTF-8, a prefixed namespace, an element written as an empty tag where something must go): then
+    the caller rebuilds the XML from the parsed tree. One pass of the C parser finds the places;
+    only the added elements are serialised, not the whole project again."""
+    import xml.parsers.expat as expat
+
+    declared = _UTF8_DECLARATION.match(data)
+    if declared.group("enc") is not None and declared.group("enc").strip().lower() not in (b"utf-8", b"utf8"):
+        return None
+    parser = expat.ParserCreate()  # no namespace processing: names as written (unprefixed expected)
+    depth, holder, holder_depth = 0, "", -1
+    pdf, places, users_end, first_child, root_name = "", {}, None, None, None
+
+    def start(name: str, attrs: dict) -> None:
+        nonlocal depth, holder, holder_depth, pdf, first_child, root_name
+        if depth == 0:
+            root_name = name
+        elif depth == 1 and first_child is None:
+            first_child = parser.CurrentByteIndex
+        if holder and depth == holder_depth + 1 and name in _AFTER_SELECTIONS and holder not in places:
+            places[holder] = parser.CurrentByteIndex
+        if depth == 2 and name in ("TextSource", "Note"):
+            holder, holder_depth = normalise_guid(attrs.get("guid")), depth
+        elif depth == 2 and name == "PDFSource":
+            pdf = normalise_guid(attrs.get("guid"))
+        elif depth == 3 and name == "Representation" and pdf:
+            holder, holder_depth = pdf, depth
+        depth += 1
+
+    def end(name: str) -> None:
+        nonlocal depth, holder, users_end
+        depth -= 1
+        at = parser.CurrentByteIndex
+        if depth == holder_depth and holder:
+            if holder not in places:
+                places[holder] = at if data[at:at + 2] == b"</" else -1
+            holder = ""
+        elif depth == 1 and name == "Users":
+            users_end = at if data[at:at + 2] == b"</" else -1
+
+    parser.StartElementHandler, parser.EndElementHandler = start, end
+    parser.buffer_text = True
+    parser.Parse(data, True)
+    if root_name != "Project" or users_end == -1 or any(places.get(g, -1) < 0 for g in added):
+        return None
+    if users_end is not None:
+        inserts = [(users_end, _fragment([user], ns))]
+    elif first_child is not None:
+        users = ET.Element(user.tag.replace("User", "Users"))
+        users.append(user)
+        inserts = [(first_child, _fragment([users], ns))]
+    else:
+        return None
+    inserts += [(places[g], _fragment(sels, ns)) for g, sels in added.items()]
+    inserts.sort(key=lambda x: x[0])
+    out, at = [], 0
+    for pos, piece in inserts:
+        out += [data[at:pos], piece]
+        at = pos
+    out.append(data[at:])
+    return b"".join(out)
 
 
 def _selection_holders(root: ET.Element, q) -> dict[str, ET.Element]:
